@@ -1,0 +1,87 @@
+"""The ``ctt`` command: parses arguments, calls the pipeline, maps errors to exit codes.
+
+Sub-commands live in :mod:`ctt.commands`; each module there has a
+``register(subparsers)`` function. Logs go to stderr; results go to files or
+stdout. Exit codes are those of :mod:`ctt.errors`.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import logging
+import pkgutil
+import sys
+
+from . import __version__
+from . import commands as _commands
+from .errors import EXIT_OK, EXIT_PROCESSING, EXIT_USAGE, CttError
+
+log = logging.getLogger("ctt")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="ctt",
+        description=(
+            "GNSS common-view time transfer: clock A minus clock B between two "
+            "distant stations from their RINEX files, with uncertainties, "
+            "stability and drift."
+        ),
+        epilog="Exit codes: 0 ok, 1 processing error, 2 usage/config error, "
+        "3 missing input or no usable data, 4 archive locked by another run.",
+    )
+    parser.add_argument("--version", action="version", version=f"ctt {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show tracebacks and debug logs")
+    parser.add_argument("-q", "--quiet", action="store_true", help="only warnings and errors on stderr")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for info in sorted(pkgutil.iter_modules(_commands.__path__), key=lambda m: m.name):
+        if info.name.startswith("_"):
+            continue
+        module = importlib.import_module(f"{_commands.__name__}.{info.name}")
+        register = getattr(module, "register", None)
+        if register is not None:
+            register(sub)
+    return parser
+
+
+def _setup_logging(debug: bool, quiet: bool) -> None:
+    level = logging.DEBUG if debug else (logging.WARNING if quiet else logging.INFO)
+    handler = logging.StreamHandler(sys.stderr)
+    handler.setFormatter(logging.Formatter("ctt: %(levelname)s: %(message)s"))
+    root = logging.getLogger("ctt")
+    root.handlers[:] = [handler]
+    root.setLevel(level)
+    root.propagate = False
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    _setup_logging(args.debug, args.quiet)
+    if not getattr(args, "func", None):
+        parser.print_help(sys.stderr)
+        return EXIT_USAGE
+    try:
+        code = args.func(args)
+        return EXIT_OK if code is None else int(code)
+    except CttError as exc:
+        if args.debug:
+            log.exception("failed")
+        print(f"ctt: error: {exc}", file=sys.stderr)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        print("ctt: interrupted", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return EXIT_OK
+    except Exception as exc:  # a bug: still one line unless --debug
+        if args.debug:
+            raise
+        print(f"ctt: internal error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",
+              file=sys.stderr)
+        return EXIT_PROCESSING
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

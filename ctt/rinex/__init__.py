@@ -1,0 +1,1 @@
+"""Readers for the RINEX family of open formats (observation, navigation, meteorological, products)."""
