@@ -1,0 +1,1044 @@
+"""Station and pair TOML files -> validated, frozen dataclasses.
+
+Every problem found while reading a file is a :class:`ctt.errors.ConfigError`
+naming the file and the key path (array-of-tables entries are counted from 1:
+``delays[2].cable_ns`` is ``cable_ns`` of the second ``[[delays]]`` table).
+A loader collects every problem of a file before raising; the first one is
+raised and the whole list is on the exception as ``.problems``.
+
+Station file
+============
+
+.. code-block:: toml
+
+    [station]
+    id = "LABA"                 # 4-9 letters/digits
+    name = "Invented Lab A, roof antenna"
+    elevation_mask_deg = 10.0   # optional, default 10
+    [station.position]          # antenna reference point or marker, ECEF metres
+    x_m = 4000000.0
+    y_m = 500000.0
+    z_m = 4900000.0
+    sigma_m = 0.02              # or sigma_x_m / sigma_y_m / sigma_z_m
+    frame = "ITRF2014"
+    epoch = 2021.0
+    is_marker = true            # true: antenna delta below is added to get the ARP
+    [station.antenna]
+    type = "INVENTED-ANT1"
+    delta_h_m = 0.0
+    delta_e_m = 0.0
+    delta_n_m = 0.0
+    [station.met]               # optional
+    pattern = "{station_lower}{doy:03d}0.{yy:02d}m"
+    [[delays]]                  # calibration sets with validity intervals (UTC)
+    valid_from = 2020-01-01T00:00:00Z    # TOML datetime or date
+    valid_until = 2030-01-01T00:00:00Z   # optional, exclusive; absent = open
+    receiver_ns = { C1C = 25.1, C1W = 25.3, C2W = 27.0, C5Q = 24.0 }
+    u_receiver_ns = 1.0          # or a table per code
+    cable_ns = 152.4
+    u_cable_ns = 0.2
+    reference_ns = 11.8
+    u_reference_ns = 0.3
+    note = "calibrated 2020-01 against travelling receiver"
+    [[changes]]                 # hardware change log
+    time = 2021-03-01T12:00:00Z
+    what = "antenna cable replaced"
+    expected_delay_change_ns = 3.2   # optional
+
+Sign convention of the delays (all are positive numbers)::
+
+    local clock - GNSS time = raw - (receiver + cable) + reference
+                            = raw - hardware_ns,
+    hardware_ns = receiver_ns[code] + cable_ns - reference_ns
+
+``receiver_ns`` is the receiver's internal delay for the RINEX 3 code,
+``cable_ns`` the antenna cable (and antenna/splitter) delay, ``reference_ns``
+the delay from the local reference clock's time point (e.g. the 1PPS
+connector of the clock) to the receiver's internal time scale. So adding 10 ns
+to station B's ``cable_ns`` lowers clock B by 10 ns and raises A - B by 10 ns.
+
+Unknown keys are refused (a misspelt key must not silently fall back to a
+default). Coordinates must have a geocentric radius between 6.35e6 and
+6.40e6 m (the WGS 84 ellipsoid runs 6.357e6..6.378e6 m, plus a few km of
+terrain; common practice).
+
+Pair file
+=========
+
+Paths are relative to the pair file's folder unless absolute.
+
+.. code-block:: toml
+
+    [pair]
+    name = "laba-labb"               # optional, default "<A>-<B>" (lower case ids)
+    station_a = "laba.toml"          # A of "clock A minus clock B"
+    station_b = "labb.toml"
+    data_root = "data"               # every input must resolve inside it
+
+    [inputs]                         # patterns relative to data_root
+    obs = ["{ID}_R_{yyyy}{doy:03d}0000_01D_30S_MO.crx.gz",   # alternatives in order
+           "{station}{doy:03d}0.{yy:02d}d.Z",
+           "{station}{doy:03d}0.{yy:02d}o"]
+    nav = "brdc{doy:03d}0.{yy:02d}n.gz"
+    sp3 = "prod/igs{gpsweek}{gpsdow}.sp3.Z"     # optional
+    clk = "prod/igs{gpsweek}{gpsdow}.clk.Z"     # optional
+    ionex = "prod/igsg{doy:03d}0.{yy:02d}i.Z"   # optional
+    met = "{station}{doy:03d}0.{yy:02d}m"       # optional (else each station's met pattern)
+    optional = ["met"]               # kinds whose absence is not an error (default ["met"])
+
+    [inputs.a]                       # optional per-station overrides: obs, nav, met
+    obs = "a/{STATION}{doy:03d}*.rnx"
+    [inputs.b]
+    obs = "b/{station}{doy:03d}0.{yy:02d}o.gz"
+
+    [processing]
+    mode = "tracks"                  # tracks | epochs | all-in-view
+    signals = "iono-free"            # iono-free | single
+    systems = ["G"]                  # RINEX system letters
+    codes = []                       # optional explicit codes, e.g. ["C1W", "C2W"]
+    orbits = "auto"                  # auto (precise when sp3 resolves) | broadcast | precise
+    bin_s = 30.0                     # epoch bin (epochs / all-in-view modes)
+    elevation_mask_deg = 10.0        # optional; default: the larger station mask
+    min_common_sats = 2
+    mad_k = 4.0                      # outlier rejection at k x MAD (scaled)
+    no_troposphere = false
+    no_ionosphere = false
+    no_tide = false
+    no_sagnac = false
+    no_relativity = false
+
+    [output]
+    dir = "out"                      # run folders go below it
+    archive = "out/ctt.sqlite"
+    report = "out/report.html"
+
+    [events]
+    max_gap_s = 3600.0               # event correction refuses gaps longer than this
+
+Placeholders in patterns (Python format fields, so ``{doy:03d}`` works):
+``{station}``/``{station_lower}`` first four id characters in lower case,
+``{STATION}`` the same in upper case, ``{id}`` / ``{ID}`` the whole id as
+written / upper case, ``{yyyy}`` ``{yy}`` ``{mm}`` ``{dd}`` ``{doy}`` (ints),
+``{ddd}`` (day of year as 3-digit text), ``{gpsweek}`` ``{gpsdow}`` (ints),
+``{session}`` (``"0"``, the daily-file session character). A pattern whose
+result contains ``*`` or ``?`` is matched as a glob inside its folder and the
+first match in sorted order is taken. Every resolved path is checked to stay
+inside ``data_root`` after ``..`` and symbolic links are resolved.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import glob as _glob
+import hashlib
+import json
+import math
+import pathlib
+import re
+import string
+import tomllib
+import types
+from dataclasses import dataclass, field
+from typing import Any, Mapping
+
+import numpy as np
+
+from .errors import ConfigError, MissingInputError
+from .timescales import civil_to_ns, date_to_ns, gps_week_sow, parse_iso, to_iso
+
+__all__ = [
+    "Antenna", "DelaySet", "HardwareChange", "StationConfig", "PairConfig", "Processing",
+    "load_station", "dump_station", "load_pair", "format_pattern", "pattern_fields",
+    "R_MIN_M", "R_MAX_M",
+]
+
+#: Sanity bounds of the geocentric radius of a station (common practice: ellipsoid +- a few km).
+R_MIN_M = 6.35e6
+R_MAX_M = 6.40e6
+
+_ID_RE = re.compile(r"^[A-Za-z0-9]{4,9}$")
+_CODE_RE = re.compile(r"^[CLDS][1-9][A-Z]$")
+NS_PER_DAY = 86_400 * 1_000_000_000
+
+MODES = ("tracks", "epochs", "all-in-view")
+SIGNALS = ("iono-free", "single")
+ORBITS = ("auto", "broadcast", "precise")
+INPUT_KINDS = ("obs", "nav", "sp3", "clk", "ionex", "met")
+STATION_INPUT_KINDS = ("obs", "nav", "met")
+
+
+# ---------------------------------------------------------------- problem collection
+
+class _Reader:
+    """Collects problems of one file; typed getters return ``None`` after a problem."""
+
+    def __init__(self, path):
+        self.path = str(path)
+        self.problems: list[ConfigError] = []
+
+    def fail(self, key, problem):
+        self.problems.append(ConfigError(self.path, key, problem))
+        return None
+
+    def raise_if_any(self):
+        if self.problems:
+            err = self.problems[0]
+            err.problems = list(self.problems)
+            raise err
+
+    def table(self, d, name, key, required=True):
+        v = d.get(name)
+        if v is None:
+            if required:
+                self.fail(key, "missing table")
+            return None
+        if not isinstance(v, dict):
+            return self.fail(key, f"expected a table, found {v!r}")
+        return v
+
+    def unknown(self, d, allowed, key):
+        for k in d:
+            if k not in allowed:
+                self.fail(f"{key}.{k}" if key else k,
+                          f"unknown key; expected one of {', '.join(sorted(allowed))}")
+
+    def number(self, d, name, key, what, required=True, default=None, lo=None, hi=None,
+               lo_open=False):
+        if name not in d:
+            if required:
+                return self.fail(key, f"missing; expected {what}")
+            return default
+        v = d[name]
+        if isinstance(v, bool) or not isinstance(v, (int, float)):
+            return self.fail(key, f"expected {what}, found {v!r}")
+        v = float(v)
+        if not math.isfinite(v):
+            return self.fail(key, f"expected a finite {what}, found {v!r}")
+        if lo is not None and (v < lo or (lo_open and v == lo)):
+            return self.fail(key, f"expected {what} {'>' if lo_open else '>='} {lo:g}, found {v!r}")
+        if hi is not None and v > hi:
+            return self.fail(key, f"expected {what} <= {hi:g}, found {v!r}")
+        return v
+
+    def integer(self, d, name, key, what, default=None, lo=None):
+        if name not in d:
+            return default
+        v = d[name]
+        if isinstance(v, bool) or not isinstance(v, int):
+            return self.fail(key, f"expected {what} (an integer), found {v!r}")
+        if lo is not None and v < lo:
+            return self.fail(key, f"expected {what} >= {lo}, found {v!r}")
+        return v
+
+    def text(self, d, name, key, what, required=True, default=None):
+        if name not in d:
+            if required:
+                return self.fail(key, f"missing; expected {what}")
+            return default
+        v = d[name]
+        if not isinstance(v, str):
+            return self.fail(key, f"expected {what} (a string), found {v!r}")
+        return v
+
+    def boolean(self, d, name, key, default=False):
+        if name not in d:
+            return default
+        v = d[name]
+        if not isinstance(v, bool):
+            return self.fail(key, f"expected true or false, found {v!r}")
+        return v
+
+    def choice(self, d, name, key, choices, default):
+        v = d.get(name, default)
+        if v not in choices:
+            return self.fail(key, f"expected one of {', '.join(choices)}, found {v!r}")
+        return v
+
+    def instant(self, d, name, key, required=True):
+        """TOML datetime/date (or ISO text) read as UTC -> UTC calendar-count ns."""
+        if name not in d:
+            if required:
+                return self.fail(key, "missing; expected a TOML datetime or date (UTC)")
+            return None
+        v = d[name]
+        try:
+            return _instant_ns(v)
+        except (TypeError, ValueError) as exc:
+            return self.fail(key, f"expected a TOML datetime or date in UTC, found {v!r} ({exc})")
+
+
+def _instant_ns(v) -> int:
+    if isinstance(v, _dt.datetime):
+        if v.tzinfo is not None:
+            v = v.astimezone(_dt.timezone.utc).replace(tzinfo=None)
+        return int(civil_to_ns(v.year, v.month, v.day, v.hour, v.minute, v.second,
+                               v.microsecond * 1000))
+    if isinstance(v, _dt.date):
+        return int(civil_to_ns(v.year, v.month, v.day))
+    if isinstance(v, str):
+        return parse_iso(v)
+    raise TypeError("not a datetime")
+
+
+def _read_toml(path, reader: _Reader):
+    try:
+        raw = pathlib.Path(path).read_bytes()
+    except FileNotFoundError:
+        raise ConfigError(path, None, "file not found") from None
+    except OSError as exc:
+        raise ConfigError(path, None, f"cannot read: {exc}") from None
+    try:
+        data = tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError as exc:
+        raise ConfigError(path, None, f"expected UTF-8 text ({exc})") from None
+    except tomllib.TOMLDecodeError as exc:
+        # tomllib's message carries "(at line N, column M)"
+        raise ConfigError(path, None, f"expected valid TOML: {exc}") from None
+    return raw, data
+
+
+def _canonical(obj) -> Any:
+    """Parsed TOML -> JSON-serialisable form with stable ordering (for hashes)."""
+    if isinstance(obj, dict):
+        return {k: _canonical(obj[k]) for k in sorted(obj)}
+    if isinstance(obj, list):
+        return [_canonical(v) for v in obj]
+    if isinstance(obj, (_dt.datetime, _dt.date, _dt.time)):
+        if isinstance(obj, (_dt.datetime, _dt.date)) and not isinstance(obj, _dt.time):
+            try:
+                return to_iso(_instant_ns(obj), 9)
+            except (TypeError, ValueError):
+                pass
+        return obj.isoformat()
+    if isinstance(obj, float) and obj.is_integer():
+        return obj  # json keeps 1.0 as 1.0
+    return obj
+
+
+def _content_sha256(data) -> str:
+    text = json.dumps(_canonical(data), sort_keys=True, separators=(",", ":"), ensure_ascii=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+# ---------------------------------------------------------------- dataclasses
+
+@dataclass(frozen=True, eq=False)
+class Antenna:
+    """Antenna type and the marker-to-ARP eccentricity (up, east, north) in metres."""
+
+    type: str
+    delta_hen_m: np.ndarray  # (3,) up, east, north
+
+
+@dataclass(frozen=True)
+class DelaySet:
+    """One calibration set, valid for ``valid_from_ns <= t < valid_until_ns`` (UTC ns).
+
+    ``hardware_ns(code) = receiver_ns[code] + cable_ns - reference_ns`` is what is
+    subtracted from a raw "local clock minus GNSS time" (see the module docstring).
+    """
+
+    valid_from_ns: int
+    valid_until_ns: int | None
+    receiver_ns: Mapping[str, float]
+    u_receiver_ns: Mapping[str, float]
+    cable_ns: float
+    u_cable_ns: float
+    reference_ns: float
+    u_reference_ns: float
+    note: str = ""
+    source: str = field(default="", compare=False)  # file it came from (for messages)
+    index: int = field(default=0, compare=False)    # 1-based position among the file's [[delays]]
+
+    def covers(self, time_utc_ns: int) -> bool:
+        return self.valid_from_ns <= time_utc_ns and (
+            self.valid_until_ns is None or time_utc_ns < self.valid_until_ns)
+
+    def _code(self, code: str) -> float:
+        try:
+            return self.receiver_ns[code]
+        except KeyError:
+            raise ConfigError(self.source, f"delays[{self.index}].receiver_ns.{code}",
+                              f"no receiver delay for {code}; the set has "
+                              f"{', '.join(sorted(self.receiver_ns)) or 'none'}") from None
+
+    def hardware_ns(self, code: str) -> float:
+        """receiver(code) + cable - reference, ns (subtract from the raw value)."""
+        return self._code(code) + self.cable_ns - self.reference_ns
+
+    def u_hardware_ns(self, code: str) -> float:
+        """Standard uncertainty of :meth:`hardware_ns`: the three terms in quadrature (independent)."""
+        self._code(code)
+        return math.sqrt(self.u_receiver_ns[code] ** 2 + self.u_cable_ns ** 2 + self.u_reference_ns ** 2)
+
+    def hardware_combined_ns(self, coefficients: Mapping[str, float]) -> float:
+        """Hardware delay of a linear code combination sum(c_i * P_i) with sum(c_i) = 1.
+
+        E.g. iono-free ``{"C1W": f1²/(f1²-f2²), "C2W": -f2²/(f1²-f2²)}``. The cable and
+        reference terms are common to all codes and pass through with weight sum(c_i) = 1.
+        """
+        s = sum(coefficients.values())
+        if abs(s - 1.0) > 1e-9:
+            raise ValueError(f"combination coefficients must sum to 1, got {s}")
+        return sum(c * self._code(k) for k, c in coefficients.items()) + self.cable_ns - self.reference_ns
+
+    def u_hardware_combined_ns(self, coefficients: Mapping[str, float]) -> float:
+        """Uncertainty of :meth:`hardware_combined_ns`; receiver terms taken as independent per code."""
+        for k in coefficients:
+            self._code(k)
+        var = sum((c * self.u_receiver_ns[k]) ** 2 for k, c in coefficients.items())
+        return math.sqrt(var + self.u_cable_ns ** 2 + self.u_reference_ns ** 2)
+
+
+@dataclass(frozen=True)
+class HardwareChange:
+    time_utc_ns: int
+    what: str
+    expected_delay_change_ns: float | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class StationConfig:
+    """A validated station file. ``position_m`` is as written (marker or ARP); see :attr:`arp_m`."""
+
+    id: str
+    name: str
+    position_m: np.ndarray          # (3,) ECEF metres
+    position_sigma_m: np.ndarray    # (3,) 1-sigma per ECEF axis
+    frame: str
+    epoch: float
+    is_marker: bool
+    antenna: Antenna
+    elevation_mask_deg: float
+    met_pattern: str | None
+    delay_sets: tuple[DelaySet, ...]
+    changes: tuple[HardwareChange, ...]
+    path: pathlib.Path | None
+    sha256: str                     # SHA-256 of the file's bytes
+    content_sha256: str = ""        # SHA-256 of dump_station(self): the normalised content
+
+    @property
+    def arp_m(self) -> np.ndarray:
+        """Antenna reference point, ECEF m: position plus the (up, east, north) delta if a marker."""
+        if not self.is_marker:
+            return self.position_m.copy()
+        return self.position_m + enu_to_ecef_matrix(self.position_m) @ np.array(
+            [self.antenna.delta_hen_m[1], self.antenna.delta_hen_m[2], self.antenna.delta_hen_m[0]])
+
+    def delays_at(self, time_utc_ns) -> DelaySet:
+        """The delay set covering the UTC instant; ConfigError naming the file if none does."""
+        t = int(time_utc_ns)
+        for ds in self.delay_sets:
+            if ds.covers(t):
+                return ds
+        spans = "; ".join(f"{to_iso(d.valid_from_ns)}..{'open' if d.valid_until_ns is None else to_iso(d.valid_until_ns)}"
+                          for d in self.delay_sets)
+        raise ConfigError(self.path, "delays",
+                          f"no delay set covers {to_iso(t, 3)} (sets: {spans or 'none'})")
+
+    def delay_sets_between(self, t0_ns: int, t1_ns: int) -> tuple[DelaySet, ...]:
+        """Sets covering [t0, t1); ConfigError if any instant in it is uncovered."""
+        out = []
+        t = int(t0_ns)
+        while t < t1_ns:
+            ds = self.delays_at(t)
+            out.append(ds)
+            if ds.valid_until_ns is None:
+                break
+            t = ds.valid_until_ns
+        return tuple(out)
+
+    def changes_between(self, t0_ns: int, t1_ns: int) -> tuple[HardwareChange, ...]:
+        return tuple(c for c in self.changes if t0_ns <= c.time_utc_ns < t1_ns)
+
+
+def enu_to_ecef_matrix(xyz) -> np.ndarray:
+    """3x3 matrix taking local (east, north, up) to ECEF at the point (WGS 84 geodetic latitude).
+
+    Only used to rotate antenna eccentricities of a few metres; the latitude is
+    found by a short fixed-point iteration (converges to < 1e-12 rad in 5 steps).
+    """
+    x, y, z = (float(v) for v in xyz)
+    a, f = 6378137.0, 1 / 298.257223563  # WGS 84 (NIMA TR8350.2)
+    e2 = f * (2 - f)
+    lon = math.atan2(y, x)
+    p = math.hypot(x, y)
+    lat = math.atan2(z, p * (1 - e2))
+    for _ in range(5):
+        n = a / math.sqrt(1 - e2 * math.sin(lat) ** 2)
+        h = p / math.cos(lat) - n if abs(lat) < 1.5 else z / math.sin(lat) - n * (1 - e2)
+        lat = math.atan2(z, p * (1 - e2 * n / (n + h)))
+    sl, cl = math.sin(lat), math.cos(lat)
+    so, co = math.sin(lon), math.cos(lon)
+    return np.array([[-so, -sl * co, cl * co],
+                     [co, -sl * so, cl * so],
+                     [0.0, cl, sl]])
+
+
+# ---------------------------------------------------------------- patterns
+
+_PATTERN_FIELDS = ("station", "station_lower", "STATION", "id", "ID", "yyyy", "yy", "mm", "dd",
+                   "doy", "ddd", "gpsweek", "gpsdow", "session")
+
+
+def pattern_fields(station_id: str, date) -> dict:
+    """Placeholder values for a station and a UTC date (``datetime.date`` or 'YYYY-MM-DD')."""
+    d = _as_date(date)
+    ns = date_to_ns(d)
+    week, sow = gps_week_sow(ns)
+    doy = d.timetuple().tm_yday
+    sid = station_id or "XXXX"
+    return {
+        "station": sid[:4].lower(), "station_lower": sid[:4].lower(), "STATION": sid[:4].upper(),
+        "id": sid, "ID": sid.upper(), "yyyy": d.year, "yy": d.year % 100, "mm": d.month,
+        "dd": d.day, "doy": doy, "ddd": f"{doy:03d}", "gpsweek": int(week),
+        "gpsdow": int(sow // 86400), "session": "0",
+    }
+
+
+def format_pattern(pattern: str, station_id: str, date) -> str:
+    return pattern.format(**pattern_fields(station_id, date))
+
+
+def _check_pattern(reader: _Reader, pattern, key) -> bool:
+    if not isinstance(pattern, str) or not pattern:
+        reader.fail(key, f"expected a file-name pattern (a non-empty string), found {pattern!r}")
+        return False
+    try:
+        names = [f for _, f, _, _ in string.Formatter().parse(pattern) if f is not None]
+    except ValueError as exc:
+        reader.fail(key, f"expected a valid pattern ({exc}), found {pattern!r}")
+        return False
+    for n in names:
+        base = re.split(r"[.\[]", n, maxsplit=1)[0]
+        if base not in _PATTERN_FIELDS:
+            reader.fail(key, f"unknown placeholder {{{n}}}; expected one of "
+                        f"{', '.join('{' + p + '}' for p in _PATTERN_FIELDS)}")
+            return False
+    try:
+        format_pattern(pattern, "LABA", "2021-01-01")
+    except (ValueError, KeyError, IndexError) as exc:
+        reader.fail(key, f"pattern cannot be formatted ({exc}), found {pattern!r}")
+        return False
+    return True
+
+
+def _as_date(date) -> _dt.date:
+    if isinstance(date, _dt.datetime):
+        return date.date()
+    if isinstance(date, _dt.date):
+        return date
+    return _dt.date.fromisoformat(str(date))
+
+
+# ---------------------------------------------------------------- station files
+
+_STATION_KEYS = {"id", "name", "elevation_mask_deg", "position", "antenna", "met"}
+_POSITION_KEYS = {"x_m", "y_m", "z_m", "sigma_m", "sigma_x_m", "sigma_y_m", "sigma_z_m", "frame",
+                  "epoch", "is_marker"}
+_ANTENNA_KEYS = {"type", "delta_h_m", "delta_e_m", "delta_n_m"}
+_DELAY_KEYS = {"valid_from", "valid_until", "receiver_ns", "u_receiver_ns", "cable_ns", "u_cable_ns",
+               "reference_ns", "u_reference_ns", "note"}
+_CHANGE_KEYS = {"time", "what", "expected_delay_change_ns"}
+
+
+def load_station(path) -> StationConfig:
+    """Read and validate a station file (schema in the module docstring)."""
+    path = pathlib.Path(path)
+    r = _Reader(path)
+    raw, data = _read_toml(path, r)
+    r.unknown(data, {"station", "delays", "changes"}, "")
+    st = r.table(data, "station", "station") or {}
+    r.unknown(st, _STATION_KEYS, "station")
+
+    sid = r.text(st, "id", "station.id", "a station id of 4-9 letters/digits")
+    if sid is not None and not _ID_RE.match(sid):
+        r.fail("station.id", f"expected 4-9 letters/digits, found {sid!r}")
+    name = r.text(st, "name", "station.name", "a descriptive name", required=False, default="")
+    mask = r.number(st, "elevation_mask_deg", "station.elevation_mask_deg", "an angle in degrees",
+                    required=False, default=10.0, lo=0.0, hi=90.0)
+
+    pos = r.table(st, "position", "station.position") or {}
+    r.unknown(pos, _POSITION_KEYS, "station.position")
+    xyz = [r.number(pos, k, f"station.position.{k}", "an ECEF coordinate in metres") for k in ("x_m", "y_m", "z_m")]
+    position = None
+    if all(v is not None for v in xyz):
+        position = np.array(xyz, dtype=float)
+        rad = float(np.linalg.norm(position))
+        if not (R_MIN_M <= rad <= R_MAX_M):
+            r.fail("station.position", f"expected a geocentric radius between {R_MIN_M:.3g} and "
+                   f"{R_MAX_M:.3g} m (on the Earth's surface), found {rad:.1f} m")
+    per_axis = [k for k in ("sigma_x_m", "sigma_y_m", "sigma_z_m") if k in pos]
+    sigma = None
+    if "sigma_m" in pos and per_axis:
+        r.fail("station.position.sigma_m", "give either sigma_m or sigma_x_m/sigma_y_m/sigma_z_m, not both")
+    elif "sigma_m" in pos:
+        s = r.number(pos, "sigma_m", "station.position.sigma_m", "a 1-sigma uncertainty in metres", lo=0.0)
+        sigma = None if s is None else np.full(3, s)
+    elif per_axis:
+        ss = [r.number(pos, k, f"station.position.{k}", "a 1-sigma uncertainty in metres", lo=0.0)
+              for k in ("sigma_x_m", "sigma_y_m", "sigma_z_m")]
+        sigma = np.array(ss, dtype=float) if all(v is not None for v in ss) else None
+    else:
+        r.fail("station.position.sigma_m", "missing; expected sigma_m or sigma_x_m/sigma_y_m/sigma_z_m in metres")
+    frame = r.text(pos, "frame", "station.position.frame", "a reference frame name", required=False, default="")
+    epoch = r.number(pos, "epoch", "station.position.epoch", "a decimal year", required=False,
+                     default=float("nan"), lo=1980.0, hi=2100.0)
+    is_marker = r.boolean(pos, "is_marker", "station.position.is_marker", default=False)
+
+    ant = r.table(st, "antenna", "station.antenna", required=False) or {}
+    r.unknown(ant, _ANTENNA_KEYS, "station.antenna")
+    ant_type = r.text(ant, "type", "station.antenna.type", "an antenna type", required=False, default="")
+    hen = [r.number(ant, k, f"station.antenna.{k}", "an eccentricity in metres", required=False,
+                    default=0.0, lo=-100.0, hi=100.0) for k in ("delta_h_m", "delta_e_m", "delta_n_m")]
+    antenna = Antenna(ant_type or "", np.array([v if v is not None else 0.0 for v in hen]))
+
+    met = r.table(st, "met", "station.met", required=False) or {}
+    r.unknown(met, {"pattern"}, "station.met")
+    met_pattern = r.text(met, "pattern", "station.met.pattern", "a file-name pattern", required=False)
+    if met_pattern is not None:
+        _check_pattern(r, met_pattern, "station.met.pattern")
+
+    delay_sets = _read_delays(r, data.get("delays"), path)
+    changes = _read_changes(r, data.get("changes"))
+    r.raise_if_any()
+    cfg = StationConfig(
+        id=sid, name=name, position_m=position, position_sigma_m=sigma, frame=frame, epoch=epoch,
+        is_marker=is_marker, antenna=antenna, elevation_mask_deg=mask, met_pattern=met_pattern,
+        delay_sets=delay_sets, changes=changes, path=path, sha256=hashlib.sha256(raw).hexdigest())
+    # normalised content = the canonical text this module writes (formatting, comments,
+    # defaults written or not, date vs midnight datetime: none of them change it)
+    return dataclasses.replace(cfg, content_sha256=hashlib.sha256(dump_station(cfg).encode()).hexdigest())
+
+
+def _read_delays(r: _Reader, items, path) -> tuple[DelaySet, ...]:
+    if items is None:
+        r.fail("delays", "missing; expected at least one [[delays]] table")
+        return ()
+    if not isinstance(items, list) or not all(isinstance(x, dict) for x in items):
+        r.fail("delays", "expected an array of tables [[delays]]")
+        return ()
+    if not items:
+        r.fail("delays", "expected at least one [[delays]] table")
+    out = []
+    for i, d in enumerate(items, start=1):
+        k = f"delays[{i}]"
+        r.unknown(d, _DELAY_KEYS, k)
+        t0 = r.instant(d, "valid_from", f"{k}.valid_from")
+        t1 = r.instant(d, "valid_until", f"{k}.valid_until", required=False)
+        if t0 is not None and t1 is not None and t1 <= t0:
+            r.fail(f"{k}.valid_until", f"expected a time after valid_from ({to_iso(t0)}), found {to_iso(t1)}")
+        rec_raw = r.table(d, "receiver_ns", f"{k}.receiver_ns")
+        rec = {}
+        if rec_raw is not None:
+            if not rec_raw:
+                r.fail(f"{k}.receiver_ns", "expected at least one code, e.g. { C1C = 25.1 }")
+            for code, v in rec_raw.items():
+                if not _CODE_RE.match(code):
+                    r.fail(f"{k}.receiver_ns.{code}", "expected a RINEX 3 observation code such as C1C")
+                    continue
+                x = r.number(rec_raw, code, f"{k}.receiver_ns.{code}", "a delay in ns")
+                if x is not None:
+                    rec[code] = x
+        urec = {}
+        u = d.get("u_receiver_ns")
+        if u is None:
+            r.fail(f"{k}.u_receiver_ns", "missing; expected an uncertainty in ns (a number or a table per code)")
+        elif isinstance(u, dict):
+            for code in rec:
+                if code not in u:
+                    r.fail(f"{k}.u_receiver_ns.{code}", "missing; every code of receiver_ns needs an uncertainty")
+                    continue
+                x = r.number(u, code, f"{k}.u_receiver_ns.{code}", "an uncertainty in ns", lo=0.0)
+                if x is not None:
+                    urec[code] = x
+            for code in u:
+                if code not in rec:
+                    r.fail(f"{k}.u_receiver_ns.{code}", "code not in receiver_ns")
+        else:
+            x = r.number(d, "u_receiver_ns", f"{k}.u_receiver_ns", "an uncertainty in ns", lo=0.0)
+            if x is not None:
+                urec = {c: x for c in rec}
+        vals = {}
+        for name, what, lo in (("cable_ns", "a delay in ns", None), ("u_cable_ns", "an uncertainty in ns", 0.0),
+                               ("reference_ns", "a delay in ns", None),
+                               ("u_reference_ns", "an uncertainty in ns", 0.0)):
+            vals[name] = r.number(d, name, f"{k}.{name}", what, lo=lo)
+        note = r.text(d, "note", f"{k}.note", "a note", required=False, default="")
+        if t0 is None or any(v is None for v in vals.values()) or len(urec) != len(rec):
+            continue
+        out.append(DelaySet(t0, t1, types.MappingProxyType(rec), types.MappingProxyType(urec),
+                            vals["cable_ns"], vals["u_cable_ns"], vals["reference_ns"],
+                            vals["u_reference_ns"], note, str(path), i))
+    out.sort(key=lambda s: s.valid_from_ns)
+    for a, b in zip(out, out[1:]):
+        if a.valid_until_ns is None or a.valid_until_ns > b.valid_from_ns:
+            r.fail(f"delays[{b.index}].valid_from",
+                   f"delay sets overlap: delays[{a.index}] is valid until "
+                   f"{'open end' if a.valid_until_ns is None else to_iso(a.valid_until_ns)}, "
+                   f"expected delays[{b.index}] to start at or after that, found {to_iso(b.valid_from_ns)}")
+    return tuple(out)
+
+
+def _read_changes(r: _Reader, items) -> tuple[HardwareChange, ...]:
+    if items is None:
+        return ()
+    if not isinstance(items, list) or not all(isinstance(x, dict) for x in items):
+        r.fail("changes", "expected an array of tables [[changes]]")
+        return ()
+    out = []
+    for i, d in enumerate(items, start=1):
+        k = f"changes[{i}]"
+        r.unknown(d, _CHANGE_KEYS, k)
+        t = r.instant(d, "time", f"{k}.time")
+        what = r.text(d, "what", f"{k}.what", "a description of the change")
+        exp = r.number(d, "expected_delay_change_ns", f"{k}.expected_delay_change_ns", "a delay change in ns",
+                       required=False)
+        if t is not None and what is not None:
+            out.append(HardwareChange(t, what, exp))
+    return tuple(sorted(out, key=lambda c: c.time_utc_ns))
+
+
+# ---------------------------------------------------------------- TOML writing
+
+def _toml_str(s: str) -> str:
+    return json.dumps(s, ensure_ascii=False)  # JSON string escapes are valid TOML basic-string escapes
+
+
+def _toml_float(x: float) -> str:
+    x = float(x)
+    if not math.isfinite(x):
+        raise ValueError(f"cannot write non-finite number {x!r}")
+    return repr(x)
+
+
+def _toml_time(ns: int) -> str:
+    text = to_iso(int(ns), 9)
+    head, frac = text[:-1].split(".")
+    frac = frac.rstrip("0")
+    return f"{head}.{frac}Z" if frac else f"{head}Z"
+
+
+def _toml_code_table(d: Mapping[str, float]) -> str:
+    return "{ " + ", ".join(f"{k} = {_toml_float(v)}" for k, v in d.items()) + " }"
+
+
+def dump_station(cfg: StationConfig) -> str:
+    """TOML text of a station file that :func:`load_station` reads back to the same values."""
+    lines = ["[station]", f"id = {_toml_str(cfg.id)}", f"name = {_toml_str(cfg.name)}",
+             f"elevation_mask_deg = {_toml_float(cfg.elevation_mask_deg)}", "",
+             "[station.position]"]
+    for k, v in zip(("x_m", "y_m", "z_m"), cfg.position_m):
+        lines.append(f"{k} = {_toml_float(v)}")
+    sig = np.asarray(cfg.position_sigma_m, dtype=float)
+    if np.all(sig == sig[0]):
+        lines.append(f"sigma_m = {_toml_float(sig[0])}")
+    else:
+        for k, v in zip(("sigma_x_m", "sigma_y_m", "sigma_z_m"), sig):
+            lines.append(f"{k} = {_toml_float(v)}")
+    if cfg.frame:
+        lines.append(f"frame = {_toml_str(cfg.frame)}")
+    if cfg.epoch is not None and math.isfinite(cfg.epoch):
+        lines.append(f"epoch = {_toml_float(cfg.epoch)}")
+    lines.append(f"is_marker = {'true' if cfg.is_marker else 'false'}")
+    lines += ["", "[station.antenna]", f"type = {_toml_str(cfg.antenna.type)}"]
+    for k, v in zip(("delta_h_m", "delta_e_m", "delta_n_m"), cfg.antenna.delta_hen_m):
+        lines.append(f"{k} = {_toml_float(v)}")
+    if cfg.met_pattern is not None:
+        lines += ["", "[station.met]", f"pattern = {_toml_str(cfg.met_pattern)}"]
+    for ds in cfg.delay_sets:
+        lines += ["", "[[delays]]", f"valid_from = {_toml_time(ds.valid_from_ns)}"]
+        if ds.valid_until_ns is not None:
+            lines.append(f"valid_until = {_toml_time(ds.valid_until_ns)}")
+        lines.append(f"receiver_ns = {_toml_code_table(ds.receiver_ns)}")
+        u = list(ds.u_receiver_ns.values())
+        if u and all(x == u[0] for x in u):
+            lines.append(f"u_receiver_ns = {_toml_float(u[0])}")
+        else:
+            lines.append(f"u_receiver_ns = {_toml_code_table(ds.u_receiver_ns)}")
+        for k in ("cable_ns", "u_cable_ns", "reference_ns", "u_reference_ns"):
+            lines.append(f"{k} = {_toml_float(getattr(ds, k))}")
+        if ds.note:
+            lines.append(f"note = {_toml_str(ds.note)}")
+    for ch in cfg.changes:
+        lines += ["", "[[changes]]", f"time = {_toml_time(ch.time_utc_ns)}", f"what = {_toml_str(ch.what)}"]
+        if ch.expected_delay_change_ns is not None:
+            lines.append(f"expected_delay_change_ns = {_toml_float(ch.expected_delay_change_ns)}")
+    return "\n".join(lines) + "\n"
+
+
+# ---------------------------------------------------------------- pair files
+
+@dataclass(frozen=True)
+class Processing:
+    mode: str = "tracks"
+    signals: str = "iono-free"
+    systems: tuple[str, ...] = ("G",)
+    codes: tuple[str, ...] = ()
+    orbits: str = "auto"
+    bin_s: float = 30.0
+    elevation_mask_deg: float | None = None
+    min_common_sats: int = 2
+    mad_k: float = 4.0
+    no_troposphere: bool = False
+    no_ionosphere: bool = False
+    no_tide: bool = False
+    no_sagnac: bool = False
+    no_relativity: bool = False
+
+
+_SWITCHES = ("no_troposphere", "no_ionosphere", "no_tide", "no_sagnac", "no_relativity")
+
+
+@dataclass(frozen=True, eq=False)
+class PairConfig:
+    """A validated pair file with both station files loaded.
+
+    ``patterns[kind]`` are the shared patterns (tuples of alternatives);
+    ``station_patterns['a'|'b'][kind]`` the per-station ones (obs, nav, met),
+    falling back to the shared ones and, for met, to the station file's pattern.
+    """
+
+    path: pathlib.Path
+    name: str
+    station_a: StationConfig
+    station_b: StationConfig
+    data_root: pathlib.Path
+    patterns: Mapping[str, tuple[str, ...]]
+    station_patterns: Mapping[str, Mapping[str, tuple[str, ...]]]
+    optional: frozenset
+    processing: Processing
+    output_dir: pathlib.Path
+    archive_path: pathlib.Path
+    report_path: pathlib.Path
+    max_gap_s: float
+    config_hash: str
+    sha256: str
+
+    def stations(self) -> tuple[StationConfig, StationConfig]:
+        return self.station_a, self.station_b
+
+    def elevation_mask_deg(self) -> float:
+        if self.processing.elevation_mask_deg is not None:
+            return self.processing.elevation_mask_deg
+        return max(self.station_a.elevation_mask_deg, self.station_b.elevation_mask_deg)
+
+    def patterns_for(self, kind: str, which: str | None = None) -> tuple[str, ...]:
+        if which is not None:
+            own = self.station_patterns.get(which, {}).get(kind)
+            if own:
+                return own
+        shared = self.patterns.get(kind, ())
+        if shared:
+            return shared
+        if kind == "met" and which is not None:
+            st = self.station_a if which == "a" else self.station_b
+            if st.met_pattern:
+                return (st.met_pattern,)
+        return ()
+
+    def _inside_root(self, p: pathlib.Path, key: str) -> pathlib.Path:
+        root = self.data_root.resolve()
+        real = p.resolve()
+        if not real.is_relative_to(root):
+            raise ConfigError(self.path, key, f"expected a path inside data_root {root}, found {p} -> {real}")
+        return real
+
+    def resolve_one(self, kind: str, date, which: str | None = None) -> tuple[pathlib.Path | None, list]:
+        """First existing file among the patterns of ``kind``; (path or None, list of tried paths)."""
+        pats = self.patterns_for(kind, which)
+        st = None if which is None else (self.station_a if which == "a" else self.station_b)
+        sid = st.id if st is not None else self.station_a.id
+        key = f"inputs.{which}.{kind}" if which and self.station_patterns.get(which, {}).get(kind) else f"inputs.{kind}"
+        tried = []
+        for pat in pats:
+            rel = format_pattern(pat, sid, date)
+            cand = self.data_root / rel
+            if any(ch in rel for ch in "*?["):
+                matches = sorted(_glob.glob(str(cand)))
+                tried.append((pat, str(cand)))
+                for m in matches:
+                    mp = self._inside_root(pathlib.Path(m), key)
+                    if mp.is_file():
+                        return mp, tried
+                continue
+            real = self._inside_root(cand, key)
+            tried.append((pat, str(cand)))
+            if real.is_file():
+                return real, tried
+        return None, tried
+
+    def resolve_inputs(self, date) -> dict:
+        """Input paths for one UTC date.
+
+        Keys: ``obs_a``, ``obs_b``, ``nav``, ``sp3``, ``clk``, ``ionex``, ``met_a``, ``met_b``;
+        values are resolved :class:`pathlib.Path` or ``None`` for kinds that are not
+        configured or are listed as optional and absent. A missing required file
+        raises :class:`MissingInputError` naming the patterns and the paths tried.
+        """
+        out = {}
+        wanted = [("obs_a", "obs", "a"), ("obs_b", "obs", "b"), ("nav", "nav", None), ("sp3", "sp3", None),
+                  ("clk", "clk", None), ("ionex", "ionex", None), ("met_a", "met", "a"), ("met_b", "met", "b")]
+        # a station-specific nav pattern, when given, is used for that station only
+        for name, kind, which in wanted:
+            pats = self.patterns_for(kind, which)
+            if not pats:
+                if kind in ("obs", "nav"):
+                    raise ConfigError(self.path, f"inputs.{kind}", "missing; expected a file-name pattern")
+                out[name] = None
+                continue
+            found, tried = self.resolve_one(kind, date, which)
+            if found is None and kind not in self.optional:
+                detail = "; ".join(f"pattern {p!r} -> {c}" for p, c in tried)
+                raise MissingInputError(f"{self.path}: no {name} file for {_as_date(date)}: tried {detail}")
+            out[name] = found
+        for which in ("a", "b"):
+            if self.station_patterns.get(which, {}).get("nav"):
+                found, tried = self.resolve_one("nav", date, which)
+                if found is None:
+                    detail = "; ".join(f"pattern {p!r} -> {c}" for p, c in tried)
+                    raise MissingInputError(f"{self.path}: no nav_{which} file for {_as_date(date)}: tried {detail}")
+                out[f"nav_{which}"] = found
+        return out
+
+
+_PAIR_TOP = {"pair", "inputs", "processing", "output", "events"}
+_PAIR_KEYS = {"name", "station_a", "station_b", "data_root"}
+_PROC_KEYS = {"mode", "signals", "systems", "codes", "orbits", "bin_s", "elevation_mask_deg",
+              "min_common_sats", "mad_k", *_SWITCHES}
+
+
+def _pattern_list(r: _Reader, v, key) -> tuple[str, ...]:
+    items = [v] if isinstance(v, str) else v
+    if not isinstance(items, list) or not items:
+        r.fail(key, f"expected a pattern or a list of alternative patterns, found {v!r}")
+        return ()
+    ok = []
+    for j, p in enumerate(items, start=1):
+        if _check_pattern(r, p, key if isinstance(v, str) else f"{key}[{j}]"):
+            ok.append(p)
+    return tuple(ok)
+
+
+def load_pair(path) -> PairConfig:
+    """Read and validate a pair file and both station files it names."""
+    path = pathlib.Path(path)
+    base = path.parent
+    r = _Reader(path)
+    raw, data = _read_toml(path, r)
+    r.unknown(data, _PAIR_TOP, "")
+    pr = r.table(data, "pair", "pair") or {}
+    r.unknown(pr, _PAIR_KEYS, "pair")
+
+    stations = {}
+    station_hashes = {}
+    for which in ("a", "b"):
+        k = f"station_{which}"
+        rel = r.text(pr, k, f"pair.{k}", "the path of a station file")
+        if rel is None:
+            continue
+        p = (base / rel)
+        if not p.is_file():
+            r.fail(f"pair.{k}", f"expected an existing station file, found {rel!r} -> {p}")
+            continue
+        try:
+            stations[which] = load_station(p)
+            station_hashes[which] = stations[which].content_sha256
+        except ConfigError as exc:
+            r.problems.extend(getattr(exc, "problems", [exc]))
+    if "a" in stations and "b" in stations:
+        if stations["a"].id.upper() == stations["b"].id.upper():
+            r.fail("pair.station_b", f"expected a station distinct from station_a, found the same id "
+                   f"{stations['b'].id!r}")
+        elif (stations["a"].position_m is not None and stations["b"].position_m is not None
+              and np.linalg.norm(stations["a"].position_m - stations["b"].position_m) < 1e-3):
+            r.fail("pair.station_b", "expected a station distinct from station_a, found the same coordinates")
+
+    root_rel = r.text(pr, "data_root", "pair.data_root", "a data folder")
+    data_root = None
+    if root_rel is not None:
+        data_root = (base / root_rel)
+        if not data_root.is_dir():
+            r.fail("pair.data_root", f"expected an existing folder, found {root_rel!r} -> {data_root}")
+        data_root = data_root.resolve()
+
+    inp = r.table(data, "inputs", "inputs") or {}
+    r.unknown(inp, {*INPUT_KINDS, "optional", "a", "b"}, "inputs")
+    patterns = {}
+    for kind in INPUT_KINDS:
+        if kind in inp:
+            patterns[kind] = _pattern_list(r, inp[kind], f"inputs.{kind}")
+    st_pats = {}
+    for which in ("a", "b"):
+        sub = r.table(inp, which, f"inputs.{which}", required=False) or {}
+        r.unknown(sub, set(STATION_INPUT_KINDS), f"inputs.{which}")
+        st_pats[which] = types.MappingProxyType(
+            {kind: _pattern_list(r, sub[kind], f"inputs.{which}.{kind}") for kind in STATION_INPUT_KINDS if kind in sub})
+        if "obs" not in patterns and "obs" not in st_pats[which]:
+            r.fail(f"inputs.{which}.obs", "missing; expected an obs pattern in [inputs] or [inputs.a]/[inputs.b]")
+    if "nav" not in patterns and not all("nav" in st_pats[w] for w in ("a", "b")):
+        r.fail("inputs.nav", "missing; expected a broadcast navigation file pattern")
+    opt = inp.get("optional", ["met"])
+    if not isinstance(opt, list) or any(o not in INPUT_KINDS or o == "obs" for o in opt):
+        r.fail("inputs.optional", f"expected a list of input kinds among "
+               f"{', '.join(k for k in INPUT_KINDS if k != 'obs')}, found {opt!r}")
+        opt = ["met"]
+
+    proc = r.table(data, "processing", "processing", required=False) or {}
+    r.unknown(proc, _PROC_KEYS, "processing")
+    kw = {}
+    kw["mode"] = r.choice(proc, "mode", "processing.mode", MODES, "tracks")
+    kw["signals"] = r.choice(proc, "signals", "processing.signals", SIGNALS, "iono-free")
+    kw["orbits"] = r.choice(proc, "orbits", "processing.orbits", ORBITS, "auto")
+    systems = proc.get("systems", ["G"])
+    if not isinstance(systems, list) or not systems or any(s not in "GRECJIS" or len(s) != 1 for s in systems):
+        r.fail("processing.systems", f"expected a list of RINEX system letters (G, R, E, C, J, I, S), found {systems!r}")
+        systems = ["G"]
+    kw["systems"] = tuple(systems)
+    codes = proc.get("codes", [])
+    if not isinstance(codes, list) or any(not isinstance(c, str) or not _CODE_RE.match(c) for c in codes):
+        r.fail("processing.codes", f"expected a list of RINEX 3 codes such as C1W, found {codes!r}")
+        codes = []
+    kw["codes"] = tuple(codes)
+    kw["bin_s"] = r.number(proc, "bin_s", "processing.bin_s", "a bin length in seconds", required=False,
+                           default=30.0, lo=0.0, lo_open=True)
+    kw["elevation_mask_deg"] = r.number(proc, "elevation_mask_deg", "processing.elevation_mask_deg",
+                                        "an angle in degrees", required=False, default=None, lo=0.0, hi=90.0)
+    kw["min_common_sats"] = r.integer(proc, "min_common_sats", "processing.min_common_sats",
+                                      "a number of satellites", default=2, lo=1)
+    kw["mad_k"] = r.number(proc, "mad_k", "processing.mad_k", "a rejection threshold in MADs", required=False,
+                           default=4.0, lo=0.0, lo_open=True)
+    for s in _SWITCHES:
+        kw[s] = r.boolean(proc, s, f"processing.{s}", default=False)
+    defaults = Processing()
+    kw = {k: (getattr(defaults, k) if v is None and k != "elevation_mask_deg" else v) for k, v in kw.items()}
+    processing = Processing(**kw)
+
+    out = r.table(data, "output", "output", required=False) or {}
+    r.unknown(out, {"dir", "archive", "report"}, "output")
+    out_dir = base / r.text(out, "dir", "output.dir", "a folder", required=False, default="out")
+    archive = base / r.text(out, "archive", "output.archive", "a file path", required=False,
+                            default=str(pathlib.Path(out.get("dir", "out")) / "ctt.sqlite"))
+    report = base / r.text(out, "report", "output.report", "a file path", required=False,
+                           default=str(pathlib.Path(out.get("dir", "out")) / "report.html"))
+    ev = r.table(data, "events", "events", required=False) or {}
+    r.unknown(ev, {"max_gap_s"}, "events")
+    max_gap = r.number(ev, "max_gap_s", "events.max_gap_s", "a gap length in seconds", required=False,
+                       default=3600.0, lo=0.0, lo_open=True)
+    r.raise_if_any()
+
+    sa, sb = stations["a"], stations["b"]
+    name = pr.get("name") or f"{sa.id.lower()}-{sb.id.lower()}"
+    if not isinstance(name, str) or not re.match(r"^[A-Za-z0-9_.-]+$", name):
+        raise ConfigError(path, "pair.name", f"expected letters, digits, '-', '_' or '.', found {name!r}")
+    h = hashlib.sha256()
+    h.update(_content_sha256(data).encode())
+    h.update(station_hashes["a"].encode())
+    h.update(station_hashes["b"].encode())
+    return PairConfig(
+        path=path, name=name, station_a=sa, station_b=sb, data_root=data_root,
+        patterns=types.MappingProxyType(patterns), station_patterns=types.MappingProxyType(st_pats),
+        optional=frozenset(opt), processing=processing, output_dir=out_dir, archive_path=archive,
+        report_path=report, max_gap_s=max_gap, config_hash=h.hexdigest(),
+        sha256=hashlib.sha256(raw).hexdigest())
