@@ -1,0 +1,101 @@
+"""Behaviour of ctt.geodesy: shapes, az/el geometry, antenna reference point,
+baseline uncertainty propagation."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from ctt import geodesy as g
+
+
+def test_ellipsoid_constants():
+    # WGS84 semi-minor axis 6356752.314245 m (NIMA TR8350.2, Table 3.1)
+    assert abs(g.WGS84.b - 6356752.314245) < 1e-6
+    # GRS80 semi-minor axis 6356752.314140 m (Moritz 1980, Geodetic Reference System 1980)
+    assert abs(g.GRS80.b - 6356752.314140) < 1e-6
+    # GRS80 first eccentricity squared 0.00669438002290 (Moritz 1980)
+    assert abs(g.GRS80.e2 - 0.00669438002290) < 1e-14
+
+
+def test_zenith_and_horizon_geometry():
+    lat, lon, h = np.radians(46.877), np.radians(7.465), 956.0
+    rx = g.geodetic_to_ecef(lat, lon, h)
+    r = g.enu_matrix(lat, lon)
+    sats = np.stack([rx + 2e7 * r[2],  # straight up along the ellipsoidal normal
+                     rx + 2e7 * r[1],  # due north on the horizon
+                     rx + 2e7 * r[0],  # due east on the horizon
+                     rx + 1e7 * (r[2] - r[1])])  # south at 45°
+    az, el, rng = g.azimuth_elevation(rx, sats)
+    assert abs(np.degrees(el[0]) - 90) < 1e-9
+    assert abs(el[1]) < 1e-12 and abs((az[1] + np.pi) % (2 * np.pi) - np.pi) < 1e-12
+    assert abs(el[2]) < 1e-12 and abs(np.degrees(az[2]) - 90) < 1e-9
+    assert abs(np.degrees(el[3]) - 45) < 1e-9 and abs(np.degrees(az[3]) - 180) < 1e-9
+    assert abs(rng[0] - 2e7) < 1e-6
+
+
+def test_azimuth_elevation_broadcasts_over_epochs_and_satellites():
+    rng = np.random.default_rng(2)
+    rx = g.geodetic_to_ecef(np.radians(17.6), np.radians(-61.8), 10.0)
+    sats = rng.normal(0, 2.6e7, (50, 12, 3))
+    az, el, r = g.azimuth_elevation(rx, sats)
+    assert az.shape == el.shape == r.shape == (50, 12)
+    # same result one by one (elevation = asin(up / range), a different path through the code)
+    lat, lon, _ = g.ecef_to_geodetic(rx)
+    up = g.enu_matrix(lat, lon)[2]
+    d = sats - rx
+    assert np.allclose(np.sin(el), d @ up / np.linalg.norm(d, axis=-1), atol=1e-13)
+    # per-epoch receivers (n_epoch, 1, 3) broadcast too
+    rxs = np.broadcast_to(rx, (50, 1, 3))
+    az2, el2, _ = g.azimuth_elevation(rxs, sats)
+    assert np.allclose(el2, el, atol=1e-13) and np.allclose(az2, az, atol=1e-12)
+
+
+def test_antenna_reference_point_height_is_along_the_normal():
+    marker = g.geodetic_to_ecef(np.radians(46.877), np.radians(7.465), 956.0)
+    arp = g.antenna_reference_point(marker, 0.0780, 0.001, -0.002)
+    lat, lon, h = g.ecef_to_geodetic(arp)
+    # RINEX ANTENNA: DELTA H/E/N: height along the normal adds directly to h (to 1e-9 m)
+    assert abs(h - 956.0 - 0.0780) < 1e-6
+    enu = g.ecef_to_enu(arp - marker, np.radians(46.877), np.radians(7.465))
+    assert np.allclose(enu, [0.001, -0.002, 0.0780], atol=1e-12)
+
+
+def test_baseline_chord_light_time_and_uncertainty():
+    a = np.array([4331297.0, 567555.0, 4633133.0])
+    b = a + np.array([3000.0, 4000.0, 0.0])
+    bl = g.baseline(a, b, sigma_a_m=[0.01, 0.02, 0.03], sigma_b_m=[0.01, 0.02, 0.03])
+    assert bl.chord_m == pytest.approx(5000.0, abs=1e-9)
+    # c = 299 792 458 m/s exactly (SI)
+    assert bl.light_time_s == pytest.approx(5000.0 / 299_792_458.0, rel=1e-15)
+    # direction (0.6, 0.8, 0): σ² = 2 (0.36·1e-4 + 0.64·4e-4) (first-order propagation)
+    expect = np.sqrt(2 * (0.36e-4 + 0.64 * 4e-4))
+    assert bl.chord_sigma_m == pytest.approx(expect, rel=1e-12)
+    assert bl.light_time_sigma_s == pytest.approx(expect / 299_792_458.0, rel=1e-12)
+    # full covariances agree with the per-axis form, and correlations matter
+    cov = np.diag([1e-4, 4e-4, 9e-4])
+    assert g.baseline(a, b, cov_a=cov, cov_b=cov).chord_sigma_m == pytest.approx(expect, rel=1e-12)
+    cov_corr = cov.copy()
+    cov_corr[0, 1] = cov_corr[1, 0] = 1.5e-4
+    s2 = g.baseline(a, b, cov_a=cov_corr).chord_sigma_m
+    assert s2 ** 2 == pytest.approx(0.36e-4 + 0.64 * 4e-4 + 2 * 0.48 * 1.5e-4, rel=1e-12)
+    # Monte Carlo check of the propagation (5000 draws: 1σ of the σ estimate ≈ 1 %)
+    rng = np.random.default_rng(0)
+    da = rng.normal(0, [0.01, 0.02, 0.03], (5000, 3))
+    db = rng.normal(0, [0.01, 0.02, 0.03], (5000, 3))
+    chords = np.linalg.norm((b + db) - (a + da), axis=1)
+    assert np.std(chords) == pytest.approx(expect, rel=0.05)
+
+
+def test_tide_vectorised_and_magnitude():
+    sta = g.geodetic_to_ecef(np.radians(46.877), np.radians(7.465), 956.0)
+    t0 = 41 * 365 * 86400 * 10**9
+    t = t0 + np.arange(0, 86400, 600, dtype=np.int64) * 10**9
+    d = g.solid_tide_displacement(sta, t)
+    assert d.shape == (t.size, 3)
+    lat, lon, _ = g.ecef_to_geodetic(sta)
+    up = g.ecef_to_enu(d, lat, lon)[:, 2]
+    # radial tide peak-to-peak at mid-latitude is a few decimetres (common practice: ≤ ~0.4 m)
+    assert 0.05 < np.ptp(up) < 0.8
+    # each epoch alone gives the same (no cross-talk in the vectorisation)
+    assert np.allclose(g.solid_tide_displacement(sta, t[5:6]), d[5:6], atol=1e-12)
