@@ -1,0 +1,119 @@
+"""Troposphere (Saastamoinen, Niell) and ionosphere helpers of ctt.atmosphere."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from ctt import atmosphere as atm
+
+
+def test_saastamoinen_zhd_sea_level_45deg():
+    # Saastamoinen (1972) in the form of Davis et al. (1985): at 1013.25 hPa,
+    # φ = 45° (cos 2φ = 0), h = 0: 0.0022768 × 1013.25 = 2.3070 m
+    # ("about 2.3 m at sea level" is common practice)
+    zhd, _ = atm.zenith_delays(1013.25, 15.0, 0.0, math.radians(45.0), 0.0)
+    assert zhd == pytest.approx(2.3070, abs=1e-4)
+    assert zhd == pytest.approx(0.0022768 * 1013.25, rel=1e-15)
+
+
+def test_saastamoinen_zwd_and_vapour_pressure():
+    # Tetens/Murray: e_s(0 °C) = 6.1078 hPa by construction of the formula
+    assert atm.water_vapour_pressure_hpa(0.0, 100.0) == pytest.approx(6.1078, rel=1e-12)
+    # saturation at 20 °C is 23.39 hPa (WMO-No. 8 table value, from memory); Magnus
+    # form agrees to ~0.1 %
+    assert atm.water_vapour_pressure_hpa(20.0, 100.0) == pytest.approx(23.39, rel=2e-3)
+    # standard atmosphere sea level: 15 °C, 50 % -> e ≈ 8.5 hPa, ZWD ≈ 0.08 m
+    # (Saastamoinen ZWD: 0.002277 (1255/T + 0.05) e)
+    _, zwd = atm.zenith_delays(1013.25, 15.0, 50.0, 0.5, 0.0)
+    e = atm.water_vapour_pressure_hpa(15.0, 50.0)
+    assert zwd == pytest.approx(0.002277 * (1255 / 288.15 + 0.05) * e, rel=1e-14)
+    assert 0.05 < zwd < 0.12  # common practice: wet zenith delay 5-30 cm at mid-latitudes
+
+
+def test_standard_atmosphere():
+    p, t, rh = atm.standard_atmosphere(np.array([0.0, 1000.0]))
+    # common practice (Berg 1948): 1013.25 hPa, 15 °C at 0 m; ~898.8 hPa, 8.5 °C at 1000 m
+    assert p[0] == pytest.approx(1013.25) and t[0] == pytest.approx(15.0) and rh[0] == 50.0
+    assert p[1] == pytest.approx(898.8, abs=0.2) and t[1] == pytest.approx(8.5)
+
+
+def test_niell_unity_at_zenith():
+    # Niell (1996): the Marini fraction is normalised to 1 at 90°, and the height
+    # correction 1/sin E − m_ht vanishes there, so m = 1 up to rounding (1e-12 is
+    # ~1e4 ulp, margin for the continued fraction)
+    for lat in (-80, -30, 0, 20, 45, 70):
+        for doy in (1, 100, 200, 300):
+            mh, mw = atm.niell_mapping(math.pi / 2, math.radians(lat), 1500.0, doy)
+            assert mh == pytest.approx(1.0, abs=1e-12)
+            assert mw == pytest.approx(1.0, abs=1e-12)
+
+
+def test_niell_against_cosecant_at_high_elevation():
+    # At high elevation a mapping function tends to 1/sin E; for a thin shell of
+    # scale height H over an Earth of radius R the leading curvature term is
+    # m ≈ csc E · (1 − (H/R) cot² E) (common practice). With H ≤ 8.6 km for the
+    # hydrostatic part (and less for the wet), (H/R) ≤ 1.35e-3.
+    el = np.radians(np.arange(30.0, 90.0, 1.0))
+    mh, mw = atm.niell_mapping(el, math.radians(45.0), 0.0, 180)
+    csc = 1 / np.sin(el)
+    for m in (mh, mw):
+        deficit = (csc - m) / csc
+        assert np.all(deficit >= -1e-12)  # never above the flat-Earth cosecant
+        assert np.all(deficit <= 1.35e-3 / np.tan(el) ** 2 + 1e-12)
+        assert np.all(deficit <= 5e-3)
+
+
+def _exponential_atmosphere_mapping(el, scale_height_m, radius_m=6371e3):
+    """Straight-ray path integral through an exponential refractivity profile over a
+    spherical Earth, divided by its zenith integral (independent physics model)."""
+    s = np.linspace(0.0, 2.0e6, 400_001)
+    h = np.sqrt(radius_m**2 + s**2 + 2 * radius_m * s * np.sin(el)) - radius_m
+    return np.trapezoid(np.exp(-h / scale_height_m), s) / scale_height_m
+
+
+def test_niell_hydrostatic_low_elevation_against_exponential_atmosphere():
+    # Niell's published values at low elevation were not available here, so the
+    # hydrostatic function is compared with an exponential atmosphere of scale
+    # height 8 km (the hydrostatic scale height R_d T/g ≈ 8 km: common practice),
+    # straight rays. Ray bending and the real profile differ from that model by a
+    # few tenths of a percent at 5° (Niell's own fits are to ~0.1 %), hence 0.5 %.
+    for el_deg in (5.0, 7.0, 10.0, 15.0, 20.0, 30.0):
+        el = math.radians(el_deg)
+        mh, mw = atm.niell_mapping(el, math.radians(45.0), 0.0, 180)
+        ref = _exponential_atmosphere_mapping(el, 8000.0)
+        assert mh == pytest.approx(ref, rel=5e-3)
+        # the wet layer is thinner, so its mapping is larger (closer to csc E)
+        assert mh < mw < 1 / math.sin(el)
+
+
+def test_niell_seasonal_and_hemisphere_symmetry():
+    el = math.radians(7.0)
+    # Niell (1996) eq. 5: southern hemisphere = northern shifted by half a year
+    n = atm.niell_mapping(el, math.radians(50.0), 0.0, 28.0)
+    s = atm.niell_mapping(el, math.radians(-50.0), 0.0, 28.0 - 365.25 / 2)
+    assert n[0] == pytest.approx(s[0], rel=1e-14)
+    # no seasonal term at 15° and below (amplitude 0 in the table)
+    a = atm.niell_mapping(el, math.radians(10.0), 0.0, 28.0)[0]
+    b = atm.niell_mapping(el, math.radians(10.0), 0.0, 210.0)[0]
+    assert a == b
+    # height correction raises the hydrostatic mapping (Niell 1996: +~0.1 % per km at 5°)
+    hi = atm.niell_mapping(math.radians(5.0), math.radians(45.0), 2000.0, 28.0)[0]
+    lo = atm.niell_mapping(math.radians(5.0), math.radians(45.0), 0.0, 28.0)[0]
+    assert 0.0 < (hi - lo) / lo < 0.01
+
+
+def test_slant_troposphere_shapes_and_sources():
+    el = np.radians(np.array([[10.0, 30.0, 60.0], [15.0, 45.0, 90.0]]))
+    std = atm.slant_troposphere(el, math.radians(46.9), 950.0, 1)
+    assert std.met_source == "standard atmosphere" and std.slant_m.shape == (2, 3)
+    met = atm.slant_troposphere(el, math.radians(46.9), 950.0, 1,
+                                p_hpa=np.array([[900.2], [903.3]]), t_c=np.array([[-4.6], [-5.2]]),
+                                rh_pct=np.array([[70.0], [70.0]]))
+    assert met.met_source == "met" and met.slant_m.shape == (2, 3)
+    # at zenith the slant is the zenith total
+    assert met.slant_m[1, 2] == pytest.approx(met.zhd_m[1, 0] + met.zwd_m[1, 0], rel=1e-12)
+    with pytest.raises(ValueError):
+        atm.slant_troposphere(el, 0.8, 950.0, 1, p_hpa=900.0)
