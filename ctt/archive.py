@@ -1,0 +1,520 @@
+"""SQLite archive of daily results (stdlib ``sqlite3``, WAL journal).
+
+Tables
+======
+
+``runs``        one row per attempt: pair, date, status ``ok``/``failed``, inputs JSON
+                (name -> {path, sha256}), inputs hash, config hash, software version,
+                messages (JSON list), started/finished (ISO UTC).
+``days``        one row per (pair, date) holding results: the ``ok`` run whose results
+                are stored (``run_id``), the latest attempt (``latest_run_id``,
+                ``latest_status``), row counts, a SHA-256 ``checksum`` of the stored
+                offsets, and the stale flag and reason.
+``offsets``     per-bin rows with the offset.csv columns: ``time_utc`` (ISO text, Z),
+                ``time_utc_ns`` (int), ``mjd_utc``, ``offset_ns``, ``u_ns``, ``n_sat``,
+                ``flag``, plus ``extra`` (JSON of any further columns).
+``satellites``  per-satellite rows: ``time_utc_ns`` and ``sat`` when the frame has them,
+                the whole row as JSON in ``data``.
+
+Semantics
+=========
+
+* :meth:`Archive.store_day` replaces a day's results in ONE transaction: delete the
+  old rows, insert the new ones, update ``days`` and insert the ``runs`` row, commit.
+  Re-running a day is idempotent; a crash (even SIGKILL) at any point leaves
+  either the previous or the new day, never a mixture (SQLite's atomic commit).
+* :meth:`Archive.record_failure` keeps the previous good results and marks the
+  latest attempt of the day failed (``days.latest_status = 'failed'``); a day
+  that never succeeded gets a ``days`` row with no results.
+* Writers are serialised by ``BEGIN IMMEDIATE`` with SQLite's busy timeout: a
+  second writer waits up to ``timeout_s`` and then raises
+  :class:`ctt.errors.LockTimeoutError` (exit code 4). Readers are never blocked
+  (WAL). For a whole cron run, :meth:`Archive.run_lock` takes an advisory lock
+  file ``<archive>.lock`` holding PID, host name and time; a lock whose PID is
+  dead on this host is taken over.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import json
+import math
+import os
+import pathlib
+import socket
+import sqlite3
+import time
+import datetime as _dt
+
+import numpy as np
+import pandas as pd
+
+from .errors import ConfigError, LockTimeoutError, ProcessingError
+from .timescales import parse_iso_array, to_iso, to_mjd_float
+
+__all__ = ["Archive", "file_sha256", "inputs_record", "OFFSET_COLUMNS", "offsets_checksum"]
+
+SCHEMA_VERSION = 1
+OFFSET_COLUMNS = ("time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag")
+
+_SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
+CREATE TABLE IF NOT EXISTS runs (
+    run_id INTEGER PRIMARY KEY AUTOINCREMENT,
+    pair TEXT NOT NULL,
+    date TEXT NOT NULL,
+    status TEXT NOT NULL CHECK (status IN ('ok', 'failed')),
+    inputs_json TEXT NOT NULL,
+    inputs_hash TEXT,
+    config_hash TEXT,
+    version TEXT,
+    messages TEXT,
+    started_utc TEXT,
+    finished_utc TEXT
+);
+CREATE INDEX IF NOT EXISTS runs_pair_date ON runs (pair, date);
+CREATE TABLE IF NOT EXISTS days (
+    pair TEXT NOT NULL,
+    date TEXT NOT NULL,
+    run_id INTEGER REFERENCES runs (run_id),
+    latest_run_id INTEGER REFERENCES runs (run_id),
+    latest_status TEXT,
+    n_offsets INTEGER NOT NULL DEFAULT 0,
+    n_satellites INTEGER NOT NULL DEFAULT 0,
+    checksum TEXT,
+    stale INTEGER NOT NULL DEFAULT 0,
+    stale_reason TEXT,
+    PRIMARY KEY (pair, date)
+);
+CREATE TABLE IF NOT EXISTS offsets (
+    pair TEXT NOT NULL,
+    date TEXT NOT NULL,
+    time_utc_ns INTEGER NOT NULL,
+    time_utc TEXT NOT NULL,
+    mjd_utc REAL,
+    offset_ns REAL,
+    u_ns REAL,
+    n_sat INTEGER,
+    flag,
+    extra TEXT,
+    PRIMARY KEY (pair, date, time_utc_ns)
+);
+CREATE TABLE IF NOT EXISTS satellites (
+    pair TEXT NOT NULL,
+    date TEXT NOT NULL,
+    row INTEGER NOT NULL,
+    time_utc_ns INTEGER,
+    sat TEXT,
+    data TEXT NOT NULL,
+    PRIMARY KEY (pair, date, row)
+);
+"""
+
+
+def file_sha256(path, chunk: int = 1 << 20) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        while True:
+            b = f.read(chunk)
+            if not b:
+                break
+            h.update(b)
+    return h.hexdigest()
+
+
+def inputs_record(paths: dict) -> dict:
+    """{name: path or None} -> {name: {"path": str, "sha256": hex}} (None entries kept as None)."""
+    out = {}
+    for name, p in sorted(paths.items()):
+        out[name] = None if p is None else {"path": str(p), "sha256": file_sha256(p)}
+    return out
+
+
+def _inputs_hash(inputs: dict) -> str:
+    items = sorted((k, (v or {}).get("sha256") if isinstance(v, dict) else v) for k, v in inputs.items())
+    return hashlib.sha256(json.dumps(items, separators=(",", ":")).encode()).hexdigest()
+
+
+def _date_text(d) -> str:
+    if isinstance(d, _dt.datetime):
+        d = d.date()
+    if isinstance(d, _dt.date):
+        return d.isoformat()
+    try:
+        return _dt.date.fromisoformat(str(d)).isoformat()
+    except ValueError:
+        raise ValueError(f"expected a date YYYY-MM-DD, found {d!r}") from None
+
+
+def _now_iso() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def _json_default(o):
+    if isinstance(o, (np.integer,)):
+        return int(o)
+    if isinstance(o, (np.floating,)):
+        return None if not np.isfinite(o) else float(o)
+    if isinstance(o, (np.bool_,)):
+        return bool(o)
+    if isinstance(o, (pathlib.Path,)):
+        return str(o)
+    if isinstance(o, (pd.Timestamp, _dt.datetime, _dt.date)):
+        return o.isoformat()
+    return str(o)
+
+
+def _clean(v):
+    """A pandas/numpy scalar -> a plain Python value SQLite stores (NaN -> NULL)."""
+    if v is None:
+        return None
+    if isinstance(v, (np.integer,)):
+        return int(v)
+    if isinstance(v, (float, np.floating)):
+        v = float(v)
+        return None if math.isnan(v) else v
+    if isinstance(v, (np.bool_,)):
+        return int(v)
+    if v is pd.NA or v is pd.NaT:
+        return None
+    return v
+
+
+def _offset_rows(pair: str, date: str, df: pd.DataFrame) -> list[tuple]:
+    if "time_utc_ns" in df.columns:
+        t_ns = df["time_utc_ns"].to_numpy(dtype=np.int64)
+    elif "time_utc" in df.columns:
+        t_ns = parse_iso_array(df["time_utc"].astype(str).to_numpy())
+    else:
+        raise ProcessingError("offsets table needs a time_utc or time_utc_ns column")
+    text = to_iso(t_ns, 9) if len(t_ns) else np.array([], dtype=str)
+    mjd = df["mjd_utc"].to_numpy(dtype=float) if "mjd_utc" in df.columns else to_mjd_float(t_ns)
+    n = len(df)
+
+    def col(name, dtype=None):
+        if name not in df.columns:
+            return [None] * n
+        return [_clean(v) for v in df[name].tolist()]
+
+    extra_cols = [c for c in df.columns if c not in (*OFFSET_COLUMNS, "time_utc_ns")]
+    extras = ([json.dumps({c: _clean(v) for c, v in zip(extra_cols, row)}, default=_json_default)
+               for row in df[extra_cols].itertuples(index=False, name=None)] if extra_cols else [None] * n)
+    return list(zip([pair] * n, [date] * n, t_ns.tolist(), [str(x) for x in text], [_clean(v) for v in mjd],
+                    col("offset_ns"), col("u_ns"), col("n_sat"), col("flag"), extras))
+
+
+def offsets_checksum(rows) -> str:
+    """SHA-256 over (time_utc_ns, offset_ns, u_ns, n_sat, flag) of rows sorted by time."""
+    h = hashlib.sha256()
+    for t, off, u, n, flag in sorted(rows, key=lambda r: r[0]):
+        h.update(f"{t}|{off!r}|{u!r}|{n!r}|{flag!r}\n".encode())
+    return h.hexdigest()
+
+
+class Archive:
+    """One SQLite archive file. Use as a context manager or call :meth:`close`."""
+
+    def __init__(self, path, timeout_s: float = 60.0):
+        self.path = pathlib.Path(path)
+        self.timeout_s = float(timeout_s)
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            self._con = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
+        except sqlite3.Error as exc:
+            raise ConfigError(self.path, None, f"cannot open the archive: {exc}") from None
+        self._con.execute("PRAGMA foreign_keys = ON")
+        self._con.execute("PRAGMA synchronous = FULL")  # a committed day survives power loss too
+        self._with_lock("open", self._init_schema)
+
+    # ------------------------------------------------------------ plumbing
+
+    def _init_schema(self):
+        mode = self._con.execute("PRAGMA journal_mode = WAL").fetchone()[0]
+        if str(mode).lower() != "wal":
+            raise ProcessingError(f"{self.path}: could not switch the archive to WAL mode (got {mode})")
+        cur = self._con.execute("SELECT name FROM sqlite_master WHERE type='table' AND name='meta'")
+        if cur.fetchone() is None:
+            self._con.execute("BEGIN IMMEDIATE")
+            try:
+                for stmt in _SCHEMA.split(";"):
+                    if stmt.strip():
+                        self._con.execute(stmt)
+                self._con.execute("INSERT OR REPLACE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+                self._con.execute("COMMIT")
+            except BaseException:
+                self._con.execute("ROLLBACK")
+                raise
+        else:
+            row = self._con.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+            if row is None or int(row[0]) != SCHEMA_VERSION:
+                raise ProcessingError(f"{self.path}: archive schema version {row and row[0]}, "
+                                      f"expected {SCHEMA_VERSION}")
+
+    def _with_lock(self, what, fn, *args):
+        deadline = time.monotonic() + self.timeout_s
+        while True:
+            try:
+                return fn(*args)
+            except sqlite3.OperationalError as exc:
+                if "locked" not in str(exc) and "busy" not in str(exc):
+                    raise
+                if time.monotonic() >= deadline:
+                    raise LockTimeoutError(
+                        f"{self.path}: another run is writing the archive; waited {self.timeout_s:g} s "
+                        f"to {what} and gave up (try again later or raise the timeout)") from None
+                time.sleep(0.05)
+
+    @contextlib.contextmanager
+    def _write(self, what):
+        """BEGIN IMMEDIATE ... COMMIT; LockTimeoutError when another writer holds it too long."""
+        self._with_lock(what, self._con.execute, "BEGIN IMMEDIATE")
+        try:
+            yield self._con
+        except BaseException:
+            self._con.execute("ROLLBACK")
+            raise
+        self._con.execute("COMMIT")
+
+    def close(self):
+        if self._con is not None:
+            self._con.close()
+            self._con = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    def integrity_check(self) -> str:
+        """SQLite's own ``PRAGMA integrity_check`` result ('ok' when sound)."""
+        return "; ".join(r[0] for r in self._con.execute("PRAGMA integrity_check").fetchall())
+
+    # ------------------------------------------------------------ writing
+
+    def _insert_run(self, con, pair, date, status, run_info, messages):
+        run_info = dict(run_info or {})
+        inputs = run_info.get("inputs", {}) or {}
+        msgs = list(run_info.get("messages", []) or []) + list(messages or [])
+        cur = con.execute(
+            "INSERT INTO runs (pair, date, status, inputs_json, inputs_hash, config_hash, version, messages,"
+            " started_utc, finished_utc) VALUES (?,?,?,?,?,?,?,?,?,?)",
+            (pair, date, status, json.dumps(inputs, sort_keys=True, default=_json_default),
+             run_info.get("inputs_hash") or _inputs_hash(inputs), run_info.get("config_hash"),
+             run_info.get("version"), json.dumps(msgs, default=_json_default),
+             run_info.get("started"), run_info.get("finished") or _now_iso()))
+        return cur.lastrowid
+
+    def store_day(self, pair: str, date, offsets_df: pd.DataFrame, satellites_df: pd.DataFrame | None,
+                  run_info: dict | None = None) -> int:
+        """Replace the day's results and record an ``ok`` run, all in one transaction; returns run_id.
+
+        ``run_info`` keys (all optional): ``inputs`` ({name: {path, sha256}}, see
+        :func:`inputs_record`), ``inputs_hash``, ``config_hash``, ``version``,
+        ``messages`` (list of str), ``started``, ``finished`` (ISO UTC).
+        """
+        date = _date_text(date)
+        orows = _offset_rows(pair, date, offsets_df)
+        times = [r[2] for r in orows]
+        if len(set(times)) != len(times):
+            raise ProcessingError(f"offsets for {pair} {date} have repeated time_utc values")
+        checksum = offsets_checksum([(r[2], r[5], r[6], r[7], r[8]) for r in orows])
+        srows = []
+        if satellites_df is not None and len(satellites_df):
+            sdf = satellites_df.reset_index(drop=True)
+            tcol = "time_utc_ns" if "time_utc_ns" in sdf.columns else None
+            tvals = sdf[tcol].to_numpy(dtype=np.int64).tolist() if tcol else [None] * len(sdf)
+            svals = sdf["sat"].astype(str).tolist() if "sat" in sdf.columns else [None] * len(sdf)
+            cols = list(sdf.columns)
+            data = [json.dumps(dict(zip(cols, map(_clean, row))), default=_json_default)
+                    for row in sdf.itertuples(index=False, name=None)]
+            srows = list(zip([pair] * len(sdf), [date] * len(sdf), range(len(sdf)), tvals, svals, data))
+        with self._write(f"store {pair} {date}") as con:
+            con.execute("DELETE FROM offsets WHERE pair=? AND date=?", (pair, date))
+            con.execute("DELETE FROM satellites WHERE pair=? AND date=?", (pair, date))
+            con.executemany("INSERT INTO offsets VALUES (?,?,?,?,?,?,?,?,?,?)", orows)
+            con.executemany("INSERT INTO satellites VALUES (?,?,?,?,?,?)", srows)
+            run_id = self._insert_run(con, pair, date, "ok", run_info, [])
+            con.execute(
+                "INSERT INTO days (pair, date, run_id, latest_run_id, latest_status, n_offsets, n_satellites,"
+                " checksum, stale, stale_reason) VALUES (?,?,?,?,'ok',?,?,?,0,NULL)"
+                " ON CONFLICT (pair, date) DO UPDATE SET run_id=excluded.run_id,"
+                " latest_run_id=excluded.latest_run_id, latest_status='ok', n_offsets=excluded.n_offsets,"
+                " n_satellites=excluded.n_satellites, checksum=excluded.checksum, stale=0, stale_reason=NULL",
+                (pair, date, run_id, run_id, len(orows), len(srows), checksum))
+        return run_id
+
+    def record_failure(self, pair: str, date, reason: str, run_info: dict | None = None) -> int:
+        """Record a failed attempt; previous good results of the day are kept (see module doc)."""
+        date = _date_text(date)
+        with self._write(f"record a failure for {pair} {date}") as con:
+            run_id = self._insert_run(con, pair, date, "failed", run_info, [reason])
+            con.execute(
+                "INSERT INTO days (pair, date, run_id, latest_run_id, latest_status) VALUES (?,?,NULL,?,'failed')"
+                " ON CONFLICT (pair, date) DO UPDATE SET latest_run_id=excluded.latest_run_id,"
+                " latest_status='failed'", (pair, date, run_id))
+        return run_id
+
+    def mark_stale(self, pair: str, dates, reason: str) -> int:
+        """Flag stored days for reprocessing (e.g. after a calibration change); returns how many."""
+        ds = [_date_text(d) for d in dates]
+        with self._write(f"mark days stale for {pair}") as con:
+            n = 0
+            for d in ds:
+                n += con.execute("UPDATE days SET stale=1, stale_reason=? WHERE pair=? AND date=?",
+                                 (reason, pair, d)).rowcount
+        return n
+
+    # ------------------------------------------------------------ reading
+
+    def load_offsets(self, pair: str, date_from=None, date_to=None) -> pd.DataFrame:
+        """Stored per-bin offsets of ``pair`` for dates ``date_from..date_to`` inclusive, sorted by time.
+
+        Columns: ``time_utc`` (ISO, 9 digits, Z), ``time_utc_ns`` (int64), ``mjd_utc``,
+        ``offset_ns``, ``u_ns``, ``n_sat``, ``flag``, ``date``, plus any extra columns stored.
+        """
+        q = "SELECT time_utc, time_utc_ns, mjd_utc, offset_ns, u_ns, n_sat, flag, date, extra FROM offsets WHERE pair=?"
+        args: list = [pair]
+        if date_from is not None:
+            q += " AND date >= ?"
+            args.append(_date_text(date_from))
+        if date_to is not None:
+            q += " AND date <= ?"
+            args.append(_date_text(date_to))
+        q += " ORDER BY time_utc_ns"
+        rows = self._con.execute(q, args).fetchall()
+        df = pd.DataFrame(rows, columns=["time_utc", "time_utc_ns", "mjd_utc", "offset_ns", "u_ns", "n_sat",
+                                         "flag", "date", "extra"])
+        df["time_utc_ns"] = df["time_utc_ns"].astype(np.int64)
+        for c in ("mjd_utc", "offset_ns", "u_ns"):
+            df[c] = df[c].astype(float)
+        if df["extra"].notna().any():
+            ext = pd.DataFrame([json.loads(e) if e else {} for e in df["extra"]], index=df.index)
+            df = pd.concat([df.drop(columns="extra"), ext], axis=1)
+        else:
+            df = df.drop(columns="extra")
+        return df
+
+    def load_satellites(self, pair: str, date) -> pd.DataFrame:
+        rows = self._con.execute("SELECT data FROM satellites WHERE pair=? AND date=? ORDER BY row",
+                                 (pair, _date_text(date))).fetchall()
+        return pd.DataFrame([json.loads(r[0]) for r in rows])
+
+    def days_done(self, pair: str) -> dict:
+        """{date: (inputs_hash, config_hash)} of days holding good, non-stale results (for backfill)."""
+        rows = self._con.execute(
+            "SELECT d.date, r.inputs_hash, r.config_hash FROM days d JOIN runs r ON r.run_id = d.run_id"
+            " WHERE d.pair=? AND d.stale=0 ORDER BY d.date", (pair,)).fetchall()
+        return {d: (ih, ch) for d, ih, ch in rows}
+
+    def stale_days(self, pair: str) -> dict:
+        """{date: reason} of days marked stale."""
+        rows = self._con.execute("SELECT date, stale_reason FROM days WHERE pair=? AND stale=1 ORDER BY date",
+                                 (pair,)).fetchall()
+        return dict(rows)
+
+    def day_info(self, pair: str, date) -> dict | None:
+        row = self._con.execute(
+            "SELECT run_id, latest_run_id, latest_status, n_offsets, n_satellites, checksum, stale, stale_reason"
+            " FROM days WHERE pair=? AND date=?", (pair, _date_text(date))).fetchone()
+        if row is None:
+            return None
+        keys = ("run_id", "latest_run_id", "latest_status", "n_offsets", "n_satellites", "checksum", "stale",
+                "stale_reason")
+        return dict(zip(keys, row))
+
+    def runs(self, pair: str, date=None) -> pd.DataFrame:
+        q = "SELECT * FROM runs WHERE pair=?"
+        args: list = [pair]
+        if date is not None:
+            q += " AND date=?"
+            args.append(_date_text(date))
+        cur = self._con.execute(q + " ORDER BY run_id", args)
+        return pd.DataFrame(cur.fetchall(), columns=[c[0] for c in cur.description])
+
+    def verify_day(self, pair: str, date) -> bool:
+        """Stored offsets match the day's recorded row count and checksum."""
+        info = self.day_info(pair, date)
+        if info is None:
+            return False
+        rows = self._con.execute("SELECT time_utc_ns, offset_ns, u_ns, n_sat, flag FROM offsets"
+                                 " WHERE pair=? AND date=?", (pair, _date_text(date))).fetchall()
+        nsat = self._con.execute("SELECT COUNT(*) FROM satellites WHERE pair=? AND date=?",
+                                 (pair, _date_text(date))).fetchone()[0]
+        if info["run_id"] is None:
+            return not rows and nsat == 0
+        return (len(rows) == info["n_offsets"] and nsat == info["n_satellites"]
+                and offsets_checksum(rows) == info["checksum"])
+
+    # ------------------------------------------------------------ whole-run lock
+
+    @contextlib.contextmanager
+    def run_lock(self, timeout_s: float | None = None, poll_s: float = 0.2):
+        """Advisory lock file ``<archive>.lock`` for a whole run (PID, host, time inside).
+
+        Waits up to ``timeout_s`` (default: the archive's) for a live holder; a lock left
+        by a dead process on this host is taken over; a lock from another host is
+        only reported (its PID cannot be checked) and waited for.
+        """
+        lock = self.path.with_name(self.path.name + ".lock")
+        timeout = self.timeout_s if timeout_s is None else timeout_s
+        deadline = time.monotonic() + timeout
+        me = {"pid": os.getpid(), "host": socket.gethostname(), "time": _now_iso()}
+        while True:
+            try:
+                fd = os.open(lock, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
+            except FileExistsError:
+                holder = _read_lock(lock)
+                if holder is None and _age_s(lock) > 60.0:
+                    holder = {}  # empty/unreadable for a minute: its writer died while creating it
+                if holder is not None and (holder == {} or _lock_is_dead(holder)):
+                    # take over: remove only if it is still the same dead holder's file
+                    if (_read_lock(lock) or {}) == holder:
+                        with contextlib.suppress(FileNotFoundError):
+                            os.unlink(lock)
+                    continue
+                if time.monotonic() >= deadline:
+                    who = (f"PID {holder.get('pid')} on {holder.get('host')} since {holder.get('time')}"
+                           if holder else "an unreadable lock file")
+                    raise LockTimeoutError(f"{lock}: archive locked by {who}; waited {timeout:g} s") from None
+                time.sleep(poll_s)
+                continue
+            with os.fdopen(fd, "w") as f:
+                json.dump(me, f)
+            break
+        try:
+            yield lock
+        finally:
+            if _read_lock(lock) == me:
+                with contextlib.suppress(FileNotFoundError):
+                    os.unlink(lock)
+
+
+def _read_lock(lock: pathlib.Path):
+    try:
+        return json.loads(lock.read_text())
+    except (FileNotFoundError, ValueError):
+        return None
+
+
+def _age_s(lock: pathlib.Path) -> float:
+    try:
+        return time.time() - lock.stat().st_mtime
+    except FileNotFoundError:
+        return 0.0
+
+
+def _lock_is_dead(holder: dict) -> bool:
+    if holder.get("host") != socket.gethostname():
+        return False
+    pid = holder.get("pid")
+    if not isinstance(pid, int) or pid <= 0:
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return True
+    except PermissionError:
+        return False
+    return False

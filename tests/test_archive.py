@@ -1,0 +1,316 @@
+"""SQLite archive: replace-in-one-transaction, failures, staleness, locking, crash safety.
+
+External reference for soundness: SQLite's own ``PRAGMA integrity_check`` (stdlib sqlite3).
+"""
+
+from __future__ import annotations
+
+import json
+import multiprocessing as mp
+import os
+import random
+import signal
+import socket
+import sqlite3
+import threading
+import time
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from ctt.archive import Archive, inputs_record, offsets_checksum
+from ctt.errors import EXIT_LOCKED, LockTimeoutError
+from ctt.timescales import parse_iso
+
+PAIR = "laba-labb"
+DAY = "2021-01-01"
+T0 = parse_iso("2021-01-01T00:00:00Z")
+
+
+def make_day(version: int, n: int = 2880, nsat: int = 8):
+    """A deterministic day; each version differs in size and values."""
+    rng = np.random.default_rng(version)
+    n = n - 97 * version
+    t = T0 + np.arange(n, dtype=np.int64) * 30_000_000_000
+    off = pd.DataFrame({"time_utc_ns": t, "offset_ns": rng.normal(5.0 * version, 1.0, n),
+                        "u_ns": np.full(n, 1.5), "n_sat": np.full(n, nsat), "flag": "ok"})
+    sat = pd.DataFrame({"time_utc_ns": np.repeat(t, nsat), "sat": [f"G{i + 1:02d}" for i in range(nsat)] * n,
+                        "value_ns": rng.normal(0, 1, n * nsat)})
+    return off, sat
+
+
+def _checksum(off):
+    rows = zip(off["time_utc_ns"].tolist(), off["offset_ns"].tolist(), off["u_ns"].tolist(),
+               off["n_sat"].tolist(), off["flag"].tolist())
+    return offsets_checksum(rows)
+
+
+def test_store_and_load(tmp_path):
+    off, sat = make_day(0)
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, off, sat, {"config_hash": "c1", "version": "0.1.0"})
+        got = a.load_offsets(PAIR, DAY, DAY)
+        assert list(got.columns[:7]) == ["time_utc", "time_utc_ns", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag"]
+        np.testing.assert_array_equal(got["time_utc_ns"].to_numpy(), off["time_utc_ns"].to_numpy())
+        np.testing.assert_array_equal(got["offset_ns"].to_numpy(), off["offset_ns"].to_numpy())  # exact: REAL is binary64
+        assert got["time_utc"].iloc[1] == "2021-01-01T00:00:30.000000000Z"
+        assert got["mjd_utc"].iloc[0] == 59215.0   # MJD of 2021-01-01 (common practice: MJD 59215)
+        assert len(a.load_satellites(PAIR, DAY)) == len(sat)
+        assert a.verify_day(PAIR, DAY)
+        assert a.integrity_check() == "ok"
+        mode = sqlite3.connect(tmp_path / "a.sqlite").execute("PRAGMA journal_mode").fetchone()[0]
+        assert mode == "wal"
+
+
+def test_rerun_is_idempotent_and_replaces(tmp_path):
+    off0, sat0 = make_day(0)
+    off1, sat1 = make_day(1)
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, off0, sat0, {})
+        a.store_day(PAIR, DAY, off0, sat0, {})
+        assert len(a.load_offsets(PAIR)) == len(off0)
+        a.store_day(PAIR, DAY, off1, sat1, {})
+        got = a.load_offsets(PAIR)
+        assert len(got) == len(off1) and len(a.load_satellites(PAIR, DAY)) == len(sat1)
+        assert a.day_info(PAIR, DAY)["checksum"] == _checksum(off1)
+        assert len(a.runs(PAIR, DAY)) == 3
+
+
+def test_extra_columns_and_nan(tmp_path):
+    off, _ = make_day(0, n=10)
+    off["u_ns"] = np.nan
+    off["u_type_a_ns"] = 0.25
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, off, None, {})
+        got = a.load_offsets(PAIR)
+        assert got["u_ns"].isna().all() and (got["u_type_a_ns"] == 0.25).all()
+
+
+def test_failure_keeps_previous_results(tmp_path):
+    off, sat = make_day(0)
+    inp = tmp_path / "obs.txt"
+    inp.write_text("hello")
+    rec = inputs_record({"obs_a": inp, "sp3": None})
+    # SHA-256 of b"hello" (FIPS 180-4 test-style vector; common practice)
+    assert rec["obs_a"]["sha256"] == "2cf24dba5fb0a30e26e83b2ac5b9e29e1b161e5c1fa7425e73043362938b9824"
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, off, sat, {"inputs": rec, "config_hash": "c1"})
+        done_before = a.days_done(PAIR)
+        a.record_failure(PAIR, DAY, "nav file truncated", {"config_hash": "c2"})
+        assert len(a.load_offsets(PAIR)) == len(off)          # kept
+        info = a.day_info(PAIR, DAY)
+        assert info["latest_status"] == "failed" and info["run_id"] != info["latest_run_id"]
+        assert a.days_done(PAIR) == done_before
+        runs = a.runs(PAIR, DAY)
+        assert list(runs["status"]) == ["ok", "failed"]
+        assert "nav file truncated" in json.loads(runs["messages"].iloc[1])
+        assert json.loads(runs["inputs_json"].iloc[0])["obs_a"]["sha256"] == rec["obs_a"]["sha256"]
+        a.record_failure(PAIR, "2021-01-02", "no common satellites", {})
+        assert "2021-01-02" not in a.days_done(PAIR)
+        assert a.verify_day(PAIR, "2021-01-02")
+
+
+def test_days_done_and_stale(tmp_path):
+    off, sat = make_day(0, n=50)
+    with Archive(tmp_path / "a.sqlite") as a:
+        for d in ("2021-01-01", "2021-01-02", "2021-01-03"):
+            a.store_day(PAIR, d, off, sat, {"config_hash": "c1", "inputs": {"obs_a": {"sha256": d}}})
+        done = a.days_done(PAIR)
+        assert sorted(done) == ["2021-01-01", "2021-01-02", "2021-01-03"]
+        assert done["2021-01-01"][1] == "c1" and done["2021-01-01"][0] != done["2021-01-02"][0]
+        assert a.mark_stale(PAIR, ["2021-01-02", "2021-01-03", "2021-02-01"], "cable delay recalibrated") == 2
+        assert a.stale_days(PAIR) == {"2021-01-02": "cable delay recalibrated", "2021-01-03": "cable delay recalibrated"}
+        assert sorted(a.days_done(PAIR)) == ["2021-01-01"]
+        a.store_day(PAIR, "2021-01-02", off, sat, {"config_hash": "c2"})
+        assert a.stale_days(PAIR) == {"2021-01-03": "cable delay recalibrated"}
+        assert a.days_done(PAIR)["2021-01-02"][1] == "c2"
+        assert a.days_done("other-pair") == {}
+
+
+def test_repeated_times_refused(tmp_path):
+    off, _ = make_day(0, n=5)
+    off.loc[3, "time_utc_ns"] = off.loc[2, "time_utc_ns"]
+    with Archive(tmp_path / "a.sqlite") as a:
+        with pytest.raises(Exception, match="repeated"):
+            a.store_day(PAIR, DAY, off, None, {})
+        assert a.day_info(PAIR, DAY) is None
+
+
+def test_exception_mid_transaction_rolls_back(tmp_path):
+    off0, sat0 = make_day(0)
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, off0, sat0, {})
+        off1, sat1 = make_day(1)
+        sat1["bad"] = [object()] * len(sat1)   # json falls back to str(): fine; force a failure instead:
+        bad = off1.copy()
+        bad["n_sat"] = [object()] * len(bad)   # sqlite3 cannot bind an object -> error inside the txn
+        with pytest.raises(sqlite3.Error):
+            a.store_day(PAIR, DAY, bad, sat1, {})
+        assert a.verify_day(PAIR, DAY) and a.day_info(PAIR, DAY)["checksum"] == _checksum(off0)
+        assert len(a.load_satellites(PAIR, DAY)) == len(sat0)
+
+
+# ---------------------------------------------------------------- locking
+
+def test_second_writer_times_out_with_exit_code_4(tmp_path):
+    path = tmp_path / "a.sqlite"
+    a = Archive(path)
+    b = Archive(path, timeout_s=0.3)
+    off, sat = make_day(0, n=20)
+    with a._write("hold"):
+        t = time.monotonic()
+        with pytest.raises(LockTimeoutError) as ei:
+            b.store_day(PAIR, DAY, off, sat, {})
+        assert time.monotonic() - t >= 0.29
+    assert ei.value.exit_code == EXIT_LOCKED == 4
+    assert "another run is writing" in str(ei.value) and str(path) in str(ei.value)
+    b.store_day(PAIR, DAY, off, sat, {})   # free again
+    assert a.verify_day(PAIR, DAY)
+    a.close(), b.close()
+
+
+def test_second_writer_waits_then_completes(tmp_path):
+    path = tmp_path / "a.sqlite"
+    a = Archive(path)
+    off, sat = make_day(0, n=20)
+    done = []
+
+    def second():
+        with Archive(path, timeout_s=10) as b:   # sqlite3 connections stay in their thread
+            b.store_day(PAIR, DAY, off, sat, {})
+        done.append(time.monotonic())
+
+    with a._write("hold"):
+        th = threading.Thread(target=second)
+        th.start()
+        time.sleep(0.3)
+        assert not done        # still waiting while the first holds the write lock
+        released = time.monotonic()
+    th.join(10)
+    assert done and done[0] >= released
+    assert a.verify_day(PAIR, DAY)
+    a.close()
+
+
+def _writer_proc(path, version, timeout_s, q):
+    try:
+        off, sat = make_day(version)
+        with Archive(path, timeout_s=timeout_s) as a:
+            a.store_day(PAIR, DAY, off, sat, {"version": str(version)})
+        q.put(("ok", version))
+    except LockTimeoutError as exc:
+        q.put(("locked", str(exc)))
+
+
+def test_two_simultaneous_writers_no_duplicates(tmp_path):
+    path = tmp_path / "a.sqlite"
+    Archive(path).close()
+    ctx = mp.get_context("fork")
+    q = ctx.Queue()
+    procs = [ctx.Process(target=_writer_proc, args=(path, v, 30.0, q)) for v in (1, 2)]
+    for p in procs:
+        p.start()
+    for p in procs:
+        p.join(60)
+    results = sorted(q.get(timeout=5) for _ in procs)
+    assert [r[0] for r in results] == ["ok", "ok"]   # the second waited and completed
+    with Archive(path) as a:
+        n = a._con.execute("SELECT COUNT(*) FROM offsets").fetchone()[0]
+        info = a.day_info(PAIR, DAY)
+        assert n == info["n_offsets"] and a.verify_day(PAIR, DAY)
+        assert info["checksum"] in (_checksum(make_day(1)[0]), _checksum(make_day(2)[0]))
+        assert len(a.runs(PAIR, DAY)) == 2
+        assert a.integrity_check() == "ok"
+
+
+def test_run_lock_waits_and_takes_over_dead_holder(tmp_path):
+    path = tmp_path / "a.sqlite"
+    with Archive(path, timeout_s=0.3) as a:
+        with a.run_lock() as lock:
+            held = json.loads(lock.read_text())
+            assert held["pid"] == os.getpid() and held["host"] == socket.gethostname()
+            # a live holder (this process) -> the second attempt times out
+            with pytest.raises(LockTimeoutError, match=f"PID {os.getpid()}"):
+                with a.run_lock(timeout_s=0.3, poll_s=0.05):
+                    pass
+        assert not lock.exists()
+        # a dead PID's lock is taken over
+        ctx = mp.get_context("fork")
+        p = ctx.Process(target=lambda: None)
+        p.start()
+        p.join()
+        lock.write_text(json.dumps({"pid": p.pid, "host": socket.gethostname(), "time": "2021-01-01T00:00:00Z"}))
+        with a.run_lock(timeout_s=0.3):
+            assert json.loads(lock.read_text())["pid"] == os.getpid()
+        # a lock from another host is never broken
+        lock.write_text(json.dumps({"pid": 1, "host": "some-other-host", "time": "2021-01-01T00:00:00Z"}))
+        with pytest.raises(LockTimeoutError, match="some-other-host"):
+            with a.run_lock(timeout_s=0.2, poll_s=0.05):
+                pass
+
+
+# ---------------------------------------------------------------- crash safety
+
+KILL_N = 1200   # bins per day in the kill trials: one store takes ~0.1 s here
+
+
+def _store_forever(path, ready_fd, versions):
+    # child of fork: alternate two versions of the day as fast as possible
+    a = Archive(path, timeout_s=5)
+    os.write(ready_fd, b"r")
+    k = 0
+    while True:
+        off, sat = versions[k % 2]
+        a.store_day(PAIR, DAY, off, sat, {"version": str(k)})
+        k += 1
+
+
+def _kill_trials(tmp_path, trials, seed):
+    path = tmp_path / "k.sqlite"
+    days = {v: make_day(v, n=KILL_N) for v in (0, 1, 2)}
+    sums = {_checksum(days[v][0]): v for v in days}
+    off0, sat0 = days[0]
+    with Archive(path) as a:
+        a.store_day(PAIR, DAY, off0, sat0, {})
+    rng = random.Random(seed)
+    ctx = mp.get_context("fork")
+    seen = set()
+    for trial in range(trials):
+        r, w = os.pipe()
+        p = ctx.Process(target=_store_forever, args=(path, w, [days[1], days[2]]))
+        p.start()
+        os.read(r, 1)
+        os.close(r), os.close(w)
+        time.sleep(rng.uniform(0.0, 0.25))    # lands anywhere in a store (before, inside, at commit)
+        os.kill(p.pid, signal.SIGKILL)
+        p.join()
+        assert p.exitcode == -signal.SIGKILL
+        with Archive(path, timeout_s=5) as a:
+            assert a.integrity_check() == "ok", trial
+            info = a.day_info(PAIR, DAY)
+            assert a.verify_day(PAIR, DAY), trial            # row counts and checksum agree
+            assert info["checksum"] in sums, trial           # old or new day, never a mixture
+            v = sums[info["checksum"]]
+            seen.add(v)
+            assert info["n_satellites"] == len(days[v][1])
+            if trial % 5 == 0:   # the next write completes
+                got = a.load_offsets(PAIR)
+                np.testing.assert_array_equal(got["offset_ns"].to_numpy(), days[v][0]["offset_ns"].to_numpy())
+                a.store_day(PAIR, DAY, off0, sat0, {})
+                assert a.verify_day(PAIR, DAY)
+    with Archive(path) as a:
+        a.store_day(PAIR, DAY, off0, sat0, {})
+        assert a.verify_day(PAIR, DAY) and a.integrity_check() == "ok"
+    return seen
+
+
+def test_sigkill_during_store_day(tmp_path):
+    seen = _kill_trials(tmp_path, trials=20, seed=1)
+    assert seen & {1, 2}     # the writer did complete stores in some trials (so kills hit live writes)
+
+
+@pytest.mark.slow
+def test_sigkill_during_store_day_many(tmp_path):
+    seen = _kill_trials(tmp_path, trials=50, seed=2)
+    assert seen & {1, 2}
