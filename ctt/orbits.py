@@ -1,0 +1,707 @@
+"""Satellite position, velocity and clock at an instant, from broadcast ephemerides.
+
+``BroadcastOrbits(nav, *, galileo_source='inav', allow_future=False, bias_file=None)``
+and its ``states(sats, t_ns, dt_s=0.0) -> SatStates`` (the interface shared with
+``ctt.rinex.products.PreciseOrbits``). Everything is vectorised over the flat
+query arrays (satellites × epochs flattened to N rows).
+
+Instants
+--------
+``t_ns`` is int64 GPS-time calendar-count ns, ``dt_s`` a float64 offset in
+seconds added to it (so a transmission time keeps ps precision). Before an
+ephemeris is evaluated the instant is converted to the system's own scale with
+:func:`ctt.timescales.convert`: GST = GPS and QZSS time = GPS (nominal), BDT =
+GPS − 14 s, and for GLONASS to **UTC**, because RINEX gives the GLONASS
+reference epoch t_b in UTC (the GLONASS ICD's t_b is in GLONASS time =
+UTC(SU) + 3 h; RINEX removes the 3 h). Intervals are formed as exact int64
+differences first and only then turned into float seconds.
+
+Frames
+------
+``pos_m`` and ``vel_mps`` are Earth-fixed at the instant (rotating frame, the
+velocity is the time derivative of the Earth-fixed position). WGS 84 (GPS),
+GTRF (Galileo), CGCS2000 (BeiDou), the QZSS frame and PZ-90.11 (GLONASS) are
+treated as one frame: they agree at the few-cm level, far below broadcast
+orbit errors (common practice).
+
+Clocks
+------
+``clock_s`` is satellite clock minus *its own system time* from the broadcast
+polynomial af0 + af1·Δt + af2·Δt² (Δt from t_oc), or −τ_n + γ_n·(t − t_b) for
+GLONASS, *without* the periodic relativistic term and without group delays.
+``relativity_s`` is that periodic term: F·e·√A·sin E_k (IS-GPS-200
+§20.3.3.3.3.1, F = −2√μ/c²) for Keplerian ephemerides, −2 r·v/c² for GLONASS
+states (GLONASS ICD; r·v is the same in the Earth-fixed and inertial frames).
+The satellite clock for a signal is ``clock_s + relativity_s + group_delay_s``
+(see :meth:`BroadcastOrbits.group_delay_s`), minus ``system_time_offset_s``'s
+sibling conversions done by the user: ``system_time_offset_s`` is
+(system time − GPS time) beyond the nominal offset that ``ctt.timescales``
+applies (0 for GPS; GST−GPS from the header GPGA/GAGP correction; BDT−GPS from
+BDUT−GPUT; GLONASS−GPS from GLGP, or GLUT and GPUT), NaN when the file gives
+no correction for that system.
+
+Ephemeris selection (what a receiver would use)
+-----------------------------------------------
+For each row the record of that satellite is chosen that is
+
+* healthy: GPS/QZSS health word 0; Galileo health bits of the signals used
+  (E1-B and E5b DVS/HS for I/NAV, E5a DVS/HS for F/NAV; Galileo OS SIS ICD
+  §5.1.9.3); BeiDou SatH1 0; GLONASS B_n health 0;
+* of the right Galileo message: ``galileo_source='inav'`` (E1/E5b users) keeps
+  only records whose data-source bits say I/NAV, ``'fnav'`` (E5a) only F/NAV;
+* IOD-consistent: GPS/QZSS IODE equal to the low 8 bits of IODC
+  (IS-GPS-200 §20.3.4.4);
+* inside its validity interval: GPS/QZSS ±fit/2 around t_oe (fit interval
+  from the record, 4 h when flagged 0; IS-GPS-200 §20.3.4.4, t_oe at the middle
+  of the curve fit); Galileo ±4 h around t_oe (the ICD gives no fit interval;
+  4 h is common practice); BeiDou ±2 h (records are updated hourly; common
+  practice); GLONASS ±30 min around t_b (records every 30 min intended for
+  ±15 min; the wider window bridges one missing record at metre-level cost);
+* already broadcast: its transmission time of message (GLONASS: message frame
+  time t_k) not after the instant, unless ``allow_future=True``; where a file
+  gives no transmission time the start of the validity interval is used. This
+  is the receiver's view: a GPS data set is first broadcast about 2 h before
+  its t_oe, so a rule "t_oe not after t" would force the previous, older set;
+* and among those the one whose t_oe (t_b) is closest to the instant.
+
+Rows that get no record keep NaN outputs and a status code (``STATUS_NAMES``,
+:func:`reason`): NO_EPHEMERIS (no record of that satellite), STALE (none
+within its validity interval), NOT_YET_BROADCAST (only records transmitted
+after the instant), WRONG_SOURCE (Galileo: only the other message), UNHEALTHY,
+IOD_MISMATCH (only records failing that check), UNSUPPORTED_SYSTEM (SBAS,
+IRNSS, unknown letters), BAD_ID (not a satellite id).
+
+Models
+------
+GPS/QZSS: IS-GPS-200 Table 20-IV (μ = 3.986005e14, Ω̇e = 7.2921151467e-5).
+Galileo: Galileo OS SIS ICD §5.1.1 (μ = 3.986004418e14, same Ω̇e). BeiDou: BDS
+SIS ICD (CGCS2000 μ = 3.986004418e14, Ω̇e = 7.2921150e-5), GEO satellites
+(PRN 1–5, 59–63) with the extra −5° rotation. Kepler's equation is solved by
+vectorised Newton iteration to |ΔE| < 1e-13 rad. Velocities are the analytic
+time derivatives. GLONASS: GLONASS ICD (2008) Appendix A.3.1.2, 4th-order
+Runge–Kutta integration of the PZ-90 state in the Earth-fixed frame with the
+central term, J2 and the broadcast (constant) luni-solar accelerations, steps
+≤ 60 s (μ = 3.9860044e14, a_e = 6378136 m, J2 = 1082625.75e-9,
+ω = 7.292115e-5 rad/s).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+
+import numpy as np
+
+from .errors import ProcessingError
+from .rinex.nav import BDS_GEO_PRN, NavData
+from .timescales import NS_PER_S, convert
+
+C_MPS = 299_792_458.0  # SI
+GM_GPS = 3.986005e14  # IS-GPS-200 §20.3.3.4.3
+OMEGA_E_GPS = 7.2921151467e-5  # IS-GPS-200
+GM_GAL = 3.986004418e14  # Galileo OS SIS ICD §5.1.1
+OMEGA_E_GAL = 7.2921151467e-5  # Galileo OS SIS ICD §5.1.1
+GM_BDS = 3.986004418e14  # BDS SIS ICD (CGCS2000)
+OMEGA_E_BDS = 7.2921150e-5  # BDS SIS ICD (CGCS2000)
+# GLONASS ICD (2008) §3.1.3 / Appendix A.3.1.2, PZ-90
+GM_GLO = 3.9860044e14
+AE_GLO = 6378136.0
+J2_GLO = 1082625.75e-9
+OMEGA_E_GLO = 7.292115e-5
+
+#: F = −2√μ/c² (IS-GPS-200 §20.3.3.3.3.1: −4.442807633e-10 s/m^½).
+F_GPS = -2.0 * math.sqrt(GM_GPS) / C_MPS**2
+F_GAL = -2.0 * math.sqrt(GM_GAL) / C_MPS**2
+F_BDS = -2.0 * math.sqrt(GM_BDS) / C_MPS**2
+assert abs(F_GPS - (-4.442807633e-10)) < 5e-19, F_GPS
+
+# Carrier frequencies (Hz) for the group-delay scaling (IS-GPS-200, Galileo OS
+# SIS ICD, BDS SIS ICDs). ctt.signals owns the general table; these are the
+# few the broadcast group delays refer to.
+F_L1 = 1575.42e6
+F_L2 = 1227.60e6
+F_E5A = 1176.45e6
+F_E5B = 1207.14e6
+F_B1I = 1561.098e6
+F_B2I = 1207.14e6
+F_B3I = 1268.52e6
+
+KEPLER_TOL_RAD = 1e-13
+KEPLER_MAX_ITER = 50
+
+OK = 0
+NO_EPHEMERIS = 1
+STALE = 2
+NOT_YET_BROADCAST = 3
+WRONG_SOURCE = 4
+UNHEALTHY = 5
+IOD_MISMATCH = 6
+UNSUPPORTED_SYSTEM = 7
+BAD_ID = 8
+STATUS_NAMES = {
+    OK: "OK", NO_EPHEMERIS: "NO_EPHEMERIS", STALE: "STALE", NOT_YET_BROADCAST: "NOT_YET_BROADCAST",
+    WRONG_SOURCE: "WRONG_SOURCE", UNHEALTHY: "UNHEALTHY", IOD_MISMATCH: "IOD_MISMATCH",
+    UNSUPPORTED_SYSTEM: "UNSUPPORTED_SYSTEM", BAD_ID: "BAD_ID",
+}
+_REASONS = {
+    OK: "usable",
+    NO_EPHEMERIS: "no ephemeris record for this satellite in the navigation data",
+    STALE: "no record whose validity interval contains the instant",
+    NOT_YET_BROADCAST: "only records transmitted after the instant (allow_future=False)",
+    WRONG_SOURCE: "no Galileo record of the requested message (I/NAV or F/NAV)",
+    UNHEALTHY: "records in range are flagged unhealthy",
+    IOD_MISMATCH: "records in range have IODE different from the low 8 bits of IODC",
+    UNSUPPORTED_SYSTEM: "system not modelled (SBAS, IRNSS or unknown letter)",
+    BAD_ID: "not a satellite id (letter + two digits)",
+}
+
+_SCALE = {"G": "GPS", "J": "QZS", "E": "GST", "C": "BDT", "R": "UTC"}
+_HALF_VALID_NS = {"E": 4 * 3600 * NS_PER_S, "C": 2 * 3600 * NS_PER_S, "R": 1800 * NS_PER_S}
+_WINDOW = 6  # candidates examined on each side of the instant (per satellite, sorted by t_oe)
+_I64MIN = np.iinfo(np.int64).min
+
+
+def reason(status):
+    """Text reason(s) for status code(s)."""
+    st = np.asarray(status)
+    if st.ndim == 0:
+        return _REASONS[int(st)]
+    return np.array([_REASONS[int(s)] for s in st.ravel()], dtype=object).reshape(st.shape)
+
+
+@dataclasses.dataclass
+class SatStates:
+    """Satellite states for N rows (see module docstring for frames and signs).
+
+    pos_m (N,3), vel_mps (N,3) Earth-fixed; clock_s, clock_drift_sps,
+    relativity_s; broadcast group delays tgd_s (GPS/QZSS), bgd_e5a_s,
+    bgd_e5b_s (Galileo), tgd1_s, tgd2_s (BeiDou), NaN where not applicable;
+    iode (int, −1 when none), status (int, STATUS_NAMES), toe_gps_ns (GPS time
+    of the chosen record's t_oe / t_b, int64 min when none), record (row index
+    into ``nav.records[system]``, −1 when none), system (letter),
+    system_time_offset_s.
+    """
+
+    pos_m: np.ndarray
+    vel_mps: np.ndarray
+    clock_s: np.ndarray
+    clock_drift_sps: np.ndarray
+    relativity_s: np.ndarray
+    tgd_s: np.ndarray
+    bgd_e5a_s: np.ndarray
+    bgd_e5b_s: np.ndarray
+    tgd1_s: np.ndarray
+    tgd2_s: np.ndarray
+    iode: np.ndarray
+    status: np.ndarray
+    toe_gps_ns: np.ndarray
+    record: np.ndarray
+    system: np.ndarray
+    system_time_offset_s: np.ndarray
+
+    def reason(self, status=None):
+        return reason(self.status if status is None else status)
+
+    @property
+    def ok(self):
+        return self.status == OK
+
+    def __len__(self):
+        return len(self.status)
+
+
+# ------------------------------------------------------------------ Kepler
+
+def solve_kepler(m_rad, e):
+    """Eccentric anomaly E with E − e·sin E = M (vectorised Newton, |ΔE| < 1e-13 rad).
+
+    Start at M (π for e > 0.8, where Newton from M can overshoot); raises
+    ProcessingError if some element has not converged after 50 iterations.
+    """
+    m = np.asarray(m_rad, dtype=np.float64)
+    e = np.broadcast_to(np.asarray(e, dtype=np.float64), m.shape)
+    if np.any((e < 0) | (e >= 1)):
+        raise ProcessingError("eccentricity outside [0, 1) in Kepler's equation")
+    two_pi = 2.0 * np.pi
+    mr = np.mod(m, two_pi)  # [0, 2π)
+    big = e > 0.8
+    E = np.where(big, np.pi, mr)
+    for _ in range(KEPLER_MAX_ITER):
+        d = (E - e * np.sin(E) - mr) / (1.0 - e * np.cos(E))
+        E = E - d
+        if np.all(np.abs(d) < KEPLER_TOL_RAD):
+            break
+    else:
+        raise ProcessingError("Kepler's equation did not converge (|ΔE| ≥ 1e-13 rad after 50 iterations)")
+    return E + (m - mr)
+
+
+def _kepler_states(p, tk, gm, omega_e, geo=None):
+    """Position/velocity (Earth-fixed) and sin E, from gathered record columns ``p`` and tk (s)."""
+    a = p["sqrt_a_sqrtm"] ** 2
+    n = np.sqrt(gm / a**3) + p["delta_n_radps"]
+    e = p["e"]
+    E = solve_kepler(p["m0_rad"] + n * tk, e)
+    sE, cE = np.sin(E), np.cos(E)
+    den = 1.0 - e * cE
+    s1e = np.sqrt(1.0 - e * e)
+    nu = np.arctan2(s1e * sE, cE - e)
+    phi = nu + p["omega_rad"]
+    s2, c2 = np.sin(2 * phi), np.cos(2 * phi)
+    du = p["cus_rad"] * s2 + p["cuc_rad"] * c2
+    dr = p["crs_m"] * s2 + p["crc_m"] * c2
+    di = p["cis_rad"] * s2 + p["cic_rad"] * c2
+    u = phi + du
+    r = a * den + dr
+    inc = p["i0_rad"] + di + p["idot_radps"] * tk
+    # derivatives
+    Edot = n / den
+    nudot = Edot * s1e / den
+    udot = nudot * (1.0 + 2.0 * (p["cus_rad"] * c2 - p["cuc_rad"] * s2))
+    rdot = a * e * sE * Edot + 2.0 * nudot * (p["crs_m"] * c2 - p["crc_m"] * s2)
+    idot = p["idot_radps"] + 2.0 * nudot * (p["cis_rad"] * c2 - p["cic_rad"] * s2)
+    cu, su = np.cos(u), np.sin(u)
+    xp, yp = r * cu, r * su
+    xpd = rdot * cu - r * udot * su
+    ypd = rdot * su + r * udot * cu
+    toe = p["toe_sow_s"]
+    if geo is None:
+        geo = np.zeros(tk.shape, dtype=bool)
+    # MEO/IGSO: Ω_k = Ω0 + (Ω̇ − Ω̇e) t_k − Ω̇e t_oe ; GEO (BDS): Ω_k = Ω0 + Ω̇ t_k − Ω̇e t_oe
+    odot = np.where(geo, p["omega_dot_radps"], p["omega_dot_radps"] - omega_e)
+    Om = p["omega0_rad"] + odot * tk - omega_e * toe
+    cO, sO = np.cos(Om), np.sin(Om)
+    ci, si = np.cos(inc), np.sin(inc)
+    x = xp * cO - yp * ci * sO
+    y = xp * sO + yp * ci * cO
+    z = yp * si
+    vx = xpd * cO - ypd * ci * sO + yp * si * sO * idot - y * odot
+    vy = xpd * sO + ypd * ci * cO - yp * si * cO * idot + x * odot
+    vz = ypd * si + yp * ci * idot
+    pos = np.stack([x, y, z], axis=-1)
+    vel = np.stack([vx, vy, vz], axis=-1)
+    if np.any(geo):
+        g = geo
+        # BDS SIS ICD: X = Rz(Ω̇e t_k) · Rx(−5°) · X_GK
+        phi5 = np.deg2rad(-5.0)
+        cf, sf = math.cos(phi5), math.sin(phi5)
+        xg, yg, zg = x[g], y[g], z[g]
+        vxg, vyg, vzg = vx[g], vy[g], vz[g]
+        # Rx(φ) = [[1,0,0],[0,c,s],[0,−s,c]]
+        y1, z1 = cf * yg + sf * zg, -sf * yg + cf * zg
+        vy1, vz1 = cf * vyg + sf * vzg, -sf * vyg + cf * vzg
+        ang = omega_e * tk[g]
+        ca, sa = np.cos(ang), np.sin(ang)
+        # Rz(a) = [[c,s,0],[−s,c,0],[0,0,1]]; d/dt Rz = Ω̇e [[−s,c,0],[−c,−s,0],[0,0,0]]
+        X = ca * xg + sa * y1
+        Y = -sa * xg + ca * y1
+        VX = ca * vxg + sa * vy1 + omega_e * (-sa * xg + ca * y1)
+        VY = -sa * vxg + ca * vy1 + omega_e * (-ca * xg - sa * y1)
+        pos[g] = np.stack([X, Y, z1], axis=-1)
+        vel[g] = np.stack([VX, VY, vz1], axis=-1)
+    return pos, vel, sE
+
+
+# ------------------------------------------------------------------ GLONASS
+
+def _glo_accel(r, v, a_ls):
+    x, y, z = r[:, 0], r[:, 1], r[:, 2]
+    r2 = x * x + y * y + z * z
+    rr = np.sqrt(r2)
+    mu_r3 = GM_GLO / (r2 * rr)
+    k = 1.5 * J2_GLO * GM_GLO * AE_GLO**2 / (r2 * r2 * rr)
+    zz = 5.0 * z * z / r2
+    w2 = OMEGA_E_GLO**2
+    ax = -mu_r3 * x - k * x * (1.0 - zz) + w2 * x + 2.0 * OMEGA_E_GLO * v[:, 1] + a_ls[:, 0]
+    ay = -mu_r3 * y - k * y * (1.0 - zz) + w2 * y - 2.0 * OMEGA_E_GLO * v[:, 0] + a_ls[:, 1]
+    az = -mu_r3 * z - k * z * (3.0 - zz) + a_ls[:, 2]
+    return np.stack([ax, ay, az], axis=-1)
+
+
+def glonass_propagate(pos_m, vel_mps, acc_mps2, dt_s, max_step_s=60.0):
+    """Integrate PZ-90 states (N,3) by dt_s (N,) seconds with RK4, steps ≤ ``max_step_s``.
+
+    All rows take the same number of steps (that of the longest interval), each
+    row its own step length dt/n, so the loop runs over steps, not rows.
+    """
+    r = np.array(pos_m, dtype=np.float64, copy=True)
+    v = np.array(vel_mps, dtype=np.float64, copy=True)
+    acc = np.asarray(acc_mps2, dtype=np.float64)
+    dt = np.asarray(dt_s, dtype=np.float64)
+    if r.shape[0] == 0:
+        return r, v
+    nsteps = max(1, int(math.ceil(np.max(np.abs(dt)) / max_step_s - 1e-12)))
+    h = (dt / nsteps)[:, None]
+    for _ in range(nsteps):
+        k1v = _glo_accel(r, v, acc)
+        k1r = v
+        k2r = v + 0.5 * h * k1v
+        k2v = _glo_accel(r + 0.5 * h * k1r, k2r, acc)
+        k3r = v + 0.5 * h * k2v
+        k3v = _glo_accel(r + 0.5 * h * k2r, k3r, acc)
+        k4r = v + h * k3v
+        k4v = _glo_accel(r + h * k3r, k4r, acc)
+        r = r + h / 6.0 * (k1r + 2 * k2r + 2 * k3r + k4r)
+        v = v + h / 6.0 * (k1v + 2 * k2v + 2 * k3v + k4v)
+    return r, v
+
+
+# ------------------------------------------------------------------ selection
+
+class _SystemTable:
+    """Records of one system, sorted by (satellite, reference epoch), with selection helpers."""
+
+    def __init__(self, s, df, galileo_source):
+        self.s = s
+        self.df = df
+        sats = df["sat"].to_numpy().astype(str)
+        ref = df["toc_ns"].to_numpy() if s == "R" else df["toe_ns"].to_numpy()
+        self.ref_ns = ref.astype(np.int64)
+        self.sat_names, code = np.unique(sats, return_inverse=True)
+        self.code = code.astype(np.int64)
+        self.t0 = int(ref.min()) if len(ref) else 0
+        order = np.lexsort((ref, self.code))
+        self.order = order
+        if s in ("G", "J"):
+            half = (df["fit_h"].to_numpy() * 1800.0 * NS_PER_S).astype(np.int64)
+        else:
+            half = np.full(len(df), _HALF_VALID_NS[s], dtype=np.int64)
+        self.half_ns = half
+        if s == "R":
+            tk = df["tk_ns"].to_numpy()
+            okt = (tk >= ref - 3600 * NS_PER_S) & (tk <= ref + 1800 * NS_PER_S)
+            avail = np.where(okt, tk, ref - 900 * NS_PER_S)
+        else:
+            ttm = df["ttm_ns"].to_numpy()
+            avail = np.where(ttm == _I64MIN, ref - half, ttm)
+        self.avail_ns = avail.astype(np.int64)
+        # static checks -> a reason code per record (OK when usable)
+        st = np.full(len(df), OK, dtype=np.int64)
+        health = df["health"].to_numpy()
+        if s == "E":
+            src = df["source"].to_numpy().astype(str)
+            mask = 0x1C7 if galileo_source == "inav" else 0x38
+            st = np.where((health & mask) != 0, UNHEALTHY, st)
+            st = np.where(src != galileo_source, WRONG_SOURCE, st)
+        elif s == "R":
+            hf = df["health_flags"].to_numpy()
+            st = np.where(health != 0, UNHEALTHY, st)
+            # RINEX 3.05/4 health flags: bit 0 l_n (extended health) when present
+            st = np.where(np.isfinite(hf) & ((np.nan_to_num(hf).astype(np.int64) & 1) != 0), UNHEALTHY, st)
+        else:
+            st = np.where(health != 0, UNHEALTHY, st)
+            if s in ("G", "J"):
+                iode = df["iode"].to_numpy()
+                iodc = df["iodc"].to_numpy()
+                st = np.where((st == OK) & (iode != (iodc & 0xFF)), IOD_MISMATCH, st)
+        self.static = st
+        # key arrays for searchsorted: all records, and usable records
+        self.all_idx = order
+        self.use_idx = order[st[order] == OK]
+        self.n_sat = len(self.sat_names)
+
+    def _key(self, code, t_ns):
+        rel = np.clip((np.asarray(t_ns, dtype=np.int64) - self.t0) // 1000, -(2**42), 2**42 - 1)
+        return code * (2**44) + rel + 2**42
+
+    def _pick(self, idx_sorted, q_code, q_t, allow_future):
+        """Best record (row into df, −1 none) and per-candidate flags over a window."""
+        n = len(q_code)
+        if len(idx_sorted) == 0 or n == 0:
+            return np.full(n, -1, dtype=np.int64), None
+        keys = self._key(self.code[idx_sorted], self.ref_ns[idx_sorted])
+        pos = np.searchsorted(keys, self._key(q_code, q_t))
+        offs = np.arange(-_WINDOW, _WINDOW)
+        cand = pos[:, None] + offs[None, :]
+        inside = (cand >= 0) & (cand < len(idx_sorted))
+        cand = np.clip(cand, 0, len(idx_sorted) - 1)
+        rec = idx_sorted[cand]
+        same = inside & (self.code[rec] == q_code[:, None])
+        dt = q_t[:, None] - self.ref_ns[rec]
+        adt = np.abs(dt)
+        in_fit = same & (adt <= self.half_ns[rec])
+        avail = in_fit & (allow_future | (self.avail_ns[rec] <= q_t[:, None]))
+        score = np.where(avail, adt, np.iinfo(np.int64).max)
+        j = np.argmin(score, axis=1)
+        best = rec[np.arange(n), j]
+        found = avail[np.arange(n), j]
+        return np.where(found, best, -1), (rec, same, in_fit, avail, score)
+
+    def select(self, q_sat, q_t, allow_future):
+        """Record per query (−1 none) and status codes."""
+        n = len(q_sat)
+        code = np.searchsorted(self.sat_names, q_sat)
+        code = np.clip(code, 0, max(self.n_sat - 1, 0))
+        known = (self.n_sat > 0) & (self.sat_names[code] == q_sat) if self.n_sat else np.zeros(n, bool)
+        code = np.where(known, code, -1)
+        status = np.where(known, OK, NO_EPHEMERIS).astype(np.int64)
+        rec = np.full(n, -1, dtype=np.int64)
+        k = np.flatnonzero(known)
+        if len(k):
+            best, _ = self._pick(self.use_idx, code[k], q_t[k], allow_future)
+            rec[k] = best
+            bad = k[best < 0]
+            if len(bad):
+                _, (r2, same, in_fit, avail, score) = self._pick(self.all_idx, code[bad], q_t[bad], allow_future)
+                st = np.full(len(bad), STALE, dtype=np.int64)
+                any_fit = in_fit.any(axis=1)
+                any_av = avail.any(axis=1)
+                st = np.where(any_fit & ~any_av, NOT_YET_BROADCAST, st)
+                j = np.argmin(score, axis=1)
+                rsel = r2[np.arange(len(bad)), j]
+                st = np.where(any_av, self.static[rsel], st)
+                # a usable record exists but outside the window examined: should not happen
+                st = np.where(st == OK, STALE, st)
+                status[bad] = st
+        return rec, status
+
+
+# ------------------------------------------------------------------ main class
+
+_KEP_COLS = ["sqrt_a_sqrtm", "delta_n_radps", "e", "m0_rad", "omega_rad", "cus_rad", "cuc_rad",
+             "crs_m", "crc_m", "cis_rad", "cic_rad", "i0_rad", "idot_radps", "omega0_rad",
+             "omega_dot_radps", "toe_sow_s", "af0_s", "af1_sps", "af2_sps2"]
+
+
+class BroadcastOrbits:
+    """Satellite states from a :class:`ctt.rinex.nav.NavData` (see the module docstring)."""
+
+    def __init__(self, nav: NavData, *, galileo_source="inav", allow_future=False, bias_file=None):
+        if galileo_source not in ("inav", "fnav"):
+            raise ValueError("galileo_source must be 'inav' (E1/E5b) or 'fnav' (E5a)")
+        if bias_file is not None:
+            raise NotImplementedError("external satellite bias files are not supported yet; "
+                                      "use the broadcast group delays (bias_file=None)")
+        self.nav = nav
+        self.galileo_source = galileo_source
+        self.allow_future = bool(allow_future)
+        self.bias_file = bias_file
+        self._tables = {}
+        for s, df in nav.records.items():
+            if s in _SCALE and len(df):
+                self._tables[s] = _SystemTable(s, df, galileo_source)
+        self._cols = {}
+        for s, tab in self._tables.items():
+            df = tab.df
+            cols = {c: df[c].to_numpy(dtype=np.float64) for c in df.columns
+                    if df[c].dtype.kind in "fiu" and c not in ("line",)}
+            for c in ("toc_ns", "toe_ns", "toc_gps_ns"):
+                if c in df.columns:
+                    cols[c] = df[c].to_numpy(dtype=np.int64)
+            if s == "C":
+                prn = df["sat"].str[1:].astype(int).to_numpy()
+                cols["geo"] = np.isin(prn, sorted(BDS_GEO_PRN))
+            self._cols[s] = cols
+
+    # ------------------------------------------------------------ offsets
+    def _system_offset(self, s, t_gps_ns):
+        """(system time − GPS time) beyond the nominal offset, s; NaN when unknown."""
+        n = len(t_gps_ns)
+        if s in ("G",):
+            return np.zeros(n)
+        corr = self.nav.header.time_corrections
+
+        def ev(key):
+            c = corr.get(key)
+            if c is None:
+                return None
+            # reference time in the week of the correction; a1 is tiny: use seconds since t_ref
+            t_ref = (c["week"] * 604800 + c["t_ref_s"]) * NS_PER_S if c.get("week") else None
+            if t_ref is None or not c["a1_sps"]:
+                return np.full(n, c["a0_s"])
+            return c["a0_s"] + c["a1_sps"] * ((t_gps_ns - t_ref) / 1e9)
+
+        if s == "E":
+            v = ev("GPGA")  # GPS to Galileo: GST − GPS = A0G + A1G·Δt (Galileo OS SIS ICD §5.1.8)
+            if v is None:
+                v = ev("GAGP")
+            return v if v is not None else np.full(n, np.nan)
+        if s == "J":
+            v = ev("QZGP")  # RINEX 3: QZS to GPS correction; taken as QZSS − GPS
+            return v if v is not None else np.full(n, np.nan)
+        if s == "C":
+            b, g = ev("BDUT"), ev("GPUT")
+            if b is not None and g is not None:
+                return b - g  # (BDT − UTC) − (GPS − UTC), fractional parts
+            return np.full(n, np.nan)
+        if s == "R":
+            v = ev("GLGP")
+            if v is not None:
+                return -v  # RINEX 3: GLGP a0 = τ_GPS, GPS − GLONASS fraction; we return GLO − GPS
+            lu, g = ev("GLUT"), ev("GPUT")
+            if lu is not None and g is not None:
+                # GLUT a0 = −τ_c (UTC(SU) − GLONASS), GPUT a0: GPS − UTC fraction
+                return -lu - g
+            return np.full(n, np.nan)
+        return np.full(n, np.nan)
+
+    # ------------------------------------------------------------ states
+    def states(self, sats, t_ns, dt_s=0.0) -> SatStates:
+        sats = np.asarray(sats).astype(str)
+        n = sats.shape[0] if sats.ndim else 1
+        sats = np.broadcast_to(sats, (n,))
+        t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), (n,))
+        dt_s = np.broadcast_to(np.asarray(dt_s, dtype=np.float64), (n,))
+        nan = np.full(n, np.nan)
+        out = SatStates(
+            pos_m=np.full((n, 3), np.nan), vel_mps=np.full((n, 3), np.nan), clock_s=nan.copy(),
+            clock_drift_sps=nan.copy(), relativity_s=nan.copy(), tgd_s=nan.copy(), bgd_e5a_s=nan.copy(),
+            bgd_e5b_s=nan.copy(), tgd1_s=nan.copy(), tgd2_s=nan.copy(), iode=np.full(n, -1, dtype=np.int64),
+            status=np.full(n, UNSUPPORTED_SYSTEM, dtype=np.int64), toe_gps_ns=np.full(n, _I64MIN, dtype=np.int64),
+            record=np.full(n, -1, dtype=np.int64), system=np.full(n, "", dtype="U1"),
+            system_time_offset_s=nan.copy())
+        lens = np.char.str_len(sats)
+        chars = np.ascontiguousarray(sats.astype("U3")).view("U1").reshape(n, 3)
+        out.system = chars[:, 0].copy()
+        letters = out.system
+        good_id = (lens == 3) & np.char.isdigit(chars[:, 1]) & np.char.isdigit(chars[:, 2])
+        out.status[~good_id] = BAD_ID
+        for s in _SCALE:
+            rows = np.flatnonzero((letters == s) & good_id)
+            if not len(rows):
+                continue
+            tab = self._tables.get(s)
+            if tab is None:
+                out.status[rows] = NO_EPHEMERIS
+                continue
+            tq = convert(t_ns[rows], "GPS", _SCALE[s])
+            rec, st = tab.select(sats[rows], tq, self.allow_future)
+            out.status[rows] = st
+            out.system_time_offset_s[rows] = self._system_offset(s, t_ns[rows])
+            okr = rec >= 0
+            rows, rec, tq = rows[okr], rec[okr], tq[okr]
+            if not len(rows):
+                continue
+            self._evaluate(s, rows, rec, tq, dt_s[rows], out)
+        return out
+
+    def _evaluate(self, s, rows, rec, tq, dts, out):
+        cols = self._cols[s]
+        out.record[rows] = rec
+        out.toe_gps_ns[rows] = convert((cols["toc_ns"] if s == "R" else cols["toe_ns"])[rec], _SCALE[s], "GPS")
+        out.iode[rows] = cols["iode"][rec].astype(np.int64) if "iode" in cols else -1
+        if s == "R":
+            dt = (tq - cols["toc_ns"][rec]) / 1e9 + dts
+            r0 = np.stack([cols["x_m"][rec], cols["y_m"][rec], cols["z_m"][rec]], axis=-1)
+            v0 = np.stack([cols["vx_mps"][rec], cols["vy_mps"][rec], cols["vz_mps"][rec]], axis=-1)
+            a0 = np.stack([cols["ax_mps2"][rec], cols["ay_mps2"][rec], cols["az_mps2"][rec]], axis=-1)
+            pos, vel = glonass_propagate(r0, v0, a0, dt)
+            out.pos_m[rows] = pos
+            out.vel_mps[rows] = vel
+            gam = cols["gamma_n"][rec]
+            out.clock_s[rows] = cols["minus_tau_n_s"][rec] + gam * dt
+            out.clock_drift_sps[rows] = gam
+            out.relativity_s[rows] = -2.0 * np.einsum("ij,ij->i", pos, vel) / C_MPS**2
+            out.iode[rows] = np.rint(np.mod(cols["toc_ns"][rec] / 1e9 + 3 * 3600, 86400) / 900).astype(np.int64)
+            out.status[rows] = OK
+            return
+        p = {c: cols[c][rec] for c in _KEP_COLS}
+        tk = (tq - cols["toe_ns"][rec]) / 1e9 + dts
+        tc = (tq - cols["toc_ns"][rec]) / 1e9 + dts
+        if s in ("G", "J"):
+            gm, we, F = GM_GPS, OMEGA_E_GPS, F_GPS
+        elif s == "E":
+            gm, we, F = GM_GAL, OMEGA_E_GAL, F_GAL
+        else:
+            gm, we, F = GM_BDS, OMEGA_E_BDS, F_BDS
+        geo = cols["geo"][rec] if s == "C" else None
+        pos, vel, sE = _kepler_states(p, tk, gm, we, geo)
+        out.pos_m[rows] = pos
+        out.vel_mps[rows] = vel
+        out.clock_s[rows] = p["af0_s"] + tc * (p["af1_sps"] + tc * p["af2_sps2"])
+        out.clock_drift_sps[rows] = p["af1_sps"] + 2.0 * tc * p["af2_sps2"]
+        out.relativity_s[rows] = F * p["e"] * p["sqrt_a_sqrtm"] * sE
+        if s in ("G", "J"):
+            out.tgd_s[rows] = cols["tgd_s"][rec]
+        elif s == "E":
+            out.bgd_e5a_s[rows] = cols["bgd_e5a_s"][rec]
+            out.bgd_e5b_s[rows] = cols["bgd_e5b_s"][rec]
+        else:
+            out.tgd1_s[rows] = cols["tgd1_s"][rec]
+            out.tgd2_s[rows] = cols["tgd2_s"][rec]
+        out.status[rows] = OK
+
+    # ------------------------------------------------------------ group delays
+    def group_delay_s(self, sats, signal, t_ns=None, dt_s=0.0, states=None):
+        """Broadcast group-delay correction (s) to ADD to ``clock_s + relativity_s``.
+
+        ``signal`` is a RINEX 3 observation code (``'C1C'``, ``'C2W'``, ``'C5Q'``,
+        ``'C7Q'``, ``'C2I'``, ``'C6I'``...) or an iono-free pair given as a
+        tuple ``('C1W', 'C2W')``. Pass ``states`` from :meth:`states` (or
+        ``t_ns``/``dt_s`` to compute them). Rows where the broadcast message
+        defines no group delay for the signal (e.g. GPS L5 without CNAV ISCs,
+        Galileo E5a with I/NAV clocks, GLONASS) are NaN. See
+        :func:`group_delay_correction_s` for the sources.
+        """
+        if states is None:
+            if t_ns is None:
+                raise ValueError("give states or t_ns")
+            states = self.states(sats, t_ns, dt_s)
+        return group_delay_correction_s(sats, states, signal, galileo_source=self.galileo_source)
+
+
+def _single_delay(letter, band, st, galileo_source):
+    """Per-signal group-delay correction (s) and frequency for one system letter."""
+    gam = (F_L1 / F_L2) ** 2
+    n = len(st.status)
+    if letter in ("G", "J"):
+        # IS-GPS-200 §20.3.3.3.3.2: (Δt_SV)_L1P(Y) = Δt_SV − T_GD, (Δt_SV)_L2P(Y) = Δt_SV − γ·T_GD;
+        # L1 C/A uses T_GD as L1 P(Y) does with the legacy message (common practice).
+        if band == "1":
+            return -st.tgd_s, F_L1
+        if band == "2":
+            return -gam * st.tgd_s, F_L2
+        return np.full(n, np.nan), np.nan
+    if letter == "E":
+        # Galileo OS SIS ICD §5.1.5: single frequency E1: Δt − BGD(E1,E5x);
+        # E5x: Δt − (f_E1/f_E5x)²·BGD(E1,E5x); x = a with F/NAV clocks, b with I/NAV.
+        if galileo_source == "inav":
+            b, f2, other = st.bgd_e5b_s, F_E5B, "7"
+        else:
+            b, f2, other = st.bgd_e5a_s, F_E5A, "5"
+        if band == "1":
+            return -b, F_L1
+        if band == other:
+            return -((F_L1 / f2) ** 2) * b, f2
+        return np.full(n, np.nan), np.nan
+    if letter == "C":
+        # BDS SIS ICD (B1I/B3I §5.2.4.10): clock refers to B3I; B1I: Δt − T_GD1; B2I: Δt − T_GD2.
+        # RINEX 3.02+ codes: B1I is band 2 (C2I), B2I band 7, B3I band 6; band 1 is B1C (no D1/D2 delay).
+        if band == "2":
+            return -st.tgd1_s, F_B1I
+        if band == "7":
+            return -st.tgd2_s, F_B2I
+        if band == "6":
+            return np.zeros(n), F_B3I
+        return np.full(n, np.nan), np.nan
+    return np.full(n, np.nan), np.nan
+
+
+def group_delay_correction_s(sats, states: SatStates, signal, *, galileo_source="inav"):
+    """Group-delay correction (s) to add to the broadcast clock for ``signal`` (see
+    :meth:`BroadcastOrbits.group_delay_s`). For an iono-free pair (a, b) the
+    correction is (f_a²·d_a − f_b²·d_b)/(f_a² − f_b²) of the single-signal
+    corrections d, which is 0 for the pair the clock refers to (GPS L1/L2 P(Y),
+    Galileo E1/E5b with I/NAV, E1/E5a with F/NAV) as the ICDs state.
+    """
+    sats = np.asarray(sats).astype(str)
+    letters = np.asarray(states.system).astype(str)
+    out = np.full(len(states.status), np.nan)
+    pair = isinstance(signal, (tuple, list))
+    for letter in np.unique(letters):
+        rows = letters == letter
+        if pair:
+            da, fa = _single_delay(letter, str(signal[0])[1:2], states, galileo_source)
+            db, fb = _single_delay(letter, str(signal[1])[1:2], states, galileo_source)
+            if not (np.isfinite(fa) and np.isfinite(fb)):
+                continue
+            val = (fa**2 * da - fb**2 * db) / (fa**2 - fb**2)
+        else:
+            val, _ = _single_delay(letter, str(signal)[1:2], states, galileo_source)
+        out[rows] = val[rows]
+    out[states.status != OK] = np.nan
+    return out
+
+
+__all__ = ["BroadcastOrbits", "SatStates", "STATUS_NAMES", "reason", "solve_kepler", "glonass_propagate",
+           "group_delay_correction_s", "F_GPS", "GM_GPS", "OMEGA_E_GPS", "C_MPS"]

@@ -1,0 +1,58 @@
+"""ctt.rinex.nav.read_nav against georinex (an independent RINEX reader) as reference.
+
+Each numeric field must be *equal* to georinex.load's value: both read the
+same printed decimal and convert it to the nearest float64, so any difference
+is a parsing error (wrong column, wrong exponent, dropped digit).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from ctt.rinex.nav import read_nav
+from ctt.timescales import from_datetime64
+
+gr = pytest.importorskip("georinex")
+
+# georinex variable -> ctt column, GPS LNAV (RINEX 2.11 / 3 GPS layout)
+GPS_MAP = {
+    "SVclockBias": "af0_s", "SVclockDrift": "af1_sps", "SVclockDriftRate": "af2_sps2", "IODE": "iode",
+    "Crs": "crs_m", "DeltaN": "delta_n_radps", "M0": "m0_rad", "Cuc": "cuc_rad", "Eccentricity": "e",
+    "Cus": "cus_rad", "sqrtA": "sqrt_a_sqrtm", "Toe": "toe_sow_s", "Cic": "cic_rad", "Omega0": "omega0_rad",
+    "Cis": "cis_rad", "Io": "i0_rad", "Crc": "crc_m", "omega": "omega_rad", "OmegaDot": "omega_dot_radps",
+    "IDOT": "idot_radps", "CodesL2": "l2_codes", "GPSWeek": "week", "L2Pflag": "l2p_flag", "SVacc": "ura_m",
+    "health": "health", "TGD": "tgd_s", "IODC": "iodc", "TransTime": "ttm_sow_s", "FitIntvl": "fit_raw",
+}
+
+
+def _compare(ds, df, mapping, toc_col="toc_ns", scale_km=()):
+    """Every non-NaN georinex cell (time, sv) has a ctt record with equal values."""
+    t_ns = from_datetime64(ds.time.values)
+    ours = df.set_index(["sat", toc_col])
+    n_cells = 0
+    for var, col in mapping.items():
+        arr = ds[var].values  # (time, sv)
+        ti, si = np.nonzero(np.isfinite(arr))
+        keys = list(zip(ds.sv.values[si].astype(str), t_ns[ti]))
+        mine = ours.loc[keys, col].to_numpy(dtype=np.float64)
+        ref = arr[ti, si] * (1000.0 if col in scale_km else 1.0)
+        # exact equality: same decimal text -> same float64 (see module docstring)
+        np.testing.assert_array_equal(mine, ref, err_msg=f"{var} vs {col}")
+        n_cells += len(ti)
+    return n_cells
+
+
+def test_brdc_gps_v211_equals_georinex(shared_data):
+    path = shared_data / "brdc0010.21n"
+    ds = gr.load(path)
+    nav = read_nav(path)
+    df = nav.records["G"]
+    # same record count: georinex keeps one cell per (epoch, satellite), the file has no duplicates
+    n_ref = int(np.isfinite(ds["sqrtA"].values).sum())
+    assert len(df) == n_ref
+    assert _compare(ds, df, GPS_MAP) == n_ref * len(GPS_MAP)
+    # header Klobuchar coefficients (georinex: ionospheric_corr_GPS = alpha + beta)
+    ref = np.asarray(ds.attrs["ionospheric_corr_GPS"])
+    np.testing.assert_array_equal(np.concatenate([nav.header.iono["GPSA"], nav.header.iono["GPSB"]]), ref)

@@ -1,0 +1,110 @@
+"""ctt.rinex.nav.read_nav behaviour: errors with file and line, dropped records, field layout.
+
+The records used here are lines of the real IGS merged broadcast file layout
+(RINEX 2.11 / 3.04 standards, fixed 19-column D19.12 fields).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from ctt.errors import RinexFormatError
+from ctt.rinex.nav import read_nav
+from ctt.timescales import civil_to_ns, week_sow_ns
+
+V2_HEADER = (
+    "     2.11           N: GPS NAV DATA                         RINEX VERSION / TYPE\n"
+    "    7.4510D-09 -1.4900D-08 -5.9600D-08  1.1920D-07          ION ALPHA\n"
+    "    9.2160D+04 -1.1470D+05 -1.3110D+05  7.2090D+05          ION BETA\n"
+    "   -3.725290298460D-09-1.065814103640D-14    61440     2139 DELTA-UTC: A0,A1,T,W\n"
+    "    18                                                      LEAP SECONDS\n"
+    "                                                            END OF HEADER\n"
+)
+# one GPS record (G02, 2020-12-31 22:00) as printed in brdc0010.21n
+V2_REC = (
+    " 2 20 12 31 22  0  0.0-5.608671344817D-04-4.320099833421D-12 0.000000000000D+00\n"
+    "    5.900000000000D+01-7.018750000000D+01 4.593048461762D-09-1.832745337954D+00\n"
+    "   -3.218650817871D-06 2.031373803038D-02 4.023313522339D-07 5.153584920883D+03\n"
+    "    4.248000000000D+05 2.924352884293D-07-8.894102241916D-01 3.203749656677D-07\n"
+    "    9.615117626415D-01 3.707500000000D+02-1.567828775527D+00-8.236057350562D-09\n"
+    "   -2.214377952016D-10 1.000000000000D+00 2.138000000000D+03 0.000000000000D+00\n"
+    "    2.000000000000D+00 0.000000000000D+00-1.769512891769D-08 5.900000000000D+01\n"
+    "    4.176200000000D+05 4.000000000000D+00\n"
+)
+
+
+def _write(tmp_path, text, name="t.21n"):
+    p = tmp_path / name
+    p.write_text(text)
+    return p
+
+
+def test_v2_record_fields_and_header(tmp_path):
+    nav = read_nav(_write(tmp_path, V2_HEADER + V2_REC))
+    df = nav.records["G"]
+    assert len(df) == 1 and nav.dropped == []
+    r = df.iloc[0]
+    assert r.sat == "G02" and r.line == 7
+    # values as printed (the D exponent read as E)
+    assert r.af0_s == -5.608671344817e-04 and r.sqrt_a_sqrtm == 5.153584920883e03
+    assert r.iode == 59 and r.iodc == 59 and r.week == 2138 and r.fit_h == 4.0
+    assert r.toc_ns == civil_to_ns(2020, 12, 31, 22, 0, 0)
+    # toe 424800 s of week 2138 (GPS week/second convention, IS-GPS-200)
+    assert week_sow_ns(r.toe_ns) == (2138, 424800 * 10**9)
+    hdr = nav.header
+    np.testing.assert_array_equal(hdr.iono["GPSA"], [7.4510e-09, -1.4900e-08, -5.9600e-08, 1.1920e-07])
+    assert hdr.time_corrections["GPUT"]["a0_s"] == -3.725290298460e-09
+    assert hdr.time_corrections["GPUT"]["week"] == 2139
+    assert hdr.leap_seconds == 18
+
+
+def test_week_written_mod_1024_is_unwrapped(tmp_path):
+    # a writer that puts the 10-bit broadcast week (2138 mod 1024 = 90) in the record
+    rec = V2_REC.replace(" 2.138000000000D+03", " 9.000000000000D+01")
+    r = read_nav(_write(tmp_path, V2_HEADER + rec)).records["G"].iloc[0]
+    assert r.week == 90 and r.toe_week == 2138  # IS-GPS-200 10-bit week, unwrapped near toc
+
+
+def test_non_numeric_field_names_file_and_line(tmp_path):
+    bad = V2_REC.replace("-7.018750000000D+01", "-7.01875000000xD+01")
+    p = _write(tmp_path, V2_HEADER + bad)
+    with pytest.raises(RinexFormatError) as ei:
+        read_nav(p)
+    e = ei.value
+    assert e.path == str(p) and e.line == 8  # second line of the record
+    assert "crs_m" in e.expected and "columns 23-41" in e.expected
+
+
+def test_blank_required_field_is_an_error(tmp_path):
+    lines = V2_REC.splitlines(keepends=True)
+    lines[2] = lines[2][:41] + "\n"  # cuts Cus and sqrt(A)
+    with pytest.raises(RinexFormatError) as ei:
+        read_nav(_write(tmp_path, V2_HEADER + "".join(lines)))
+    assert ei.value.line == 9
+
+
+def test_truncated_record_dropped_with_reason(tmp_path):
+    cut = "".join(V2_REC.splitlines(keepends=True)[:5])
+    nav = read_nav(_write(tmp_path, V2_HEADER + V2_REC + cut))
+    assert len(nav.records["G"]) == 1
+    assert nav.dropped == [(15, "G record has 5 lines, expected 8")]
+
+
+def test_touching_fields_parse(tmp_path):
+    # fields written without separating blanks still occupy their 19 columns
+    rec = V2_REC.replace("-5.608671344817D-04-4.320099833421D-12 0.000000000000D+00",
+                         "-5.608671344817D-04-4.320099833421D-12-1.234000000000D-05")
+    r = read_nav(_write(tmp_path, V2_HEADER + rec)).records["G"].iloc[0]
+    assert r.af1_sps == -4.320099833421e-12 and r.af2_sps2 == -1.234e-05
+
+
+def test_missing_end_of_header(tmp_path):
+    with pytest.raises(RinexFormatError):
+        read_nav(_write(tmp_path, V2_HEADER.replace("END OF HEADER", "COMMENT      ") + V2_REC))
+
+
+def test_duplicate_records_dropped(tmp_path):
+    nav = read_nav(_write(tmp_path, V2_HEADER + V2_REC + V2_REC))
+    assert len(nav.records["G"]) == 1
+    assert nav.dropped == [(15, "duplicate of an earlier record")]
