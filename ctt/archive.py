@@ -10,7 +10,8 @@ Tables
                 are stored (``run_id``), the latest attempt (``latest_run_id``,
                 ``latest_status``), row counts, a SHA-256 ``checksum`` of the stored
                 offsets, and the stale flag and reason.
-``offsets``     per-bin rows with the offset.csv columns: ``time_utc`` (ISO text, Z),
+``offsets``     per-bin rows with the offset.csv columns: ``system`` ('' when the frame
+                has none; e.g. 'G' or 'ALL'), ``time_utc`` (ISO text, Z),
                 ``time_utc_ns`` (int), ``mjd_utc``, ``offset_ns``, ``u_ns``, ``n_sat``,
                 ``flag``, plus ``extra`` (JSON of any further columns).
 ``satellites``  per-satellite rows: ``time_utc_ns`` and ``sat`` when the frame has them,
@@ -57,6 +58,7 @@ __all__ = ["Archive", "file_sha256", "inputs_record", "OFFSET_COLUMNS", "offsets
 
 SCHEMA_VERSION = 1
 OFFSET_COLUMNS = ("time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag")
+_KNOWN = (*OFFSET_COLUMNS, "time_utc_ns", "system")
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -90,6 +92,7 @@ CREATE TABLE IF NOT EXISTS days (
 CREATE TABLE IF NOT EXISTS offsets (
     pair TEXT NOT NULL,
     date TEXT NOT NULL,
+    system TEXT NOT NULL DEFAULT '',
     time_utc_ns INTEGER NOT NULL,
     time_utc TEXT NOT NULL,
     mjd_utc REAL,
@@ -98,7 +101,7 @@ CREATE TABLE IF NOT EXISTS offsets (
     n_sat INTEGER,
     flag,
     extra TEXT,
-    PRIMARY KEY (pair, date, time_utc_ns)
+    PRIMARY KEY (pair, date, system, time_utc_ns)
 );
 CREATE TABLE IF NOT EXISTS satellites (
     pair TEXT NOT NULL,
@@ -197,18 +200,19 @@ def _offset_rows(pair: str, date: str, df: pd.DataFrame) -> list[tuple]:
             return [None] * n
         return [_clean(v) for v in df[name].tolist()]
 
-    extra_cols = [c for c in df.columns if c not in (*OFFSET_COLUMNS, "time_utc_ns")]
+    extra_cols = [c for c in df.columns if c not in _KNOWN]
+    systems = df["system"].astype(str).tolist() if "system" in df.columns else [""] * n
     extras = ([json.dumps({c: _clean(v) for c, v in zip(extra_cols, row)}, default=_json_default)
                for row in df[extra_cols].itertuples(index=False, name=None)] if extra_cols else [None] * n)
-    return list(zip([pair] * n, [date] * n, t_ns.tolist(), [str(x) for x in text], [_clean(v) for v in mjd],
-                    col("offset_ns"), col("u_ns"), col("n_sat"), col("flag"), extras))
+    return list(zip([pair] * n, [date] * n, systems, t_ns.tolist(), [str(x) for x in text],
+                    [_clean(v) for v in mjd], col("offset_ns"), col("u_ns"), col("n_sat"), col("flag"), extras))
 
 
 def offsets_checksum(rows) -> str:
-    """SHA-256 over (time_utc_ns, offset_ns, u_ns, n_sat, flag) of rows sorted by time."""
+    """SHA-256 over (system, time_utc_ns, offset_ns, u_ns, n_sat, flag) of rows sorted by (system, time)."""
     h = hashlib.sha256()
-    for t, off, u, n, flag in sorted(rows, key=lambda r: r[0]):
-        h.update(f"{t}|{off!r}|{u!r}|{n!r}|{flag!r}\n".encode())
+    for s, t, off, u, n, flag in sorted(rows, key=lambda r: (r[0], r[1])):
+        h.update(f"{s}|{t}|{off!r}|{u!r}|{n!r}|{flag!r}\n".encode())
     return h.hexdigest()
 
 
@@ -316,10 +320,10 @@ class Archive:
         """
         date = _date_text(date)
         orows = _offset_rows(pair, date, offsets_df)
-        times = [r[2] for r in orows]
-        if len(set(times)) != len(times):
-            raise ProcessingError(f"offsets for {pair} {date} have repeated time_utc values")
-        checksum = offsets_checksum([(r[2], r[5], r[6], r[7], r[8]) for r in orows])
+        keys = [(r[2], r[3]) for r in orows]
+        if len(set(keys)) != len(keys):
+            raise ProcessingError(f"offsets for {pair} {date} have repeated (system, time_utc) values")
+        checksum = offsets_checksum([(r[2], r[3], r[6], r[7], r[8], r[9]) for r in orows])
         srows = []
         if satellites_df is not None and len(satellites_df):
             sdf = satellites_df.reset_index(drop=True)
@@ -333,7 +337,7 @@ class Archive:
         with self._write(f"store {pair} {date}") as con:
             con.execute("DELETE FROM offsets WHERE pair=? AND date=?", (pair, date))
             con.execute("DELETE FROM satellites WHERE pair=? AND date=?", (pair, date))
-            con.executemany("INSERT INTO offsets VALUES (?,?,?,?,?,?,?,?,?,?)", orows)
+            con.executemany("INSERT INTO offsets VALUES (?,?,?,?,?,?,?,?,?,?,?)", orows)
             con.executemany("INSERT INTO satellites VALUES (?,?,?,?,?,?)", srows)
             run_id = self._insert_run(con, pair, date, "ok", run_info, [])
             con.execute(
@@ -368,24 +372,29 @@ class Archive:
 
     # ------------------------------------------------------------ reading
 
-    def load_offsets(self, pair: str, date_from=None, date_to=None) -> pd.DataFrame:
+    def load_offsets(self, pair: str, date_from=None, date_to=None, system: str | None = None) -> pd.DataFrame:
         """Stored per-bin offsets of ``pair`` for dates ``date_from..date_to`` inclusive, sorted by time.
 
         Columns: ``time_utc`` (ISO, 9 digits, Z), ``time_utc_ns`` (int64), ``mjd_utc``,
-        ``offset_ns``, ``u_ns``, ``n_sat``, ``flag``, ``date``, plus any extra columns stored.
+        ``offset_ns``, ``u_ns``, ``n_sat``, ``flag``, ``system``, ``date``, plus any extra
+        columns stored. ``system`` selects one system's rows.
         """
-        q = "SELECT time_utc, time_utc_ns, mjd_utc, offset_ns, u_ns, n_sat, flag, date, extra FROM offsets WHERE pair=?"
+        q = ("SELECT time_utc, time_utc_ns, mjd_utc, offset_ns, u_ns, n_sat, flag, system, date, extra"
+             " FROM offsets WHERE pair=?")
         args: list = [pair]
+        if system is not None:
+            q += " AND system = ?"
+            args.append(system)
         if date_from is not None:
             q += " AND date >= ?"
             args.append(_date_text(date_from))
         if date_to is not None:
             q += " AND date <= ?"
             args.append(_date_text(date_to))
-        q += " ORDER BY time_utc_ns"
+        q += " ORDER BY time_utc_ns, system"
         rows = self._con.execute(q, args).fetchall()
         df = pd.DataFrame(rows, columns=["time_utc", "time_utc_ns", "mjd_utc", "offset_ns", "u_ns", "n_sat",
-                                         "flag", "date", "extra"])
+                                         "flag", "system", "date", "extra"])
         df["time_utc_ns"] = df["time_utc_ns"].astype(np.int64)
         for c in ("mjd_utc", "offset_ns", "u_ns"):
             df[c] = df[c].astype(float)
@@ -438,7 +447,7 @@ class Archive:
         info = self.day_info(pair, date)
         if info is None:
             return False
-        rows = self._con.execute("SELECT time_utc_ns, offset_ns, u_ns, n_sat, flag FROM offsets"
+        rows = self._con.execute("SELECT system, time_utc_ns, offset_ns, u_ns, n_sat, flag FROM offsets"
                                  " WHERE pair=? AND date=?", (pair, _date_text(date))).fetchall()
         nsat = self._con.execute("SELECT COUNT(*) FROM satellites WHERE pair=? AND date=?",
                                  (pair, _date_text(date))).fetchone()[0]

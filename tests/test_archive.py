@@ -41,7 +41,7 @@ def make_day(version: int, n: int = 2880, nsat: int = 8):
 
 
 def _checksum(off):
-    rows = zip(off["time_utc_ns"].tolist(), off["offset_ns"].tolist(), off["u_ns"].tolist(),
+    rows = zip([""] * len(off), off["time_utc_ns"].tolist(), off["offset_ns"].tolist(), off["u_ns"].tolist(),
                off["n_sat"].tolist(), off["flag"].tolist())
     return offsets_checksum(rows)
 
@@ -75,6 +75,16 @@ def test_rerun_is_idempotent_and_replaces(tmp_path):
         assert len(got) == len(off1) and len(a.load_satellites(PAIR, DAY)) == len(sat1)
         assert a.day_info(PAIR, DAY)["checksum"] == _checksum(off1)
         assert len(a.runs(PAIR, DAY)) == 3
+
+
+def test_systems_share_times(tmp_path):
+    off, _ = make_day(0, n=10)
+    both = pd.concat([off.assign(system="G"), off.assign(system="ALL", offset_ns=off["offset_ns"] + 1)])
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, both, None, {})
+        assert len(a.load_offsets(PAIR)) == 20 and a.verify_day(PAIR, DAY)
+        got = a.load_offsets(PAIR, system="ALL")
+        np.testing.assert_array_equal(got["offset_ns"].to_numpy(), off["offset_ns"].to_numpy() + 1)
 
 
 def test_extra_columns_and_nan(tmp_path):
