@@ -88,3 +88,44 @@ def test_klobuchar_vectorised_and_frequency_scaling():
     assert np.allclose(l2 / d, (77.0 / 60.0) ** 2, rtol=1e-14)
     # never below the night floor 5 ns × F with F ≥ 1 (ICD: AMP floored at 0)
     assert np.all(d >= 5e-9 - 1e-20)
+
+
+# ---------------------------------------------------------------- signals
+
+def test_gps_frequencies_and_gamma():
+    from ctt import signals as sig
+
+    # IS-GPS-200 §3.3.1.1: L1 = 154 × 10.23 MHz, L2 = 120 × 10.23 MHz; IS-GPS-705: L5 = 115 × 10.23 MHz
+    f = sig.frequency_hz(["G01", "G01", "G01"], ["C1C", "C2W", "C5Q"])
+    assert np.array_equal(f, [154 * 10.23e6, 120 * 10.23e6, 115 * 10.23e6])
+    # IS-GPS-200 §20.3.3.3.3.2: γ = (f_L1/f_L2)² = (77/60)²
+    assert sig.GAMMA_L1L2 == pytest.approx((F_L1 / F_L2) ** 2, rel=1e-15)
+
+
+def test_gps_tgd_factors():
+    from ctt import signals as sig
+
+    # IS-GPS-200 §20.3.3.3.3.2: (Δt_SV)L1P(Y) = Δt_SV − T_GD; (Δt_SV)L2P(Y) = Δt_SV − γ T_GD
+    assert sig.group_delay_factor("G", "C1W").terms == (("tgd_s", 1.0),)
+    gd = sig.group_delay_factor("G", ["C2W"])
+    assert gd.parameter == "tgd_s" and gd.factor == pytest.approx((77 / 60) ** 2, rel=1e-15)
+    # the broadcast clock is that of the L1/L2 P(Y) iono-free combination: no T_GD there
+    assert sig.group_delay_factor("G", ("C1C", "C2W")).terms == ()
+    # applying it: sat_clock -= factor * T_GD
+    assert sig.group_delay_factor("G", "C2W").correction_s({"tgd_s": -1.2e-8}) == pytest.approx(
+        -(77 / 60) ** 2 * 1.2e-8)
+
+
+def test_iono_free_dcb_factor_l1l2():
+    from ctt import signals as sig
+
+    # a bias on P1 enters P_IF with f1²/(f1²−f2²) = γ/(γ−1) = 2.5457 (IS-GPS-200 γ; common practice "2.546")
+    g = (77 / 60) ** 2
+    assert sig.dcb_iono_free_factor(F_L1, F_L2) == pytest.approx(g / (g - 1), rel=1e-14)
+    assert sig.dcb_iono_free_factor(F_L1, F_L2) == pytest.approx(2.546, abs=5e-4)
+    # equal-noise amplification sqrt(a1² + a2²) = 2.978 (common practice)
+    assert sig.iono_free_noise_factor(F_L1, F_L2) == pytest.approx(2.978, abs=5e-4)
+    # the combination removes a 1/f² delay exactly (first-order ionosphere, IS-GPS-200 §20.3.3.3.3.3)
+    rho, i1 = 2.2e7, 7.5
+    p1, p2 = rho + i1, rho + i1 * (F_L1 / F_L2) ** 2
+    assert sig.iono_free(p1, p2, F_L1, F_L2) == pytest.approx(rho, abs=1e-7)
