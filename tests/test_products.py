@@ -198,7 +198,7 @@ def test_out_of_span_gap_and_unknown_satellite():
     assert list(st.pos_status) == [P.STATUS_OUT_OF_SPAN, P.STATUS_OUT_OF_SPAN, P.STATUS_GAP,
                                    P.STATUS_OK, P.STATUS_NO_DATA]
     assert np.isnan(st.pos_m[[0, 1, 2, 4]]).all() and np.isfinite(st.pos_m[3]).all()
-    assert st.reason[0] == P.STATUS_REASON[P.STATUS_OUT_OF_SPAN]
+    assert st.reason()[0] == P.STATUS_REASON[P.STATUS_OUT_OF_SPAN]
     with pytest.raises(OutOfSpanError, match="outside the span"):
         po.states(["G01"], [sp3.time_ns[-1] + 1], strict=True)
     with pytest.raises(OutOfSpanError, match="gap"):

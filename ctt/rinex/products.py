@@ -86,6 +86,7 @@ import numpy as np
 
 from ..errors import OutOfSpanError, ProductFormatError
 from ..timescales import NS_PER_S, civil_to_ns, convert, normalise_scale
+from ..orbits import SatStates
 from .compression import read_bytes
 
 log = logging.getLogger(__name__)
@@ -95,11 +96,16 @@ C_MPS = 299_792_458.0
 
 # ------------------------------------------------------------------ status codes
 
+# Codes 0-2 share their meaning (and value) with ctt.orbits (OK, NO_EPHEMERIS,
+# STALE); GAP and BAD_FLAG follow ctt.orbits' last code (BAD_ID = 8).
 STATUS_OK = 0
 STATUS_NO_DATA = 1
 STATUS_OUT_OF_SPAN = 2
-STATUS_GAP = 3
-STATUS_BAD_FLAG = 4
+STATUS_GAP = 9
+STATUS_BAD_FLAG = 10
+#: Short names of the codes (as ctt.orbits.STATUS_NAMES).
+STATUS_NAMES = {STATUS_OK: "OK", STATUS_NO_DATA: "NO_DATA", STATUS_OUT_OF_SPAN: "OUT_OF_SPAN",
+                STATUS_GAP: "GAP", STATUS_BAD_FLAG: "BAD_FLAG"}
 
 #: Reason text of each status code (for tables and logs).
 STATUS_REASON = {
@@ -592,7 +598,7 @@ _CLK_TYPES = ("AS", "AR", "CR", "DR", "MS")
 _D_EXP = re.compile(rb"(\d)[Dd]([+-]?\d)")
 
 
-def read_clock(path) -> ClockData:
+def read_clock(path) -> ClockData:  # noqa: C901 - one pass over a flat header
     """Read a RINEX clock file, versions 3.00 to 3.04 (also 2.x layouts with A4 names).
 
     Keeps ``AS`` and ``AR`` bias and bias-sigma; the rate and acceleration
@@ -948,17 +954,20 @@ def _max_gap_ns(times: np.ndarray, max_gap_s) -> int:
     return int(1.5 * float(np.median(np.diff(times))))
 
 
-def _interp_linear(times, values, col, t_ns, dt_s, max_gap_ns, event):
+def _interp_linear(times, values, col, t_ns, dt_s, max_gap_ns, event, with_rate=False):
     """Linear interpolation of ``values[:, col]`` at ``t_ns + dt_s``; returns (value, status).
+
+    With ``with_rate`` also the slope (units per second) of the interval used.
 
     ``event`` (epochs × names bool, or None) marks a discontinuity since the
     previous node (SP3 clock event flag): interpolating across it is refused.
     """
     n = len(t_ns)
     out = np.full(n, np.nan)
+    rate = np.full(n, np.nan)
     status = np.full(n, STATUS_NO_DATA, dtype=np.int8)
     if len(times) == 0:
-        return out, status
+        return (out, status, rate) if with_rate else (out, status)
     has = col >= 0
     t_eff = t_ns + np.rint(dt_s * 1e9).astype(np.int64)
     inside = (t_eff >= times[0]) & (t_eff <= times[-1])
@@ -969,7 +978,7 @@ def _interp_linear(times, values, col, t_ns, dt_s, max_gap_ns, event):
         out[hit] = values[0, col[hit]]
         status[hit] = np.where(np.isnan(out[hit]), STATUS_GAP, STATUS_OK)
         status[m & ~hit] = STATUS_OUT_OF_SPAN
-        return out, status
+        return (out, status, rate) if with_rate else (out, status)
     i0 = np.clip(np.searchsorted(times, t_eff, side="right") - 1, 0, len(times) - 2)
     i1 = i0 + 1
     c = np.where(m, col, 0)
@@ -986,52 +995,48 @@ def _interp_linear(times, values, col, t_ns, dt_s, max_gap_ns, event):
         bad = event[i1, c] & ~at0
     out[m] = np.where(gap | bad, np.nan, val)[m]
     status[m] = np.where(gap, STATUS_GAP, np.where(bad, STATUS_BAD_FLAG, STATUS_OK))[m]
+    if with_rate:
+        rate[m] = np.where(gap | bad | np.isnan(v0 + v1), np.nan, (v1 - v0) / span)[m]
+        return out, status, rate
     return out, status
 
 
 # ------------------------------------------------------------------ states
 
-try:  # the shared contract of ctt.orbits, when that module exists
-    from ..orbits import SatStates as _SharedSatStates  # type: ignore
-except Exception:  # pragma: no cover - depends on the other module's state
-    _SharedSatStates = None
-
-
 @dataclasses.dataclass
-class PreciseStates:
-    """Satellite states at instants (the ``states()`` contract of ``ctt.orbits``).
+class PreciseStates(SatStates):
+    """:class:`ctt.orbits.SatStates` from precise products, plus what only they have.
 
-    Flat arrays of length N: ``pos_m`` (N, 3) and ``vel_mps`` (N, 3) ECEF at
+    Shared fields: ``pos_m`` (N, 3) and ``vel_mps`` (N, 3) ECEF at
     ``t_ns + dt_s`` (GPS time); ``clock_s`` satellite clock minus the
-    product's time scale *without* the periodic relativistic term;
-    ``relativity_s`` = −2 r·v / c² (add it to ``clock_s`` for the clock as
-    transmitted); ``tgd_s`` NaN (precise clocks refer to the iono-free P1/P2
-    combination); ``status`` codes of :data:`STATUS_REASON`, worst of
-    ``pos_status`` and ``clock_status``.
+    product's time scale (IGS time, aligned to GPS time, for every system:
+    ``system_time_offset_s`` is therefore 0) *without* the periodic
+    relativistic term; ``clock_drift_sps`` the slope of the clock interval
+    used; ``relativity_s`` = −2 r·v / c² (IGS conventions / IERS Conventions
+    2010 §10: add it to ``clock_s`` for the clock as transmitted); group
+    delays ``tgd_s`` etc. NaN (IGS clocks refer to the iono-free P1/P2
+    combination; a single-frequency user needs a code-bias product);
+    ``iode``/``record`` −1 and ``toe_gps_ns`` int64 min (no ephemeris records);
+    ``status`` codes of :data:`STATUS_NAMES` (worst of ``pos_status`` and
+    ``clock_status``), reasons in :data:`STATUS_REASON`.
+
+    Extra: ``sats``, ``t_ns``, ``dt_s`` echo the query; ``pos_status``,
+    ``clock_status``; ``pco_applied`` (bool per row: moved to the phase centre).
     """
 
-    sats: np.ndarray
-    t_ns: np.ndarray
-    dt_s: np.ndarray
-    pos_m: np.ndarray
-    vel_mps: np.ndarray
-    clock_s: np.ndarray
-    relativity_s: np.ndarray
-    tgd_s: np.ndarray
-    status: np.ndarray
-    pos_status: np.ndarray
-    clock_status: np.ndarray
-    pco_applied: np.ndarray
+    sats: np.ndarray = None
+    t_ns: np.ndarray = None
+    dt_s: np.ndarray = None
+    pos_status: np.ndarray = None
+    clock_status: np.ndarray = None
+    pco_applied: np.ndarray = None
 
-    @property
-    def ok(self) -> np.ndarray:
-        return self.status == STATUS_OK
-
-    @property
-    def reason(self) -> np.ndarray:
-        """Reason text of each row's status."""
-        lut = np.array([STATUS_REASON[k] for k in sorted(STATUS_REASON)], dtype=object)
-        return lut[self.status.astype(int)]
+    def reason(self, status=None):
+        """Reason text of each row's status (or of the given codes)."""
+        st = np.asarray(self.status if status is None else status)
+        if st.ndim == 0:
+            return STATUS_REASON[int(st)]
+        return np.array([STATUS_REASON[int(k)] for k in st.ravel()], dtype=object).reshape(st.shape)
 
 
 #: ANTEX frequency pair whose iono-free combination gives the phase centre per system.
@@ -1154,12 +1159,12 @@ class PreciseOrbits:
         if self.clk is not None:
             cs = self.clk.satellites
             ccol = _columns(cs.names, sats)
-            clock, cst = _interp_linear(cs.time_ns, cs.bias_s, ccol, t_ns, dt_s,
-                                        _max_gap_ns(cs.time_ns, self.max_clock_gap_s), None)
+            clock, cst, drift = _interp_linear(cs.time_ns, cs.bias_s, ccol, t_ns, dt_s,
+                                               _max_gap_ns(cs.time_ns, self.max_clock_gap_s), None, True)
         else:
-            clock, cst = _interp_linear(self.sp3.time_ns, self.sp3.clock_s, col, t_ns, dt_s,
-                                        _max_gap_ns(self.sp3.time_ns, self.max_clock_gap_s),
-                                        self.sp3.clock_event)
+            clock, cst, drift = _interp_linear(self.sp3.time_ns, self.sp3.clock_s, col, t_ns, dt_s,
+                                               _max_gap_ns(self.sp3.time_ns, self.max_clock_gap_s),
+                                               self.sp3.clock_event, True)
         applied = np.zeros(len(sats), dtype=bool)
         if self._pco:
             off = np.array([self._pco.get(s, (np.nan, np.nan, np.nan)) for s in np.unique(sats)])
@@ -1173,7 +1178,7 @@ class PreciseOrbits:
                 pos[have] = pos[have] + b[:, :1] * ex + b[:, 1:2] * ey + b[:, 2:3] * ez
                 applied[have] = True
         rel = -2.0 * np.einsum("nc,nc->n", pos, vel) / C_MPS**2
-        status = np.where(pst != STATUS_OK, pst, cst).astype(np.int8)
+        status = np.where(pst != STATUS_OK, pst, cst).astype(np.int64)
         if strict:
             bad = np.flatnonzero(np.isin(status, (STATUS_OUT_OF_SPAN, STATUS_GAP)))
             if len(bad):
@@ -1183,9 +1188,16 @@ class PreciseOrbits:
                     f"{self.sp3.path}: {sats[k]} at {to_iso(int(t_ns[k]), 3, ' GPS')}: {STATUS_REASON[int(status[k])]}"
                     f" (product spans {to_iso(int(self.sp3.time_ns[0]), 0, '')} to "
                     f"{to_iso(int(self.sp3.time_ns[-1]), 0, '')} GPS; {len(bad)} rows affected)")
-        return PreciseStates(sats=sats, t_ns=t_ns, dt_s=dt_s, pos_m=pos, vel_mps=vel, clock_s=clock,
-                             relativity_s=rel, tgd_s=np.full(len(sats), np.nan), status=status,
-                             pos_status=pst, clock_status=cst, pco_applied=applied)
+        n = len(sats)
+        nan = np.full(n, np.nan)
+        return PreciseStates(
+            pos_m=pos, vel_mps=vel, clock_s=clock, clock_drift_sps=drift, relativity_s=rel,
+            tgd_s=nan.copy(), bgd_e5a_s=nan.copy(), bgd_e5b_s=nan.copy(), tgd1_s=nan.copy(), tgd2_s=nan.copy(),
+            iode=np.full(n, -1, dtype=np.int64), status=status,
+            toe_gps_ns=np.full(n, np.iinfo(np.int64).min, dtype=np.int64), record=np.full(n, -1, dtype=np.int64),
+            system=np.array([x[:1] for x in sats], dtype="U1") if n else np.zeros(0, "U1"),
+            system_time_offset_s=np.zeros(n),
+            sats=sats, t_ns=t_ns, dt_s=dt_s, pos_status=pst, clock_status=cst, pco_applied=applied)
 
     @property
     def span_ns(self):
@@ -1234,3 +1246,7 @@ def leave_one_out(sp3: SP3Data, order_points: int = 10):
     x = ((ref - t0) / (t1 - t0)).astype(np.float64)[:, None]
     c_pred = sp3.clock_s[epochs - 1] + (sp3.clock_s[epochs + 1] - sp3.clock_s[epochs - 1]) * x
     return pos_err, c_pred - sp3.clock_s[epochs], epochs
+
+
+#: Short alias of :func:`read_clock`.
+read_clk = read_clock
