@@ -878,8 +878,11 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None)
     g = to_grid(time_ns, offset_ns, u_ns)
     rate = 1.0 / g.tau0_s
     devs = stability_set(g.value * 1e-9, rate, taus=taus)
-    fit = fit_drift(g.time_ns, g.value, g.u)
     ch = detect_changes(g.time_ns, g.value, changes)
+    # the drift model carries a step at every detected phase step, so the residuals
+    # show what the model misses rather than the steps themselves
+    step_epochs = [c.time_ns for c in ch.changes if c.kind == "phase step"]
+    fit = fit_drift(g.time_ns, g.value, g.u, step_epochs_ns=step_epochs)
     iso = to_iso or (lambda ns: int(ns))
     out = {
         "units": {"adev": "1 (fractional frequency)", "mdev": "1 (fractional frequency)",
@@ -902,4 +905,5 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None)
                              "match_tolerance_s": ch.tolerance_s},
     }
     out["drift"]["t_ref"] = iso(fit.t_ref_ns)
+    out["drift"]["step_epochs"] = [iso(t) for t in fit.step_epochs_ns]
     return out, devs, fit, ch, g
