@@ -375,3 +375,67 @@ def test_sun_position_against_astropy():
     # Astronomical Almanac low-precision formula: 0.01 deg (its stated accuracy, from memory)
     assert ang.max() < 0.01
     assert np.allclose(np.linalg.norm(ours, axis=1), np.linalg.norm(ref, axis=1), rtol=2e-4)
+
+
+# ------------------------------------------------------------------ compare-products arithmetic
+
+class _Perturbed:
+    """A states() source: the precise states moved by known amounts (a test double)."""
+
+    def __init__(self, base, radial_m, clock_s, unhealthy=()):
+        self.base, self.radial_m, self.clock_s, self.unhealthy = base, radial_m, clock_s, unhealthy
+
+    def states(self, sats, t_ns, dt_s=0.0):
+        st = self.base.states(sats, t_ns, dt_s)
+        rhat = st.pos_m / np.linalg.norm(st.pos_m, axis=1, keepdims=True)
+        st.pos_m = st.pos_m + np.array([self.radial_m[s] for s in sats])[:, None] * rhat
+        st.clock_s = st.clock_s + np.array([self.clock_s[s] for s in sats]) + 1e-6  # + common datum
+        st.status = np.where(np.isin(sats, self.unhealthy), 5, st.status)
+        return st
+
+
+def _three_sat_sp3():
+    one = _synthetic_sp3(20)
+    x2, _ = _circular_ecef(np.arange(20) * 900.0, raan=2.4, u0=0.1)
+    x3, _ = _circular_ecef(np.arange(20) * 900.0, raan=4.5, u0=2.0)
+    one.sats = np.array(["G01", "G02", "G03"])
+    one.pos_m = np.stack([one.pos_m[:, 0], x2, x3], axis=1)
+    for k in ("clock_s", "pos_sdev_m", "clock_sdev_s", "clock_event", "clock_predicted", "manoeuvre",
+              "orbit_predicted"):
+        v = getattr(one, k)
+        setattr(one, k, np.repeat(v, 3, axis=1))
+    return one
+
+
+def test_compare_states_recovers_injected_differences():
+    from ctt.commands.compare_products import compare_states
+
+    sp3 = _three_sat_sp3()
+    po = P.PreciseOrbits(sp3)
+    fake = _Perturbed(po, {"G01": 1.0, "G02": -2.0, "G03": 0.0}, {"G01": 1e-9, "G02": -1e-9, "G03": 0.0})
+    res, det = compare_states(fake, po, sp3.sats, sp3.time_ns)
+    g1, g2, g3 = (res["satellites"][s] for s in ("G01", "G02", "G03"))
+    # a pure radial shift: radial RMS = 3D RMS = |shift|, nothing along or across
+    assert g1["radial_rms_m"] == pytest.approx(1.0, abs=1e-9) and g1["orbit_rms_m"] == pytest.approx(1.0, abs=1e-9)
+    assert g2["radial_rms_m"] == pytest.approx(2.0, abs=1e-9)
+    assert max(g1["along_rms_m"], g1["cross_rms_m"], g3["orbit_rms_m"]) < 1e-9
+    assert det["radial_mean_m"]["G02"] == pytest.approx(-2.0, abs=1e-9)
+    # clock: the common 1 us disappears with the per-epoch mean; +1, -1, 0 ns remain
+    assert g1["clock_rms_ns"] == pytest.approx(1.0, abs=1e-6)
+    assert g2["clock_rms_ns"] == pytest.approx(1.0, abs=1e-6)
+    assert g3["clock_rms_ns"] == pytest.approx(0.0, abs=1e-6)
+    assert res["summary"]["n_satellites"] == 3
+    assert res["summary"]["orbit_rms_m"] == pytest.approx(math.sqrt((1 + 4 + 0) / 3), abs=1e-9)
+
+
+def test_compare_states_lists_unhealthy_with_reason():
+    from ctt.commands.compare_products import compare_states
+
+    sp3 = _three_sat_sp3()
+    po = P.PreciseOrbits(sp3)
+    zero = {"G01": 0.0, "G02": 0.0, "G03": 0.0}
+    res, _ = compare_states(_Perturbed(po, zero, zero, unhealthy=("G02",)), po, sp3.sats, sp3.time_ns)
+    assert set(res["satellites"]) == {"G01", "G03"}
+    from ctt.orbits import reason
+
+    assert res["excluded"] == {"G02": "broadcast: " + reason(5)}  # ctt.orbits UNHEALTHY

@@ -1033,10 +1033,15 @@ class PreciseStates(SatStates):
 
     def reason(self, status=None):
         """Reason text of each row's status (or of the given codes)."""
+        from ..orbits import reason as _orbit_reason
+
+        def one(k):  # codes this module does not use are ctt.orbits' codes
+            return STATUS_REASON[k] if k in STATUS_REASON else str(_orbit_reason(k))
+
         st = np.asarray(self.status if status is None else status)
         if st.ndim == 0:
-            return STATUS_REASON[int(st)]
-        return np.array([STATUS_REASON[int(k)] for k in st.ravel()], dtype=object).reshape(st.shape)
+            return one(int(st))
+        return np.array([one(int(k)) for k in st.ravel()], dtype=object).reshape(st.shape)
 
 
 #: ANTEX frequency pair whose iono-free combination gives the phase centre per system.
