@@ -1,0 +1,639 @@
+"""Per-satellite *local reference clock minus GNSS system time*, every correction itemised.
+
+For one station and one observation file, each epoch and each satellite::
+
+    clock = (P − ρ − sagnac − T − I − tide)/c + Δt_sv + Δt_rel + Δt_gd − hardware
+
+where ``P`` is the pseudorange of the chosen signal (or the iono-free
+combination), ``ρ`` the geometric range from the satellite position at the
+transmission instant to the station's antenna reference point at the receive
+instant, ``sagnac`` the extra range from the Earth's rotation during the
+signal flight, ``T`` / ``I`` the modelled slant troposphere and ionosphere,
+``tide`` the range change from the solid Earth tide displacement of the
+station, ``Δt_sv`` the satellite clock (broadcast polynomial or precise
+product), ``Δt_rel`` the periodic relativistic correction, ``Δt_gd`` the
+satellite group-delay correction of the signals used, and ``hardware`` the
+station delays ``receiver + cable − reference`` (ctt.config, "Sign
+convention"). Every term is a column of the output table.
+
+Frame and light time
+--------------------
+Everything is computed in the Earth-fixed frame at the *receive* instant. The
+satellite position at the transmission instant ``t_r − τ`` is rotated about
+the z axis by ``ω_e·τ`` (the Earth turns while the signal flies); the light
+time ``τ`` is iterated from the receive instant until it changes by less than
+1 ps (``LIGHT_TIME_TOL_S``). The receive instant is the receiver time tag
+minus a first estimate of the receiver clock (from a pseudorange-based
+transmission time), so a receiver whose clock is milliseconds off GPS time is
+handled as well as a steered one (a 1 µs error in that estimate changes a
+range by < 1 mm). ``sagnac_m`` is the difference between the rotated and the
+unrotated range; with ``sagnac=False`` the unrotated range is used (for
+comparisons only: it is wrong by up to ~40 m).
+
+Flags
+-----
+Each row has ``flag`` ``ok`` or the reason it is not used: ``no_ephemeris``,
+``unhealthy``, ``stale``, ... (from the orbit source), ``low_elevation``,
+``missing_signal`` (the second code of an iono-free pair is absent),
+``outlier`` (rejected from the epoch's robust mean), ``cycle_slip`` (only when
+smoothing: the first epoch after a slip while the filter restarts is still
+used, so this flag marks nothing unusable; it is recorded in
+``smoothing_reset``). Poor data is counted, never fatal.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import logging
+import math
+
+import numpy as np
+import pandas as pd
+
+from . import atmosphere, geodesy, signals
+from . import timescales as ts
+from .errors import NoDataError, ProcessingError
+
+log = logging.getLogger(__name__)
+
+#: Speed of light (SI definition; IS-GPS-200 value).
+C_MPS = 299_792_458.0
+#: Earth rotation rate (IS-GPS-200; WGS 84).
+OMEGA_E = 7.2921151467e-5
+#: Light-time iteration stops when τ changes by less than this (s).
+LIGHT_TIME_TOL_S = 1e-12
+
+COLUMNS = [
+    "time", "sat", "system", "signal", "elevation_deg", "azimuth_deg", "clock_ns", "sigma_ns",
+    "pseudorange_m", "geometry_m", "sat_clock_ns", "relativity_ns", "group_delay_ns", "sagnac_m",
+    "troposphere_m", "ionosphere_m", "tide_m", "hardware_ns", "residual_ns", "flag",
+]
+
+
+@dataclasses.dataclass(frozen=True)
+class MeasureOptions:
+    """Processing choices of the measurement model (defaults suit a timing receiver)."""
+
+    signals: str = "iono-free"          #: 'iono-free' or 'single'
+    systems: tuple = ("G",)             #: RINEX system letters to use
+    codes: tuple = ()                   #: explicit codes, overriding the priority lists
+    elevation_mask_deg: float | None = None  #: None: the station file's mask
+    troposphere: bool = True
+    ionosphere: bool = True             #: single-frequency only (iono-free removes it)
+    tide: bool = True
+    sagnac: bool = True
+    relativity: bool = True
+    iono_model: str = "klobuchar"       #: 'klobuchar' (nav header) or 'ionex'
+    smoothing_s: float = 0.0            #: Hatch filter window (0 = no carrier smoothing)
+    mad_k: float = 3.5                  #: epoch outlier rejection at k × 1.4826 × MAD
+    sigma0_m: float = 0.3               #: a-priori code noise at zenith (σ = σ0 / sin el)
+
+    def __post_init__(self):
+        if self.signals not in ("iono-free", "single"):
+            raise ValueError(f"signals must be 'iono-free' or 'single', not {self.signals!r}")
+        if self.iono_model not in ("klobuchar", "ionex"):
+            raise ValueError(f"iono_model must be 'klobuchar' or 'ionex', not {self.iono_model!r}")
+
+
+@dataclasses.dataclass
+class StationDay:
+    """Result of :func:`measure_station`: the per-satellite table and the epoch solution."""
+
+    table: pd.DataFrame      #: one row per epoch × satellite, columns COLUMNS
+    epochs: pd.DataFrame     #: per epoch: time, clock_ns, scatter_ns, n_sat, n_rejected
+    station_id: str
+    reference: str           #: 'broadcast' or 'precise'
+    counts: dict             #: rows by flag
+    info: dict               #: codes used, models, meteorology source, ...
+
+    def summary_lines(self) -> list[str]:
+        """A one-screen human summary."""
+        t = self.table
+        ok = t["flag"] == "ok"
+        lines = [f"station {self.station_id}: {t['sat'].nunique()} satellites, "
+                 f"{t['time'].nunique()} epochs, {int(ok.sum())} of {len(t)} values used "
+                 f"(clock reference: {self.reference})"]
+        for flag, n in sorted(self.counts.items(), key=lambda kv: -kv[1]):
+            if flag != "ok":
+                lines.append(f"  rejected {flag}: {n}")
+        if ok.any():
+            r = t.loc[ok, "residual_ns"]
+            lines.append(f"  residual RMS against the epoch mean: {np.sqrt(np.mean(r**2)):.2f} ns "
+                         f"({np.sqrt(np.mean(r**2)) * C_MPS * 1e-9:.2f} m)")
+            for col, unit in (("troposphere_m", "m"), ("ionosphere_m", "m"), ("sagnac_m", "m"),
+                              ("tide_m", "m"), ("relativity_ns", "ns"), ("group_delay_ns", "ns"),
+                              ("hardware_ns", "ns")):
+                v = t.loc[ok, col].to_numpy()
+                if np.any(np.isfinite(v)) and np.nanmax(np.abs(v)) > 0:
+                    lines.append(f"  {col:<15} median |{np.nanmedian(np.abs(v)):.3f}| {unit}, "
+                                 f"max |{np.nanmax(np.abs(v)):.3f}| {unit}")
+        lines.append(f"  codes: {self.info.get('codes')}")
+        return lines
+
+
+# ------------------------------------------------------------------ helpers
+
+def _rotate_z(pos, angle):
+    """Rotate ECEF positions (N,3) about z by ``angle`` (N,) radians (frame rotation R3(angle))."""
+    c, s = np.cos(angle), np.sin(angle)
+    out = np.empty_like(pos)
+    out[:, 0] = c * pos[:, 0] + s * pos[:, 1]
+    out[:, 1] = -s * pos[:, 0] + c * pos[:, 1]
+    out[:, 2] = pos[:, 2]
+    return out
+
+
+def sagnac_closed_form_m(sat_ecef_m, rx_ecef_m):
+    """First-order Earth-rotation range correction ω_e/c·(x_s·y_r − y_s·x_r) (IS-GPS-200, §20.3.3.4.3.3.2)."""
+    s = np.asarray(sat_ecef_m, dtype=float)
+    r = np.asarray(rx_ecef_m, dtype=float)
+    return OMEGA_E / C_MPS * (s[..., 0] * r[..., 1] - s[..., 1] * r[..., 0])
+
+
+def light_time(orbits, sats, t_rx_ns, dt_rx_s, rx_ecef_m, *, sagnac=True, tau0_s=None, max_iter=8):
+    """Iterate the light time from receive instants ``t_rx_ns + dt_rx_s`` (GPS).
+
+    Returns ``(tau_s, states, sat_rotated_m)``: light time, satellite states at
+    the transmission instant, and the satellite position in the Earth-fixed
+    frame of the receive instant. Converges to ``LIGHT_TIME_TOL_S``.
+    """
+    n = len(sats)
+    rx = np.broadcast_to(np.asarray(rx_ecef_m, dtype=float), (n, 3))
+    tau = np.full(n, 0.075) if tau0_s is None else np.asarray(tau0_s, dtype=float).copy()
+    for _ in range(max_iter):
+        st = orbits.states(sats, t_rx_ns, dt_rx_s - tau)
+        pos = _rotate_z(st.pos_m, OMEGA_E * tau) if sagnac else st.pos_m
+        new = np.linalg.norm(pos - rx, axis=1) / C_MPS
+        bad = ~np.isfinite(new)  # no state: keep a nominal value so later calls stay finite
+        new[bad] = 0.075
+        change = np.max(np.abs(new - tau)[~bad]) if np.any(~bad) else 0.0
+        tau = new
+        if not np.isfinite(change) or change < LIGHT_TIME_TOL_S:
+            break
+    st = orbits.states(sats, t_rx_ns, dt_rx_s - tau)
+    pos = _rotate_z(st.pos_m, OMEGA_E * tau) if sagnac else st.pos_m
+    return tau, st, pos
+
+
+def _status_flags(states, orbits):
+    """Lower-case flag text for each orbit status (OK -> 'ok'), from the source's own table."""
+    import sys
+
+    names = getattr(sys.modules[type(orbits).__module__], "STATUS_NAMES", {0: "OK"})
+    st = np.asarray(states.status)
+    out = np.empty(st.shape, dtype=object)
+    for code in np.unique(st):
+        out[st == code] = names.get(int(code), f"status_{int(code)}").lower()
+    return out
+
+
+def robust_epoch_mean(values, weights, mad_k=3.5, min_sats=1):
+    """Per-row robust weighted mean of a 2-D array (n_epoch, n_sat), NaN = absent.
+
+    Iterates: median and MAD of the row, reject |v − med| > k·1.4826·MAD
+    (MAD floored at 0.1 ns so identical values are not all rejected), then the
+    weighted mean of what is left. Returns (mean, scatter (weighted RMS of the
+    kept residuals), n_used, rejected mask).
+    """
+    v = np.asarray(values, dtype=float)
+    w = np.where(np.isfinite(v), np.asarray(weights, dtype=float), 0.0)
+    keep = np.isfinite(v)
+    for _ in range(3):
+        vk = np.where(keep, v, np.nan)
+        with np.errstate(all="ignore"):
+            import warnings
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", RuntimeWarning)
+                med = np.nanmedian(vk, axis=1)
+                mad = np.nanmedian(np.abs(vk - med[:, None]), axis=1)
+        lim = mad_k * 1.4826 * np.maximum(mad, 0.1)
+        new_keep = np.isfinite(v) & (np.abs(v - med[:, None]) <= lim[:, None])
+        # rows with fewer than 3 values: no rejection possible
+        few = np.sum(np.isfinite(v), axis=1) < 3
+        new_keep[few] = np.isfinite(v[few])
+        if np.array_equal(new_keep, keep):
+            break
+        keep = new_keep
+    wk = np.where(keep, w, 0.0)
+    sw = wk.sum(axis=1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = np.where(sw > 0, np.nansum(np.where(keep, v, 0.0) * wk, axis=1) / sw, np.nan)
+        res = np.where(keep, v - mean[:, None], np.nan)
+        scatter = np.sqrt(np.nansum(wk * res**2, axis=1) / sw)
+    n_used = keep.sum(axis=1)
+    mean[n_used < min_sats] = np.nan
+    rejected = np.isfinite(v) & ~keep
+    return mean, scatter, n_used, rejected
+
+
+# ------------------------------------------------------------------ main
+
+def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptions(), *,
+                    nav_header=None, met=None, ionex=None, reference=None) -> StationDay:
+    """Per-satellite local clock minus system time for one station-day (see module docstring).
+
+    ``obs``: :class:`ctt.rinex.obs.ObsData`; ``orbits``: a satellite source
+    with ``states(sats, t_ns, dt_s)`` (broadcast or precise); ``station``:
+    :class:`ctt.config.StationConfig`; ``nav_header``: the navigation header
+    for the Klobuchar coefficients; ``met``: a meteorological data object
+    (``ctt.rinex.met``) or None for the standard atmosphere; ``ionex``: IONEX
+    maps for ``iono_model='ionex'``. ``reference`` ('broadcast'/'precise')
+    defaults to what the orbit source says.
+    """
+    opt = options
+    if reference is None:
+        reference = "precise" if type(orbits).__name__.startswith("Precise") else "broadcast"
+    # --- time tags to GPS time
+    t_tag = ts.convert(obs.time_ns, obs.header.time_system or "GPS", "GPS")
+    n_ep = len(t_tag)
+    if n_ep == 0:
+        raise NoDataError(f"{obs.path}: no observation epochs")
+
+    sats_all = np.asarray(obs.sats).astype(str)
+    use_sys = np.isin(np.array([s[0] for s in sats_all]), list(opt.systems))
+    if not use_sys.any():
+        raise NoDataError(f"{obs.path}: no satellites of the systems {','.join(opt.systems)}")
+
+    # --- signals per satellite
+    sel = select_signals(obs, sats_all, opt)
+    P = sel.pseudorange_m              # (n_ep, n_sat): combination or single code, NaN where absent
+    missing_second = sel.missing_second
+    code_label = sel.label             # (n_sat,) e.g. 'C1C+C2W'
+    f1 = sel.f1_hz
+    if opt.smoothing_s and opt.smoothing_s > 0:
+        P, reset_mask = _hatch_smooth(obs, sel, t_tag, opt.smoothing_s)
+    else:
+        reset_mask = np.zeros(P.shape, dtype=bool)
+
+    present = np.isfinite(P) & use_sys[None, :]
+    flagged_missing = missing_second & use_sys[None, :]
+    ie, js = np.nonzero(present | flagged_missing)
+    if len(ie) == 0:
+        raise NoDataError(f"{obs.path}: no pseudoranges of the selected signals "
+                          f"({opt.signals}, systems {','.join(opt.systems)})")
+    sats = sats_all[js]
+    Pf = P[ie, js]
+    t_rx = t_tag[ie]
+    valid = np.isfinite(Pf)
+
+    # --- station position: ARP, geodetic
+    rx = np.asarray(station.arp_m, dtype=float)
+    lat, lon, h = geodesy.ecef_to_geodetic(rx)
+    lat, lon, h = float(lat), float(lon), float(h)
+
+    # --- first pass: pseudorange-based transmission time -> rough receiver clock per epoch
+    p_for_tx = np.where(valid, Pf, 0.075 * C_MPS)
+    st0 = orbits.states(sats, t_rx, -p_for_tx / C_MPS)
+    dtsat0 = st0.clock_s + st0.relativity_s
+    dtsat0 = np.where(np.isfinite(dtsat0), dtsat0, 0.0)
+    st1 = orbits.states(sats, t_rx, -p_for_tx / C_MPS - dtsat0)
+    tau_a = np.linalg.norm(st1.pos_m - rx, axis=1) / C_MPS
+    rough = (Pf / C_MPS - tau_a + st1.clock_s)  # receiver clock, s (no delays; µs-level)
+    rough_ep = _epoch_median(ie, rough, n_ep)
+    dt_rx_est = -np.where(np.isfinite(rough_ep[ie]), rough_ep[ie], 0.0)
+
+    # --- light-time iteration from the receive instant
+    tau, st, sat_rot = light_time(orbits, sats, t_rx, dt_rx_est, rx, sagnac=opt.sagnac,
+                                  tau0_s=np.where(np.isfinite(tau_a), tau_a, 0.075))
+    sat_norot = st.pos_m
+    rng_norot = np.linalg.norm(sat_norot - rx, axis=1)
+    rng_rot = np.linalg.norm(_rotate_z(sat_norot, OMEGA_E * tau) - rx, axis=1)
+    geometry_m = rng_norot
+    sagnac_m = (rng_rot - rng_norot) if opt.sagnac else np.zeros_like(rng_norot)
+
+    az, el, _ = geodesy.azimuth_elevation(rx, sat_rot)
+    elev_deg = np.degrees(el)
+    azim_deg = np.degrees(az)
+    los = (sat_rot - rx) / np.linalg.norm(sat_rot - rx, axis=1)[:, None]
+
+    # --- satellite clock, relativity, group delay
+    sat_clock_s = st.clock_s
+    relativity_s = st.relativity_s if opt.relativity else np.zeros_like(st.clock_s)
+    gd_s = _group_delay(orbits, sats, st, sel, js, reference)
+
+    # --- troposphere
+    if opt.troposphere:
+        doy = ts.day_of_year(t_rx)
+        if met is not None:
+            from .rinex.met import interpolate_met
+
+            mv = interpolate_met(met, t_tag)
+            p_hpa, t_c, rh = mv["PR"][ie], mv["TD"][ie], mv["HR"][ie]
+        else:
+            p_hpa = t_c = rh = None
+        trop = atmosphere.slant_troposphere(el, lat, h, doy, p_hpa, t_c, rh)
+        tropo_m = trop.slant_m
+        met_source = trop.met_source
+    else:
+        tropo_m = np.zeros_like(el)
+        met_source = "off"
+
+    # --- ionosphere (single frequency only)
+    iono_m = np.zeros_like(el)
+    iono_info = "removed by the iono-free combination" if opt.signals == "iono-free" else "off"
+    if opt.signals == "single" and opt.ionosphere:
+        f_used = f1[js]
+        if opt.iono_model == "ionex":
+            if ionex is None:
+                raise ProcessingError("iono_model 'ionex' needs an IONEX file (--ionex)")
+            iono_m = ionex.slant_delay_m(t_rx, lat, lon, az, el, f_used)
+            iono_info = "IONEX"
+        else:
+            alpha, beta = _klobuchar_coefficients(nav_header)
+            _, sow = ts.gps_week_sow(t_rx)
+            d_l1 = atmosphere.klobuchar_delay_s(alpha, beta, lat, lon, az, el, sow)
+            iono_m = atmosphere.scale_iono_to_frequency(d_l1, f_used) * C_MPS
+            iono_info = "Klobuchar (broadcast coefficients)"
+
+    # --- solid Earth tide: range change is −(line of sight · displacement)
+    if opt.tide:
+        disp_ep = geodesy.solid_tide_displacement(rx, t_tag, time_scale="GPS")
+        tide_m = -np.einsum("ij,ij->i", los, np.asarray(disp_ep)[ie])
+    else:
+        tide_m = np.zeros_like(el)
+
+    # --- station hardware delays by date (delay sets may change inside the day)
+    t_utc = ts.convert(t_tag, "GPS", "UTC")
+    hw_ep, u_hw = _hardware_ns(station, t_utc, sel, ie, js)
+
+    # --- the clock estimate
+    range_total = geometry_m + sagnac_m + tropo_m + iono_m + tide_m
+    clock_s = (Pf - range_total) / C_MPS + sat_clock_s + relativity_s + gd_s
+    clock_ns = clock_s * 1e9 - hw_ep
+
+    # --- flags
+    flag = _status_flags(st, orbits)
+    mask_deg = station.elevation_mask_deg if opt.elevation_mask_deg is None else opt.elevation_mask_deg
+    ok = flag == "ok"
+    flag[ok & ~valid] = "missing_signal"
+    ok = flag == "ok"
+    flag[ok & (elev_deg < mask_deg)] = "low_elevation"
+    ok = flag == "ok"
+    flag[ok & ~np.isfinite(clock_ns)] = "no_value"
+    ok = flag == "ok"
+
+    amp = sel.noise_factor[js]
+    sin_el = np.clip(np.sin(el), 0.05, 1.0)
+    sigma_ns = opt.sigma0_m * amp / sin_el / C_MPS * 1e9
+
+    # --- epoch solution (robust weighted mean over satellites)
+    n_sat = len(sats_all)
+    grid = np.full((n_ep, n_sat), np.nan)
+    wgrid = np.zeros((n_ep, n_sat))
+    grid[ie[ok], js[ok]] = clock_ns[ok]
+    wgrid[ie[ok], js[ok]] = sin_el[ok] ** 2
+    mean, scatter, n_used, rejected = robust_epoch_mean(grid, wgrid, opt.mad_k)
+    residual = clock_ns - mean[ie]
+    out_rows = rejected[ie, js] & ok
+    flag[out_rows] = "outlier"
+    residual[~(ok | out_rows)] = np.nan
+
+    table = pd.DataFrame({
+        "time": t_rx.astype(np.int64), "sat": sats, "system": np.array([s[0] for s in sats]),
+        "signal": code_label[js], "elevation_deg": elev_deg, "azimuth_deg": azim_deg,
+        "clock_ns": clock_ns, "sigma_ns": sigma_ns, "pseudorange_m": Pf,
+        "geometry_m": geometry_m, "sat_clock_ns": sat_clock_s * 1e9, "relativity_ns": relativity_s * 1e9,
+        "group_delay_ns": gd_s * 1e9, "sagnac_m": sagnac_m, "troposphere_m": tropo_m,
+        "ionosphere_m": iono_m, "tide_m": tide_m, "hardware_ns": hw_ep, "residual_ns": residual,
+        "flag": flag.astype(str),
+    })
+    table["smoothing_reset"] = reset_mask[ie, js]
+    table.attrs["reference"] = reference
+    table.attrs["station"] = station.id
+    epochs = pd.DataFrame({"time": t_tag, "clock_ns": mean, "scatter_ns": scatter,
+                           "n_sat": n_used, "n_rejected": rejected.sum(axis=1)})
+    counts = table["flag"].value_counts().to_dict()
+    info = {"codes": {str(s): str(code_label[k]) for k, s in enumerate(sats_all) if use_sys[k]},
+            "signals": opt.signals, "troposphere": met_source if opt.troposphere else "off",
+            "ionosphere": iono_info, "tide": "IERS 2010 §7.1.1" if opt.tide else "off",
+            "sagnac": opt.sagnac, "relativity": opt.relativity, "smoothing_s": opt.smoothing_s,
+            "elevation_mask_deg": mask_deg, "u_hardware_ns": u_hw, "reference": reference,
+            "position_m": [float(v) for v in rx]}
+    return StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
+                      counts={str(k): int(v) for k, v in counts.items()}, info=info)
+
+
+@dataclasses.dataclass
+class SignalSelection:
+    """The signals each satellite is processed with (see :func:`select_signals`)."""
+
+    codes: list                 #: per satellite: (code1,) or (code1, code2); () when none
+    label: np.ndarray           #: per satellite 'C1C+C2W' / 'C1C' / ''
+    coefficients: dict          #: label -> {code: coefficient} (sum 1), for hardware delays
+    pseudorange_m: np.ndarray   #: (n_ep, n_sat)
+    missing_second: np.ndarray  #: (n_ep, n_sat) first code present, second absent
+    f1_hz: np.ndarray
+    f2_hz: np.ndarray
+    noise_factor: np.ndarray    #: σ(used code)/σ(one code)
+    phase_m: np.ndarray | None  #: carrier phase of the same combination, metres
+    geometry_free_m: np.ndarray | None
+    slip_flags: np.ndarray | None  #: LLI bit 0 on a phase used
+
+
+def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
+    """Choose codes per satellite (ctt.signals priorities, or ``opt.codes``) and form the
+    pseudorange (iono-free or single) with the matching carrier phase for smoothing."""
+    mode = "dual" if opt.signals == "iono-free" else "single"
+    priorities = None
+    if opt.codes:
+        priorities = {}
+        for code in opt.codes:
+            for sys_letter, bands in signals.BAND_NAME.items():
+                band = bands.get(code[1:2])
+                if band:
+                    priorities.setdefault(sys_letter, {}).setdefault(band, ())
+                    priorities[sys_letter][band] = priorities[sys_letter][band] + (code,)
+    choice = signals.select_codes(obs.obs, sats, mode, priorities=priorities)
+    glo_k = getattr(obs.header, "glonass_slots", None) or None
+    pr = signals.processing_pseudorange(obs.obs, choice, glonass_k=glo_k)
+    n_sat = len(sats)
+    codes, labels = [], np.empty(n_sat, dtype=object)
+    coefficients = {}
+    for j in range(n_sat):
+        c1, c2 = str(choice.code1[j]), str(choice.code2[j])
+        if mode == "dual" and c1 and c2:
+            codes.append((c1, c2))
+            labels[j] = f"{c1}+{c2}"
+            a1, a2 = signals.iono_free_coefficients(pr.f1_hz[j], pr.f2_hz[j])
+            coefficients[labels[j]] = {c1: float(a1), c2: float(a2)}
+        elif c1:
+            codes.append((c1,) if mode == "single" else (c1, ""))
+            labels[j] = c1 if mode == "single" else f"{c1}+"
+            coefficients[labels[j]] = {c1: 1.0}
+        else:
+            codes.append(())
+            labels[j] = ""
+    p1 = signals.gather(obs.obs, choice.code1)
+    if mode == "dual":
+        p2 = signals.gather(obs.obs, choice.code2)
+        missing_second = np.isfinite(p1) & ~np.isfinite(p2)
+    else:
+        missing_second = np.zeros(p1.shape, dtype=bool)
+    # carrier phases of the same bands, metres
+    def phase_of(code_arr):
+        ph = np.full(p1.shape, np.nan)
+        lli = np.zeros(p1.shape, dtype=bool)
+        for j, c in enumerate(code_arr):
+            c = str(c)
+            if not c:
+                continue
+            cand = ["L" + c[1:]] + [k for k in obs.obs if k.startswith("L" + c[1])]
+            for k in cand:
+                if k in obs.obs and np.isfinite(obs.obs[k][:, j]).any():
+                    ph[:, j] = obs.obs[k][:, j]
+                    if k in obs.lli:
+                        lli[:, j] = (obs.lli[k][:, j] >= 0) & ((obs.lli[k][:, j] & 1) == 1)
+                    break
+        return ph, lli
+    l1c, lli1 = phase_of(choice.code1)
+    l1 = l1c * (C_MPS / pr.f1_hz)[None, :]
+    if mode == "dual":
+        l2c, lli2 = phase_of(choice.code2)
+        l2 = l2c * (C_MPS / pr.f2_hz)[None, :]
+        with np.errstate(invalid="ignore"):
+            phase = signals.iono_free(l1, l2, pr.f1_hz[None, :], pr.f2_hz[None, :])
+            gf = l1 - l2
+        slips = lli1 | lli2
+    else:
+        phase, gf, slips = l1, None, lli1
+    return SignalSelection(codes=codes, label=labels.astype(str), coefficients=coefficients,
+                           pseudorange_m=pr.value_m, missing_second=missing_second,
+                           f1_hz=pr.f1_hz, f2_hz=pr.f2_hz, noise_factor=np.asarray(pr.noise_factor, dtype=float),
+                           phase_m=phase if np.isfinite(phase).any() else None,
+                           geometry_free_m=gf, slip_flags=slips)
+
+
+def _epoch_median(ie, values, n_ep):
+    """Median of ``values`` per epoch index (vectorised by sorting)."""
+    out = np.full(n_ep, np.nan)
+    ok = np.isfinite(values)
+    if not ok.any():
+        return out
+    s = pd.Series(values[ok]).groupby(ie[ok]).median()
+    out[s.index.to_numpy()] = s.to_numpy()
+    return out
+
+
+def _klobuchar_coefficients(nav_header):
+    iono = getattr(nav_header, "iono", None) or {}
+    a, b = iono.get("GPSA"), iono.get("GPSB")
+    if a is None or b is None:
+        raise ProcessingError("single-frequency processing with the Klobuchar model needs the ionospheric "
+                              "coefficients (ION ALPHA/BETA or GPSA/GPSB) in the navigation file header")
+    return np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+
+
+def _group_delay(orbits, sats, st, sel, js, reference):
+    """Satellite group-delay correction (s) of the signals used, per row.
+
+    Broadcast clocks: from the broadcast TGD/BGD (ctt.orbits). Precise (IGS)
+    clocks refer to the iono-free P1/P2 (GPS) combination, so the iono-free
+    correction is 0; for a single code the product's own group delays are
+    used when it provides them, else 0 with the fact recorded (a C1 user then
+    carries the satellite's P1−P2 bias, ~ns; apply a bias file for better).
+    """
+    from .orbits import group_delay_correction_s
+
+    out = np.zeros(len(sats))
+    # one call per distinct signal choice (a handful), vectorised over rows
+    keys = np.asarray(sel.label, dtype=object)[js]
+    for key in np.unique(keys):
+        if not key or key.endswith("+"):
+            continue
+        rows = keys == key
+        sig = tuple(key.split("+"))
+        sig = sig if len(sig) == 2 else sig[0]
+        if reference == "precise" and isinstance(sig, tuple):
+            continue
+        galileo_source = "fnav" if any(c[1] == "5" for c in (sig if isinstance(sig, tuple) else (sig,))) \
+            else "inav"
+        vals = group_delay_correction_s(sats[rows], _subset(st, rows), sig, galileo_source=galileo_source)
+        out[rows] = np.where(np.isfinite(vals), vals, 0.0)
+    return out
+
+
+def _subset(states, rows):
+    return dataclasses.replace(states, **{f.name: getattr(states, f.name)[rows]
+                                          for f in dataclasses.fields(states)
+                                          if isinstance(getattr(states, f.name), np.ndarray)})
+
+
+def _hardware_ns(station, t_utc_ns, sel, ie, js):
+    """Hardware delay (ns) per row and its largest standard uncertainty (ns).
+
+    The delay set valid at each epoch is applied (a set may end inside the day;
+    an epoch no set covers raises ConfigError naming the station file).
+    """
+    t_utc_ns = np.asarray(t_utc_ns, dtype=np.int64)
+    out = np.full(len(ie), np.nan)
+    u_out = 0.0
+    sets = station.delay_sets_between(int(t_utc_ns.min()), int(t_utc_ns.max()) + 1)
+    label = np.asarray(sel.label)[js]
+    for ds in sets:
+        lo = ds.valid_from_ns
+        hi = ds.valid_until_ns if ds.valid_until_ns is not None else np.iinfo(np.int64).max
+        ep_in = (t_utc_ns >= lo) & (t_utc_ns < hi)
+        rows_in = ep_in[ie]
+        for lab in np.unique(label[rows_in]):
+            rows = rows_in & (label == lab)
+            coef = sel.coefficients[str(lab)]  # code -> coefficient, summing to 1
+            out[rows] = ds.hardware_combined_ns(coef)
+            u_out = max(u_out, ds.u_hardware_combined_ns(coef))
+    return out, u_out
+
+
+def _hatch_smooth(obs, sel, t_gps_ns, window_s, *, gf_jump_m=0.15, gap_factor=1.5):
+    """Carrier-smoothed code (Hatch filter) on the chosen combination, with slip resets.
+
+    P̃_k = P_k / n + (n − 1)/n · (P̃_{k−1} + Φ_k − Φ_{k−1}), n = min(k, N),
+    N = window / interval (Hatch 1982). Φ is the carrier phase of the same
+    combination in metres (for iono-free: the iono-free phase, so the code and
+    phase share the same ionosphere-free geometry and the filter has no
+    code–carrier divergence). For single frequency the divergence of twice the
+    ionosphere over the window is accepted (documented; keep windows short).
+    The filter restarts at: a loss-of-lock indicator (LLI bit 0) on either
+    phase, a data gap longer than ``gap_factor`` intervals, a missing phase,
+    or a jump of the geometry-free phase λ1Φ1 − λ2Φ2 larger than ``gf_jump_m``
+    between consecutive epochs (ionospheric change over 30 s is cm-level;
+    common practice). Loops over epochs (vectorised over satellites): the
+    recursion has no closed vector form once resets are data-dependent.
+    Returns the smoothed code (NaN where the code is NaN) and the reset mask.
+    """
+    P = sel.pseudorange_m
+    L = sel.phase_m
+    if L is None:
+        log.warning("carrier smoothing asked for but no carrier phase of the chosen signals; not smoothed")
+        return P, np.zeros(P.shape, dtype=bool)
+    interval = np.median(np.diff(t_gps_ns)) / 1e9 if len(t_gps_ns) > 1 else 30.0
+    n_max = max(1, int(round(window_s / interval)))
+    n_ep, n_sat = P.shape
+    out = np.full_like(P, np.nan)
+    resets = np.zeros(P.shape, dtype=bool)
+    count = np.zeros(n_sat)
+    prev_L = np.full(n_sat, np.nan)
+    prev_gf = np.full(n_sat, np.nan)
+    prev_t = np.full(n_sat, np.iinfo(np.int64).min, dtype=np.int64)
+    state = np.full(n_sat, np.nan)
+    gf = sel.geometry_free_m if sel.geometry_free_m is not None else np.full_like(P, np.nan)
+    slip = sel.slip_flags if sel.slip_flags is not None else np.zeros(P.shape, dtype=bool)
+    gap_ns = gap_factor * interval * 1e9
+    for k in range(n_ep):
+        p, l, g = P[k], L[k], gf[k]
+        have = np.isfinite(p) & np.isfinite(l)
+        gap = (t_gps_ns[k] - prev_t) > gap_ns
+        jump = np.isfinite(g) & np.isfinite(prev_gf) & (np.abs(g - prev_gf) > gf_jump_m)
+        restart = have & (gap | slip[k] | jump | ~np.isfinite(prev_L) | (count == 0))
+        count = np.where(restart, 1, np.where(have, np.minimum(count + 1, n_max), 0))
+        pred = state + (l - prev_L)
+        new = np.where(restart, p, p / np.maximum(count, 1) + (count - 1) / np.maximum(count, 1) * pred)
+        state = np.where(have, new, np.nan)
+        out[k] = np.where(have, state, np.nan)
+        resets[k] = restart
+        prev_L = np.where(have, l, np.nan)
+        prev_gf = np.where(have, g, np.nan)
+        prev_t = np.where(have, t_gps_ns[k], prev_t)
+    # code present but no phase: keep the raw code (flagged by the caller through resets)
+    raw_only = np.isfinite(P) & ~np.isfinite(L)
+    out[raw_only] = P[raw_only]
+    resets |= raw_only
+    return out, resets
