@@ -495,9 +495,19 @@ class BroadcastOrbits:
 
     # ------------------------------------------------------------ offsets
     def _system_offset(self, s, t_gps_ns):
-        """(system time − GPS time) beyond the nominal offset, s; NaN when unknown."""
+        """(system time − GPS time) beyond the nominal offset of ctt.timescales, s; NaN when unknown.
+
+        RINEX 3 TIME SYSTEM CORR lines are read with one convention for all of
+        them, that of GPUT (IS-GPS-200 §20.3.3.5.2.4: t_UTC = t_GPS − Δt_LS − A0 − ...):
+        T_target = T_source − nominal − (a0 + a1·(t − t_ref)). So GAGP/GPGA give
+        GST − GPS = a0 (Galileo OS SIS ICD §5.1.8 GGTO), QZGP QZSS − GPS, GLGP
+        GLONASS − GPS; otherwise the difference of two UTC corrections
+        (BDUT − GPUT, QZUT − GPUT, GLUT − GPUT). A correction whose reference
+        time is more than 7 days from the instant is treated as absent (merged
+        files sometimes carry stale ones).
+        """
         n = len(t_gps_ns)
-        if s in ("G",):
+        if s == "G":
             return np.zeros(n)
         corr = self.nav.header.time_corrections
 
@@ -505,34 +515,26 @@ class BroadcastOrbits:
             c = corr.get(key)
             if c is None:
                 return None
-            # reference time in the week of the correction; a1 is tiny: use seconds since t_ref
-            t_ref = (c["week"] * 604800 + c["t_ref_s"]) * NS_PER_S if c.get("week") else None
-            if t_ref is None or not c["a1_sps"]:
-                return np.full(n, c["a0_s"])
-            return c["a0_s"] + c["a1_sps"] * ((t_gps_ns - t_ref) / 1e9)
+            if not c.get("week"):
+                return np.full(n, c["a0_s"]) if not c["a1_sps"] else None
+            t_ref = (int(c["week"]) * 604800 + int(c["t_ref_s"])) * NS_PER_S
+            if key.startswith("BD"):  # BDT week and seconds (BDS ICD): week 0 = GPS week 1356, BDT = GPS − 14 s
+                t_ref += 1356 * 604800 * NS_PER_S + 14 * NS_PER_S
+            dt = (t_gps_ns - t_ref) / 1e9
+            return np.where(np.abs(dt) <= 7 * 86400, c["a0_s"] + c["a1_sps"] * dt, np.nan)
 
-        if s == "E":
-            v = ev("GPGA")  # GPS to Galileo: GST − GPS = A0G + A1G·Δt (Galileo OS SIS ICD §5.1.8)
-            if v is None:
-                v = ev("GAGP")
-            return v if v is not None else np.full(n, np.nan)
-        if s == "J":
-            v = ev("QZGP")  # RINEX 3: QZS to GPS correction; taken as QZSS − GPS
-            return v if v is not None else np.full(n, np.nan)
-        if s == "C":
-            b, g = ev("BDUT"), ev("GPUT")
-            if b is not None and g is not None:
-                return b - g  # (BDT − UTC) − (GPS − UTC), fractional parts
-            return np.full(n, np.nan)
-        if s == "R":
-            v = ev("GLGP")
+        def diff(a, b):
+            va, vb = ev(a), ev(b)
+            return None if va is None or vb is None else va - vb
+
+        cands = {"E": [lambda: ev("GAGP"), lambda: ev("GPGA"), lambda: diff("GAUT", "GPUT")],
+                 "J": [lambda: ev("QZGP"), lambda: diff("QZUT", "GPUT")],
+                 "C": [lambda: diff("BDUT", "GPUT")],
+                 "R": [lambda: ev("GLGP"), lambda: diff("GLUT", "GPUT")]}.get(s, [])
+        for f in cands:
+            v = f()
             if v is not None:
-                return -v  # RINEX 3: GLGP a0 = τ_GPS, GPS − GLONASS fraction; we return GLO − GPS
-            lu, g = ev("GLUT"), ev("GPUT")
-            if lu is not None and g is not None:
-                # GLUT a0 = −τ_c (UTC(SU) − GLONASS), GPUT a0: GPS − UTC fraction
-                return -lu - g
-            return np.full(n, np.nan)
+                return v
         return np.full(n, np.nan)
 
     # ------------------------------------------------------------ states

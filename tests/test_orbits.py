@@ -184,3 +184,164 @@ def test_group_delays_gps(brdc):
     np.testing.assert_allclose(o.group_delay_s(sats, "C2W", states=st), -gam * st.tgd_s, rtol=1e-15)
     np.testing.assert_allclose(o.group_delay_s(sats, ("C1W", "C2W"), states=st), 0.0, atol=1e-22)
     assert np.all(np.isnan(o.group_delay_s(sats, "C5Q", states=st)))  # no L5 delay in LNAV
+
+
+# ------------------------------------------------------------------ multi-GNSS (tests/data/nav/mixed_v304.rnx:
+# real broadcast records of public merged files, see its header)
+
+@pytest.fixture(scope="module")
+def mixed(test_data):
+    return read_nav(test_data / "nav" / "mixed_v304.rnx")
+
+
+def _only(nav, system, rows):
+    import copy
+
+    m = copy.copy(nav)
+    m.records = dict(nav.records)
+    m.records[system] = nav.records[system].iloc[rows].reset_index(drop=True)
+    return m
+
+
+@pytest.mark.parametrize("sat", ["R01", "R02"])
+def test_glonass_integration_reaches_next_record(mixed, sat):
+    # Propagating one broadcast state 30 min (RK4, GLONASS ICD force model) must land on the next
+    # broadcast state of the same satellite: common practice, agreement within a few metres.
+    r = mixed.records["R"]
+    a, b = r[r.sat == sat].iloc[0], r[r.sat == sat].iloc[1]
+    assert (b.toc_ns - a.toc_ns) == 1800 * 10**9
+    pos, vel = orbits.glonass_propagate(
+        np.array([[a.x_m, a.y_m, a.z_m]]), np.array([[a.vx_mps, a.vy_mps, a.vz_mps]]),
+        np.array([[a.ax_mps2, a.ay_mps2, a.az_mps2]]), np.array([1800.0]))
+    assert np.linalg.norm(pos[0] - [b.x_m, b.y_m, b.z_m]) < 5.0
+    # broadcast velocity printed to ~1e-9 km/s; model mismatch after 30 min is ~mm/s
+    assert np.linalg.norm(vel[0] - [b.vx_mps, b.vy_mps, b.vz_mps]) < 0.01
+
+
+def test_glonass_integration_self_consistency(mixed):
+    r = mixed.records["R"].iloc[[0, 2]]
+    p0 = r[["x_m", "y_m", "z_m"]].to_numpy()
+    v0 = r[["vx_mps", "vy_mps", "vz_mps"]].to_numpy()
+    zero = np.zeros_like(p0)
+    # forward then backward returns to the start (RK4 with 60 s steps: local error ~h^5, here < 1 mm)
+    p1, v1 = orbits.glonass_propagate(p0, v0, zero, np.array([1800.0, 1800.0]))
+    p2, v2 = orbits.glonass_propagate(p1, v1, zero, np.array([-1800.0, -1800.0]))
+    assert np.max(np.abs(p2 - p0)) < 1e-3 and np.max(np.abs(v2 - v0)) < 1e-6
+    # Jacobi integral of the rotating-frame motion (central + J2 field, no luni-solar term) is
+    # conserved: E = v^2/2 - w^2 (x^2+y^2)/2 - U(r), U = mu/r (1 + J2/2 (ae/r)^2 (1 - 3 z^2/r^2))
+    def jacobi(p, v):
+        rr = np.linalg.norm(p, axis=1)
+        u = orbits.GM_GLO / rr * (1 + 0.5 * orbits.J2_GLO * (orbits.AE_GLO / rr) ** 2 * (1 - 3 * p[:, 2] ** 2 / rr**2))
+        return 0.5 * np.sum(v**2, axis=1) - 0.5 * orbits.OMEGA_E_GLO**2 * np.sum(p[:, :2] ** 2, axis=1) - u
+    assert np.max(np.abs(jacobi(p1, v1) / jacobi(p0, v0) - 1)) < 1e-10
+    # and the orbit stays a GLONASS orbit (semi-major axis 25 510 km, GLONASS ICD): radius within 100 km
+    assert np.all(np.abs(np.linalg.norm(p1, axis=1) - 25.51e6) < 1e5)
+
+
+def test_glonass_states_clock_and_time_scales(mixed):
+    # 00:30 UTC on 2013-01-01 is 00:30:16 GPS (GPS - UTC = 16 s then, IERS Bulletin C)
+    t = civil_to_ns(2013, 1, 1, 0, 30, 16)
+    o = BroadcastOrbits(mixed)
+    st = o.states(np.array(["R01", "R02"]), t)
+    assert list(st.status) == [orbits.OK, orbits.OK]
+    r = mixed.records["R"]
+    # nearest t_b is 00:15 or 00:45 UTC (both 15 min away): either record, evaluated 900 s from t_b
+    rec = r.iloc[st.record]
+    dt = (civil_to_ns(2013, 1, 1, 0, 30, 0) - rec.toc_ns.to_numpy()) / 1e9
+    assert np.all(np.abs(dt) == 900.0)
+    # GLONASS ICD: satellite clock - GLONASS time = -tau_n + gamma_n (t - t_b)
+    np.testing.assert_array_equal(st.clock_s, rec.minus_tau_n_s.to_numpy() + rec.gamma_n.to_numpy() * dt)
+    # periodic relativistic term -2 r.v / c^2 (GLONASS states; common practice): tens of ns at most
+    np.testing.assert_allclose(st.relativity_s, -2 * np.sum(st.pos_m * st.vel_mps, 1) / orbits.C_MPS**2)
+    assert np.all(np.abs(st.relativity_s) < 50e-9)
+    # GLONASS - GPS fraction from the header GLGP line (a0 = -3.2875686884e-07 as printed)
+    np.testing.assert_array_equal(st.system_time_offset_s, -3.2875686884e-07)
+
+
+def test_beidou_geo_is_geostationary_and_records_join(mixed):
+    # t = 01:00:00 BDT = 01:00:14 GPS (BDT = GPS - 14 s, BDS ICD)
+    t = civil_to_ns(2022, 1, 1, 1, 0, 14)
+    a = BroadcastOrbits(_only(mixed, "C", [0]), allow_future=True).states(np.array(["C01"]), t)
+    b = BroadcastOrbits(_only(mixed, "C", [1]), allow_future=True).states(np.array(["C01"]), t)
+    assert a.status[0] == b.status[0] == orbits.OK
+    # the second record's t_oe is exactly this instant: the BDT conversion is right to the second
+    assert b.toe_gps_ns[0] == t
+    # consecutive broadcast records agree at the switch (common practice: ~1 m, clocks ~1 ns)
+    assert np.linalg.norm(a.pos_m - b.pos_m) < 3.0
+    assert abs(a.clock_s[0] - b.clock_s[0]) < 2e-9
+    # the satellite is geostationary: radius ~42 164 km, inertial inclination below 2 degrees
+    # (BDS ICD GEO elements are given in a frame tilted by 5 degrees; i0 here is 4.6 degrees)
+    r = b.pos_m[0]
+    v = b.vel_mps[0] + np.cross([0, 0, orbits.OMEGA_E_BDS], r)
+    h = np.cross(r, v)
+    incl = np.degrees(np.arccos(h[2] / np.linalg.norm(h)))
+    assert abs(np.linalg.norm(r) - 42.164e6) < 50e3
+    assert incl < 2.0
+    assert np.degrees(mixed.records["C"].i0_rad.iloc[1]) > 4.0  # so the tilt was applied
+    assert np.linalg.norm(b.vel_mps) < 100.0  # nearly at rest in the Earth-fixed frame
+
+
+def test_beidou_velocity_is_derivative(mixed):
+    t = civil_to_ns(2022, 1, 1, 0, 30, 14)
+    o = BroadcastOrbits(mixed)
+    s0, sp, sm = (o.states(np.array(["C01"]), t, d) for d in (0.0, 0.5, -0.5))
+    # central difference over 1 s: error ~ a h^2/6, a ~ 0.2 m/s^2 for the rotating GEO: < 1e-3 m/s
+    assert np.max(np.abs((sp.pos_m - sm.pos_m) - s0.vel_mps)) < 1e-3
+
+
+def test_galileo_source_selection_and_bgd(mixed):
+    t = civil_to_ns(2020, 5, 15, 0, 20, 0)  # GST = GPS (Galileo OS SIS ICD)
+    e = mixed.records["E"]
+    inav = BroadcastOrbits(mixed, galileo_source="inav").states(np.array(["E24"]), t)
+    fnav = BroadcastOrbits(mixed, galileo_source="fnav").states(np.array(["E24"]), t)
+    assert inav.status[0] == fnav.status[0] == orbits.OK
+    assert e.iloc[inav.record[0]].source == "inav" and e.iloc[fnav.record[0]].source == "fnav"
+    assert inav.clock_s[0] != fnav.clock_s[0]  # E1/E5b vs E1/E5a clock parameters (af0 differ)
+    np.testing.assert_array_equal(inav.pos_m, fnav.pos_m)  # same orbit elements in both messages
+    # Galileo OS SIS ICD §5.1.5: E1 single frequency: -BGD(E1,E5b) with I/NAV, -BGD(E1,E5a) with F/NAV
+    o_i = BroadcastOrbits(mixed, galileo_source="inav")
+    o_f = BroadcastOrbits(mixed, galileo_source="fnav")
+    assert o_i.group_delay_s(np.array(["E24"]), "C1C", states=inav)[0] == -5.098991096020e-08
+    assert o_f.group_delay_s(np.array(["E24"]), "C1C", states=fnav)[0] == -4.540197551250e-08
+    k5a = (1575.42 / 1176.45) ** 2
+    assert o_f.group_delay_s(np.array(["E24"]), "C5Q", states=fnav)[0] == pytest.approx(
+        -k5a * 4.540197551250e-08, rel=1e-14)
+    # iono-free pair the clock refers to needs no BGD (ICD)
+    assert abs(o_i.group_delay_s(np.array(["E24"]), ("C1C", "C7Q"), states=inav)[0]) < 1e-21
+    assert np.isnan(o_i.group_delay_s(np.array(["E24"]), "C5Q", states=inav)[0])
+    # only F/NAV available and I/NAV requested -> WRONG_SOURCE, never silently the other clock
+    only_f = _only(mixed, "E", list(np.flatnonzero(e.source == "fnav")))
+    st = BroadcastOrbits(only_f, galileo_source="inav").states(np.array(["E24"]), t)
+    assert orbits.STATUS_NAMES[st.status[0]] == "WRONG_SOURCE" and np.isnan(st.clock_s[0])
+    # GST - GPS from the header GPGA line: its reference week (1685) is years away -> unknown (NaN)
+    assert np.isnan(inav.system_time_offset_s[0])
+
+
+def test_beidou_group_delays(mixed):
+    t = civil_to_ns(2022, 1, 1, 0, 30, 14)
+    o = BroadcastOrbits(mixed)
+    st = o.states(np.array(["C01"]), t)
+    # BDS SIS ICD: clock refers to B3I; B1I: -TGD1, B2I: -TGD2 (values as printed in the record)
+    assert o.group_delay_s(np.array(["C01"]), "C2I", states=st)[0] == 5.8e-09
+    assert o.group_delay_s(np.array(["C01"]), "C7I", states=st)[0] == 1.02e-08
+    assert o.group_delay_s(np.array(["C01"]), "C6I", states=st)[0] == 0.0
+    f1, f3 = 1561.098, 1268.52
+    assert o.group_delay_s(np.array(["C01"]), ("C2I", "C6I"), states=st)[0] == pytest.approx(
+        f1**2 * 5.8e-09 / (f1**2 - f3**2), rel=1e-14)
+
+
+def test_qzss_unhealthy_and_iod_mismatch(mixed):
+    t = civil_to_ns(2013, 1, 1, 1, 10, 0)
+    st = BroadcastOrbits(mixed).states(np.array(["J01", "G01"]), t)
+    assert [orbits.STATUS_NAMES[s] for s in st.status] == ["UNHEALTHY", "OK"]
+    # IS-GPS-200 §20.3.4.4: IODE must equal the 8 LSBs of IODC; corrupt one record's IODC
+    bad = _only(mixed, "G", [0, 1])
+    bad.records["G"] = bad.records["G"].copy()
+    bad.records["G"].loc[:, "iodc"] = 300  # low 8 bits 44 != 33, 34
+    st = BroadcastOrbits(bad).states(np.array(["G01"]), t)
+    assert orbits.STATUS_NAMES[st.status[0]] == "IOD_MISMATCH" and np.isnan(st.pos_m[0, 0])
+
+
+def test_unsupported_bias_file_is_refused(mixed):
+    with pytest.raises(NotImplementedError):
+        BroadcastOrbits(mixed, bias_file="x.bsx")

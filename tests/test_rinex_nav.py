@@ -108,3 +108,81 @@ def test_duplicate_records_dropped(tmp_path):
     nav = read_nav(_write(tmp_path, V2_HEADER + V2_REC + V2_REC))
     assert len(nav.records["G"]) == 1
     assert nav.dropped == [(15, "duplicate of an earlier record")]
+
+
+# ------------------------------------------------------------------ RINEX 3 / 4 mixed files
+
+def test_v4_reads_the_same_ephemerides_as_v3(test_data):
+    v3 = read_nav(test_data / "nav" / "mixed_v304.rnx")
+    v4 = read_nav(test_data / "nav" / "mixed_v400.rnx")
+    assert v4.header.version == 4.0 and v4.header.leap_seconds == 16
+    # RINEX 4: STO/ION/EOP records and non-legacy ephemerides are skipped and counted
+    assert v4.skipped == {"STO": 1, "ION": 1, "EOP": 1, "EPH G CNAV": 1, "EPH S SBAS": 1}
+    assert v4.dropped == []
+    extra = ["line", "status_flags", "delay_l1l2_s", "urai", "health_flags"]
+    for s in ("G", "E", "C", "R", "J"):
+        a = v3.records[s].drop(columns=extra, errors="ignore")
+        b = v4.records[s].drop(columns=extra, errors="ignore")
+        assert a.equals(b), s
+    # the fifth FDMA line (RINEX 4 / 3.05) is read where present, NaN elsewhere
+    r = v4.records["R"]
+    assert r.urai.iloc[0] == 15.0 and r.delay_l1l2_s.iloc[0] == 2.793967723846e-09
+    assert r.urai.isna().sum() == 3
+    # message types from the '> EPH' lines
+    assert sorted(v4.records["E"].message) == ["FNAV", "INAV"]
+    assert set(v4.records["C"].message) == {"D2"}
+
+
+def test_v3_header_and_time_columns(test_data):
+    nav = read_nav(test_data / "nav" / "mixed_v304.rnx")
+    h = nav.header
+    assert h.version == 3.04 and h.system == "M"
+    assert set(h.iono) == {"GPSA", "GPSB", "GAL", "BDSA", "BDSB"} and h.iono["GAL"].shape == (3,)
+    assert h.time_corrections["GLGP"]["a0_s"] == -3.2875686884e-07
+    assert h.time_corrections["GPGA"]["week"] == 1685
+    c = nav.records["C"].iloc[0]
+    # BeiDou: toc in BDT; BDT week 834 + 518400 s (BDS ICD week origin 2006-01-01) is 2022-01-01 00:00 BDT
+    assert c.toc_ns == civil_to_ns(2022, 1, 1) and c.toe_ns == c.toc_ns
+    assert c.toc_gps_ns - c.toc_ns == 14 * 10**9  # BDT = GPS - 14 s
+    assert c.message == "D2"  # PRN 1 is a GEO (D2 message)
+    r = nav.records["R"].iloc[0]
+    # GLONASS epochs are UTC in RINEX; GPS - UTC = 16 s in 2013 (IERS Bulletin C)
+    assert r.toc_gps_ns - r.toc_ns == 16 * 10**9
+    assert r.tk_ns == civil_to_ns(2013, 1, 1, 0, 0, 0)  # 172800 s of the UTC week = Tuesday 00:00
+    assert r.x_m == 8450.493652344 * 1000.0 and r.freq_num == 1
+    e = nav.records["E"]
+    assert list(e.source) == ["fnav", "inav"] and list(e.data_source) == [258, 517]
+    g = nav.records["G"].iloc[0]
+    assert np.isnan(g.fit_raw) and g.fit_h == 4.0  # blank fit interval -> 4 h (IS-GPS-200 flag 0)
+
+
+V2_GLO = (
+    "     2.11           G: GLONASS NAV DATA                     RINEX VERSION / TYPE\n"
+    "  2013     1     1   -1.657754182800D-07                    CORR TO SYSTEM TIME\n"
+    "    16                                                      LEAP SECONDS\n"
+    "                                                            END OF HEADER\n"
+    " 1 13  1  1  0 15  0.0-1.750094816089D-04 0.000000000000D+00 0.000000000000D+00\n"
+    "    8.450493652344D+03 1.381167411804D+00 0.000000000000D+00 0.000000000000D+00\n"
+    "   -1.874471679688D+04-1.543292045593D+00 1.862645149231D-09 1.000000000000D+00\n"
+    "    1.510979541016D+04-2.684219360352D+00-9.313225746155D-10 0.000000000000D+00\n"
+)
+
+
+def test_v2_glonass(tmp_path):
+    # the R01 record of mixed_v304.rnx in the RINEX 2.11 GLONASS layout (frame time as seconds of day)
+    nav = read_nav(_write(tmp_path, V2_GLO, "t.13g"))
+    r = nav.records["R"].iloc[0]
+    assert r.sat == "R01" and r.toc_ns == civil_to_ns(2013, 1, 1, 0, 15, 0)
+    assert r.tk_ns == civil_to_ns(2013, 1, 1, 0, 0, 0)
+    assert r.vz_mps == -2.684219360352e00 * 1000.0
+    assert nav.header.time_corrections["GLUT"]["a0_s"] == -1.657754182800e-07
+
+
+def test_v3_bad_epoch_reported(tmp_path, test_data):
+    text = (test_data / "nav" / "mixed_v304.rnx").read_text()
+    text = text.replace("C01 2022 01 01 01 00 00", "C01 2022 13 01 01 00 00")
+    p = _write(tmp_path, text, "bad.rnx")
+    with pytest.raises(RinexFormatError) as ei:
+        read_nav(p)
+    assert "epoch" in ei.value.expected
+    assert text.splitlines()[ei.value.line - 1].startswith("C01 2022 13")
