@@ -4,7 +4,10 @@ Readers
 -------
 * :func:`read_sp3` — SP3-c and SP3-d (SP3-a/-b headers are accepted too):
   positions, clocks, optional velocity records, standard deviations, the
-  clock-event / clock-prediction / manoeuvre / orbit-prediction flags, any
+  clock-event / clock-prediction / manoeuvre / orbit-prediction flags
+  (columns 75, 76, 79, 80 of the ``P`` record; a clock event is read as a
+  discontinuity since the previous epoch, as recalled from the SP3-c
+  document — from memory), any
   mix of systems, any compression :mod:`ctt.rinex.compression` opens.
   Format layout: the SP3-c (Hilla 2010) and SP3-d (Hilla 2016) format
   documents. Bad or absent values are flagged there as ``0.000000`` for a
@@ -915,25 +918,34 @@ def _lagrange(u: np.ndarray, nodes: np.ndarray):
     """Lagrange basis values and derivatives at ``u`` (N,) for nodes (N, K), same units.
 
     Returns ``(w, dw)`` each (N, K): value = Σ w_k y_k, derivative = Σ dw_k y_k.
-    Loops run over the K window points only (vectorised over N).
+    Numerators Π_{k≠j}(u − u_k) come from prefix and suffix products (and
+    their derivatives by the product rule), so nothing divides by u − u_j
+    and the basis is exact at the nodes. Loops run over the K window points
+    only (vectorised over N); when every row has the same node pattern (a
+    regular grid) the denominators are computed once.
     """
-    n_pts = nodes.shape[1]
-    d = u[:, None] - nodes                     # (N, K)
-    w = np.empty_like(nodes)
-    dw = np.empty_like(nodes)
-    for j in range(n_pts):
-        num = np.ones_like(u)
-        dnum = np.zeros_like(u)
-        den = np.ones_like(u)
-        for k in range(n_pts):
-            if k == j:
-                continue
-            dnum = dnum * d[:, k] + num
-            num = num * d[:, k]
-            den = den * (nodes[:, j] - nodes[:, k])
-        w[:, j] = num / den
-        dw[:, j] = dnum / den
-    return w, dw
+    n, k_pts = nodes.shape
+    d = np.ascontiguousarray((u[:, None] - nodes).T)         # (K, N): rows are contiguous
+    pre = np.empty((k_pts, n))
+    dpre = np.empty((k_pts, n))
+    suf = np.empty((k_pts, n))
+    dsuf = np.empty((k_pts, n))
+    pre[0], dpre[0], suf[-1], dsuf[-1] = 1.0, 0.0, 1.0, 0.0
+    for j in range(1, k_pts):
+        np.multiply(pre[j - 1], d[j - 1], out=pre[j])
+        dpre[j] = dpre[j - 1] * d[j - 1] + pre[j - 1]
+        i = k_pts - 1 - j
+        np.multiply(suf[i + 1], d[i + 1], out=suf[i])
+        dsuf[i] = dsuf[i + 1] * d[i + 1] + suf[i + 1]
+    num = (pre * suf).T
+    dnum = (dpre * suf + pre * dsuf).T
+    regular = n > 0 and bool(np.all(nodes == nodes[:1]))
+    base = nodes[:1] if regular else nodes
+    diff = base[:, :, None] - base[:, None, :]               # (1 or N, K, K)
+    idx = np.arange(k_pts)
+    diff[:, idx, idx] = 1.0
+    den = diff.prod(axis=2)
+    return num / den, dnum / den
 
 
 def _columns(names: np.ndarray, wanted: np.ndarray) -> np.ndarray:
@@ -1200,7 +1212,7 @@ class PreciseOrbits:
             tgd_s=nan.copy(), bgd_e5a_s=nan.copy(), bgd_e5b_s=nan.copy(), tgd1_s=nan.copy(), tgd2_s=nan.copy(),
             iode=np.full(n, -1, dtype=np.int64), status=status,
             toe_gps_ns=np.full(n, np.iinfo(np.int64).min, dtype=np.int64), record=np.full(n, -1, dtype=np.int64),
-            system=np.array([x[:1] for x in sats], dtype="U1") if n else np.zeros(0, "U1"),
+            system=sats.astype("U1"),
             system_time_offset_s=np.zeros(n),
             sats=sats, t_ns=t_ns, dt_s=dt_s, pos_status=pst, clock_status=cst, pco_applied=applied)
 
