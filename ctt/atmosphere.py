@@ -36,7 +36,7 @@ longer by this amount.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -246,3 +246,347 @@ def klobuchar_delay_s(alpha, beta, lat_rad, lon_rad, az_rad, el_rad, gps_sow):
 def scale_iono_to_frequency(delay_l1, f_hz):
     """First-order ionospheric group delay scales as 1/f²: ``delay · (f_L1/f)²``."""
     return np.asarray(delay_l1, dtype=float) * (F_L1_HZ / np.asarray(f_hz, dtype=float)) ** 2
+
+
+# ---------------------------------------------------------------- ionosphere: constants, pierce point
+
+#: First-order ionospheric constant K = e²/(8π² ε0 m_e) in m³/s² (CODATA 2018 constants):
+#: group delay [m] = K · TEC [el/m²] / f² — the "40.3" of common practice.
+_E_CHARGE = 1.602176634e-19
+_EPS0 = 8.8541878128e-12
+_M_E = 9.1093837015e-31
+IONO_K = _E_CHARGE**2 / (8.0 * np.pi**2 * _EPS0 * _M_E)
+TECU = 1.0e16  # electrons per m² in one TEC unit
+
+
+def tec_to_delay_m(tec_tecu, f_hz):
+    """First-order group delay (m) of a slant TEC (TECU) at frequency ``f_hz``: K·TEC/f²."""
+    return IONO_K * np.asarray(tec_tecu, dtype=float) * TECU / np.asarray(f_hz, dtype=float) ** 2
+
+
+def pierce_point(lat_rad, lon_rad, az_rad, el_rad, shell_height_m=450e3, radius_m=6371e3):
+    """Ionospheric pierce point of a ray on a spherical thin shell.
+
+    Returns ``(lat_ipp_rad, lon_ipp_rad, zenith_ipp_rad)``: the pierce point's
+    latitude and longitude and the ray's zenith angle there,
+    ``sin z' = R/(R+H) · cos E``. The Earth-central angle is
+    ``ψ = π/2 − E − z'``; the point follows from spherical trigonometry
+    (``sin φ' = sin φ cos ψ + cos φ sin ψ cos A``; longitude by atan2, which
+    stays well defined near the poles). ``radius_m`` should be the IONEX file's
+    BASE RADIUS when used with its maps.
+    """
+    lat = np.asarray(lat_rad, dtype=float)
+    lon = np.asarray(lon_rad, dtype=float)
+    az = np.asarray(az_rad, dtype=float)
+    el = np.asarray(el_rad, dtype=float)
+    sin_z = radius_m / (radius_m + shell_height_m) * np.cos(el)
+    z_ipp = np.arcsin(sin_z)
+    psi = np.pi / 2.0 - el - z_ipp
+    sin_lat = np.sin(lat) * np.cos(psi) + np.cos(lat) * np.sin(psi) * np.cos(az)
+    lat_ipp = np.arcsin(np.clip(sin_lat, -1.0, 1.0))
+    dlon = np.arctan2(np.sin(psi) * np.sin(az) * np.cos(lat), np.cos(psi) - np.sin(lat) * sin_lat)
+    lon_ipp = np.mod(lon + dlon + np.pi, 2.0 * np.pi) - np.pi
+    return lat_ipp, lon_ipp, z_ipp
+
+
+def single_layer_mapping(el_rad, shell_height_m=450e3, radius_m=6371e3):
+    """Single-layer (thin shell) mapping STEC/VTEC = 1/cos z', sin z' = R/(R+H) cos E
+    (the IONEX "COSZ" mapping function evaluated at the shell)."""
+    sin_z = radius_m / (radius_m + shell_height_m) * np.cos(np.asarray(el_rad, dtype=float))
+    return 1.0 / np.sqrt(1.0 - sin_z * sin_z)
+
+
+# ---------------------------------------------------------------- IONEX
+
+@dataclass(frozen=True)
+class IonexMaps:
+    """Vertical TEC maps of an IONEX file (2-D maps only).
+
+    ``tec_tecu``: ``(n_map, n_lat, n_lon)`` TEC units (NaN where the file has
+    9999); ``rms_tecu`` the same shape or ``None``; ``lat_deg`` ascending or
+    descending as in the file; ``epochs_ns`` int64 (the file's epochs, GPS
+    time is assumed: IONEX 1.0 epochs are UT, which differs from GPS by the
+    leap seconds, 18 s in 2021 — a 0.3 % shift of the hourly interpolation
+    weight, far below the maps' accuracy; see ``time_scale``).
+    """
+
+    path: str
+    epochs_ns: np.ndarray
+    lat_deg: np.ndarray
+    lon_deg: np.ndarray
+    tec_tecu: np.ndarray
+    rms_tecu: np.ndarray | None
+    height_m: float  #: shell height HGT1
+    base_radius_m: float
+    mapping_function: str
+    elevation_cutoff_deg: float
+    time_scale: str = "UTC"
+
+
+def _f(line, a, b, path, lineno, what):
+    try:
+        return float(line[a:b])
+    except ValueError:
+        raise ProductFormatError(path, lineno, what, line) from None
+
+
+def _i(line, a, b, path, lineno, what):
+    try:
+        return int(line[a:b])
+    except ValueError:
+        raise ProductFormatError(path, lineno, what, line) from None
+
+
+def _epoch6(line, path, lineno):
+    from . import timescales as ts
+
+    v = [_i(line, 6 * k, 6 * k + 6, path, lineno, "an epoch as 6I6 (year month day hour min sec)") for k in range(6)]
+    return int(ts.civil_to_ns(*v))
+
+
+def read_ionex(path, *, time_scale="UTC") -> IonexMaps:
+    """Read an IONEX 1.0 file: header, TEC maps, optional RMS maps.
+
+    Handles the header's and each map's ``EXPONENT`` records, values 9999
+    (no value), ``16I5`` data lines per latitude band, ``START/END OF AUX
+    DATA`` blocks (skipped). Height maps and 3-D maps (MAP DIMENSION 3) are
+    rejected with a :class:`~ctt.errors.ProductFormatError`. ``time_scale``
+    names the scale of the file's epochs (IONEX 1.0: UT, taken as UTC); the
+    epochs are stored converted to GPS time.
+    """
+    import pathlib
+
+    from . import timescales as ts
+    from .rinex.compression import read_text
+
+    path = pathlib.Path(path)
+    lines = read_text(path).splitlines()
+    if not lines or lines[0][60:80].strip() != "IONEX VERSION / TYPE":
+        raise ProductFormatError(path, 1, "'IONEX VERSION / TYPE' in columns 61-80",
+                                 lines[0] if lines else "an empty file")
+    if lines[0][20:21] != "I":
+        raise ProductFormatError(path, 1, "file type 'I' in column 21", lines[0])
+    hdr = {}
+    exponent = -1
+    n_maps = None
+    end = None
+    i = 1
+    while i < len(lines):
+        line = lines[i]
+        lineno = i + 1
+        label = line[60:80].strip()
+        if label == "START OF AUX DATA":
+            while i < len(lines) and lines[i][60:80].strip() != "END OF AUX DATA":
+                i += 1
+        elif label == "HGT1 / HGT2 / DHGT":
+            hdr["hgt"] = tuple(_f(line, 2 + 6 * k, 8 + 6 * k, path, lineno, "HGT1/HGT2/DHGT as 2X,3F6.1") for k in range(3))
+        elif label == "LAT1 / LAT2 / DLAT":
+            hdr["lat"] = tuple(_f(line, 2 + 6 * k, 8 + 6 * k, path, lineno, "LAT1/LAT2/DLAT as 2X,3F6.1") for k in range(3))
+        elif label == "LON1 / LON2 / DLON":
+            hdr["lon"] = tuple(_f(line, 2 + 6 * k, 8 + 6 * k, path, lineno, "LON1/LON2/DLON as 2X,3F6.1") for k in range(3))
+        elif label == "EXPONENT":
+            exponent = _i(line, 0, 6, path, lineno, "EXPONENT as I6")
+        elif label == "BASE RADIUS":
+            hdr["radius"] = _f(line, 0, 8, path, lineno, "BASE RADIUS as F8.1 (km)")
+        elif label == "MAP DIMENSION":
+            if _i(line, 0, 6, path, lineno, "MAP DIMENSION as I6") != 2:
+                raise ProductFormatError(path, lineno, "2-dimensional maps (MAP DIMENSION 2)", line)
+        elif label == "# OF MAPS IN FILE":
+            n_maps = _i(line, 0, 6, path, lineno, "# OF MAPS IN FILE as I6")
+        elif label == "MAPPING FUNCTION":
+            hdr["mapping"] = line[2:6].strip()
+        elif label == "ELEVATION CUTOFF":
+            hdr["cutoff"] = _f(line, 0, 8, path, lineno, "ELEVATION CUTOFF as F8.1")
+        elif label == "END OF HEADER":
+            end = i
+            break
+        i += 1
+    if end is None:
+        raise ProductFormatError(path, len(lines), "'END OF HEADER'", "end of file")
+    for key, label in (("hgt", "HGT1 / HGT2 / DHGT"), ("lat", "LAT1 / LAT2 / DLAT"),
+                       ("lon", "LON1 / LON2 / DLON"), ("radius", "BASE RADIUS")):
+        if key not in hdr:
+            raise ProductFormatError(path, end + 1, f"a '{label}' header record", "none before END OF HEADER")
+    lat1, lat2, dlat = hdr["lat"]
+    lon1, lon2, dlon = hdr["lon"]
+    if dlat == 0 or dlon == 0:
+        raise ProductFormatError(path, end + 1, "non-zero DLAT and DLON", f"{dlat}, {dlon}")
+    n_lat = int(round((lat2 - lat1) / dlat)) + 1
+    n_lon = int(round((lon2 - lon1) / dlon)) + 1
+    lat_grid = lat1 + dlat * np.arange(n_lat)
+    lon_grid = lon1 + dlon * np.arange(n_lon)
+    rows_per_band = (n_lon + 15) // 16
+
+    maps = {"TEC": {}, "RMS": {}}
+    i = end + 1
+    while i < len(lines):
+        line = lines[i]
+        label = line[60:80].strip()
+        if label in ("START OF TEC MAP", "START OF RMS MAP", "START OF HEIGHT MAP"):
+            kind = label.split()[2]
+            if kind == "HEIGHT":
+                raise ProductFormatError(path, i + 1, "TEC or RMS maps (height maps are not supported)", line)
+            idx = _i(line, 0, 6, path, i + 1, "the map index as I6")
+            stop = f"END OF {kind} MAP"
+            grid = np.full((n_lat, n_lon), np.nan)
+            epoch = None
+            exp_map = exponent
+            band = 0
+            i += 1
+            while i < len(lines) and lines[i][60:80].strip() != stop:
+                line = lines[i]
+                lab = line[60:80].strip()
+                if lab == "EPOCH OF CURRENT MAP":
+                    epoch = _epoch6(line, path, i + 1)
+                elif lab == "EXPONENT":
+                    exp_map = _i(line, 0, 6, path, i + 1, "EXPONENT as I6")
+                elif lab == "LAT/LON1/LON2/DLON/H":
+                    lat = _f(line, 2, 8, path, i + 1, "LAT as 2X,F6.1")
+                    j = int(round((lat - lat1) / dlat))
+                    if not 0 <= j < n_lat or abs(lat_grid[j] - lat) > 1e-6:
+                        raise ProductFormatError(path, i + 1, f"a latitude of the grid {lat1}..{lat2} step {dlat}", line)
+                    data = lines[i + 1:i + 1 + rows_per_band]
+                    if len(data) < rows_per_band:
+                        raise ProductFormatError(path, len(lines), f"{rows_per_band} data line(s) of 16I5", "end of file")
+                    text = "".join(d[:80].ljust(80) for d in data)
+                    chars = np.frombuffer(text.encode("latin-1"), dtype=np.uint8).reshape(-1, 5)[:n_lon]
+                    fields = np.char.strip(np.ascontiguousarray(chars).view("S5").ravel())
+                    if np.any(fields == b""):
+                        raise ProductFormatError(path, i + 2, f"{n_lon} values as 16I5 per latitude band",
+                                                 data[0])
+                    try:
+                        vals = fields.astype(np.int64)
+                    except ValueError:
+                        raise ProductFormatError(path, i + 2, "integer values as 16I5", data[0]) from None
+                    row = vals.astype(float) * 10.0 ** exp_map
+                    row[vals == 9999] = np.nan
+                    grid[j] = row
+                    band += 1
+                    i += rows_per_band
+                i += 1
+            if i >= len(lines):
+                raise ProductFormatError(path, len(lines), f"'{stop}'", "end of file")
+            if epoch is None:
+                raise ProductFormatError(path, i + 1, "an 'EPOCH OF CURRENT MAP' record in the map", lines[i])
+            if band != n_lat:
+                raise ProductFormatError(path, i + 1, f"{n_lat} latitude bands in the map", f"{band}")
+            maps[kind][idx] = (epoch, grid)
+        elif label == "END OF FILE":
+            break
+        i += 1
+    if not maps["TEC"]:
+        raise ProductFormatError(path, None, "at least one TEC map", "none")
+    order = sorted(maps["TEC"])
+    if n_maps is not None and len(order) != n_maps:
+        raise ProductFormatError(path, None, f"{n_maps} TEC maps ('# OF MAPS IN FILE')", f"{len(order)}")
+    epochs = np.array([maps["TEC"][k][0] for k in order], dtype=np.int64)
+    tec = np.stack([maps["TEC"][k][1] for k in order])
+    rms = None
+    if maps["RMS"]:
+        rms = np.stack([maps["RMS"][k][1] if k in maps["RMS"] else np.full((n_lat, n_lon), np.nan) for k in order])
+    scale = ts.normalise_scale(time_scale)
+    epochs_gps = epochs if scale == "GPS" else ts.convert(epochs, scale, "GPS")
+    if np.any(np.diff(epochs_gps) <= 0):
+        raise ProductFormatError(path, None, "map epochs in increasing order", epochs.tolist())
+    return IonexMaps(path=str(path), epochs_ns=np.asarray(epochs_gps, dtype=np.int64), lat_deg=lat_grid,
+                     lon_deg=lon_grid, tec_tecu=tec, rms_tecu=rms, height_m=hdr["hgt"][0] * 1e3,
+                     base_radius_m=hdr["radius"] * 1e3, mapping_function=hdr.get("mapping", "NONE"),
+                     elevation_cutoff_deg=hdr.get("cutoff", 0.0), time_scale=scale)
+
+
+def _bilinear(grid, lat_grid, lon_grid, lat_deg, lon_deg):
+    """Bilinear interpolation on one map (IONEX 1.0 eq. 2); grid (n_lat, n_lon)."""
+    # latitudes: make ascending
+    if lat_grid[-1] < lat_grid[0]:
+        lat_grid = lat_grid[::-1]
+        grid = grid[::-1]
+    dlat = lat_grid[1] - lat_grid[0] if lat_grid.size > 1 else 1.0
+    dlon = lon_grid[1] - lon_grid[0] if lon_grid.size > 1 else 1.0
+    if lon_grid[-1] < lon_grid[0]:
+        lon_grid = lon_grid[::-1]
+        grid = grid[:, ::-1]
+        dlon = -dlon
+    span = lon_grid[-1] - lon_grid[0]
+    lon = np.asarray(lon_deg, dtype=float)
+    if abs(span - 360.0) < 1e-6 or span + dlon >= 360.0 - 1e-6:
+        lon = lon_grid[0] + np.mod(lon - lon_grid[0], 360.0)
+    lat = np.clip(np.asarray(lat_deg, dtype=float), lat_grid[0], lat_grid[-1])  # beyond the last band: hold
+    x = (lon - lon_grid[0]) / dlon
+    y = (lat - lat_grid[0]) / dlat
+    outside = (x < -1e-9) | (x > lon_grid.size - 1 + 1e-9)
+    ix = np.clip(np.floor(x).astype(int), 0, max(lon_grid.size - 2, 0))
+    iy = np.clip(np.floor(y).astype(int), 0, max(lat_grid.size - 2, 0))
+    p = x - ix
+    q = y - iy
+    ix1 = np.minimum(ix + 1, lon_grid.size - 1)
+    iy1 = np.minimum(iy + 1, lat_grid.size - 1)
+    e00 = grid[iy, ix]
+    e10 = grid[iy, ix1]
+    e01 = grid[iy1, ix]
+    e11 = grid[iy1, ix1]
+    val = (1 - p) * (1 - q) * e00 + p * (1 - q) * e10 + q * (1 - p) * e01 + p * q * e11
+    return np.where(outside, np.nan, val)
+
+
+def ionex_vtec_tecu(maps: IonexMaps, t_ns, lat_rad, lon_rad, *, rotate=True, rms=False):
+    """Vertical TEC (TECU) at epochs and places, interpolated in space and time.
+
+    Space: bilinear between the four surrounding grid points (IONEX 1.0,
+    eq. 2). Time: between the two maps bracketing the epoch; with
+    ``rotate=True`` (the IONEX 1.0 recommendation, its eq. 3) each map is
+    first rotated about the polar axis by the Earth-Sun angle elapsed since
+    its epoch, ``λ' = λ + (t − T_i) · 360°/day``, so that the Sun-fixed
+    ionosphere pattern is interpolated instead of blurred; ``rotate=False``
+    gives plain linear interpolation in time. Epochs outside the maps' span
+    raise :class:`~ctt.errors.OutOfSpanError`. Latitudes beyond the last grid
+    band take that band's values; longitudes outside a regional grid give NaN.
+    ``rms=True`` interpolates the RMS maps instead.
+    """
+    grids = maps.rms_tecu if rms else maps.tec_tecu
+    if grids is None:
+        raise OutOfSpanError(f"{maps.path}: the file has no RMS maps")
+    t = np.asarray(t_ns, dtype=np.int64)
+    lat = np.degrees(np.asarray(lat_rad, dtype=float))
+    lon = np.degrees(np.asarray(lon_rad, dtype=float))
+    t, lat, lon = np.broadcast_arrays(t, lat, lon)
+    ep = maps.epochs_ns
+    if np.any(t < ep[0]) or np.any(t > ep[-1]):
+        bad = t[(t < ep[0]) | (t > ep[-1])].ravel()[0]
+        from . import timescales as ts
+
+        raise OutOfSpanError(f"{maps.path}: epoch {ts.to_iso(bad)} GPS outside the maps' span "
+                             f"{ts.to_iso(ep[0])}..{ts.to_iso(ep[-1])}")
+    if ep.size == 1:
+        return _bilinear(grids[0], maps.lat_deg, maps.lon_deg, lat, lon)
+    i = np.clip(np.searchsorted(ep, t, side="right") - 1, 0, ep.size - 2)
+    t0 = ep[i]
+    t1 = ep[i + 1]
+    w = (t - t0).astype(float) / (t1 - t0).astype(float)
+    out = np.full(t.shape, np.nan)
+    deg_per_ns = 360.0 / 86400e9
+    for k in np.unique(i):  # loop over the (few) map intervals, vectorised inside
+        sel = i == k
+        if rotate:
+            lam0 = lon[sel] + (t[sel] - ep[k]).astype(float) * deg_per_ns
+            lam1 = lon[sel] + (t[sel] - ep[k + 1]).astype(float) * deg_per_ns
+        else:
+            lam0 = lam1 = lon[sel]
+        e0 = _bilinear(grids[k], maps.lat_deg, maps.lon_deg, lat[sel], lam0)
+        e1 = _bilinear(grids[k + 1], maps.lat_deg, maps.lon_deg, lat[sel], lam1)
+        out[sel] = (1.0 - w[sel]) * e0 + w[sel] * e1
+    return out
+
+
+def ionex_slant_delay_m(maps: IonexMaps, t_ns, lat_rad, lon_rad, az_rad, el_rad, f_hz, *, rotate=True):
+    """Slant ionospheric group delay (m) at frequency ``f_hz`` from IONEX maps.
+
+    Pierce point on the file's shell (HGT1, BASE RADIUS), vertical TEC there
+    (:func:`ionex_vtec_tecu`), single-layer mapping ``1/cos z'``
+    (:func:`single_layer_mapping`), and ``K · STEC / f²``. Arguments broadcast
+    (e.g. ``t`` as ``(n_epoch, 1)`` against ``(n_epoch, n_sat)`` angles).
+    Returns ``(delay_m, stec_tecu)``.
+    """
+    lat_i, lon_i, z = pierce_point(lat_rad, lon_rad, az_rad, el_rad, maps.height_m, maps.base_radius_m)
+    vtec = ionex_vtec_tecu(maps, t_ns, lat_i, lon_i, rotate=rotate)
+    stec = vtec / np.cos(z)
+    return tec_to_delay_m(stec, f_hz), stec

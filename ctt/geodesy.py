@@ -509,10 +509,9 @@ def solid_tide_displacement(station_ecef_m, t_ns, sun_ecef=None, moon_ecef=None,
     if step2:
         _, d_tt = _julian_days_since_j2000(utc)
         tcent = d_tt / 36525.0
-        mjd, sod = ts.to_mjd(utc)
+        _, sod = ts.to_mjd(utc)
         fhr = sod / 3600.0  # UT hours of day
         args = _fundamental_args_deg(tcent)  # (n, 5)
-        s_deg = args[:, 0]
         tau = (fhr * 15.0 + 280.4606184 + 36000.7700536 * tcent + 0.00038793 * tcent**2
                - 0.0000000258 * tcent**3 - (218.31664563 + 481267.88194 * tcent
                                             - 0.0014663889 * tcent**2 + 0.00000185139 * tcent**3))
@@ -532,5 +531,5 @@ def solid_tide_displacement(station_ecef_m, t_ns, sun_ecef=None, moon_ecef=None,
         dr3 = p2lat * (ct @ tab[:, 5] + st @ tab[:, 6])
         dn3 = 2.0 * cosphi * sinphi * (ct @ tab[:, 7] + st @ tab[:, 8])
         disp += 1e-3 * to_ecef(dr3, np.zeros(n), dn3)
-        del s_deg, mjd
+
     return disp

@@ -94,3 +94,25 @@ def test_baseline_geodesic_against_pyproj_geod():
     # chord is shorter than the geodesic over ~6900 km (common practice: chord = 2R sin(s/2R))
     r = 6371e3
     assert abs(bl.chord_m - 2 * r * np.sin(dist / (2 * r))) < 25e3  # spherical approximation, ~0.3 %
+
+
+def test_ionospheric_pierce_point_against_pyproj_geod_on_a_sphere():
+    # The pierce point lies at Earth-central angle ψ along the azimuth A from the
+    # receiver; on a sphere of radius R that is a geodesic of length R·ψ, which
+    # pyproj.Geod (f = 0) computes independently.
+    from pyproj import Geod
+
+    from ctt import atmosphere as atm
+
+    R, H = 6371e3, 450e3
+    rng = np.random.default_rng(9)
+    lat = rng.uniform(-85, 85, 2000)
+    lon = rng.uniform(-180, 180, 2000)
+    az = rng.uniform(0, 360, 2000)
+    el = rng.uniform(5, 90, 2000)
+    la, lo, z = atm.pierce_point(np.radians(lat), np.radians(lon), np.radians(az), np.radians(el), H, R)
+    psi = np.pi / 2 - np.radians(el) - z
+    plon, plat, _ = Geod(a=R, f=0.0).fwd(lon, lat, az, R * psi)
+    # 1e-9 deg ≈ 0.1 mm on the shell: both are closed forms in double precision
+    assert np.max(np.abs(np.degrees(la) - plat)) < 1e-9
+    assert np.max(np.abs((np.degrees(lo) - plon + 180) % 360 - 180)) < 1e-9

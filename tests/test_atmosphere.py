@@ -117,3 +117,118 @@ def test_slant_troposphere_shapes_and_sources():
     assert met.slant_m[1, 2] == pytest.approx(met.zhd_m[1, 0] + met.zwd_m[1, 0], rel=1e-12)
     with pytest.raises(ValueError):
         atm.slant_troposphere(el, 0.8, 950.0, 1, p_hpa=900.0)
+
+
+# ---------------------------------------------------------------- ionosphere
+
+import dataclasses  # noqa: E402
+
+from ctt import timescales as ts  # noqa: E402
+from ctt.errors import OutOfSpanError, ProductFormatError  # noqa: E402
+
+
+def test_tec_to_delay_constant():
+    # K = e²/(8π² ε0 m_e) = 40.308 m³/s² (CODATA 2018; "40.3" is common practice);
+    # 1 TECU on L1 ≈ 0.1624 m (common practice)
+    assert atm.IONO_K == pytest.approx(40.308, abs=1e-3)
+    assert atm.tec_to_delay_m(1.0, 1575.42e6) == pytest.approx(0.1624, abs=1e-4)
+
+
+def test_single_layer_mapping_geometry():
+    R, H = 6371e3, 450e3
+    el = np.radians([90.0, 60.0, 30.0, 10.0, 0.0])
+    m = atm.single_layer_mapping(el, H, R)
+    assert m[0] == pytest.approx(1.0, abs=1e-15)
+    # independent geometry: length of the ray inside a thin shell H ± 1 m, divided by 2 m
+    d = 1.0
+    for e, mm in zip(el, m):
+        def reach(r):  # distance from the ground point to the sphere of radius r along elevation e
+            return -R * np.sin(e) + np.sqrt((R * np.sin(e)) ** 2 + r**2 - R**2)
+        assert (reach(R + H + d) - reach(R + H - d)) / (2 * d) == pytest.approx(mm, rel=1e-6)
+
+
+def test_read_hand_written_ionex(test_data):
+    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    assert m.tec_tecu.shape == (3, 4, 17) and m.rms_tecu.shape == (3, 4, 17)
+    assert m.height_m == 450e3 and m.base_radius_m == 6371e3 and m.mapping_function == "COSZ"
+    # file epochs are UT (IONEX 1.0), stored on GPS time: + 18 s in 2021 (IERS Bulletin C)
+    assert m.epochs_ns[0] == ts.civil_to_ns(2021, 1, 1) + 18 * 10**9
+    lat = m.lat_deg[:, None]
+    lon = m.lon_deg[None, :]
+    for k in range(3):  # the file's own definition (its COMMENT): 10 + 0.2 lat + 0.1 lon + k TECU
+        expect = 10 + 0.2 * lat + 0.1 * lon + k
+        got = m.tec_tecu[k]
+        ok = np.isfinite(got)
+        assert np.allclose(got[ok], expect[ok], atol=1e-12)
+    assert np.isnan(m.tec_tecu[0, 3, 16])  # 9999 = no value (IONEX 1.0)
+    assert np.isfinite(m.tec_tecu[0]).sum() == 4 * 17 - 1
+    assert np.allclose(m.rms_tecu[:, 0, 0], [2.0, 2.1, 2.2])
+
+
+def test_ionex_interpolation(test_data):
+    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    T0, T1 = m.epochs_ns[0], m.epochs_ns[1]
+    # bilinear at a map epoch, off the grid: exact for the file's linear field (IONEX 1.0 eq. 2)
+    v = atm.ionex_vtec_tecu(m, T1, np.radians(47.3), np.radians(3.7))
+    assert v == pytest.approx(10 + 0.2 * 47.3 + 0.1 * 3.7 + 1, abs=1e-12)
+    # map 3 uses its own EXPONENT -2
+    assert atm.ionex_vtec_tecu(m, m.epochs_ns[2], np.radians(40.0), 0.0) == pytest.approx(20.0, abs=1e-12)
+    # rotated-map time interpolation (IONEX 1.0 eq. 3) against a hand evaluation on a
+    # field with structure in longitude: 20 min after T0 the Earth has turned 5° (one
+    # grid step) relative to the Sun, and 100 min before T1 it is 25° (five steps)
+    rng = np.random.default_rng(4)
+    tec = rng.uniform(5, 50, m.tec_tecu.shape)
+    mr = dataclasses.replace(m, tec_tecu=tec)
+    t = T0 + 20 * 60 * 10**9
+    w = 20 / 120
+    j40 = 2  # latitude 40° is row 2 (60, 50, 40, 30)
+    j0 = 8  # longitude 0° is column 8 (-40 .. 40 by 5)
+    got = atm.ionex_vtec_tecu(mr, t, np.radians(40.0), 0.0)
+    assert got == pytest.approx((1 - w) * tec[0, j40, j0 + 1] + w * tec[1, j40, j0 - 5], rel=1e-12)
+    plain = atm.ionex_vtec_tecu(mr, t, np.radians(40.0), 0.0, rotate=False)
+    assert plain == pytest.approx((1 - w) * tec[0, j40, j0] + w * tec[1, j40, j0], rel=1e-12)
+    # RMS maps interpolate the same way
+    assert atm.ionex_vtec_tecu(m, T0, np.radians(45.0), 0.0, rms=True) == pytest.approx(2.0)
+    # outside the maps' span: error naming the file
+    with pytest.raises(OutOfSpanError, match="hand0010.21i"):
+        atm.ionex_vtec_tecu(m, T0 - 10**9, 0.8, 0.0)
+    # outside a regional grid: NaN, not an extrapolated number
+    assert np.isnan(atm.ionex_vtec_tecu(m, T1, np.radians(45.0), np.radians(60.0)))
+    # vectorised over epochs × satellites
+    tt = T0 + np.arange(10)[:, None] * 600 * 10**9
+    vv = atm.ionex_vtec_tecu(m, tt, np.radians(np.full((1, 5), 45.0)), np.radians(np.linspace(-10, 10, 5))[None, :])
+    assert vv.shape == (10, 5) and np.all(np.isfinite(vv))
+
+
+def test_ionex_slant_delay(test_data):
+    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    t = m.epochs_ns[1]
+    lat, lon = np.radians(45.0), np.radians(2.0)
+    d, stec = atm.ionex_slant_delay_m(m, t, lat, lon, 0.0, np.pi / 2, 1575.42e6)
+    vtec = 10 + 0.2 * 45 + 0.1 * 2 + 1
+    assert stec == pytest.approx(vtec, rel=1e-9)
+    assert d == pytest.approx(atm.IONO_K * vtec * 1e16 / 1575.42e6**2, rel=1e-9)
+    d30, s30 = atm.ionex_slant_delay_m(m, t, lat, lon, np.radians(180.0), np.radians(30.0), 1227.60e6)
+    lat_i, lon_i, z = atm.pierce_point(lat, lon, np.radians(180.0), np.radians(30.0), 450e3, 6371e3)
+    assert np.degrees(lat_i) < 45.0 and lon_i == pytest.approx(lon, abs=1e-12)  # due south
+    v_ipp = 10 + 0.2 * np.degrees(lat_i) + 0.1 * 2 + 1
+    assert s30 == pytest.approx(v_ipp * atm.single_layer_mapping(np.radians(30.0)), rel=1e-9)
+
+
+def test_ionex_format_errors(tmp_path, test_data):
+    text = (test_data / "atmosphere" / "hand0010.21i").read_text()
+    p = tmp_path / "bad.21i"
+    p.write_text(text.replace("  180  185  190", "  180  18x  190", 1))
+    with pytest.raises(ProductFormatError, match=r"bad.21i:22: expected integer values"):
+        atm.read_ionex(p)
+    p.write_text(text.replace("     3                                                      # OF MAPS",
+                              "     4                                                      # OF MAPS"))
+    with pytest.raises(ProductFormatError, match="4 TEC maps"):
+        atm.read_ionex(p)
+    p.write_text(text.replace("     2                                                      MAP DIMENSION",
+                              "     3                                                      MAP DIMENSION"))
+    with pytest.raises(ProductFormatError, match="MAP DIMENSION 2"):
+        atm.read_ionex(p)
+    p.write_text(text.replace("    50.0 -40.0", "    55.0 -40.0", 1))
+    with pytest.raises(ProductFormatError, match="latitude of the grid"):
+        atm.read_ionex(p)
