@@ -1,0 +1,726 @@
+"""Exports: offset tables (CSV/Parquet/JSON), the open CV exchange format, event-time correction.
+
+Offset tables
+=============
+
+:func:`write_offsets` writes the columns ``time_utc`` (ISO 8601 with ``Z``; 9
+fractional digits only when some instant has a sub-second part), ``mjd_utc``,
+``offset_ns`` (clock A minus clock B), ``u_ns``, ``n_sat``, ``flag`` (and
+``system`` when the table has it). The CSV reads with ``pandas.read_csv(path)``
+and no options; floats are written with their shortest round-trip text.
+
+Exchange format (CGGTTS version 2E)
+===================================
+
+:func:`write_cggtts` / :func:`read_cggtts` handle per-track files of the time
+community's open common-view exchange format, version 2E (CCTF/BIPM; published
+in Metrologia 52 (2015) G1). Track tables use these columns (scaled on writing
+to the format's integer units, shown in brackets):
+
+===========  =================================================  ==========
+column       meaning                                            file unit
+===========  =================================================  ==========
+sat          satellite, RINEX 3 id ('G07')                      SAT
+cl           common-view class, two hex digits (str, 'FF')      CL
+mjd          MJD of the track start (int)                       MJD
+sttime       start time 'hhmmss' (str, UTC)                     STTIME
+trkl_s       track length, s (int)                              TRKL
+elv_deg      elevation at mid-track, deg                        0.1 deg
+azth_deg     azimuth at mid-track, deg                          0.1 deg
+refsv_ns     local reference - satellite time at mid-track, ns  0.1 ns
+srsv_ps_s    slope of refsv, ps/s                               0.1 ps/s
+refsys_ns    local reference - system time at mid-track, ns     0.1 ns
+srsys_ps_s   slope of refsys, ps/s                              0.1 ps/s
+dsg_ns       rms of the fit residuals, ns                       0.1 ns
+ioe          ephemeris issue (int)                              IOE
+mdtr_ns      modelled troposphere delay, ns                     0.1 ns
+smdt_ps_s    its slope, ps/s                                    0.1 ps/s
+mdio_ns      modelled ionosphere delay, ns                      0.1 ns
+smdi_ps_s    its slope, ps/s                                    0.1 ps/s
+msio_ns      measured ionosphere delay, ns                      0.1 ns
+smsi_ps_s    its slope, ps/s                                    0.1 ps/s
+isg_ns       rms of the measured-ionosphere residuals, ns       0.1 ns
+fr           GLONASS frequency channel (int; 0 otherwise)       FR
+hc           receiver hardware channel (int)                    HC
+frc          frequency code, e.g. 'L3P' (str)                   FRC
+===========  =================================================  ==========
+
+A value that is not available (NaN) is written as a field of 9s, which the
+reader maps back to NaN. Files without the measured-ionosphere columns (MSIO,
+SMSI, ISG) are read too (NaN there); the writer always writes them.
+
+Checksums (from memory of the format document): the header checksum ``CKSUM``
+is the sum of the ASCII codes of every character of the header lines from the
+first line up to and including ``CKSUM = `` (line ends excluded), modulo 256,
+written as two hex digits; each data line's ``CK`` is the same sum over all
+characters before the CK field (columns 1..125 of the line with measured
+ionosphere). The reader verifies both and raises
+:class:`ctt.errors.FileFormatError` with the line number on a mismatch.
+
+Event-time correction
+=====================
+
+The pair series is *offset = clock A - clock B*. A timestamp taken with a
+site's clock at a physical instant t is t + clock_site, so
+
+* an event stamped on B's clock, in A's scale: ``t_A = t_B + offset(t)``;
+* an event stamped on A's clock, in B's scale: ``t_B = t_A - offset(t)``.
+
+``offset(t)`` is linearly interpolated between the two neighbouring usable
+points (flag 'ok', finite value and uncertainty). The per-event standard
+uncertainty combines, in quadrature,
+
+* the interpolated point uncertainty ``u_pts = sqrt(w0^2 u0^2 + w1^2 u1^2)``
+  (linear weights, points independent),
+* the type-B budget ``u_b`` (calibration; common to all events), and
+* the interpolation error ``u_interp = sqrt(3) * TDEV(tau = d)``, d the time
+  to the nearest point. Justification from the definitions (NIST SP 1065):
+  for point samples, the error of linear interpolation midway between two
+  points 2d apart is ``-D2x/2`` (D2 the second difference at lag d), so its
+  mean square is ``<(D2x)^2>/4 = d^2 AVAR(d)/2``; with ``TVAR = d^2 MVAR/3``
+  and ``MVAR = AVAR/2`` for white FM (random-walk phase, the clock noise that
+  dominates between points) this is ``3 TVAR(d)``. For flicker and
+  random-walk FM MVAR/AVAR > 1/2, so the formula is conservative there.
+  TDEV is taken from allantools on the longest gap-free stretch of the series,
+  interpolated log-log in tau; below the series' own spacing tau0 it scales as
+  ``TDEV(tau0) sqrt(d/tau0)`` (white FM; zero at a data point, whose own
+  noise is in ``u_pts``); beyond the largest computed tau it is extrapolated
+  with the last log-log slope, at least +1/2. With TDEV(tau0) at m = 1 (where
+  MVAR = AVAR) the result for white FM is ``D d`` against the true Brownian
+  bridge variance ``D d (tau0 - d)/tau0``: at most a factor sqrt(2) high, at
+  the midpoint (checked in tests/test_exports.py).
+
+Events before the first point, after the last one, or inside a gap longer than
+``max_gap_s`` are refused (``status = 'refused'`` with a ``reason``) rather than
+extrapolated.
+"""
+
+from __future__ import annotations
+
+import io
+import json
+import math
+import pathlib
+import re
+import sys
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from .errors import FileFormatError, NoDataError, ProcessingError, UsageError
+from .timescales import NS_PER_DAY, EPOCH_MJD, from_mjd, parse_iso_array, to_iso, to_mjd, to_mjd_float
+
+__all__ = ["write_offsets", "read_offsets_csv", "write_cggtts", "read_cggtts", "CggttsHeader", "cggtts_checksum",
+           "TRACK_COLUMNS", "read_events", "parse_iso_exact", "parse_mjd_exact", "correct_events",
+           "tdev_from_series", "OUT_FORMATS"]
+
+OUT_FORMATS = ("csv", "parquet", "json")
+C_MPS = 299_792_458.0  # SI
+
+
+# ================================================================ offset tables
+
+def _time_text(t_ns: np.ndarray) -> np.ndarray:
+    digits = 9 if np.any(t_ns % 1_000_000_000) else 0
+    return to_iso(t_ns, digits) if len(t_ns) else np.array([], dtype=str)
+
+
+def _offsets_frame(df: pd.DataFrame) -> pd.DataFrame:
+    if "time_utc_ns" in df.columns:
+        t = df["time_utc_ns"].to_numpy(np.int64)
+    elif "time_utc" in df.columns:
+        t = parse_iso_array(df["time_utc"].astype(str).to_numpy()) if len(df) else np.zeros(0, np.int64)
+    else:
+        raise ProcessingError("offsets table needs a time_utc or time_utc_ns column")
+    out = pd.DataFrame({"time_utc": _time_text(np.asarray(t, dtype=np.int64))})
+    out["mjd_utc"] = df["mjd_utc"].to_numpy(float) if "mjd_utc" in df.columns else to_mjd_float(t)
+    for c in ("offset_ns", "u_ns"):
+        out[c] = df[c].to_numpy(float) if c in df.columns else np.nan
+    out["n_sat"] = df["n_sat"].to_numpy() if "n_sat" in df.columns else pd.NA
+    out["flag"] = df["flag"].astype(str).to_numpy() if "flag" in df.columns else "ok"
+    if "system" in df.columns:
+        out["system"] = df["system"].astype(str).to_numpy()
+    return out
+
+
+def write_offsets(df: pd.DataFrame, path_or_stdout=None, format: str = "csv") -> None:
+    """Write an offsets table as csv, parquet or json (records) to a path, a file object or stdout.
+
+    ``path_or_stdout`` None or '-' means stdout (parquet then goes to the binary stdout).
+    """
+    if format not in OUT_FORMATS:
+        raise UsageError(f"unknown format {format!r}; expected one of {', '.join(OUT_FORMATS)}")
+    out = _offsets_frame(df)
+    to_stdout = path_or_stdout is None or str(path_or_stdout) == "-"
+    if format == "csv":
+        text = out.to_csv(index=False, lineterminator="\n", float_format=None)
+        _emit(text.encode(), path_or_stdout, to_stdout)
+    elif format == "json":
+        # built by hand: pandas' to_json caps float precision; json.dumps keeps repr (round-trip)
+        recs = []
+        for row in out.itertuples(index=False):
+            r = {}
+            for k, v in zip(out.columns, row):
+                if isinstance(v, (float, np.floating)):
+                    v = None if not np.isfinite(v) else float(v)
+                elif isinstance(v, (np.integer,)):
+                    v = int(v)
+                elif v is pd.NA:
+                    v = None
+                r[k] = v
+            recs.append(r)
+        text = json.dumps(recs, separators=(",", ":")) + "\n"
+        _emit(text.encode(), path_or_stdout, to_stdout)
+    else:
+        buf = io.BytesIO()
+        out.to_parquet(buf, index=False)
+        _emit(buf.getvalue(), path_or_stdout, to_stdout)
+
+
+def _emit(data: bytes, target, to_stdout: bool) -> None:
+    if to_stdout:
+        sys.stdout.flush()
+        sys.stdout.buffer.write(data)
+        sys.stdout.buffer.flush()
+    elif hasattr(target, "write"):
+        try:
+            target.write(data)
+        except TypeError:
+            target.write(data.decode())
+    else:
+        p = pathlib.Path(target)
+        tmp = p.with_name(p.name + ".part")
+        tmp.write_bytes(data)
+        tmp.replace(p)  # never a half-written file under the final name
+
+
+def read_offsets_csv(path) -> pd.DataFrame:
+    """Read an offset.csv (as written by :func:`write_offsets` or a run folder) with ``time_utc_ns`` added."""
+    path = pathlib.Path(path)
+    try:
+        df = pd.read_csv(path, dtype={"time_utc": str})
+    except FileNotFoundError:
+        from .errors import MissingInputError
+        raise MissingInputError(f"{path}: offsets file not found") from None
+    except (pd.errors.ParserError, UnicodeDecodeError) as exc:
+        raise FileFormatError(path, None, "a CSV table of offsets", str(exc)) from None
+    for c in ("time_utc", "offset_ns", "u_ns"):
+        if c not in df.columns:
+            raise FileFormatError(path, 1, f"a header with column {c}", ",".join(df.columns))
+    df["time_utc_ns"] = _parse_iso_column(df["time_utc"], path, header_lines=1)
+    return df
+
+
+# ================================================================ exact time parsing
+
+_ISO_EXACT = re.compile(
+    r"^\s*(\d{4})-(\d{2})-(\d{2})[T ](\d{2}):(\d{2}):(\d{2})(?:\.(\d{1,9}))?\s*(?:Z|UTC|\+00:?00)?\s*$")
+
+
+def parse_iso_exact(values) -> np.ndarray:
+    """ISO 8601 UTC strings with up to 9 fractional digits -> int64 ns, by integer arithmetic only.
+
+    Raises ``ValueError`` with the 0-based index of the first bad entry as ``.index``.
+    """
+    s = pd.Series(values, dtype=object).astype(str)
+    parts = s.str.extract(_ISO_EXACT)
+    bad = parts[0].isna().to_numpy()
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        err = ValueError(f"not an ISO 8601 UTC time: {s.iloc[i]!r}")
+        err.index = i
+        raise err
+    y, mo, d, h, mi, sec = (parts[k].astype(np.int64).to_numpy() for k in range(6))
+    frac = parts[6].fillna("").str.ljust(9, "0").replace("", "0").astype(np.int64).to_numpy()
+    if ((mo < 1) | (mo > 12) | (d < 1) | (d > 31) | (h > 23) | (mi > 59) | (sec > 60)).any():
+        i = int(np.flatnonzero((mo < 1) | (mo > 12) | (d < 1) | (d > 31) | (h > 23) | (mi > 59) | (sec > 60))[0])
+        err = ValueError(f"calendar field out of range in {s.iloc[i]!r}")
+        err.index = i
+        raise err
+    from .timescales import civil_to_ns
+    return np.asarray(civil_to_ns(y, mo, d, h, mi, sec, frac), dtype=np.int64)
+
+
+_MJD_EXACT = re.compile(r"^\s*(\d{1,6})(?:\.(\d*))?\s*$")
+
+
+def parse_mjd_exact(values) -> np.ndarray:
+    """MJD text (e.g. '59215.5000000011574') -> int64 UTC ns, rounded to the nearest ns exactly."""
+    s = pd.Series(values, dtype=object).astype(str)
+    out = np.empty(len(s), dtype=np.int64)
+    for i, v in enumerate(s):
+        m = _MJD_EXACT.match(v)
+        if not m:
+            err = ValueError(f"not an MJD number: {v!r}")
+            err.index = i
+            raise err
+        day = int(m.group(1))
+        frac = m.group(2) or ""
+        num = int(frac) if frac else 0
+        den = 10 ** len(frac)
+        ns = (num * NS_PER_DAY * 2 + den) // (2 * den)  # round half up
+        out[i] = (day - EPOCH_MJD) * NS_PER_DAY + ns
+    return out
+
+
+def _parse_iso_column(col, path, header_lines=1) -> np.ndarray:
+    try:
+        return parse_iso_exact(col.to_numpy())
+    except ValueError as exc:
+        i = getattr(exc, "index", None)
+        line = None if i is None else i + 1 + header_lines
+        raise FileFormatError(path, line, "an ISO 8601 UTC time such as 2021-01-01T12:00:00.123456789Z",
+                              col.iloc[i] if i is not None else None) from None
+
+
+def read_events(path) -> pd.DataFrame:
+    """Events CSV with ``time_utc`` (ISO, up to 9 digits) or ``mjd_utc``; other columns carried through.
+
+    Adds ``event_time_utc_ns`` (int64, exact). Bad times -> FileFormatError naming the line.
+    """
+    path = pathlib.Path(path)
+    try:
+        df = pd.read_csv(path, dtype=str, keep_default_na=False)
+    except FileNotFoundError:
+        from .errors import MissingInputError
+        raise MissingInputError(f"{path}: events file not found") from None
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise FileFormatError(path, None, "a CSV table with a time_utc or mjd_utc column", str(exc)) from None
+    if "time_utc" in df.columns:
+        df["event_time_utc_ns"] = _parse_iso_column(df["time_utc"], path)
+    elif "mjd_utc" in df.columns:
+        try:
+            df["event_time_utc_ns"] = parse_mjd_exact(df["mjd_utc"].to_numpy())
+        except ValueError as exc:
+            i = exc.index
+            raise FileFormatError(path, i + 2, "an MJD number such as 59215.5", df["mjd_utc"].iloc[i]) from None
+    else:
+        raise FileFormatError(path, 1, "a header with a time_utc or mjd_utc column", ",".join(df.columns))
+    return df
+
+
+# ================================================================ event correction
+
+def tdev_from_series(time_ns, offset_ns):
+    """TDEV of the series (allantools, longest gap-free stretch at the modal spacing).
+
+    Returns ``(tau_s array, tdev_ns array, tau0_s)``; empty arrays when fewer than 4 points.
+    """
+    import allantools
+
+    t = np.asarray(time_ns, dtype=np.int64)
+    x = np.asarray(offset_ns, dtype=float)
+    if len(t) < 4:
+        return np.zeros(0), np.zeros(0), float("nan")
+    dt = np.diff(t)
+    vals, counts = np.unique(dt, return_counts=True)
+    tau0_ns = int(vals[np.argmax(counts)])
+    breaks = np.flatnonzero(dt != tau0_ns)
+    starts = np.concatenate([[0], breaks + 1])
+    ends = np.concatenate([breaks + 1, [len(t)]])
+    k = int(np.argmax(ends - starts))
+    seg = x[starts[k]:ends[k]]
+    tau0 = tau0_ns / 1e9
+    if len(seg) < 4:
+        return np.zeros(0), np.zeros(0), tau0
+    m = 2 ** np.arange(0, int(np.log2(max((len(seg) - 1) // 3, 1))) + 1)
+    taus, dev, _, _ = allantools.tdev(seg * 1e-9, rate=1.0 / tau0, data_type="phase", taus=m * tau0)
+    ok = np.isfinite(dev) & (dev > 0)
+    return np.asarray(taus)[ok], np.asarray(dev)[ok] * 1e9, tau0
+
+
+def _tdev_at(d_s, taus, tdev_ns, tau0):
+    """TDEV (ns) at distances d_s, per the rules in the module docstring."""
+    d = np.asarray(d_s, dtype=float)
+    if len(taus) == 0:
+        return np.full(d.shape, np.nan)
+    lt, lv = np.log(taus), np.log(tdev_ns)
+    out = np.empty_like(d)
+    small = d < taus[0]
+    out[small] = tdev_ns[0] * np.sqrt(d[small] / taus[0])
+    mid = (~small) & (d <= taus[-1])
+    out[mid] = np.exp(np.interp(np.log(d[mid]), lt, lv))
+    big = d > taus[-1]
+    slope = max((lv[-1] - lv[-2]) / (lt[-1] - lt[-2]), 0.5) if len(taus) > 1 else 0.5
+    out[big] = tdev_ns[-1] * (d[big] / taus[-1]) ** slope
+    return out
+
+
+def _usable(offsets_df: pd.DataFrame, system: str | None):
+    df = offsets_df
+    if "system" in df.columns:
+        systems = sorted(set(df["system"].astype(str)))
+        if system is None:
+            if "ALL" in systems:
+                system = "ALL"
+            elif len(systems) == 1:
+                system = systems[0]
+            else:
+                raise UsageError(f"the offsets hold systems {', '.join(systems)}; choose one")
+        df = df[df["system"].astype(str) == system]
+    if "time_utc_ns" in df.columns:
+        t = df["time_utc_ns"].to_numpy(np.int64)
+    else:
+        t = parse_iso_exact(df["time_utc"].to_numpy())
+    x = df["offset_ns"].to_numpy(float)
+    u = df["u_ns"].to_numpy(float) if "u_ns" in df.columns else np.zeros(len(df))
+    keep = np.isfinite(x) & np.isfinite(u)
+    if "flag" in df.columns:
+        keep &= df["flag"].astype(str).to_numpy() == "ok"
+    order = np.argsort(t[keep], kind="stable")
+    t, x, u = t[keep][order], x[keep][order], u[keep][order]
+    if len(t) and np.any(np.diff(t) == 0):
+        raise ProcessingError("the offsets series has repeated times")
+    return t, x, u, system
+
+
+def correct_events(events_df: pd.DataFrame, offsets_df: pd.DataFrame, site: str = "B",
+                   budget_type_b_ns: float = 0.0, tdev=None, max_gap_s: float = 3600.0,
+                   system: str | None = None) -> pd.DataFrame:
+    """Convert event timestamps of one site's clock into the other site's time scale.
+
+    ``events_df`` needs ``event_time_utc_ns`` (see :func:`read_events`), or
+    ``time_utc`` / ``mjd_utc`` which are parsed exactly. ``site`` is the clock
+    that stamped the events ('A' or 'B'). ``tdev`` is None (computed from the
+    series), a callable ``tau_s -> TDEV ns``, or a table ``(tau_s, tdev_ns)``.
+
+    Added columns: ``event_time_utc_ns``, ``target_site``, ``offset_ns`` (A - B
+    interpolated), ``correction_ns`` (added to the timestamp: +offset for B
+    events, -offset for A events), ``corrected_time_utc`` (ISO, 9 digits),
+    ``corrected_time_utc_ns`` (int64, rounded to the ns), ``u_points_ns``,
+    ``u_interp_ns``, ``u_type_b_ns``, ``u_ns`` (total, 1 sigma),
+    ``nearest_point_s``, ``status`` ('ok'/'refused'), ``reason``.
+    """
+    site = str(site).upper()
+    if site not in ("A", "B"):
+        raise UsageError(f"site must be A or B, not {site!r}")
+    ev = events_df.copy()
+    if "event_time_utc_ns" not in ev.columns:
+        if "time_utc" in ev.columns:
+            ev["event_time_utc_ns"] = parse_iso_exact(ev["time_utc"].to_numpy())
+        elif "mjd_utc" in ev.columns:
+            ev["event_time_utc_ns"] = parse_mjd_exact(ev["mjd_utc"].astype(str).to_numpy())
+        else:
+            raise UsageError("events need a time_utc or mjd_utc column")
+    te = ev["event_time_utc_ns"].to_numpy(np.int64)
+    t, x, u, _ = _usable(offsets_df, system)
+    if len(t) < 2:
+        raise NoDataError(f"need at least 2 usable offset points to interpolate, found {len(t)}")
+
+    if tdev is None:
+        taus, tdv, tau0 = tdev_from_series(t, x)
+        tdev_fn = lambda d: _tdev_at(d, taus, tdv, tau0)  # noqa: E731
+    elif callable(tdev):
+        tdev_fn = tdev
+    else:
+        taus, tdv = (np.asarray(a, dtype=float) for a in tdev)
+        tdev_fn = lambda d: _tdev_at(d, taus, tdv, taus[0])  # noqa: E731
+
+    n = len(te)
+    j = np.searchsorted(t, te, side="right")  # t[j-1] <= te < t[j]
+    status = np.full(n, "ok", dtype=object)
+    reason = np.full(n, "", dtype=object)
+    before = te < t[0]
+    after = te > t[-1]
+    status[before | after] = "refused"
+    reason[before] = f"before the first usable offset ({to_iso(int(t[0]))})"
+    reason[after] = f"after the last usable offset ({to_iso(int(t[-1]))})"
+    inside = ~(before | after)
+    i1 = np.clip(j, 1, len(t) - 1)
+    i0 = i1 - 1
+    at_last = inside & (te == t[-1])
+    i0[at_last], i1[at_last] = len(t) - 2, len(t) - 1
+    gap_ns = t[i1] - t[i0]
+    exact = inside & ((te == t[i0]) | (te == t[i1]))
+    gap_bad = inside & ~exact & (gap_ns > max_gap_s * 1e9)
+    status[gap_bad] = "refused"
+    for k in np.flatnonzero(gap_bad):
+        reason[k] = (f"in a gap of {gap_ns[k] / 1e9:.0f} s between {to_iso(int(t[i0[k]]))} and "
+                     f"{to_iso(int(t[i1[k]]))} (longer than max_gap_s = {max_gap_s:g} s)")
+    good = status == "ok"
+
+    w1 = np.where(good, (te - t[i0]) / np.where(gap_ns > 0, gap_ns, 1), np.nan)
+    w0 = 1.0 - w1
+    off = np.where(good, w0 * x[i0] + w1 * x[i1], np.nan)
+    u_pts = np.where(good, np.sqrt((w0 * u[i0]) ** 2 + (w1 * u[i1]) ** 2), np.nan)
+    d_s = np.where(good, np.minimum(te - t[i0], t[i1] - te) / 1e9, np.nan)
+    u_int = np.full(n, np.nan)
+    if good.any():
+        u_int[good] = math.sqrt(3.0) * np.asarray(tdev_fn(d_s[good]), dtype=float)
+    u_b = float(budget_type_b_ns or 0.0)
+    u_tot = np.sqrt(u_pts ** 2 + np.nan_to_num(u_int, nan=0.0) ** 2 + u_b ** 2)
+    u_tot[~good] = np.nan
+
+    corr = off if site == "B" else -off
+    corr_i = np.where(good, np.rint(np.nan_to_num(corr)), 0).astype(np.int64)
+    new_t = te + corr_i
+    ev["target_site"] = "A" if site == "B" else "B"
+    ev["offset_ns"] = off
+    ev["correction_ns"] = corr
+    ev["corrected_time_utc"] = np.where(good, to_iso(new_t, 9), "")
+    ev["corrected_time_utc_ns"] = pd.array(np.where(good, new_t, 0), dtype="Int64")
+    ev.loc[~good, "corrected_time_utc_ns"] = pd.NA
+    ev["u_points_ns"] = u_pts
+    ev["u_interp_ns"] = u_int
+    ev["u_type_b_ns"] = np.where(good, u_b, np.nan)
+    ev["u_ns"] = u_tot
+    ev["nearest_point_s"] = d_s
+    ev["status"] = status
+    ev["reason"] = reason
+    return ev
+
+
+# ================================================================ CGGTTS version 2E
+
+TRACK_COLUMNS = ("sat", "cl", "mjd", "sttime", "trkl_s", "elv_deg", "azth_deg", "refsv_ns", "srsv_ps_s",
+                 "refsys_ns", "srsys_ps_s", "dsg_ns", "ioe", "mdtr_ns", "smdt_ps_s", "mdio_ns", "smdi_ps_s",
+                 "msio_ns", "smsi_ps_s", "isg_ns", "fr", "hc", "frc")
+
+# (column, file label, width, scale to file integer or None for text/ints as is)
+# Field widths and order from memory of the version 2E document (dual-frequency
+# line with measured ionosphere); one space between fields.
+_FIELDS = (
+    ("sat", "SAT", 3, "sat"), ("cl", "CL", 2, "hex"), ("mjd", "MJD", 5, 1), ("sttime", "STTIME", 6, "hms"),
+    ("trkl_s", "TRKL", 4, 1), ("elv_deg", "ELV", 3, 10), ("azth_deg", "AZTH", 4, 10),
+    ("refsv_ns", "REFSV", 11, 10), ("srsv_ps_s", "SRSV", 6, 10), ("refsys_ns", "REFSYS", 11, 10),
+    ("srsys_ps_s", "SRSYS", 6, 10), ("dsg_ns", "DSG", 4, 10), ("ioe", "IOE", 3, 1),
+    ("mdtr_ns", "MDTR", 4, 10), ("smdt_ps_s", "SMDT", 4, 10), ("mdio_ns", "MDIO", 4, 10),
+    ("smdi_ps_s", "SMDI", 4, 10), ("msio_ns", "MSIO", 4, 10), ("smsi_ps_s", "SMSI", 4, 10),
+    ("isg_ns", "ISG", 3, 10), ("fr", "FR", 2, 1), ("hc", "HC", 2, 1), ("frc", "FRC", 3, "text"),
+)
+_IONO_ONLY = {"msio_ns", "smsi_ps_s", "isg_ns"}
+
+_LABELS = ("SAT CL  MJD  STTIME TRKL ELV AZTH   REFSV      SRSV     REFSYS    SRSYS  DSG IOE MDTR SMDT MDIO "
+           "SMDI MSIO SMSI ISG FR HC FRC CK")
+_UNITS = ("             hhmmss  s  .1dg .1dg    .1ns     .1ps/s     .1ns    .1ps/s .1ns     .1ns.1ps/s.1ns.1ps/s"
+          ".1ns.1ps/s.1ns")
+_FIRST_LINE = "CGGTTS     GENERIC DATA FORMAT VERSION = 2E"
+
+
+def _layout(iono: bool):
+    """[(column, start, end)] 0-based slices of each field, and the CK slice."""
+    out, pos = [], 0
+    for col, _, w, kind in _FIELDS:
+        if not iono and col in _IONO_ONLY:
+            continue
+        out.append((col, pos, pos + w, kind))
+        pos += w + 1
+    return out, (pos, pos + 2)
+
+
+def cggtts_checksum(text: str) -> int:
+    """Sum of the ASCII codes of ``text`` modulo 256 (the format's CK / CKSUM definition)."""
+    return sum(text.encode("ascii")) % 256
+
+
+@dataclass
+class CggttsHeader:
+    """Header of a version 2E file. Delays in ns; ``delay_kind`` 'INT', 'SYS' or 'TOT'.
+
+    ``delays`` is a list of ``(value_ns, label)`` such as ``(34.6, 'GPS C1')``.
+    With 'INT' the file also has CAB DLY and REF DLY lines; with 'SYS' only REF DLY;
+    with 'TOT' neither (from memory of the document's three delay variants).
+    """
+
+    rev_date: str = "2015-01-01"
+    rcvr: str = "INVENTED RECEIVER"
+    ch: int = 0
+    ims: str = "99999"
+    lab: str = "LABA"
+    x_m: float = 0.0
+    y_m: float = 0.0
+    z_m: float = 0.0
+    frame: str = "ITRF"
+    comments: str = "NO COMMENTS"
+    delay_kind: str = "INT"
+    delays: list = field(default_factory=list)
+    cal_id: str = "NA"
+    cab_dly_ns: float | None = 0.0
+    ref_dly_ns: float | None = 0.0
+    ref: str = "LOCAL CLOCK"
+
+    def lines(self) -> list[str]:
+        kind = self.delay_kind.upper()
+        if kind not in ("INT", "SYS", "TOT"):
+            raise ValueError(f"delay_kind must be INT, SYS or TOT, not {self.delay_kind!r}")
+        dl = ", ".join(f"{v:.1f} ns ({label})" for v, label in self.delays) or "0.0 ns (GPS C1)"
+        out = [_FIRST_LINE, f"REV DATE = {self.rev_date}", f"RCVR = {self.rcvr}", f"CH = {int(self.ch):02d}",
+               f"IMS = {self.ims}", f"LAB = {self.lab}", f"X = {self.x_m:+.2f} m", f"Y = {self.y_m:+.2f} m",
+               f"Z = {self.z_m:+.2f} m", f"FRAME = {self.frame}", f"COMMENTS = {self.comments}",
+               f"{kind} DLY = {dl}     CAL_ID = {self.cal_id}"]
+        if kind == "INT":
+            out.append(f"CAB DLY = {self.cab_dly_ns:.1f} ns")
+        if kind in ("INT", "SYS"):
+            out.append(f"REF DLY = {self.ref_dly_ns:.1f} ns")
+        out.append(f"REF = {self.ref}")
+        for ln in out:
+            ln.encode("ascii")
+        return out
+
+
+def _fmt_field(v, w, kind, col, row):
+    if kind == "sat":
+        s = str(v)
+        if not re.match(r"^[A-Z]\d{2}$", s):
+            raise ValueError(f"row {row}: sat must look like G07, found {s!r}")
+        return s
+    if kind == "hex":
+        s = str(v).upper()
+        if not re.match(r"^[0-9A-F]{2}$", s):
+            raise ValueError(f"row {row}: cl must be two hex digits, found {s!r}")
+        return s
+    if kind == "hms":
+        s = str(v)
+        if isinstance(v, (int, np.integer)):
+            s = f"{int(v):06d}"
+        if not re.match(r"^\d{6}$", s):
+            raise ValueError(f"row {row}: sttime must be 'hhmmss', found {s!r}")
+        return s
+    if kind == "text":
+        s = str(v)
+        if len(s) > w:
+            raise ValueError(f"row {row}: {col} longer than {w} characters: {s!r}")
+        return s.ljust(w)
+    if v is None or (isinstance(v, float) and not math.isfinite(v)) or v is pd.NA:
+        return "9" * w
+    iv = int(round(float(v) * kind))
+    s = str(iv)
+    if len(s) > w or s == "9" * w:
+        raise ValueError(f"row {row}: {col} = {v!r} does not fit the {w}-character field "
+                         f"(units of 1/{kind}) or collides with the all-9 'not available' code")
+    return s.rjust(w)
+
+
+def write_cggtts(path, tracks_df: pd.DataFrame, header: CggttsHeader) -> None:
+    """Write a version 2E file (dual-frequency line with measured ionosphere columns)."""
+    head = header.lines()
+    head_text = "".join(head) + "CKSUM = "
+    lines = head + [f"CKSUM = {cggtts_checksum(head_text):02X}", "", _LABELS, _UNITS]
+    layout, _ = _layout(True)
+    missing = [c for c in TRACK_COLUMNS if c not in tracks_df.columns]
+    if missing:
+        raise ValueError(f"tracks table lacks columns {', '.join(missing)}")
+    for i, rec in enumerate(tracks_df[list(TRACK_COLUMNS)].itertuples(index=False, name=None)):
+        vals = dict(zip(TRACK_COLUMNS, rec))
+        body = " ".join(_fmt_field(vals[c], e - s, kind, c, i) for c, s, e, kind in layout) + " "
+        lines.append(body + f"{cggtts_checksum(body):02X}")
+    text = "\n".join(lines) + "\n"
+    p = pathlib.Path(path)
+    tmp = p.with_name(p.name + ".part")
+    tmp.write_text(text, encoding="ascii", newline="\n")
+    tmp.replace(p)
+
+
+_HEAD_RE = {
+    "rev_date": r"^REV DATE = (.*)$", "rcvr": r"^RCVR = (.*)$", "ch": r"^CH = (\d+)\s*$", "ims": r"^IMS = (.*)$",
+    "lab": r"^LAB = (.*)$", "x_m": r"^X = ([+-]?\d+(?:\.\d*)?) m\s*$", "y_m": r"^Y = ([+-]?\d+(?:\.\d*)?) m\s*$",
+    "z_m": r"^Z = ([+-]?\d+(?:\.\d*)?) m\s*$", "frame": r"^FRAME = (.*)$", "comments": r"^COMMENTS = (.*)$",
+}
+
+
+def read_cggtts(path):
+    """Read a version 2E file -> (CggttsHeader, tracks DataFrame); checksums verified."""
+    path = pathlib.Path(path)
+    raw = path.read_bytes()
+    try:
+        text = raw.decode("ascii")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise FileFormatError(path, line, "ASCII text", repr(raw[exc.start:exc.start + 1])) from None
+    lines = text.replace("\r\n", "\n").split("\n")
+    if not re.match(r"^CGGTTS\s+GENERIC DATA FORMAT VERSION = 2E\s*$", lines[0]):
+        raise FileFormatError(path, 1, "'CGGTTS GENERIC DATA FORMAT VERSION = 2E'", lines[0])
+    hdr = CggttsHeader(delays=[])
+    i = 1
+    order = ["rev_date", "rcvr", "ch", "ims", "lab", "x_m", "y_m", "z_m", "frame", "comments"]
+    for key in order:
+        if i >= len(lines):
+            raise FileFormatError(path, i + 1, f"the {key.upper()} header line", "end of file")
+        m = re.match(_HEAD_RE[key], lines[i])
+        if not m:
+            raise FileFormatError(path, i + 1, f"the header line {_HEAD_RE[key][1:].split(' = ')[0]} = ...",
+                                  lines[i])
+        v = m.group(1).strip()
+        setattr(hdr, key, int(v) if key == "ch" else float(v) if key.endswith("_m") else v)
+        i += 1
+    m = re.match(r"^(INT|SYS|TOT) DLY = (.*?)\s+CAL_ID = (.*)$", lines[i]) if i < len(lines) else None
+    if not m:
+        raise FileFormatError(path, i + 1, "'INT DLY = ...', 'SYS DLY = ...' or 'TOT DLY = ...' with CAL_ID",
+                              lines[i] if i < len(lines) else "end of file")
+    hdr.delay_kind, dl, hdr.cal_id = m.group(1), m.group(2), m.group(3).strip()
+    for part in dl.split(","):
+        mm = re.match(r"^\s*([+-]?\d+(?:\.\d*)?) ns \(([^)]*)\)\s*$", part)
+        if not mm:
+            raise FileFormatError(path, i + 1, "delays written as '<value> ns (<system> <code>)'", part)
+        hdr.delays.append((float(mm.group(1)), mm.group(2)))
+    i += 1
+    hdr.cab_dly_ns = hdr.ref_dly_ns = None
+    for key, label, needed in (("cab_dly_ns", "CAB DLY", hdr.delay_kind == "INT"),
+                               ("ref_dly_ns", "REF DLY", hdr.delay_kind in ("INT", "SYS"))):
+        if not needed:
+            continue
+        mm = re.match(rf"^{label} = ([+-]?\d+(?:\.\d*)?) ns\s*$", lines[i]) if i < len(lines) else None
+        if not mm:
+            raise FileFormatError(path, i + 1, f"'{label} = <value> ns'", lines[i] if i < len(lines) else "end")
+        setattr(hdr, key, float(mm.group(1)))
+        i += 1
+    mm = re.match(r"^REF = (.*)$", lines[i]) if i < len(lines) else None
+    if not mm:
+        raise FileFormatError(path, i + 1, "'REF = ...'", lines[i] if i < len(lines) else "end of file")
+    hdr.ref = mm.group(1).strip()
+    i += 1
+    mm = re.match(r"^CKSUM = ([0-9A-Fa-f]{2})\s*$", lines[i]) if i < len(lines) else None
+    if not mm:
+        raise FileFormatError(path, i + 1, "'CKSUM = <two hex digits>'", lines[i] if i < len(lines) else "end")
+    want = cggtts_checksum("".join(lines[:i]) + "CKSUM = ")
+    if int(mm.group(1), 16) != want:
+        raise FileFormatError(path, i + 1, f"header checksum {want:02X} (sum of the header's ASCII codes mod 256)",
+                              lines[i])
+    i += 1
+    while i < len(lines) and not lines[i].strip():
+        i += 1
+    if i >= len(lines) or not lines[i].startswith("SAT"):
+        raise FileFormatError(path, i + 1, "the column label line starting 'SAT CL  MJD'",
+                              lines[i] if i < len(lines) else "end of file")
+    iono = "MSIO" in lines[i].split()
+    layout, ck = _layout(iono)
+    i += 2  # labels and units
+    rows = []
+    for ln_no in range(i, len(lines)):
+        ln = lines[ln_no].rstrip("\r")
+        if not ln.strip():
+            continue
+        if len(ln) < ck[1]:
+            raise FileFormatError(path, ln_no + 1, f"a data line of {ck[1]} characters", ln)
+        want = cggtts_checksum(ln[:ck[0]])
+        try:
+            got = int(ln[ck[0]:ck[1]], 16)
+        except ValueError:
+            got = None
+        if got != want:
+            raise FileFormatError(path, ln_no + 1, f"data-line checksum {want:02X} (columns 1-{ck[0]})", ln)
+        rec = {}
+        for col, s, e, kind in layout:
+            f = ln[s:e]
+            try:
+                if kind in ("sat", "hex", "hms"):
+                    if kind == "hms" and not re.match(r"^\d{6}$", f):
+                        raise ValueError
+                    rec[col] = f
+                elif kind == "text":
+                    rec[col] = f.strip()
+                elif f.strip() == "9" * (e - s):
+                    rec[col] = np.nan  # all 9s: not available
+                else:
+                    iv = int(f)
+                    rec[col] = iv if kind == 1 else iv / kind
+            except ValueError:
+                raise FileFormatError(path, ln_no + 1, f"{col.split('_')[0].upper()} in columns {s + 1}-{e}",
+                                      f) from None
+        rows.append(rec)
+    df = pd.DataFrame(rows, columns=list(TRACK_COLUMNS))
+    for c in _IONO_ONLY:
+        if not iono:
+            df[c] = np.nan
+    return hdr, df
