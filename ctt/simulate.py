@@ -1,0 +1,1387 @@
+"""Synthetic scenarios: RINEX files from a known truth.
+
+``ctt simulate --scenario SCENARIO.toml --out DIR`` (or :func:`run_scenario`)
+writes, for every station, a RINEX 3.04 observation file (code, carrier phase
+and signal strength; optionally RINEX 2.11 too), a RINEX 2.11 meteorological
+file and a station TOML file for :mod:`ctt.config`; one RINEX 3.04
+navigation file; a pair TOML file per pair; ``truth.csv`` (the true clock
+offsets) and ``truth_steps.csv`` (the true steps).
+
+The forward model is written here on purpose and does not call the
+measurement code of :mod:`ctt.measure` (light time, Sagnac, relativity, delay
+application), so that an error there cannot cancel itself in an end-to-end
+test. It does reuse the *satellite model* (:mod:`ctt.orbits` for a real
+navigation file; for a synthetic constellation the truth comes from the
+Keplerian elements written into the file, evaluated here with the IS-GPS-200
+Table 20-IV equations) and the atmosphere and tide *model functions*
+(:func:`ctt.atmosphere.zenith_delays`, :func:`ctt.atmosphere.niell_mapping`,
+:func:`ctt.atmosphere.klobuchar_delay_s`,
+:func:`ctt.geodesy.solid_tide_displacement`).
+
+Forward model (one station, one satellite, one epoch)
+=====================================================
+Time tags. A timing receiver steers its time tags to GPS time; the common
+case simulated here is that the RINEX time tags are exact nominal epochs
+``t_tag = start + k·interval`` read on the receiver's clock. With
+``x(t) = local clock − GPS time`` (the truth, seconds) the true receive
+instant in GPS time is ``t_r = t_tag − x(t_r)`` (solved by one fixed-point
+step; x changes by < 1e-11 of itself meanwhile).
+
+Light time. The transmit instant ``t_t = t_r − τ`` solves, exactly, the
+geometric light-time equation in the Earth-fixed frame of ``t_r``::
+
+    c·τ = | R3(ωe·τ) · r_sat(t_r − τ) − r_rx(t_r) |
+
+where ``r_sat`` is the Earth-fixed satellite position at ``t_t`` and
+``R3(θ)`` turns coordinates of the Earth-fixed frame at ``t_t`` into those of
+``t_r`` (the Earth has turned by ωe·τ meanwhile; ωe = 7.2921151467e-5 rad/s,
+IS-GPS-200). Fixed-point iteration converges by a factor ~|v|/c ≈ 1e-5 per
+step; it is run until |Δτ| < 1e-15 s. ``earth_rotation = false`` sets ωe = 0
+(a test switch: then ``c·τ = |r_sat(t_t) − r_rx|`` exactly). ``r_rx`` is the
+antenna reference point (marker + ANTENNA: DELTA H/E/N) plus the solid Earth
+tide displacement (IERS Conventions 2010 §7.1.1, via :mod:`ctt.geodesy`).
+
+Code pseudorange of code ``k`` on frequency ``f``::
+
+    P_k = c·(t_tag − (t_t + dt_sat(t_t)))                 # = c·(τ + x − dt_sat)
+          + T_slant + I_L1·(f_L1/f)²
+          + c·(receiver_k + cable − reference)            # station hardware
+          + c·g_k                                          # satellite group delay
+          + multipath_k(az, el) + noise_k
+
+* ``dt_sat`` = broadcast clock polynomial + periodic relativistic term
+  F·e·√A·sin E (IS-GPS-200 §20.3.3.3.3.1) (+ an optional "true minus
+  broadcast" satellite clock error, ``[satellites] clock_error_ns``).
+* Satellite group delays as broadcast (IS-GPS-200 §20.3.3.3.3.2: an L1 P(Y)
+  user subtracts T_GD from the clock, i.e. the L1 code is late by T_GD
+  relative to the iono-free clock reference): GPS ``g = T_GD`` on L1 (C1C
+  too: no ISC in LNAV), ``γ·T_GD`` on L2, and ``(f_L1/f_L5)²·T_GD`` on L5
+  (the LNAV-only user's model; CNAV ISCs are not simulated). Galileo (OS SIS
+  ICD §5.1.5) ``BGD`` on E1, ``(f_E1/f_E5a)²·BGD(E1,E5a)`` on E5a,
+  ``(f_E1/f_E5b)²·BGD(E1,E5b)`` on E5b. The synthetic constellation broadcasts
+  BGD(E1,E5a) = BGD(E1,E5b), so both iono-free pairs are free of group delay
+  whichever message (I/NAV or F/NAV) a user takes.
+* Troposphere: Saastamoinen zenith delays from the met truth of the station
+  (pressure, temperature, humidity with a daily cycle, written to the RINEX
+  met file at ``met_interval_s``), Niell mapping, plus an optional wet-delay
+  random walk (``wet_random_walk_mm_per_sqrt_h``) that no met file shows.
+* Ionosphere: Klobuchar (IS-GPS-200 §20.3.3.5.2.5) with the coefficients of
+  the navigation file, times ``iono_scale`` (1.0 = the broadcast model is the
+  truth; e.g. 1.3 = the true ionosphere is 30 % stronger than broadcast),
+  dispersive ∝ 1/f², positive on code, negative on phase.
+
+Carrier phase (cycles) of band ``f``, wavelength λ = c/f::
+
+    L = [c·(τ + x − dt_sat) + T_slant − I_L1·(f_L1/f)² + c·(receiver_k + cable − reference)
+         + multipath_k/100 + noise] / λ + N
+
+with an integer ambiguity N drawn per continuous arc (new after a gap, a
+receiver reset or a cycle slip; LLI bit 0 is set on the first epoch of every
+arc). Signal strength S (dB-Hz) rises with elevation; the RINEX SSI digit is
+``min(9, max(1, S // 6))`` (RINEX 3.04 §5.7).
+
+Delays and signs (the convention of :mod:`ctt.config`)
+------------------------------------------------------
+All station delays are positive numbers. The signal reaches the correlator
+``cable + receiver_k`` after it reaches the antenna, so the pseudorange is
+longer by ``c·(cable + receiver_k)``. The receiver's internal time scale lags
+the local clock's time point by ``reference`` (the 1PPS/10 MHz path from the
+clock to the receiver), i.e. receiver internal clock = local clock −
+reference: its readings are smaller, so the pseudorange is *shorter* by
+``c·reference``. Hence the receiver's raw "clock minus GNSS time" is
+``raw = x + receiver_k + cable − reference`` and the local clock is recovered
+as ``x = raw − (receiver_k + cable) + reference``, as :mod:`ctt.config`
+states. (These delays shift the instant at which the geometry applies by
+< 1 µs, i.e. < 1 mm of range; that second-order shift is not simulated.)
+
+Clocks (``local clock − GPS time``)
+-----------------------------------
+``x(t) = offset + y0·(t − t0) + ½·D·(t − t0)² + Σ noise + Σ steps`` with
+``y0`` the fractional frequency offset, ``D`` the linear frequency drift
+(``drift_per_day``/86 400 s), phase steps (``phase_ns`` from an instant on)
+and frequency steps (``frequency``: x grows by Δy·(t − T) after T).
+
+Power-law noise, generated at the sampling interval τ0 by the method of
+Kasdin & Walter (1992) ("Discrete simulation of power law noise", Proc.
+IEEE FCS 1992, pp. 274-283): white noise of variance Q_d filtered by the
+impulse response h_0 = 1, h_k = h_{k-1}·(k − 1 − b/2)/k with b = α − 2 the
+phase-PSD exponent, as a linear convolution through zero-padded FFTs (the
+same algorithm as ``allantools.noise_kasdin.Noise``, written here so that
+it takes a ``numpy.random.Generator``). Q_d follows from h_α by Kasdin &
+Walter eq. (39): ``h_α = 2·(2π)^α·τ0^(α−1)·Q_d``.
+
+Each term's level is given either as ``h`` (h_α of S_y(f) = h_α·f^α, 1/Hz·f^-α)
+or as ``adev_1s`` (σ_y(1 s) of that noise type alone). The NIST SP 1065
+(Riley 2008) table relating h_α and σ_y(τ) is used (f_h = high-frequency cut-off):
+
+==============  ===  ======================================  ==========
+type            α    σ_y²(τ)                                 slope μ
+==============  ===  ======================================  ==========
+white_pm         2   3·f_h·h₂ / (4π²τ²)                      −1
+flicker_pm       1   [1.038 + 3 ln(2π f_h τ)]·h₁ / (4π²τ²)   ≈ −1
+white_fm         0   h₀ / (2τ)                               −1/2
+flicker_fm      −1   2 ln 2 · h₋₁                            0
+random_walk_fm  −2   (2π)²·τ·h₋₂ / 6                         +1/2
+==============  ===  ======================================  ==========
+
+* ``adev_1s`` is first carried to τ0 by the slope: σ_y(τ0) = σ_y(1 s)·τ0^μ
+  (for white and flicker PM this keeps the phase noise per sample as it is
+  at 1 s — the reading noise of a phase comparator does not depend on how
+  often it is read; for flicker PM the log factor is neglected, "≈ −1"), then
+  turned into h_α with the table at τ = τ0 and **f_h = 1/(2τ0)**, the Nyquist
+  frequency of the generated series.
+* ``h`` is used as given, with the same f_h = 1/(2τ0) for the PM types.
+
+The generated series has the table's σ_y(τ) for τ ≥ a few τ0; at τ = τ0
+exactly, the discrete flicker and random-walk series are 10-20 % above the
+continuous formula (a known property of sampled power-law noise).
+
+Scenario file
+=============
+All instants with a ``Z`` are UTC; ``start_gps`` is read on GPS time (daily
+RINEX files start at 00:00:00 GPS). Unknown keys are refused.
+
+.. code-block:: toml
+
+    [scenario]
+    name = "demo"
+    start_gps = 2021-01-01T00:00:00     # first time tag, GPS time
+    duration_h = 24.0
+    interval_s = 30.0
+    random_state = 20210101             # makes every run identical
+    systems = ["G", "E"]
+
+    [satellites]
+    source = "synthetic"                # or "nav": a real broadcast file
+    nav_file = "brdc0010.21n"           # source = "nav": path, relative to the scenario file
+    gps_count = 31                      # synthetic: 24..32 in 6 planes (55°, half-sidereal-day orbit)
+    galileo_count = 24                  # synthetic: Walker 24/3/1, 56°, a = 29 600 km
+    klobuchar_alpha = [1.1e-8, 0.0, -6.0e-8, 0.0]   # synthetic nav header (GPSA)
+    klobuchar_beta = [9.0e4, 0.0, -2.0e5, 0.0]      # (GPSB)
+    clock_error_ns = 0.0                # true minus broadcast satellite clock, rms (random walk)
+
+    [propagation]
+    earth_rotation = true
+    troposphere = true
+    wet_random_walk_mm_per_sqrt_h = 0.0
+    ionosphere = true
+    iono_scale = 1.0
+    solid_tide = true
+
+    [output]
+    gzip = true
+    rinex2 = false                      # also write RINEX 2.11 (GPS) obs files
+    met_interval_s = 300.0
+
+    [[stations]]
+    id = "LABA"
+    name = "Invented Lab A"
+    position_m = [x, y, z]              # marker, ECEF (or lat_deg/lon_deg/height_m)
+    antenna_type = "INVENTED-ANT1"
+    antenna_delta_hen_m = [0.0, 0.0, 0.0]
+    receiver_type = "INVENTED-RX"
+    elevation_mask_deg = 10.0
+    code_noise_m = 0.3                  # sigma0 of sigma(el) = sigma0 / sin(el)
+    phase_noise_m = 0.002
+    signals = { G = ["C1C", "C2W", "C5Q"], E = ["C1C", "C5Q", "C7Q"] }
+    [stations.delays]
+    receiver_ns = { C1C = 25.1, C2W = 27.0, C5Q = 24.0, C7Q = 24.5 }
+    cable_ns = 152.4
+    reference_ns = 11.8
+    u_receiver_ns = 1.0
+    u_cable_ns = 0.2
+    u_reference_ns = 0.3
+    [stations.met]                      # truth: mean values and daily amplitudes
+    pressure_hpa = 1005.0
+    temperature_c = 12.0
+    humidity_pct = 65.0
+    pressure_amplitude_hpa = 1.0
+    temperature_amplitude_c = 4.0       # maximum at 15 h local solar time
+    humidity_amplitude_pct = 10.0       # minimum at 15 h local solar time
+    [stations.multipath]                # optional; function of (az, el), so it repeats with the geometry
+    amplitude_m = 0.4
+    decay_deg = 15.0
+    [stations.clock]
+    offset_ns = 120.0
+    frequency_offset = 1.0e-13
+    drift_per_day = 0.0
+    [[stations.clock.noise]]
+    type = "white_fm"                   # white_pm flicker_pm white_fm flicker_fm random_walk_fm
+    adev_1s = 1.0e-11                   # or h = 2.0e-22
+    [[stations.clock.steps]]
+    time = 2021-01-01T10:00:00Z
+    phase_ns = 5.0                      # and/or frequency = 1e-14
+    [[stations.gaps]]
+    start = 2021-01-01T04:00:00Z
+    end = 2021-01-01T04:10:00Z
+    [[stations.resets]]                 # receiver reset: outage, all arcs restart
+    time = 2021-01-01T18:00:00Z
+    outage_s = 120.0
+    [[stations.delay_changes]]          # hardware change: in the data, not in the clock
+    time = 2021-01-01T15:00:00Z
+    cable_ns = 5.0                      # change (receiver_ns = {...}, reference_ns also possible)
+    what = "antenna cable replaced"
+    in_delays = false                   # true: the station TOML gets a new [[delays]] set
+
+    [[pairs]]
+    a = "LABA"
+    b = "LABB"
+
+Truth files
+===========
+``truth.csv``: one row per epoch: ``time_utc`` (ISO, Z), ``mjd_utc``,
+``time_gps`` (ISO, no Z), ``<ID>_ns`` (true local clock − GPS time),
+``<A>-<B>_ns`` (true clock A − clock B), and ``<ID>_apparent_ns`` /
+``<A>-<B>_apparent_ns``: what a correct pipeline using the written station
+files recovers (the true clock plus every hardware change not entered in the
+station's [[delays]]; for receiver-delay changes the first GPS code's).
+``truth_steps.csv``: ``time_utc, station, kind (clock_phase |
+clock_frequency | delay), phase_ns, frequency, apparent_step_ns,
+in_delays, what``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import logging
+import math
+import pathlib
+import shutil
+import tomllib
+
+import numpy as np
+import pandas as pd
+
+from . import timescales as ts
+from .errors import ConfigError, MissingInputError
+
+log = logging.getLogger("ctt.simulate")
+
+__all__ = [
+    "NOISE_TYPES", "C_MPS", "OMEGA_E", "kasdin_walter", "h_from_adev", "adev_from_h", "noise_level",
+    "power_law_noise", "clock_series", "Scenario", "StationSpec", "ClockSpec", "load_scenario",
+    "scenario_from_dict", "synthetic_constellation", "KeplerEphemerides", "light_time", "simulate", "run_scenario",
+    "SimulationResult",
+]
+
+C_MPS = 299_792_458.0  # SI
+OMEGA_E = 7.2921151467e-5  # rad/s, IS-GPS-200
+GM_GPS = 3.986005e14  # IS-GPS-200
+GM_GAL = 3.986004418e14  # Galileo OS SIS ICD
+SIDEREAL_DAY_S = 86164.0905  # common practice
+NS = ts.NS_PER_S
+
+F_HZ = {  # IS-GPS-200, Galileo OS SIS ICD
+    ("G", "1"): 1575.42e6, ("G", "2"): 1227.60e6, ("G", "5"): 1176.45e6,
+    ("E", "1"): 1575.42e6, ("E", "5"): 1176.45e6, ("E", "7"): 1207.14e6, ("E", "8"): 1191.795e6,
+}
+F_L1 = 1575.42e6
+
+#: noise type -> (alpha of S_y(f) = h_alpha f^alpha, ADEV slope mu of the NIST SP 1065 table)
+NOISE_TYPES = {
+    "white_pm": (2, -1.0),
+    "flicker_pm": (1, -1.0),
+    "white_fm": (0, -0.5),
+    "flicker_fm": (-1, 0.0),
+    "random_walk_fm": (-2, 0.5),
+}
+
+DEFAULT_SIGNALS = {"G": ("C1C", "C2W", "C5Q"), "E": ("C1C", "C5Q", "C7Q")}
+
+
+# ==================================================================== power-law noise
+
+def kasdin_walter(n: int, alpha: int, rng: np.random.Generator, qd: float = 1.0) -> np.ndarray:
+    """Power-law *phase* noise x_k (n samples) by Kasdin & Walter (1992).
+
+    ``alpha`` is the exponent of S_y(f); the phase PSD exponent is b = α − 2.
+    White noise of variance ``qd`` is convolved (linear convolution, zero
+    padded FFT) with h_0 = 1, h_k = h_{k-1}·(k − 1 − b/2)/k.
+    """
+    n = int(n)
+    b = alpha - 2
+    w = np.zeros(2 * n)
+    w[:n] = rng.standard_normal(n) * math.sqrt(qd)
+    h = np.zeros(2 * n)
+    k = np.arange(1, n)
+    h[0] = 1.0
+    h[1:n] = (k - 1 - b / 2.0) / k
+    h[:n] = np.cumprod(h[:n])
+    return np.fft.irfft(np.fft.rfft(w) * np.fft.rfft(h), 2 * n)[:n]
+
+
+def adev_from_h(kind: str, h: float, tau: float, f_h: float) -> float:
+    """σ_y(τ) of one noise type from h_α (NIST SP 1065 table; f_h for the PM types)."""
+    alpha, _ = NOISE_TYPES[kind]
+    if alpha == 2:
+        var = 3.0 * f_h * h / (4 * math.pi ** 2 * tau ** 2)
+    elif alpha == 1:
+        var = (1.038 + 3.0 * math.log(2 * math.pi * f_h * tau)) * h / (4 * math.pi ** 2 * tau ** 2)
+    elif alpha == 0:
+        var = h / (2.0 * tau)
+    elif alpha == -1:
+        var = 2.0 * math.log(2.0) * h
+    else:
+        var = (2 * math.pi) ** 2 * tau * h / 6.0
+    return math.sqrt(var)
+
+
+def h_from_adev(kind: str, adev: float, tau: float, f_h: float) -> float:
+    """h_α from σ_y(τ) of one noise type (inverse of :func:`adev_from_h`)."""
+    return adev ** 2 / adev_from_h(kind, 1.0, tau, f_h) ** 2
+
+
+def noise_level(kind: str, tau0: float, *, adev_1s: float | None = None, h: float | None = None):
+    """(h_α, σ_y(τ0)) for a noise term given as ``adev_1s`` or ``h`` (see the module docstring)."""
+    if kind not in NOISE_TYPES:
+        raise ValueError(f"unknown noise type {kind!r}; expected one of {', '.join(NOISE_TYPES)}")
+    _, mu = NOISE_TYPES[kind]
+    f_h = 1.0 / (2.0 * tau0)
+    if (adev_1s is None) == (h is None):
+        raise ValueError("give exactly one of adev_1s and h")
+    if adev_1s is not None:
+        a_tau0 = adev_1s * tau0 ** mu
+        return h_from_adev(kind, a_tau0, tau0, f_h), a_tau0
+    return h, adev_from_h(kind, h, tau0, f_h)
+
+
+def power_law_noise(n: int, tau0: float, kind: str, h: float, rng: np.random.Generator) -> np.ndarray:
+    """Phase noise (s) of ``n`` samples at ``tau0`` with S_y(f) = h·f^α (Kasdin & Walter eq. 39)."""
+    alpha, _ = NOISE_TYPES[kind]
+    qd = h / (2.0 * (2 * math.pi) ** alpha * tau0 ** (alpha - 1))
+    return kasdin_walter(n, alpha, rng, qd)
+
+
+# ==================================================================== scenario
+
+@dataclasses.dataclass(frozen=True)
+class NoiseTerm:
+    kind: str
+    h: float
+    adev_tau0: float
+
+
+@dataclasses.dataclass(frozen=True)
+class ClockStep:
+    time_utc_ns: int
+    phase_ns: float = 0.0
+    frequency: float = 0.0
+
+
+@dataclasses.dataclass(frozen=True)
+class ClockSpec:
+    offset_ns: float = 0.0
+    frequency_offset: float = 0.0
+    drift_per_day: float = 0.0
+    noise: tuple = ()
+    steps: tuple = ()
+
+
+@dataclasses.dataclass(frozen=True)
+class DelayChange:
+    time_utc_ns: int
+    receiver_ns: dict
+    cable_ns: float
+    reference_ns: float
+    what: str
+    in_delays: bool
+
+
+@dataclasses.dataclass(frozen=True)
+class StationSpec:
+    id: str
+    name: str
+    marker_m: np.ndarray
+    antenna_type: str
+    antenna_delta_hen_m: np.ndarray
+    receiver_type: str
+    elevation_mask_deg: float
+    code_noise_m: float
+    phase_noise_m: float
+    signals: dict
+    receiver_ns: dict
+    cable_ns: float
+    reference_ns: float
+    u_receiver_ns: float
+    u_cable_ns: float
+    u_reference_ns: float
+    met: dict
+    multipath: dict | None
+    clock: ClockSpec
+    gaps: tuple
+    resets: tuple
+    delay_changes: tuple
+    cycle_slips_per_h: float = 0.0
+
+
+@dataclasses.dataclass(frozen=True)
+class Scenario:
+    name: str
+    start_gps_ns: int
+    n_epochs: int
+    interval_s: float
+    random_state: int
+    systems: tuple
+    satellites: dict
+    propagation: dict
+    output: dict
+    stations: tuple
+    pairs: tuple
+    path: pathlib.Path | None
+    text: str = ""
+
+    @property
+    def time_ns(self) -> np.ndarray:
+        step = int(round(self.interval_s * NS))
+        return self.start_gps_ns + step * np.arange(self.n_epochs, dtype=np.int64)
+
+
+class _R:
+    """Scenario reader: typed look-ups raising ConfigError(path, key, problem)."""
+
+    def __init__(self, path):
+        self.path = path
+
+    def fail(self, key, problem):
+        raise ConfigError(self.path, key, problem)
+
+    def keys(self, tab, allowed, where):
+        bad = sorted(set(tab) - set(allowed))
+        if bad:
+            self.fail(where, f"unknown key(s) {', '.join(bad)}; expected some of {', '.join(sorted(allowed))}")
+
+    def num(self, tab, k, where, default=None, lo=None, hi=None):
+        if k not in tab:
+            if default is None:
+                self.fail(f"{where}.{k}" if where else k, "missing; expected a number")
+            return default
+        v = tab[k]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            self.fail(f"{where}.{k}", f"expected a number, found {v!r}")
+        if (lo is not None and v < lo) or (hi is not None and v > hi):
+            self.fail(f"{where}.{k}", f"expected a value in [{lo}, {hi}], found {v!r}")
+        return float(v)
+
+    def text(self, tab, k, where, default=None):
+        if k not in tab:
+            if default is None:
+                self.fail(f"{where}.{k}", "missing; expected a string")
+            return default
+        v = tab[k]
+        if not isinstance(v, str):
+            self.fail(f"{where}.{k}", f"expected a string, found {v!r}")
+        return v
+
+    def flag(self, tab, k, where, default):
+        v = tab.get(k, default)
+        if not isinstance(v, bool):
+            self.fail(f"{where}.{k}", f"expected true or false, found {v!r}")
+        return v
+
+    def utc(self, tab, k, where):
+        v = tab.get(k)
+        if isinstance(v, _dt.datetime):
+            if v.tzinfo is None or v.utcoffset() != _dt.timedelta(0):
+                self.fail(f"{where}.{k}", f"expected a UTC time with Z, found {v!r}")
+            return ts.parse_iso(v.replace(tzinfo=None).isoformat())
+        if isinstance(v, str):
+            try:
+                return ts.parse_iso(v)
+            except ValueError:
+                pass
+        self.fail(f"{where}.{k}", f"expected a UTC instant such as 2021-01-01T15:00:00Z, found {v!r}")
+
+
+def _utc_to_gps(utc_ns):
+    return int(ts.convert(np.int64(utc_ns), "UTC", "GPS"))
+
+
+def load_scenario(path) -> Scenario:
+    """Read and validate a scenario TOML file (format in the module docstring)."""
+    path = pathlib.Path(path)
+    if not path.is_file():
+        raise MissingInputError(f"{path}: scenario file not found")
+    text = path.read_text()
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(path, None, f"not valid TOML: {exc}") from exc
+    return scenario_from_dict(data, path, text)
+
+
+def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
+    r = _R(path)
+    r.keys(data, {"scenario", "satellites", "propagation", "output", "stations", "pairs"}, "")
+    sc = data.get("scenario")
+    if not isinstance(sc, dict):
+        r.fail("scenario", "missing; expected a [scenario] table")
+    r.keys(sc, {"name", "start_gps", "duration_h", "interval_s", "random_state", "systems"}, "scenario")
+    start = sc.get("start_gps")
+    if isinstance(start, _dt.datetime) and start.tzinfo is None:
+        start_ns = ts.parse_iso(start.isoformat())
+    elif isinstance(start, _dt.date) and not isinstance(start, _dt.datetime):
+        start_ns = ts.date_to_ns(start)
+    else:
+        r.fail("scenario.start_gps", f"expected a local TOML date-time read on GPS time (no Z), found {start!r}")
+    duration_h = r.num(sc, "duration_h", "scenario", lo=0.01, hi=24 * 31)
+    interval_s = r.num(sc, "interval_s", "scenario", default=30.0, lo=0.1, hi=3600)
+    if abs(interval_s * 10 - round(interval_s * 10)) > 1e-9:
+        r.fail("scenario.interval_s", f"expected a multiple of 0.1 s, found {interval_s}")
+    n_ep = int(round(duration_h * 3600.0 / interval_s))
+    state = sc.get("random_state")
+    if isinstance(state, bool) or not isinstance(state, int) or state < 0:
+        r.fail("scenario.random_state", f"expected a non-negative integer, found {state!r}")
+    systems = sc.get("systems", ["G"])
+    if not isinstance(systems, list) or not systems or any(s not in ("G", "E") for s in systems):
+        r.fail("scenario.systems", f"expected a list of 'G' and/or 'E', found {systems!r}")
+
+    sat = data.get("satellites", {})
+    r.keys(sat, {"source", "nav_file", "gps_count", "galileo_count", "klobuchar_alpha", "klobuchar_beta",
+                 "clock_error_ns"}, "satellites")
+    source = r.text(sat, "source", "satellites", "synthetic")
+    if source not in ("synthetic", "nav"):
+        r.fail("satellites.source", f"expected 'synthetic' or 'nav', found {source!r}")
+    sat_out = {"source": source, "clock_error_ns": r.num(sat, "clock_error_ns", "satellites", 0.0, lo=0)}
+    if source == "nav":
+        nav_rel = r.text(sat, "nav_file", "satellites")
+        nav_path = pathlib.Path(nav_rel)
+        if not nav_path.is_absolute() and path is not None:
+            nav_path = path.parent / nav_path
+        sat_out["nav_file"] = nav_path
+    else:
+        sat_out["gps_count"] = int(r.num(sat, "gps_count", "satellites", 31, lo=24, hi=32))
+        sat_out["galileo_count"] = int(r.num(sat, "galileo_count", "satellites", 24, lo=1, hi=36))
+        for k, dflt in (("klobuchar_alpha", [1.1e-8, 0.0, -6.0e-8, 0.0]), ("klobuchar_beta", [9.0e4, 0.0, -2.0e5, 0.0])):
+            v = sat.get(k, dflt)
+            if not isinstance(v, list) or len(v) != 4 or any(isinstance(x, bool) or not isinstance(x, (int, float)) for x in v):
+                r.fail(f"satellites.{k}", f"expected 4 numbers, found {v!r}")
+            sat_out[k] = [float(x) for x in v]
+
+    prop = data.get("propagation", {})
+    r.keys(prop, {"earth_rotation", "troposphere", "wet_random_walk_mm_per_sqrt_h", "ionosphere", "iono_scale",
+                  "solid_tide"}, "propagation")
+    prop_out = {
+        "earth_rotation": r.flag(prop, "earth_rotation", "propagation", True),
+        "troposphere": r.flag(prop, "troposphere", "propagation", True),
+        "wet_random_walk_mm_per_sqrt_h": r.num(prop, "wet_random_walk_mm_per_sqrt_h", "propagation", 0.0, lo=0),
+        "ionosphere": r.flag(prop, "ionosphere", "propagation", True),
+        "iono_scale": r.num(prop, "iono_scale", "propagation", 1.0, lo=0),
+        "solid_tide": r.flag(prop, "solid_tide", "propagation", True),
+    }
+    out = data.get("output", {})
+    r.keys(out, {"gzip", "rinex2", "met_interval_s"}, "output")
+    out_out = {"gzip": r.flag(out, "gzip", "output", True), "rinex2": r.flag(out, "rinex2", "output", False),
+               "met_interval_s": r.num(out, "met_interval_s", "output", 300.0, lo=1.0)}
+
+    st_list = data.get("stations")
+    if not isinstance(st_list, list) or not st_list:
+        r.fail("stations", "missing; expected one or more [[stations]] tables")
+    stations = tuple(_station(r, st, i + 1, systems) for i, st in enumerate(st_list))
+    ids = [s.id for s in stations]
+    if len(set(ids)) != len(ids):
+        r.fail("stations", f"expected distinct station ids, found {ids}")
+    pairs = []
+    for j, p in enumerate(data.get("pairs", []), start=1):
+        r.keys(p, {"a", "b"}, f"pairs[{j}]")
+        a, b = r.text(p, "a", f"pairs[{j}]"), r.text(p, "b", f"pairs[{j}]")
+        if a not in ids or b not in ids or a == b:
+            r.fail(f"pairs[{j}]", f"expected two different station ids among {ids}, found {a!r}, {b!r}")
+        pairs.append((a, b))
+    if not pairs and len(ids) == 2:
+        pairs.append((ids[0], ids[1]))
+    return Scenario(name=r.text(sc, "name", "scenario", "scenario"), start_gps_ns=int(start_ns), n_epochs=n_ep,
+                    interval_s=interval_s, random_state=int(state), systems=tuple(systems), satellites=sat_out,
+                    propagation=prop_out, output=out_out, stations=stations, pairs=tuple(pairs),
+                    path=path, text=text)
+
+
+_STATION_KEYS = {"id", "name", "position_m", "lat_deg", "lon_deg", "height_m", "antenna_type",
+                 "antenna_delta_hen_m", "receiver_type", "elevation_mask_deg", "code_noise_m", "phase_noise_m",
+                 "signals", "delays", "met", "multipath", "clock", "gaps", "resets", "delay_changes",
+                 "cycle_slips_per_h"}
+
+
+def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
+    w = f"stations[{i}]"
+    r.keys(st, _STATION_KEYS, w)
+    sid = r.text(st, "id", w)
+    if not sid.isalnum() or not 4 <= len(sid) <= 9:
+        r.fail(f"{w}.id", f"expected 4-9 letters/digits, found {sid!r}")
+    if "position_m" in st:
+        pos = st["position_m"]
+        if not isinstance(pos, list) or len(pos) != 3:
+            r.fail(f"{w}.position_m", f"expected [x, y, z] in metres, found {pos!r}")
+        marker = np.array(pos, dtype=float)
+    else:
+        from .geodesy import geodetic_to_ecef
+
+        lat, lon, hgt = (r.num(st, k, w) for k in ("lat_deg", "lon_deg", "height_m"))
+        marker = np.asarray(geodetic_to_ecef(math.radians(lat), math.radians(lon), hgt), dtype=float)
+    radius = float(np.linalg.norm(marker))
+    if not 6.35e6 <= radius <= 6.40e6:
+        r.fail(f"{w}.position_m", f"expected a geocentric radius 6.35e6..6.40e6 m, found {radius:.1f}")
+    delta = np.array(st.get("antenna_delta_hen_m", [0.0, 0.0, 0.0]), dtype=float)
+    sig = st.get("signals", {s: list(DEFAULT_SIGNALS[s]) for s in systems})
+    signals = {}
+    for s in systems:
+        codes = sig.get(s, list(DEFAULT_SIGNALS[s]))
+        for c in codes:
+            if not (isinstance(c, str) and len(c) == 3 and c[0] == "C" and (s, c[1]) in F_HZ):
+                r.fail(f"{w}.signals.{s}", f"expected code names such as C1C, C2W, C5Q, C7Q, found {c!r}")
+        signals[s] = tuple(codes)
+    d = st.get("delays", {})
+    r.keys(d, {"receiver_ns", "cable_ns", "reference_ns", "u_receiver_ns", "u_cable_ns", "u_reference_ns"},
+           f"{w}.delays")
+    rx = d.get("receiver_ns", {})
+    all_codes = sorted({c for cs in signals.values() for c in cs})
+    rx_ns = {}
+    for c in all_codes:
+        if c not in rx:
+            r.fail(f"{w}.delays.receiver_ns", f"missing receiver delay for {c}")
+        rx_ns[c] = float(rx[c])
+    met = st.get("met", {})
+    r.keys(met, {"pressure_hpa", "temperature_c", "humidity_pct", "pressure_amplitude_hpa",
+                 "temperature_amplitude_c", "humidity_amplitude_pct"}, f"{w}.met")
+    met_out = {k: r.num(met, k, f"{w}.met", dflt) for k, dflt in (
+        ("pressure_hpa", 1013.25), ("temperature_c", 15.0), ("humidity_pct", 50.0),
+        ("pressure_amplitude_hpa", 0.0), ("temperature_amplitude_c", 0.0), ("humidity_amplitude_pct", 0.0))}
+    mp = st.get("multipath")
+    mp_out = None
+    if mp is not None:
+        r.keys(mp, {"amplitude_m", "decay_deg"}, f"{w}.multipath")
+        mp_out = {"amplitude_m": r.num(mp, "amplitude_m", f"{w}.multipath", lo=0),
+                  "decay_deg": r.num(mp, "decay_deg", f"{w}.multipath", 15.0, lo=0.1)}
+    ck = st.get("clock", {})
+    r.keys(ck, {"offset_ns", "frequency_offset", "drift_per_day", "noise", "steps"}, f"{w}.clock")
+    noise = []
+    for j, nt in enumerate(ck.get("noise", []), start=1):
+        nw = f"{w}.clock.noise[{j}]"
+        r.keys(nt, {"type", "adev_1s", "h", "source"}, nw)
+        kind = r.text(nt, "type", nw)
+        if kind not in NOISE_TYPES:
+            r.fail(f"{nw}.type", f"expected one of {', '.join(NOISE_TYPES)}, found {kind!r}")
+        a1 = r.num(nt, "adev_1s", nw, 0.0, lo=0) if "adev_1s" in nt else None
+        hh = r.num(nt, "h", nw, 0.0, lo=0) if "h" in nt else None
+        if (a1 is None) == (hh is None):
+            r.fail(nw, "expected exactly one of adev_1s and h")
+        noise.append((kind, a1, hh))
+    steps = []
+    for j, s in enumerate(ck.get("steps", []), start=1):
+        sw = f"{w}.clock.steps[{j}]"
+        r.keys(s, {"time", "phase_ns", "frequency", "what"}, sw)
+        steps.append(ClockStep(r.utc(s, "time", sw), r.num(s, "phase_ns", sw, 0.0), r.num(s, "frequency", sw, 0.0)))
+    clock = ClockSpec(offset_ns=r.num(ck, "offset_ns", f"{w}.clock", 0.0),
+                      frequency_offset=r.num(ck, "frequency_offset", f"{w}.clock", 0.0),
+                      drift_per_day=r.num(ck, "drift_per_day", f"{w}.clock", 0.0),
+                      noise=tuple(noise), steps=tuple(steps))
+    gaps = []
+    for j, g in enumerate(st.get("gaps", []), start=1):
+        gw = f"{w}.gaps[{j}]"
+        r.keys(g, {"start", "end"}, gw)
+        a, b = r.utc(g, "start", gw), r.utc(g, "end", gw)
+        if b <= a:
+            r.fail(gw, "expected end after start")
+        gaps.append((a, b))
+    resets = []
+    for j, g in enumerate(st.get("resets", []), start=1):
+        gw = f"{w}.resets[{j}]"
+        r.keys(g, {"time", "outage_s"}, gw)
+        resets.append((r.utc(g, "time", gw), r.num(g, "outage_s", gw, 60.0, lo=0)))
+    changes = []
+    for j, g in enumerate(st.get("delay_changes", []), start=1):
+        gw = f"{w}.delay_changes[{j}]"
+        r.keys(g, {"time", "receiver_ns", "cable_ns", "reference_ns", "what", "in_delays"}, gw)
+        rxc = g.get("receiver_ns", {})
+        if not isinstance(rxc, dict) or any(c not in rx_ns for c in rxc):
+            r.fail(f"{gw}.receiver_ns", f"expected a table of changes for codes among {all_codes}, found {rxc!r}")
+        changes.append(DelayChange(r.utc(g, "time", gw), {c: float(v) for c, v in rxc.items()},
+                                   r.num(g, "cable_ns", gw, 0.0), r.num(g, "reference_ns", gw, 0.0),
+                                   r.text(g, "what", gw, "hardware delay change"),
+                                   r.flag(g, "in_delays", gw, False)))
+    return StationSpec(
+        id=sid, name=r.text(st, "name", w, sid), marker_m=marker,
+        antenna_type=r.text(st, "antenna_type", w, "INVENTED-ANT1"), antenna_delta_hen_m=delta,
+        receiver_type=r.text(st, "receiver_type", w, "INVENTED-RX"),
+        elevation_mask_deg=r.num(st, "elevation_mask_deg", w, 10.0, lo=0, hi=60),
+        code_noise_m=r.num(st, "code_noise_m", w, 0.3, lo=0), phase_noise_m=r.num(st, "phase_noise_m", w, 0.002, lo=0),
+        signals=signals, receiver_ns=rx_ns, cable_ns=r.num(d, "cable_ns", f"{w}.delays", 0.0),
+        reference_ns=r.num(d, "reference_ns", f"{w}.delays", 0.0),
+        u_receiver_ns=r.num(d, "u_receiver_ns", f"{w}.delays", 1.0, lo=0),
+        u_cable_ns=r.num(d, "u_cable_ns", f"{w}.delays", 0.2, lo=0),
+        u_reference_ns=r.num(d, "u_reference_ns", f"{w}.delays", 0.3, lo=0),
+        met=met_out, multipath=mp_out, clock=clock, gaps=tuple(gaps), resets=tuple(resets),
+        delay_changes=tuple(sorted(changes, key=lambda c: c.time_utc_ns)),
+        cycle_slips_per_h=r.num(st, "cycle_slips_per_h", w, 0.0, lo=0))
+
+
+# ==================================================================== clocks
+
+def clock_series(spec: ClockSpec, time_gps_ns: np.ndarray, tau0: float, rng: np.random.Generator,
+                 *, noise: bool = True, steps: bool = True):
+    """True ``local clock − GPS time`` (s) at the epochs, and the noise terms' levels.
+
+    Returns ``(x_s, levels)`` with ``levels`` a list of :class:`NoiseTerm`.
+    The noise of every term is generated at ``tau0`` over the whole span.
+    """
+    t = np.asarray(time_gps_ns, dtype=np.int64)
+    dt = (t - t[0]) / 1e9
+    x = spec.offset_ns * 1e-9 + spec.frequency_offset * dt + 0.5 * (spec.drift_per_day / 86400.0) * dt ** 2
+    levels = []
+    for kind, a1, hh in spec.noise:
+        h, a_tau0 = noise_level(kind, tau0, adev_1s=a1, h=hh)
+        levels.append(NoiseTerm(kind, h, a_tau0))
+        if noise and h > 0:
+            x = x + power_law_noise(t.size, tau0, kind, h, rng)
+    if steps:
+        for st in spec.steps:
+            tg = _utc_to_gps(st.time_utc_ns)
+            after = t >= tg
+            x = x + np.where(after, st.phase_ns * 1e-9 + st.frequency * (t - tg) / 1e9, 0.0)
+    return x, levels
+
+
+# ==================================================================== satellites
+
+_EPH_FIELDS = ("af0_s", "af1_sps", "af2_sps2", "crs_m", "delta_n_radps", "m0_rad", "cuc_rad", "e", "cus_rad",
+               "sqrt_a_sqrtm", "toe_sow_s", "cic_rad", "omega0_rad", "cis_rad", "i0_rad", "crc_m", "omega_rad",
+               "omega_dot_radps", "idot_radps", "tgd_s", "bgd_e5a_s", "bgd_e5b_s")
+
+
+def synthetic_constellation(start_gps_ns: int, end_gps_ns: int, systems, rng: np.random.Generator, *,
+                            gps_count: int = 31, galileo_count: int = 24, record_spacing_s: int = 7200):
+    """Ephemeris records (list of dicts for :func:`ctt.rinex.writers.write_nav3`) of an invented constellation.
+
+    GPS: 6 planes 60° apart in right ascension, inclination 55°, mean motion of
+    two revolutions per sidereal day (a ≈ 26 560 km), 4-6 slots per plane,
+    e 0.002-0.015. Galileo: Walker 24/3/1, 56°, a = 29 600 km, e ≈ 3e-4.
+    Each satellite is one Keplerian orbit with secular Ω̇ and i̇ and small
+    harmonic terms; its records every ``record_spacing_s`` all describe that
+    same orbit and clock polynomial (t_oe = t_oc), so switching records does
+    not move the satellite. Records start one spacing before ``start`` and end
+    one after ``end``.
+    """
+    recs = []
+    spacing = record_spacing_s * NS
+    first = (start_gps_ns // spacing) * spacing - spacing
+    last = -(-end_gps_ns // spacing) * spacing + spacing
+    toes = np.arange(first, last + 1, spacing, dtype=np.int64)
+    t_ref = int(toes[0])
+    sats = []
+    if "G" in systems:
+        per_plane = [gps_count // 6 + (1 if k < gps_count % 6 else 0) for k in range(6)]
+        prn = 1
+        for plane, n_in in enumerate(per_plane):
+            for slot in range(n_in):
+                n_target = 2 * (2 * math.pi / SIDEREAL_DAY_S)  # rad/s, inertial mean motion ~ 2 rev/sidereal day
+                dn = rng.uniform(3e-9, 5.5e-9)
+                a = (GM_GPS / (n_target - dn) ** 2) ** (1.0 / 3.0)
+                sats.append(dict(sat=f"G{prn:02d}", gm=GM_GPS, sqrt_a=math.sqrt(a), dn=dn,
+                                 e=rng.uniform(0.002, 0.015), i0=math.radians(55.0) + rng.normal(0, 0.01),
+                                 om0=math.radians(60.0 * plane) + rng.normal(0, 0.005) - 1.0,
+                                 w=rng.uniform(-math.pi, math.pi),
+                                 m0=math.radians(360.0 * slot / n_in + 15.0 * plane) + rng.normal(0, 0.02),
+                                 omdot=-8.0e-9 + rng.normal(0, 3e-10), idot=rng.normal(0, 2e-10),
+                                 cuc=rng.normal(0, 2e-6), cus=rng.normal(0, 5e-6), crc=rng.normal(200, 40),
+                                 crs=rng.normal(0, 40), cic=rng.normal(0, 5e-8), cis=rng.normal(0, 5e-8),
+                                 af0=rng.uniform(-4e-4, 4e-4), af1=rng.normal(0, 3e-12),
+                                 tgd=float(np.round(rng.normal(0, 3e-9) / 4.656612873e-10) * 4.656612873e-10)))
+                prn += 1
+    if "E" in systems:
+        n_planes = 3
+        per = [galileo_count // n_planes + (1 if k < galileo_count % n_planes else 0) for k in range(n_planes)]
+        prn = 1
+        a = 29_600_000.0
+        for plane, n_in in enumerate(per):
+            for slot in range(n_in):
+                bgd = float(np.round(rng.normal(0, 2e-9) / 2 ** -32) * 2 ** -32)
+                sats.append(dict(sat=f"E{prn:02d}", gm=GM_GAL, sqrt_a=math.sqrt(a + rng.normal(0, 200)),
+                                 dn=rng.normal(3e-9, 3e-10), e=rng.uniform(1e-4, 6e-4),
+                                 i0=math.radians(56.0) + rng.normal(0, 0.005),
+                                 om0=math.radians(120.0 * plane) + 0.3 + rng.normal(0, 0.003),
+                                 w=rng.uniform(-math.pi, math.pi),
+                                 m0=math.radians(360.0 * slot / n_in + 15.0 * plane) + rng.normal(0, 0.01),
+                                 omdot=-5.5e-9 + rng.normal(0, 2e-10), idot=rng.normal(0, 2e-10),
+                                 cuc=rng.normal(0, 2e-6), cus=rng.normal(0, 4e-6), crc=rng.normal(150, 30),
+                                 crs=rng.normal(0, 30), cic=rng.normal(0, 3e-8), cis=rng.normal(0, 3e-8),
+                                 af0=rng.uniform(-6e-4, 6e-4), af1=rng.normal(0, 2e-12), bgd=bgd))
+                prn += 1
+    for s in sats:
+        n0 = math.sqrt(s["gm"]) / s["sqrt_a"] ** 3
+        n = n0 + s["dn"]
+        wrap = lambda ang: (ang + math.pi) % (2 * math.pi) - math.pi  # noqa: E731
+        for iod, toe in enumerate(toes.tolist()):
+            d = (toe - t_ref) / 1e9
+            week, sow_ns = ts.week_sow_ns(np.int64(toe))
+            week, sow = int(week), int(sow_ns) // NS
+            rec = dict(sat=s["sat"], toc_ns=int(toe), af0_s=s["af0"] + s["af1"] * d, af1_sps=s["af1"], af2_sps2=0.0,
+                       iode=float(iod % 256), crs_m=s["crs"], delta_n_radps=s["dn"], m0_rad=wrap(s["m0"] + n * d),
+                       cuc_rad=s["cuc"], e=s["e"], cus_rad=s["cus"], sqrt_a_sqrtm=s["sqrt_a"], toe_sow_s=float(sow),
+                       cic_rad=s["cic"], omega0_rad=wrap(s["om0"] + s["omdot"] * d), cis_rad=s["cis"],
+                       i0_rad=s["i0"] + s["idot"] * d, crc_m=s["crc"], omega_rad=s["w"],
+                       omega_dot_radps=s["omdot"], idot_radps=s["idot"], week=float(week), health=0.0,
+                       ttm_sow_s=float(max(sow - record_spacing_s, 0)))
+            if s["sat"][0] == "G":
+                rec.update(l2_codes=1.0, l2p_flag=0.0, ura_m=2.0, tgd_s=s["tgd"], iodc=float(iod % 256), fit_h=4.0)
+            else:
+                # I/NAV (bits 0 and 2) with E5b/E1 clocks (bit 9): 517 (RINEX 3.04 table A8)
+                rec.update(data_source=517.0, ura_m=3.12, bgd_e5a_s=s["bgd"], bgd_e5b_s=s["bgd"])
+            recs.append(rec)
+    return recs
+
+
+class KeplerEphemerides:
+    """Truth satellite model from ephemeris records: IS-GPS-200 Table 20-IV.
+
+    Takes the records *as a reader gets them back from the file* (every field
+    rounded to the D19.12 format by :func:`ctt.rinex.writers.nav_field`) and
+    uses, for each instant, the record of that satellite whose t_oe is
+    nearest. ``states(sats, t_ns, dt_s)`` returns an object with ``pos_m``
+    (Earth-fixed at the instant), ``clock_s`` (polynomial), ``relativity_s``
+    (F·e·√A·sin E), ``tgd_s``, ``bgd_e5a_s``, ``bgd_e5b_s`` and ``status``
+    (0 = ok), like :class:`ctt.orbits.SatStates`.
+    """
+
+    def __init__(self, records: list):
+        from .rinex.writers import nav_field
+
+        self.sats = sorted({r["sat"] for r in records})
+        self._index = {s: i for i, s in enumerate(self.sats)}
+        by_sat = {s: sorted([r for r in records if r["sat"] == s], key=lambda r: r["toc_ns"]) for s in self.sats}
+        n_rec = max(len(v) for v in by_sat.values())
+        self.toe_ns = np.full((len(self.sats), n_rec), np.iinfo(np.int64).max // 4, dtype=np.int64)
+        self.p = {k: np.full((len(self.sats), n_rec), np.nan) for k in _EPH_FIELDS}
+        for s, rs in by_sat.items():
+            i = self._index[s]
+            for j, r in enumerate(rs):
+                self.toe_ns[i, j] = r["toc_ns"]
+                for k in _EPH_FIELDS:
+                    self.p[k][i, j] = nav_field(r.get(k, 0.0))
+        self.gm = np.array([GM_GPS if s[0] == "G" else GM_GAL for s in self.sats])
+
+    def states(self, sats, t_ns, dt_s=0.0):
+        sats = np.asarray(sats).astype(str)
+        t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), sats.shape)
+        dt_s = np.broadcast_to(np.asarray(dt_s, dtype=float), sats.shape)
+        si = np.array([self._index[s] for s in sats.ravel()]).reshape(sats.shape)
+        toe = self.toe_ns[si]  # (N, n_rec)
+        j = np.argmin(np.abs(toe - t_ns[..., None]), axis=-1)
+        g = {k: v[si, j] for k, v in self.p.items()}
+        tk = (t_ns - self.toe_ns[si, j]) / 1e9 + dt_s
+        gm = self.gm[si]
+        a = g["sqrt_a_sqrtm"] ** 2
+        n = np.sqrt(gm / a ** 3) + g["delta_n_radps"]
+        m = g["m0_rad"] + n * tk
+        e = g["e"]
+        E = m.copy()
+        for _ in range(30):
+            dE = (E - e * np.sin(E) - m) / (1 - e * np.cos(E))
+            E -= dE
+            if np.all(np.abs(dE) < 1e-14):
+                break
+        nu = np.arctan2(np.sqrt(1 - e * e) * np.sin(E), np.cos(E) - e)
+        phi = nu + g["omega_rad"]
+        s2, c2 = np.sin(2 * phi), np.cos(2 * phi)
+        u = phi + g["cus_rad"] * s2 + g["cuc_rad"] * c2
+        r = a * (1 - e * np.cos(E)) + g["crs_m"] * s2 + g["crc_m"] * c2
+        inc = g["i0_rad"] + g["cis_rad"] * s2 + g["cic_rad"] * c2 + g["idot_radps"] * tk
+        xp, yp = r * np.cos(u), r * np.sin(u)
+        om = g["omega0_rad"] + (g["omega_dot_radps"] - OMEGA_E) * tk - OMEGA_E * g["toe_sow_s"]
+        co, so, ci = np.cos(om), np.sin(om), np.cos(inc)
+        pos = np.stack([xp * co - yp * ci * so, xp * so + yp * ci * co, yp * np.sin(inc)], axis=-1)
+        tc = tk  # t_oc = t_oe in these records
+        clock = g["af0_s"] + g["af1_sps"] * tc + g["af2_sps2"] * tc ** 2
+        f_rel = -2.0 * np.sqrt(gm) / C_MPS ** 2
+        rel = f_rel * e * g["sqrt_a_sqrtm"] * np.sin(E)
+        return _States(pos_m=pos, clock_s=clock, relativity_s=rel, tgd_s=g["tgd_s"], bgd_e5a_s=g["bgd_e5a_s"],
+                       bgd_e5b_s=g["bgd_e5b_s"], status=np.zeros(sats.shape, dtype=int))
+
+
+@dataclasses.dataclass
+class _States:
+    pos_m: np.ndarray
+    clock_s: np.ndarray
+    relativity_s: np.ndarray
+    tgd_s: np.ndarray
+    bgd_e5a_s: np.ndarray
+    bgd_e5b_s: np.ndarray
+    status: np.ndarray
+
+
+def light_time(model, sats, t_r_ns, t_r_dt_s, rx_m, *, earth_rotation: bool = True, tol_s: float = 1e-15):
+    """Exact geometric light time τ (s) and the satellite position in the receive-time Earth frame.
+
+    Solves ``c·τ = |R3(ωe·τ)·r_sat(t_r − τ) − r_rx|`` by fixed-point iteration
+    (module docstring). ``sats`` (N,), ``t_r_ns`` int64 (N,), ``t_r_dt_s``
+    (N,), ``rx_m`` (N, 3). Returns ``(tau_s, sat_rot_m, states_at_transmit)``.
+    """
+    we = OMEGA_E if earth_rotation else 0.0
+    tau = np.full(np.shape(t_r_ns), 0.075)
+    for _ in range(12):
+        st = model.states(sats, t_r_ns, t_r_dt_s - tau)
+        th = we * tau
+        c, s = np.cos(th), np.sin(th)
+        p = st.pos_m
+        rot = np.stack([c * p[..., 0] + s * p[..., 1], -s * p[..., 0] + c * p[..., 1], p[..., 2]], axis=-1)
+        new = np.linalg.norm(rot - rx_m, axis=-1) / C_MPS
+        done = np.nanmax(np.abs(new - tau)) < tol_s if new.size else True
+        tau = new
+        if done:
+            break
+    st = model.states(sats, t_r_ns, t_r_dt_s - tau)
+    th = we * tau
+    c, s = np.cos(th), np.sin(th)
+    p = st.pos_m
+    rot = np.stack([c * p[..., 0] + s * p[..., 1], -s * p[..., 0] + c * p[..., 1], p[..., 2]], axis=-1)
+    return tau, rot, st
+
+
+# ==================================================================== simulation
+
+@dataclasses.dataclass
+class StationResult:
+    spec: StationSpec
+    time_ns: np.ndarray          # time tags (GPS), all epochs
+    sats: list
+    obs: dict                    # code -> (n_epoch, n_sat), NaN absent
+    lli: dict
+    ssi: dict
+    clock_s: np.ndarray          # true local clock - GPS (s), all epochs
+    apparent_s: np.ndarray       # clock + undocumented hardware changes (s)
+    tau_s: np.ndarray            # geometric light time (n_epoch, n_sat)
+    sat_clock_s: np.ndarray      # true satellite clock - GPS at transmission, with relativity (n_epoch, n_sat)
+    rx_m: np.ndarray             # antenna position with the tide, ECEF (n_epoch, 3)
+    elevation_rad: np.ndarray
+    azimuth_rad: np.ndarray
+    epoch_kept: np.ndarray       # bool per epoch (gaps/outages removed)
+    met: dict                    # met truth at the met epochs
+    noise_levels: list
+    parts: dict                  # per-code itemised terms (m) for checks
+
+
+@dataclasses.dataclass
+class SimulationResult:
+    scenario: Scenario
+    stations: dict
+    nav_records: list
+    iono_alpha: np.ndarray
+    iono_beta: np.ndarray
+    truth: pd.DataFrame
+    steps: pd.DataFrame
+    files: dict
+
+
+def _met_truth(spec: StationSpec, lon_rad, time_gps_ns):
+    utc = ts.convert(time_gps_ns, "GPS", "UTC")
+    hours = (utc % ts.NS_PER_DAY) / 3.6e12 + math.degrees(lon_rad) / 15.0
+    ph = 2 * math.pi * (hours - 15.0) / 24.0
+    m = spec.met
+    p = m["pressure_hpa"] + m["pressure_amplitude_hpa"] * np.cos(2 * math.pi * (hours - 10.0) / 12.0)
+    t = m["temperature_c"] + m["temperature_amplitude_c"] * np.cos(ph)
+    rh = np.clip(m["humidity_pct"] - m["humidity_amplitude_pct"] * np.cos(ph), 1.0, 100.0)
+    return p, t, rh
+
+
+def _hardware_ns(spec: StationSpec, code: str, time_utc_ns, documented_only=False):
+    """Station hardware delay receiver + cable − reference (ns) at each instant, with changes."""
+    t = np.asarray(time_utc_ns)
+    hw = np.full(t.shape, spec.receiver_ns[code] + spec.cable_ns - spec.reference_ns)
+    for ch in spec.delay_changes:
+        if documented_only and not ch.in_delays:
+            continue
+        d = ch.receiver_ns.get(code, 0.0) + ch.cable_ns - ch.reference_ns
+        hw = hw + np.where(t >= ch.time_utc_ns, d, 0.0)
+    return hw
+
+
+def _satellite_model(scn: Scenario, rng):
+    """(model, sats, records or None, alpha, beta, nav path or None)."""
+    if scn.satellites["source"] == "synthetic":
+        t = scn.time_ns
+        recs = synthetic_constellation(int(t[0]), int(t[-1]), scn.systems, rng,
+                                       gps_count=scn.satellites["gps_count"],
+                                       galileo_count=scn.satellites["galileo_count"])
+        model = KeplerEphemerides(recs)
+        from .rinex.writers import nav_field
+
+        alpha = nav_field(np.array(scn.satellites["klobuchar_alpha"]))
+        beta = nav_field(np.array(scn.satellites["klobuchar_beta"]))
+        alpha = np.array([float(f"{v:.4E}") for v in alpha])  # the header's D12.4 fields
+        beta = np.array([float(f"{v:.4E}") for v in beta])
+        return model, list(model.sats), recs, alpha, beta, None
+    from .orbits import BroadcastOrbits
+    from .rinex.nav import read_nav
+
+    nav_path = scn.satellites["nav_file"]
+    if not nav_path.is_file():
+        raise MissingInputError(f"{nav_path}: navigation file not found (scenario satellites.nav_file)")
+    nav = read_nav(nav_path)
+    model = BroadcastOrbits(nav)
+    sats = sorted({str(s) for sysl in scn.systems if sysl in nav.records for s in nav.records[sysl]["sat"]})
+    if not sats:
+        raise MissingInputError(f"{nav_path}: no ephemerides of the systems {scn.systems}")
+    iono = nav.header.iono
+    alpha = np.asarray(iono.get("GPSA", [0.0] * 4), dtype=float)
+    beta = np.asarray(iono.get("GPSB", [0.0] * 4), dtype=float)
+    return model, sats, None, alpha, beta, nav_path
+
+
+def _gps_sow_s(t_ns):
+    _, sow = ts.week_sow_ns(t_ns)
+    return sow / 1e9
+
+
+def simulate(scn: Scenario) -> SimulationResult:
+    """Run the forward model for every station (no files written)."""
+    from .atmosphere import klobuchar_delay_s, niell_mapping, zenith_delays
+    from .geodesy import antenna_reference_point, azimuth_elevation, ecef_to_geodetic, solid_tide_displacement
+
+    rng = np.random.default_rng(scn.random_state)
+    rng_sats, rng_clocks, rng_obs = (np.random.default_rng(s) for s in rng.integers(0, 2 ** 63, 3))
+    model, sats, recs, alpha, beta, _ = _satellite_model(scn, rng_sats)
+    sats = sorted((s for s in sats if s[0] in scn.systems), key=lambda s: ("GE".index(s[0]), s))
+    t_tag = scn.time_ns
+    n_ep, n_sat = t_tag.size, len(sats)
+    tau0 = scn.interval_s
+    prop = scn.propagation
+    sat_clock_err = np.zeros((n_ep, n_sat))
+    if scn.satellites["clock_error_ns"] > 0:
+        # true minus broadcast satellite clock: a random walk scaled to the given rms over the span
+        walk = np.cumsum(rng_sats.standard_normal((n_ep, n_sat)), axis=0)
+        walk -= walk.mean(axis=0)
+        walk /= max(np.sqrt(np.mean(walk ** 2)), 1e-30)
+        sat_clock_err = walk * scn.satellites["clock_error_ns"] * 1e-9
+    sat_arr = np.array(sats)
+    results = {}
+    for spec in scn.stations:
+        srng = np.random.default_rng(rng_clocks.integers(0, 2 ** 63))
+        orng = np.random.default_rng(rng_obs.integers(0, 2 ** 63))
+        x, levels = clock_series(spec.clock, t_tag, tau0, srng)
+        # true receive instant t_r = t_tag - x (int ns + float s)
+        t_r_dt = -x
+        arp = antenna_reference_point(spec.marker_m, *spec.antenna_delta_hen_m)
+        lat, lon, hgt = (float(v) for v in ecef_to_geodetic(arp))
+        rx = np.broadcast_to(arp, (n_ep, 3)).copy()
+        if prop["solid_tide"]:
+            rx = rx + solid_tide_displacement(spec.marker_m, t_tag, time_scale="GPS")
+        T = np.repeat(t_tag, n_sat)
+        DT = np.repeat(t_r_dt, n_sat)
+        S = np.tile(sat_arr, n_ep)
+        RX = np.repeat(rx, n_sat, axis=0)
+        tau, sat_rot, st = light_time(model, S, T, DT, RX, earth_rotation=prop["earth_rotation"])
+        ok = st.status == 0
+        tau = tau.reshape(n_ep, n_sat)
+        sat_rot = sat_rot.reshape(n_ep, n_sat, 3)
+        az, el, _ = azimuth_elevation(rx[:, None, :], sat_rot)
+        dts = (st.clock_s + st.relativity_s).reshape(n_ep, n_sat) + sat_clock_err
+        ok = ok.reshape(n_ep, n_sat) & np.isfinite(tau) & np.isfinite(dts)
+        # troposphere truth
+        met_p, met_t, met_rh = _met_truth(spec, lon, t_tag)
+        if prop["troposphere"]:
+            zhd, zwd = zenith_delays(met_p, met_t, met_rh, lat, hgt)
+            rw = prop["wet_random_walk_mm_per_sqrt_h"]
+            if rw > 0:
+                steps_rw = orng.standard_normal(n_ep) * rw * 1e-3 * math.sqrt(tau0 / 3600.0)
+                steps_rw[0] = 0.0
+                zwd = np.maximum(zwd + np.cumsum(steps_rw), 0.0)
+            doy = ts.day_of_year(t_tag) + (t_tag % ts.NS_PER_DAY) / ts.NS_PER_DAY
+            el_safe = np.where(el > math.radians(1.0), el, math.radians(1.0))
+            mh, mw = niell_mapping(el_safe, lat, hgt, doy[:, None])
+            trop = zhd[:, None] * mh + zwd[:, None] * mw
+        else:
+            trop = np.zeros((n_ep, n_sat))
+        if prop["ionosphere"]:
+            sow = _gps_sow_s(t_tag)[:, None]
+            iono_l1 = prop["iono_scale"] * C_MPS * klobuchar_delay_s(alpha, beta, lat, lon, az, np.maximum(el, 0.0), sow)
+        else:
+            iono_l1 = np.zeros((n_ep, n_sat))
+        # visibility, gaps, resets
+        visible = ok & (el >= math.radians(spec.elevation_mask_deg))
+        t_utc = ts.convert(t_tag, "GPS", "UTC")
+        kept = np.ones(n_ep, dtype=bool)
+        for a, b in spec.gaps:
+            kept &= ~((t_utc >= a) & (t_utc < b))
+        reset_flag = np.zeros(n_ep, dtype=bool)
+        for tr, outage in spec.resets:
+            kept &= ~((t_utc >= tr) & (t_utc < tr + int(outage * NS)))
+            after = np.flatnonzero(t_utc >= tr + int(outage * NS))
+            if after.size:
+                reset_flag[after[0]] = True
+        tracked = visible & kept[:, None]
+        # arcs: new arc where tracking starts, after a reset, or at a cycle slip
+        prev = np.vstack([np.zeros((1, n_sat), bool), tracked[:-1]])
+        start_arc = tracked & (~prev | reset_flag[:, None])
+        if spec.cycle_slips_per_h > 0:
+            p_slip = spec.cycle_slips_per_h * tau0 / 3600.0
+            start_arc |= tracked & (orng.random((n_ep, n_sat)) < p_slip)
+        arc_id = np.cumsum(start_arc, axis=0)
+        sin_el = np.sin(np.clip(el, math.radians(1.0), None))
+        sys_of = np.array([s[0] for s in sats])
+        obs, lli, ssi, parts = {}, {}, {}, {}
+        mp = spec.multipath
+        base_range = C_MPS * (tau + x[:, None] - dts)
+        for s_letter in scn.systems:
+            cols = sys_of == s_letter
+            for code in spec.signals.get(s_letter, ()):
+                band = code[1]
+                f = F_HZ[(s_letter, band)]
+                lam = C_MPS / f
+                k_iono = (F_L1 / f) ** 2
+                hw_m = C_MPS * 1e-9 * _hardware_ns(spec, code, t_utc)[:, None]
+                if s_letter == "G":
+                    g = {"1": 1.0, "2": (F_L1 / F_HZ[("G", "2")]) ** 2, "5": (F_L1 / F_HZ[("G", "5")]) ** 2}[band]
+                    gd = g * st.tgd_s.reshape(n_ep, n_sat)
+                else:
+                    if band == "1":
+                        gd = st.bgd_e5b_s.reshape(n_ep, n_sat)
+                    elif band == "5":
+                        gd = k_iono * st.bgd_e5a_s.reshape(n_ep, n_sat)
+                    else:
+                        gd = k_iono * st.bgd_e5b_s.reshape(n_ep, n_sat)
+                gd_m = C_MPS * np.nan_to_num(gd)
+                if mp is not None:
+                    ph0 = {"1": 0.3, "2": 1.7, "5": 2.9, "7": 4.1}[band] + (0.0 if s_letter == "G" else 0.8)
+                    mpm = (mp["amplitude_m"] * np.exp(-(np.degrees(el) - spec.elevation_mask_deg) / mp["decay_deg"])
+                           * np.sin(3.0 * az + 9.0 * el + ph0))
+                else:
+                    mpm = np.zeros((n_ep, n_sat))
+                code_noise = orng.standard_normal((n_ep, n_sat)) * spec.code_noise_m / sin_el
+                phase_noise = orng.standard_normal((n_ep, n_sat)) * spec.phase_noise_m / sin_el
+                P = base_range + trop + k_iono * iono_l1 + hw_m + gd_m + mpm + code_noise
+                amb = orng.integers(-200, 200, size=(int(arc_id.max()) + 2, n_sat))
+                N = np.take_along_axis(amb, arc_id, axis=0)
+                L = (base_range + trop - k_iono * iono_l1 + hw_m + mpm / 100.0 + phase_noise) / lam + N
+                cn0 = {"1": 0.0, "2": -6.0, "5": 3.0, "7": 2.0}[band] + 32.0 + 18.0 * np.sin(np.clip(el, 0, None))
+                Sv = np.round((cn0 + 0.5 * orng.standard_normal((n_ep, n_sat))) * 4) / 4
+                m = tracked & cols[None, :]
+                sig = np.clip(np.floor(np.nan_to_num(Sv) / 6.0), 1, 9).astype(np.int8)
+                for kind, val in (("C", P), ("L", L), ("S", Sv)):
+                    # codes shared by GPS and Galileo (C1C, C5Q...) fill their own columns of one array
+                    name = kind + code[1:]
+                    if name not in obs:
+                        obs[name] = np.full((n_ep, n_sat), np.nan)
+                        ssi[name] = np.zeros((n_ep, n_sat), np.int8)
+                        lli[name] = np.zeros((n_ep, n_sat), np.int8)
+                    obs[name] = np.where(m, np.round(val, 3), obs[name])
+                    if kind != "S":
+                        ssi[name] = np.where(m, sig, ssi[name]).astype(np.int8)
+                    if kind == "L":
+                        lli[name] = np.where(m & start_arc, 1, lli[name]).astype(np.int8)
+                parts[(s_letter, code)] = dict(trop=trop, iono=k_iono * iono_l1, hw=hw_m, gd=gd_m, mp=mpm)
+        first_code = next(iter(spec.signals.get("G", spec.signals.get("E", ("C1C",)))))
+        undocumented = (_hardware_ns(spec, first_code, t_utc) - _hardware_ns(spec, first_code, t_utc, True)) * 1e-9
+        results[spec.id] = StationResult(
+            spec=spec, time_ns=t_tag, sats=sats, obs=obs, lli=lli, ssi=ssi, clock_s=x,
+            apparent_s=x + undocumented, tau_s=tau, sat_clock_s=dts, rx_m=rx, elevation_rad=el, azimuth_rad=az, epoch_kept=kept,
+            met=dict(p=met_p, t=met_t, rh=met_rh), noise_levels=levels, parts=parts)
+    truth, steps = _truth_tables(scn, results)
+    return SimulationResult(scenario=scn, stations=results, nav_records=recs or [], iono_alpha=alpha,
+                            iono_beta=beta, truth=truth, steps=steps, files={})
+
+
+def _truth_tables(scn: Scenario, results: dict):
+    t = scn.time_ns
+    utc = ts.convert(t, "GPS", "UTC")
+    mjd, sod = ts.to_mjd(utc)
+    cols = {"time_utc": ts.to_iso(utc, 0, "Z"), "mjd_utc": np.round(mjd + sod / 86400.0, 8),
+            "time_gps": ts.to_iso(t, 0, "")}
+    for sid, r in results.items():
+        cols[f"{sid}_ns"] = r.clock_s * 1e9
+    for a, b in scn.pairs:
+        cols[f"{a}-{b}_ns"] = (results[a].clock_s - results[b].clock_s) * 1e9
+    for sid, r in results.items():
+        cols[f"{sid}_apparent_ns"] = r.apparent_s * 1e9
+    for a, b in scn.pairs:
+        cols[f"{a}-{b}_apparent_ns"] = (results[a].apparent_s - results[b].apparent_s) * 1e9
+    truth = pd.DataFrame(cols)
+    rows = []
+    for spec in scn.stations:
+        for stp in spec.clock.steps:
+            if stp.phase_ns:
+                rows.append(dict(time_utc=ts.to_iso(stp.time_utc_ns, 0, "Z"), station=spec.id, kind="clock_phase",
+                                 phase_ns=stp.phase_ns, frequency=0.0, apparent_step_ns=stp.phase_ns,
+                                 in_delays=False, what="clock phase step"))
+            if stp.frequency:
+                rows.append(dict(time_utc=ts.to_iso(stp.time_utc_ns, 0, "Z"), station=spec.id,
+                                 kind="clock_frequency", phase_ns=0.0, frequency=stp.frequency, apparent_step_ns=0.0,
+                                 in_delays=False, what="clock frequency step"))
+        first_code = next(iter(spec.signals.get("G", spec.signals.get("E", ("C1C",)))))
+        for ch in spec.delay_changes:
+            d = ch.receiver_ns.get(first_code, 0.0) + ch.cable_ns - ch.reference_ns
+            rows.append(dict(time_utc=ts.to_iso(ch.time_utc_ns, 0, "Z"), station=spec.id, kind="delay",
+                             phase_ns=d, frequency=0.0, apparent_step_ns=0.0 if ch.in_delays else d,
+                             in_delays=ch.in_delays, what=ch.what))
+    steps = pd.DataFrame(rows, columns=["time_utc", "station", "kind", "phase_ns", "frequency", "apparent_step_ns",
+                                        "in_delays", "what"])
+    return truth, steps
+
+
+# ==================================================================== files
+
+def _period_code(duration_s: float) -> str:
+    if duration_s % 86400 == 0:
+        return f"{int(duration_s // 86400):02d}D"
+    if duration_s % 3600 == 0:
+        return f"{int(duration_s // 3600):02d}H"
+    return f"{int(round(duration_s / 60)):02d}M"
+
+
+def obs_file_name(sid: str, start_gps_ns: int, duration_s: float, interval_s: float, gz: bool) -> str:
+    """RINEX 3 long name ``LABA00XXX_R_YYYYDDDHHMM_01D_30S_MO.rnx`` (country code XXX: user-assigned)."""
+    y, _, _, h, mi, _, _ = (int(v) for v in ts.ns_to_civil(np.int64(start_gps_ns)))
+    doy = int(ts.day_of_year(np.int64(start_gps_ns)))
+    name = (f"{sid[:4].upper()}00XXX_R_{y:04d}{doy:03d}{h:02d}{mi:02d}_{_period_code(duration_s)}_"
+            f"{int(round(interval_s)):02d}S_MO.rnx")
+    return name + (".gz" if gz else "")
+
+
+def nav_file_name(start_gps_ns: int, duration_s: float, gz: bool) -> str:
+    y, _, _, h, mi, _, _ = (int(v) for v in ts.ns_to_civil(np.int64(start_gps_ns)))
+    doy = int(ts.day_of_year(np.int64(start_gps_ns)))
+    return f"BRDC00XXX_R_{y:04d}{doy:03d}{h:02d}{mi:02d}_{_period_code(duration_s)}_MN.rnx" + (".gz" if gz else "")
+
+
+def met_file_name(sid: str, start_gps_ns: int) -> str:
+    y = int(ts.ns_to_civil(np.int64(start_gps_ns))[0])
+    doy = int(ts.day_of_year(np.int64(start_gps_ns)))
+    return f"{sid[:4].lower()}{doy:03d}0.{y % 100:02d}m"
+
+
+def write_outputs(res: SimulationResult, out_dir) -> dict:
+    """Write every file of the scenario into ``out_dir``; returns ``{kind: [paths]}``."""
+    from .config import Antenna, DelaySet, HardwareChange, StationConfig, dump_station
+    from .geodesy import ecef_to_geodetic
+    from .rinex.writers import write_met2, write_nav3, write_obs2, write_obs3
+
+    scn = res.scenario
+    out = pathlib.Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    gz = scn.output["gzip"]
+    t = scn.time_ns
+    duration_s = scn.n_epochs * scn.interval_s
+    leap = int(ts.leap_seconds_at_gps(t[0]))
+    files = {"obs": [], "obs2": [], "met": [], "station": [], "pair": [], "nav": [], "truth": []}
+    comments = [f"simulated by ctt: scenario {scn.name}", f"random_state {scn.random_state}",
+                "synthetic data: invented stations and clocks"]
+    # navigation
+    if res.nav_records:
+        week, sow = ts.gps_week_sow(t[0])
+        nav_path = out / nav_file_name(int(t[0]), duration_s, gz)
+        write_nav3(nav_path, res.nav_records,
+                   iono={"GPSA": res.iono_alpha, "GPSB": res.iono_beta, "GAL": [60.0, 0.2, 0.003]},
+                   time_corrections={"GPUT": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week)),
+                                     "GAGP": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week))},
+                   leap_seconds=leap, run_ns=int(t[0]), comments=comments[:1])
+        nav_name = nav_path.name
+    else:
+        src = scn.satellites["nav_file"]
+        nav_name = src.name
+        if (out / nav_name).resolve() != src.resolve():
+            shutil.copyfile(src, out / nav_name)
+        nav_path = out / nav_name
+    files["nav"].append(nav_path)
+    met_step = max(1, int(round(scn.output["met_interval_s"] / scn.interval_s)))
+    for sid, r in res.stations.items():
+        spec = r.spec
+        obs_types = {s: [k + c[1:] for c in spec.signals[s] for k in "CLS"] for s in scn.systems if s in spec.signals}
+        p = write_obs3(out / obs_file_name(sid, int(t[0]), duration_s, scn.interval_s, gz), marker=sid,
+                       time_ns=t, sats=r.sats, obs=r.obs, types=obs_types, lli=r.lli, ssi=r.ssi,
+                       interval_s=scn.interval_s, approx_xyz_m=spec.marker_m,
+                       antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
+                       receiver_number=f"{sid}-RX1", receiver_version="1.0", antenna_type=spec.antenna_type,
+                       antenna_number=f"{sid}-ANT1", observer="ctt simulate", agency=spec.name,
+                       leap_seconds=leap, run_ns=int(t[0]), comments=comments)
+        files["obs"].append(p)
+        if scn.output["rinex2"] and "G" in spec.signals:
+            y = int(ts.ns_to_civil(np.int64(t[0]))[0])
+            doy = int(ts.day_of_year(np.int64(t[0])))
+            name2 = f"{sid[:4].lower()}{doy:03d}0.{y % 100:02d}o" + (".gz" if gz else "")
+            codes = [k + c[1:] for c in spec.signals["G"] for k in "CLS"]
+            files["obs2"].append(write_obs2(out / name2, marker=sid, time_ns=t, sats=r.sats, obs=r.obs, codes=codes,
+                                            lli=r.lli, ssi=r.ssi, interval_s=scn.interval_s,
+                                            approx_xyz_m=spec.marker_m, antenna_delta_hen_m=spec.antenna_delta_hen_m,
+                                            receiver_type=spec.receiver_type, antenna_type=spec.antenna_type,
+                                            observer="ctt simulate", agency=spec.name, leap_seconds=leap,
+                                            run_ns=int(t[0])))
+        lat, lon, hgt = (float(v) for v in ecef_to_geodetic(spec.marker_m))
+        mi = np.arange(0, t.size, met_step)
+        files["met"].append(write_met2(out / met_file_name(sid, int(t[0])), marker=sid, time_ns=t[mi],
+                                       pressure_hpa=r.met["p"][mi], temperature_c=r.met["t"][mi],
+                                       humidity_pct=r.met["rh"][mi],
+                                       sensor_xyz_h_m=(*spec.marker_m, hgt), run_ns=int(t[0])))
+        # station TOML: the true delays; documented changes open a new [[delays]] set
+        utc0 = int(ts.convert(np.int64(t[0]), "GPS", "UTC"))
+        valid_from = ts.date_to_ns(str(ts.to_datetime64(utc0 - 30 * ts.NS_PER_DAY))[:10])
+        sets = []
+        cur = dict(receiver=dict(spec.receiver_ns), cable=spec.cable_ns, reference=spec.reference_ns)
+        t_from = valid_from
+        documented = [c for c in spec.delay_changes if c.in_delays]
+        for k, ch in enumerate(documented + [None]):
+            t_until = None if ch is None else ch.time_utc_ns
+            sets.append(DelaySet(valid_from_ns=int(t_from), valid_until_ns=t_until,
+                                 receiver_ns=dict(cur["receiver"]),
+                                 u_receiver_ns={c: spec.u_receiver_ns for c in cur["receiver"]},
+                                 cable_ns=cur["cable"], u_cable_ns=spec.u_cable_ns, reference_ns=cur["reference"],
+                                 u_reference_ns=spec.u_reference_ns,
+                                 note="simulated truth" if k == 0 else f"after: {documented[k - 1].what}",
+                                 index=k + 1))
+            if ch is not None:
+                cur = dict(receiver={c: v + ch.receiver_ns.get(c, 0.0) for c, v in cur["receiver"].items()},
+                           cable=cur["cable"] + ch.cable_ns, reference=cur["reference"] + ch.reference_ns)
+                t_from = ch.time_utc_ns
+        first_code = next(iter(spec.signals.get("G", spec.signals.get("E", ("C1C",)))))
+        changes = tuple(HardwareChange(ch.time_utc_ns, ch.what,
+                                       ch.receiver_ns.get(first_code, 0.0) + ch.cable_ns - ch.reference_ns)
+                        for ch in spec.delay_changes)
+        cfg = StationConfig(
+            id=sid, name=spec.name, position_m=np.array(spec.marker_m, dtype=float),
+            position_sigma_m=np.array([0.005, 0.005, 0.005]), frame="ITRF2014",
+            epoch=float(y_frac(t[0])), is_marker=True,
+            antenna=Antenna(spec.antenna_type, np.array(spec.antenna_delta_hen_m, dtype=float)),
+            elevation_mask_deg=spec.elevation_mask_deg, met_pattern="{station}{doy:03d}0.{yy:02d}m",
+            delay_sets=tuple(sets), changes=changes, path=None, sha256="")
+        sp = out / f"{sid.lower()}.toml"
+        sp.write_text("# simulated station (invented); written by ctt simulate\n" + dump_station(cfg))
+        files["station"].append(sp)
+    obs_pattern = (f"{{STATION}}00XXX_R_{{yyyy}}{{doy:03d}}0000_{_period_code(duration_s)}_"
+                   f"{int(round(scn.interval_s)):02d}S_MO.rnx" + (".gz" if gz else ""))
+    nav_pattern = nav_name
+    if res.nav_records:
+        nav_pattern = f"BRDC00XXX_R_{{yyyy}}{{doy:03d}}0000_{_period_code(duration_s)}_MN.rnx" + (".gz" if gz else "")
+    for a, b in scn.pairs:
+        pp = out / f"{a.lower()}-{b.lower()}.toml"
+        systems = ", ".join(f'"{s}"' for s in scn.systems)
+        pp.write_text(
+            "# pair of simulated stations; written by ctt simulate\n"
+            f"[pair]\nname = \"{a.lower()}-{b.lower()}\"\nstation_a = \"{a.lower()}.toml\"\n"
+            f"station_b = \"{b.lower()}.toml\"\ndata_root = \".\"\n\n"
+            f"[inputs]\nobs = \"{obs_pattern}\"\nnav = \"{nav_pattern}\"\n"
+            "met = \"{station}{doy:03d}0.{yy:02d}m\"\noptional = [\"met\"]\n\n"
+            f"[processing]\nsystems = [{systems}]\n\n[output]\ndir = \"out\"\n")
+        files["pair"].append(pp)
+    tp = out / "truth.csv"
+    table = res.truth.copy()
+    table["mjd_utc"] = [f"{v:.8f}" for v in table["mjd_utc"]]
+    table.to_csv(tp, index=False, float_format="%.6f")
+    sp = out / "truth_steps.csv"
+    res.steps.to_csv(sp, index=False)
+    files["truth"] += [tp, sp]
+    res.files = files
+    return files
+
+
+def y_frac(t_gps_ns) -> float:
+    """Decimal year of an instant (for the station file's coordinate epoch), rounded to 0.001."""
+    y = int(ts.ns_to_civil(np.int64(t_gps_ns))[0])
+    t0 = ts.civil_to_ns(y, 1, 1)
+    t1 = ts.civil_to_ns(y + 1, 1, 1)
+    return round(y + float((t_gps_ns - t0) / (t1 - t0)), 3)
+
+
+def run_scenario(scenario_path, out_dir) -> SimulationResult:
+    """Load a scenario file, simulate it and write its files into ``out_dir``."""
+    scn = load_scenario(scenario_path)
+    res = simulate(scn)
+    write_outputs(res, out_dir)
+    return res
+
