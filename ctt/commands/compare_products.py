@@ -22,9 +22,14 @@ describe the clock for the iono-free L1 P(Y)/L2 P(Y) combination, since
 IS-GPS-200 §20.3.3.3.3.2 has single-frequency L1 P(Y) users apply
 (Δt_SV)_L1 = Δt_SV − T_GD (and L2 users Δt_SV − γ·T_GD) while the
 dual-frequency user of §20.3.3.3.3.3 forms (PR_L2 − γ PR_L1)/(1 − γ) with no
-T_GD; IGS clocks refer to the same P1/P2 iono-free combination (ESA
-Navipedia, "Ionosphere-free Combination for Dual Frequency Receivers": the
-TGDs cancel in this combination, the satellite clocks being referred to it).
+T_GD (section numbers from memory; the statements checked against
+secondary sources: Leick et al., "GPS Satellite Surveying", ch. 5: L1 users
+subtract T_GD, L2-only users γ·T_GD; Inside GNSS, "Inter-Signal Correction
+Sensitivity Analysis": the broadcast ephemeris and clock are based on the
+iono-free L1 P(Y)/L2 P(Y) pseudorange). IGS clocks refer to the same P1/P2
+iono-free combination (ESA Navipedia, "Ionosphere-free Combination for Dual
+Frequency Receivers": the TGDs cancel in this combination, the satellite
+clocks being referred to it).
 A constant per-satellite difference of the two P1−P2 bias realisations
 remains inside the clock RMS.
 
