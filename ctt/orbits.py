@@ -157,7 +157,10 @@ _REASONS = {
 
 _SCALE = {"G": "GPS", "J": "QZS", "E": "GST", "C": "BDT", "R": "UTC"}
 _HALF_VALID_NS = {"E": 4 * 3600 * NS_PER_S, "C": 2 * 3600 * NS_PER_S, "R": 1800 * NS_PER_S}
-_WINDOW = 6  # candidates examined on each side of the instant (per satellite, sorted by t_oe)
+# candidates examined on each side of the instant (per satellite, sorted by t_oe): among usable
+# records, and (for the reason of a failure) among all records
+_WINDOW = 4
+_WINDOW_ALL = 4
 _I64MIN = np.iinfo(np.int64).min
 
 
@@ -395,23 +398,38 @@ class _SystemTable:
                 iodc = df["iodc"].to_numpy()
                 st = np.where((st == OK) & (iode != (iodc & 0xFF)), IOD_MISMATCH, st)
         self.static = st
-        # key arrays for searchsorted: all records, and usable records
-        self.all_idx = order
-        self.use_idx = order[st[order] == OK]
+        # Checks in the order a failure is reported: message source, health, IOD. stage = how many
+        # of them a record passes; subset k holds the records with stage >= k, reduced to one per
+        # (satellite, reference epoch) -- the copy broadcast first -- so that the few candidates
+        # examined around an instant are distinct data sets (merged files carry many copies).
+        stage = np.full(len(df), 3, dtype=np.int64)
+        stage = np.where(st == IOD_MISMATCH, 2, stage)
+        stage = np.where(st == UNHEALTHY, 1, stage)
+        stage = np.where(st == WRONG_SOURCE, 0, stage)
         self.n_sat = len(self.sat_names)
+        self.subsets = []
+        for k in range(4):
+            idx = np.flatnonzero(stage >= k)
+            o = np.lexsort((self.avail_ns[idx], ref[idx], self.code[idx]))
+            idx = idx[o]
+            if len(idx) > 1:
+                first = np.ones(len(idx), dtype=bool)
+                first[1:] = (self.code[idx][1:] != self.code[idx][:-1]) | (ref[idx][1:] != ref[idx][:-1])
+                idx = idx[first]
+            self.subsets.append((idx, self._key(self.code[idx], ref[idx])))
 
     def _key(self, code, t_ns):
         rel = np.clip((np.asarray(t_ns, dtype=np.int64) - self.t0) // 1000, -(2**42), 2**42 - 1)
         return code * (2**44) + rel + 2**42
 
-    def _pick(self, idx_sorted, q_code, q_t, allow_future):
-        """Best record (row into df, −1 none) and per-candidate flags over a window."""
+    def _pick(self, subset, q_code, q_t, allow_future, window=_WINDOW):
+        """Best record (row into df, −1 none) and whether any candidate was in its validity interval."""
+        idx_sorted, keys = subset
         n = len(q_code)
         if len(idx_sorted) == 0 or n == 0:
-            return np.full(n, -1, dtype=np.int64), None
-        keys = self._key(self.code[idx_sorted], self.ref_ns[idx_sorted])
+            return np.full(n, -1, dtype=np.int64), np.zeros(n, dtype=bool)
         pos = np.searchsorted(keys, self._key(q_code, q_t))
-        offs = np.arange(-_WINDOW, _WINDOW)
+        offs = np.arange(-window, window)
         cand = pos[:, None] + offs[None, :]
         inside = (cand >= 0) & (cand < len(idx_sorted))
         cand = np.clip(cand, 0, len(idx_sorted) - 1)
@@ -425,7 +443,7 @@ class _SystemTable:
         j = np.argmin(score, axis=1)
         best = rec[np.arange(n), j]
         found = avail[np.arange(n), j]
-        return np.where(found, best, -1), (rec, same, in_fit, avail, score)
+        return np.where(found, best, -1), in_fit.any(axis=1)
 
     def select(self, q_sat, q_t, allow_future):
         """Record per query (−1 none) and status codes."""
@@ -438,20 +456,27 @@ class _SystemTable:
         rec = np.full(n, -1, dtype=np.int64)
         k = np.flatnonzero(known)
         if len(k):
-            best, _ = self._pick(self.use_idx, code[k], q_t[k], allow_future)
+            best, _ = self._pick(self.subsets[3], code[k], q_t[k], allow_future)
             rec[k] = best
             bad = k[best < 0]
             if len(bad):
-                _, (r2, same, in_fit, avail, score) = self._pick(self.all_idx, code[bad], q_t[bad], allow_future)
-                st = np.full(len(bad), STALE, dtype=np.int64)
-                any_fit = in_fit.any(axis=1)
-                any_av = avail.any(axis=1)
-                st = np.where(any_fit & ~any_av, NOT_YET_BROADCAST, st)
-                j = np.argmin(score, axis=1)
-                rsel = r2[np.arange(len(bad)), j]
-                st = np.where(any_av, self.static[rsel], st)
-                # a usable record exists but outside the window examined: should not happen
-                st = np.where(st == OK, STALE, st)
+                # why not: first over all records (validity interval, broadcast yet), then adding
+                # the checks one by one; the first subset without a candidate names the reason
+                st = np.full(len(bad), IOD_MISMATCH, dtype=np.int64)
+                todo = np.ones(len(bad), dtype=bool)
+                for kk, why in ((0, None), (1, WRONG_SOURCE), (2, UNHEALTHY)):
+                    rows = bad[todo]
+                    found, any_fit = self._pick(self.subsets[kk], code[rows], q_t[rows], allow_future, _WINDOW_ALL)
+                    miss = found < 0
+                    if why is None:
+                        code_ = np.where(any_fit, NOT_YET_BROADCAST, STALE)
+                    else:
+                        code_ = np.full(len(rows), why)
+                    sub = np.flatnonzero(todo)
+                    st[sub[miss]] = code_[miss]
+                    todo[sub[miss]] = False
+                    if not todo.any():
+                        break
                 status[bad] = st
         return rec, status
 
@@ -491,6 +516,8 @@ class BroadcastOrbits:
             if s == "C":
                 prn = df["sat"].str[1:].astype(int).to_numpy()
                 cols["geo"] = np.isin(prn, sorted(BDS_GEO_PRN))
+            if s != "R":
+                cols["_kep"] = np.ascontiguousarray(np.stack([cols[c] for c in _KEP_COLS], axis=1))
             self._cols[s] = cols
 
     # ------------------------------------------------------------ offsets
@@ -597,7 +624,8 @@ class BroadcastOrbits:
             out.iode[rows] = np.rint(np.mod(cols["toc_ns"][rec] / 1e9 + 3 * 3600, 86400) / 900).astype(np.int64)
             out.status[rows] = OK
             return
-        p = {c: cols[c][rec] for c in _KEP_COLS}
+        block = cols["_kep"][rec]
+        p = {c: block[:, j] for j, c in enumerate(_KEP_COLS)}
         tk = (tq - cols["toe_ns"][rec]) / 1e9 + dts
         tc = (tq - cols["toc_ns"][rec]) / 1e9 + dts
         if s in ("G", "J"):

@@ -345,3 +345,55 @@ def test_qzss_unhealthy_and_iod_mismatch(mixed):
 def test_unsupported_bias_file_is_refused(mixed):
     with pytest.raises(NotImplementedError):
         BroadcastOrbits(mixed, bias_file="x.bsx")
+
+
+def test_vectorised_selection_matches_brute_force(brdc):
+    # the windowed numpy selection must pick what a per-row scan of all records picks with the
+    # documented rule (healthy, IODE == IODC & 0xFF, |t - toe| <= fit/2, ttm <= t, closest toe)
+    rng = np.random.default_rng(7)
+    df = brdc.records["G"]
+    t0 = civil_to_ns(2020, 12, 31, 20, 0, 0)
+    n = 3000
+    sats = np.array([f"G{p:02d}" for p in rng.integers(1, 33, n)])
+    t = t0 + rng.integers(0, 30 * 3600, n) * 10**9
+    st = BroadcastOrbits(brdc).states(sats, t)
+    groups = {k: (g.index.to_numpy(), g.health.to_numpy(), g.iode.to_numpy(), g.iodc.to_numpy(),
+                  g.toe_ns.to_numpy(), g.fit_h.to_numpy(), g.ttm_ns.to_numpy()) for k, g in df.groupby("sat")}
+    for i in range(n):
+        idx, health, iode, iodc, toe, fit, ttm = groups[sats[i]]
+        ok = (health == 0) & (iode == (iodc & 0xFF)) & (np.abs(t[i] - toe) <= fit * 1800e9) & (ttm <= t[i])
+        if not ok.any():
+            assert st.status[i] != orbits.OK
+            continue
+        best = np.min(np.abs(t[i] - toe[ok]))
+        assert st.status[i] == orbits.OK
+        assert abs(df.toe_ns.iloc[st.record[i]] - t[i]) == best, i
+
+
+def test_selection_with_many_copies_per_epoch(mixed):
+    # Merged Galileo files carry several copies of one data set (data-source variants) and
+    # transmit each set after its t_oe; the selection must still find the newest broadcast set.
+    import pandas as pd
+
+    base = mixed.records["E"][mixed.records["E"].source == "inav"].iloc[0]
+    rows = []
+    for k in range(12):
+        for copy_ in range(4):
+            r = base.copy()
+            shift = k * 600
+            r["toe_ns"] += shift * 10**9
+            r["toc_ns"] += shift * 10**9
+            r["toe_sow_s"] += shift
+            r["ttm_ns"] = r["toe_ns"] + (660 + copy_) * 10**9
+            rows.append(r)
+    nav = _only(mixed, "E", [0])
+    nav.records["E"] = pd.DataFrame(rows).reset_index(drop=True)
+    o = BroadcastOrbits(nav)
+    toe0 = int(base.toe_ns)
+    t = toe0 + np.arange(700, 12 * 600, 37) * 10**9
+    st = o.states(np.full(len(t), "E24"), t)
+    assert np.all(st.status == orbits.OK)
+    chosen = nav.records["E"].toe_ns.to_numpy()[st.record]
+    # newest set already transmitted (first copy sent 660 s after its t_oe) is the closest to t
+    expect = toe0 + ((t - toe0 - 660 * 10**9) // (600 * 10**9)) * 600 * 10**9
+    np.testing.assert_array_equal(chosen, np.maximum(expect, toe0))
