@@ -94,3 +94,17 @@ def test_sun_moon_against_astropy():
     d_low = g.solid_tide_displacement(sta, t, sun, moon)
     d_ref = g.solid_tide_displacement(sta, t, s_ref, m_ref)
     assert np.max(np.linalg.norm(d_low - d_ref, axis=1)) < 5e-3
+
+
+def test_gmf_against_the_conventions_test_case():
+    # IERS Conventions (2010) Chapter 9 software, GMF test case (Boehm et al. 2006):
+    # MJD 55055, lat 0.6708665767 rad, lon -1.393397187 rad, h 844.715 m,
+    # zenith distance 1.278564131 rad -> GMFH 3.425245519339138678, GMFW 3.449589116182419257
+    from ctt import atmosphere as atm
+
+    el = np.pi / 2 - 1.278564131
+    mh, mw = atm.gmf_mapping(el, 0.6708665767, -1.393397187, 844.715, 55055.0)
+    # the published values have 19 digits; double precision evaluation in a different
+    # order (Legendre recursion instead of factorial sums) agrees to ~1e-15, bound 1e-12
+    assert abs(mh - 3.425245519339138678) < 1e-12
+    assert abs(mw - 3.449589116182419257) < 1e-12

@@ -89,6 +89,37 @@ def test_niell_hydrostatic_low_elevation_against_exponential_atmosphere():
         assert mh < mw < 1 / math.sin(el)
 
 
+
+def test_gmf_hydrostatic_against_exponential_atmosphere_worldwide():
+    # GMF at random places and dates against the same exponential-atmosphere model:
+    # the hydrostatic scale height R_d T/g spans 7.4-8.8 km for T = 253-300 K (common
+    # practice), which moves the 5° mapping by about ±1 % around the 8 km value;
+    # with the 0.5 % allowed above for bending and profile shape: 1.5 % at 5°.
+    rng = np.random.default_rng(8)
+    lat = np.radians(rng.uniform(-80, 80, 200))
+    lon = np.radians(rng.uniform(-180, 180, 200))
+    mjd = rng.uniform(55000, 60000, 200)
+    for el_deg, tol in ((5.0, 0.015), (10.0, 0.006), (30.0, 0.001)):
+        mh, mw = atm.gmf_mapping(math.radians(el_deg), lat, lon, 0.0, mjd)
+        ref = _exponential_atmosphere_mapping(math.radians(el_deg), 8000.0)
+        assert np.max(np.abs(mh / ref - 1)) < tol
+        assert np.all(mw > mh)
+    # unity at the zenith (normalised continued fraction; height term vanishes)
+    mh, mw = atm.gmf_mapping(math.pi / 2, lat, lon, 1200.0, mjd)
+    assert np.allclose(mh, 1.0, atol=1e-12) and np.allclose(mw, 1.0, atol=1e-12)
+
+
+def test_slant_troposphere_gmf_option():
+    el = np.radians(np.array([[10.0, 30.0], [15.0, 90.0]]))
+    g = atm.slant_troposphere(el, 0.8, 950.0, 1, mapping="gmf", lon_rad=0.13, mjd=np.array([[59215.0], [59215.5]]))
+    n = atm.slant_troposphere(el, 0.8, 950.0, 1)
+    assert g.slant_m.shape == (2, 2)
+    assert g.slant_m[1, 1] == pytest.approx(n.slant_m[1, 1], rel=1e-12)  # same zenith delays at 90°
+    assert np.allclose(g.slant_m, n.slant_m, rtol=0.01)
+    with pytest.raises(ValueError, match="lon_rad"):
+        atm.slant_troposphere(el, 0.8, 950.0, 1, mapping="gmf")
+
+
 def test_niell_seasonal_and_hemisphere_symmetry():
     el = math.radians(7.0)
     # Niell (1996) eq. 5: southern hemisphere = northern shifted by half a year
