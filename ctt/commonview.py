@@ -297,18 +297,20 @@ def resample_to(fine: pd.DataFrame, coarse_times, coarse_step_s: float) -> pd.Da
     sub["mid_time"] = ct[j[inside]]
     az = np.deg2rad(sub["azimuth_deg"].to_numpy(float))
     sub["_c"], sub["_s"] = np.cos(az), np.sin(az)
-    sub["_u2"] = sub["u_ns"].to_numpy(float) ** 2
+    u2 = sub["u_ns"].to_numpy(float) ** 2
+    sub["_u2"] = np.nan_to_num(u2)
+    sub["_nan"] = ~np.isfinite(u2)
     grp = sub.groupby(["mid_time", "sat"], sort=True)
     agg = grp.agg(system=("system", "first"), signal=("signal", "first"), value_ns=("value_ns", "mean"),
-                  _u2=("_u2", lambda x: np.nan if x.isna().any() else x.sum()),
+                  _u2=("_u2", "sum"), _nan=("_nan", "sum"),
                   n=("value_ns", "size"), n_points=("n_points", "sum"),
                   elevation_deg=("elevation_deg", "mean"), _c=("_c", "mean"), _s=("_s", "mean"),
                   troposphere_m=("troposphere_m", "mean"), ionosphere_m=("ionosphere_m", "mean"))
     agg = agg.reset_index()
-    agg["u_ns"] = np.sqrt(agg["_u2"]) / agg["n"]
+    agg["u_ns"] = np.where(agg["_nan"] > 0, np.nan, np.sqrt(agg["_u2"]) / agg["n"])
     agg["azimuth_deg"] = np.mod(np.rad2deg(np.arctan2(agg["_s"], agg["_c"])), 360.0)
     agg["flag"] = "ok"
-    out = agg.drop(columns=["_u2", "_c", "_s", "n"])
+    out = agg.drop(columns=["_u2", "_nan", "_c", "_s", "n"])
     out.attrs.update(fine.attrs)
     out.attrs["window_s"] = float(coarse_step_s)
     return out
@@ -478,6 +480,10 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
         return _all_in_view(a, b, weights=weights, mad_k=mad_k, min_common=min_common,
                             per_system=per_system, isb_ns=isb_ns, max_iter=max_iter,
                             scale_floor_ns=scale_floor_ns, step=step)
+    refs = (a_df.attrs.get("reference", "broadcast"), b_df.attrs.get("reference", "broadcast"))
+    if refs[0] != refs[1]:
+        raise ProcessingError(f"station A is referred to {refs[0]!r} and B to {refs[1]!r}: their "
+                              "differences would not cancel the satellite clocks; use one reference")
     cols = ["mid_time", "sat", "system", "signal", "value_ns", "u_ns", "elevation_deg", "azimuth_deg", "flag"]
     j = a[cols].merge(b[cols].drop(columns=["system"]), on=["mid_time", "sat"], suffixes=("_a", "_b"))
     if j.empty:
@@ -517,8 +523,9 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
         "diff_ns": diff, "residual_ns": resid, "weight": w, "flag": flag,
     })
     if acc_all is not None:
-        sat_df["flag_all"] = np.where(both, np.where(acc_all, "ok", "outlier"), flag).astype(object)
-        sat_df.loc[both & np.isin(system, [r["system"] for r in isb_rows if not np.isfinite(r["value_ns"])]),
+        sat_df["flag_all"] = np.where(both & np.isfinite(w), np.where(acc_all, "ok", "outlier"),
+                                      flag).astype(object)
+        sat_df.loc[both & np.isfinite(w) & np.isin(system, [r["system"] for r in isb_rows if not np.isfinite(r["value_ns"])]),
                    "flag_all"] = "no_isb"
     sat_df = sat_df.sort_values(["time", "sat"], kind="stable").reset_index(drop=True)
     isb = pd.DataFrame(isb_rows, columns=["station", "system", "reference_system", "value_ns", "u_ns",
@@ -556,11 +563,14 @@ def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_it
         sols[name] = tables
         isb_all += isb_rows
         flag = np.where(ok, row_flag, df["flag"].astype(str).to_numpy(dtype=object)).astype(object)
+        flag = np.where(ok & ~np.isfinite(w), "no_weight", flag).astype(object)
         r = pd.DataFrame({"time": time, "station": name, "sat": df["sat"].to_numpy(dtype=object),
                           "system": system, "elevation_deg": el, "azimuth_deg": df["azimuth_deg"].to_numpy(float),
                           "value_ns": v, "u_ns": u, "residual_ns": resid, "weight": w, "flag": flag})
         if acc_all is not None:
-            r["flag_all"] = np.where(ok, np.where(acc_all, "ok", "outlier"), flag).astype(object)
+            r["flag_all"] = np.where(ok & np.isfinite(w), np.where(acc_all, "ok", "outlier"), flag).astype(object)
+            no_isb = [x["system"] for x in isb_rows if not np.isfinite(x["value_ns"])]
+            r.loc[ok & np.isfinite(w) & np.isin(system, no_isb), "flag_all"] = "no_isb"
         rows.append(r)
     out = []
     keys = [k for k in sols["A"] if k in sols["B"]]

@@ -199,8 +199,8 @@ def _reduce(meas_df, win, start_utc, mid_gps, *, linear, min_points, rms_factor,
     gkey = w_i.astype(np.int64) * len(key_uniq) + key_codes
     gid, guniq = pd.factorize(gkey, sort=True)
     ng = len(guniq)
-    first = np.full(ng, -1, dtype=np.int64)
-    first[gid[::-1]] = np.arange(gid.size)[::-1]  # first row of each group
+    order = np.argsort(gid, kind="stable")
+    first = order[np.searchsorted(gid[order], np.arange(ng))]  # first row of each group
 
     y = _col(df, "clock_ns")[sel]
     ok = (df["flag"].astype(str).to_numpy(dtype=object)[sel] == "ok") & np.isfinite(y)

@@ -381,3 +381,55 @@ def test_budget_type_a_white_and_correlated():
     assert bk["type_a_ns"] > 5 * bk["type_a_detail"]["se_formal_ns"]
     assert bk["type_a_detail"]["lag1_autocorrelation"] > 0.9
     assert cv.uncertainty_budget(white, tdev_ns_at_day=0.123)["type_a_ns"] == 0.123
+
+
+# ---------------------------------------------------------------- flags and refusals
+
+def test_bin_flags_no_data_high_scatter_and_refusals():
+    rng = np.random.default_rng(77)
+    a = station(lambda ts: truth(ts), GPS10, n_ep=200, noise0=0.3, rng=rng)
+    b = station(lambda ts: 0 * ts, GPS10, n_ep=200, phase=0.4, noise0=0.3, rng=rng)
+    t_all = np.sort(a["time"].unique())
+    # epoch 10: every satellite unusable at A -> 'no_data', offset NaN
+    a.loc[a["time"] == t_all[10], "flag"] = "unhealthy"
+    # epoch 20: scatter 30× the a-priori σ on all satellites -> χ² far above its 99 % quantile
+    sel = a["time"] == t_all[20]
+    a.loc[sel, "clock_ns"] += rng.normal(0, 1, int(sel.sum())) * 30 * a.loc[sel, "sigma_ns"]
+    r = cv.common_view(tracks.bin_epochs(a), tracks.bin_epochs(b))
+    o = r.offset_df.set_index("time")
+    assert o.loc[t_all[10], "flag"] == "no_data" and np.isnan(o.loc[t_all[10], "offset_ns"])
+    assert o.loc[t_all[20], "flag"] == "high_scatter"
+    assert (o["flag"] == "ok").mean() > 0.95
+    s = r.sat_df
+    assert (s.loc[s["time"] == t_all[10], "flag"] == "a_unhealthy").all()
+    # 'sigma' weighting with unknown σ: rows are not used and say why
+    a2, b2 = tracks.bin_epochs(a), tracks.bin_epochs(b)
+    a2.loc[a2["sat"] == "G03", "u_ns"] = np.nan
+    r2 = cv.common_view(a2, b2, weights="sigma")
+    assert (r2.sat_df.loc[(r2.sat_df["sat"] == "G03") & (r2.sat_df["flag"] != "a_unhealthy"), "flag"]
+            == "no_weight").all()
+    # mixing a broadcast-referred and a precise-referred station is refused
+    b3 = tracks.bin_epochs(b)
+    b3.attrs["reference"] = "precise"
+    with pytest.raises(ProcessingError, match="reference"):
+        cv.common_view(tracks.bin_epochs(a), b3)
+    with pytest.raises(ProcessingError, match="weighting"):
+        cv.common_view(tracks.bin_epochs(a), tracks.bin_epochs(b), weights="bogus")
+
+
+@pytest.mark.slow
+def test_track_mode_uncertainty_matches_simulated_error():
+    # Track mode over 6 days (534 tracks): variance ratio with relative sampling
+    # sd ≈ √(2/534) ≈ 6 % (plus the 9-dof u² average); 4 sd allowed.
+    rng = np.random.default_rng(6006)
+    n_ep = 2880 * 6
+    a = station(lambda ts: truth(ts), GPS10, n_ep=n_ep, noise0=0.7, rng=rng)
+    b = station(lambda ts: 0 * ts, GPS10, n_ep=n_ep, phase=0.4, noise0=0.7, rng=rng)
+    r = cv.common_view(tracks.fit_tracks(a), tracks.fit_tracks(b))
+    o = r.offset_df[r.offset_df["flag"].isin(["ok", "high_scatter"])]
+    t0 = int(convert(from_mjd(MJD0), "UTC", "GPS"))
+    err = o["offset_ns"].to_numpy() - truth((o["time"].to_numpy() - t0) / 1e9)
+    u2 = o["u_ns"].to_numpy() ** 2
+    sd = np.hypot(np.sqrt(2 * np.sum(u2 ** 2)) / np.sum(u2), np.sqrt(2 / 9 / len(u2)))
+    assert len(o) > 500
+    assert abs(np.mean(err ** 2) / np.mean(u2) - 1) < 4 * sd

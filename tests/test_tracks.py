@@ -230,14 +230,14 @@ def test_bin_epochs_single_and_300s():
     full = b[b["n_points"] == 10]
     np.testing.assert_allclose(full["u_apriori_ns"], 1 / np.sqrt(10), rtol=1e-12)
     assert np.all((full["mid_time"].to_numpy() % (300 * NS_PER_S)) == 150 * NS_PER_S)
-    # noise-free: the mean of a linear clock over a full symmetric bin is its value at the bin
-    # midpoint (points at −135..135 s around it)
+    # noise-free: the mean of a linear clock is its value at the mean time of the
+    # bin's points. Bins sit on the GPS count, the data on the UTC minute (18 s
+    # apart), so the mean time is a few seconds off the bin midpoint: the truth
+    # is computed at the points' mean time, and that offset is bounded below.
     clean = station_table(lambda ts: 3.0 + 1e-4 * ts, n_ep=600)
     bc = tracks.bin_epochs(clean, 300)
     bc = bc[bc["n_points"] == 10]
     mid_s = (bc["mid_time"].to_numpy() - clean["time"].min()) / 1e9
-    # bins on the GPS count sit 18 s off the UTC-day start: the points sit at
-    # mid −150+18+30j, mean offset +3 s... compute the truth from the points instead
     t_pts = clean["time"].to_numpy()
     k = t_pts // (300 * NS_PER_S)
     mean_t = pd.Series((t_pts - clean["time"].min()) / 1e9).groupby(k).mean()
