@@ -127,7 +127,16 @@ class StationDay:
                 if np.any(np.isfinite(v)) and np.nanmax(np.abs(v)) > 0:
                     lines.append(f"  {col:<15} median |{np.nanmedian(np.abs(v)):.3f}| {unit}, "
                                  f"max |{np.nanmax(np.abs(v)):.3f}| {unit}")
-        lines.append(f"  codes: {self.info.get('codes')}")
+            per_sat = t.loc[ok].groupby("sat")["residual_ns"].mean()
+            off = per_sat[np.abs(per_sat) > 3.0].sort_values()
+            if len(off):
+                lines.append("  satellites with a mean residual over 3 ns (code biases, orbit or clock errors): "
+                             + ", ".join(f"{k} {v:+.1f}" for k, v in off.items()))
+        by_label = {}
+        for sat, lab in (self.info.get("codes") or {}).items():
+            by_label.setdefault(lab, []).append(sat)
+        lines.append("  signals: " + "; ".join(f"{lab or 'none'} ({len(v)} satellites)"
+                                             for lab, v in sorted(by_label.items())))
         return lines
 
 

@@ -1,0 +1,50 @@
+"""Argument groups shared by the processing sub-commands (measure, pair)."""
+
+from __future__ import annotations
+
+from ..measure import MeasureOptions
+
+SWITCHES = ("troposphere", "ionosphere", "tide", "sagnac", "relativity")
+
+
+def add_model_arguments(p) -> None:
+    g = p.add_argument_group("models")
+    g.add_argument("--signals", choices=("iono-free", "single"), default=None,
+                   help="iono-free code combination (default) or a single code with an ionosphere model")
+    g.add_argument("--systems", default=None, help="satellite systems, e.g. G or GE (default G)")
+    g.add_argument("--codes", default=None,
+                   help="explicit codes instead of the priority lists, e.g. C1W,C2W")
+    g.add_argument("--elevation-mask", type=float, default=None, metavar="DEG",
+                   help="elevation mask in degrees (default: the station file's)")
+    g.add_argument("--smoothing", type=float, default=None, metavar="SECONDS",
+                   help="carrier-phase smoothing window of the code (Hatch filter), e.g. 600; 0 = off")
+    g.add_argument("--iono-model", choices=("klobuchar", "ionex"), default=None,
+                   help="ionosphere for single-frequency processing (default klobuchar; ionex needs --ionex)")
+    for name in SWITCHES:
+        g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {name} correction off (diagnostics)")
+
+
+def measure_options(args, base: MeasureOptions | None = None) -> MeasureOptions:
+    """MeasureOptions from parsed arguments over ``base`` (e.g. a pair file's processing)."""
+    base = base or MeasureOptions()
+    kw = {}
+    if args.signals:
+        kw["signals"] = args.signals
+    if args.systems:
+        kw["systems"] = tuple(args.systems.replace(",", "").upper())
+    if args.codes:
+        kw["codes"] = tuple(c.strip() for c in args.codes.split(",") if c.strip())
+    if args.elevation_mask is not None:
+        kw["elevation_mask_deg"] = args.elevation_mask
+    if args.smoothing is not None:
+        kw["smoothing_s"] = args.smoothing
+    if args.iono_model:
+        kw["iono_model"] = args.iono_model
+    for name in SWITCHES:
+        if getattr(args, f"no_{name}"):
+            kw[name] = False
+    if not kw:
+        return base
+    import dataclasses
+
+    return dataclasses.replace(base, **kw)

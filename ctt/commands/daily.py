@@ -1,0 +1,144 @@
+"""``ctt daily`` and ``ctt backfill``: unattended processing into the archive."""
+
+from __future__ import annotations
+
+import logging
+import sys
+
+from ..errors import EXIT_MISSING_INPUT, EXIT_OK, EXIT_PROCESSING, UsageError
+
+log = logging.getLogger("ctt")
+
+
+def register(sub) -> None:
+    p = sub.add_parser("daily", help="process one day of a pair file into its archive (cron)",
+                       description="Find the day's files from the pair file, process them, write the run "
+                                   "folder, store the day in the archive and refresh the report. Safe to "
+                                   "re-run; a second run waits for the first.")
+    p.add_argument("--config", required=True, help="pair TOML file")
+    p.add_argument("--date", help="UTC date YYYY-MM-DD (default: yesterday, UTC)")
+    p.add_argument("--force", action="store_true", help="reprocess even if done with the same inputs")
+    p.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS",
+                   help="how long to wait for another run holding the archive (default 600)")
+    p.add_argument("--no-report", action="store_true", help="do not refresh the HTML report")
+    p.set_defaults(func=run_daily)
+
+    b = sub.add_parser("backfill", help="process a range of days (resumable, parallel)",
+                       description="Process every day of a range. Days already archived with the same input "
+                                   "files and the same configuration for that date are skipped; days whose "
+                                   "calibration or coordinates changed are reprocessed and listed.")
+    b.add_argument("--config", required=True, help="pair TOML file")
+    b.add_argument("--from", dest="date_from", required=True, help="first UTC date YYYY-MM-DD")
+    b.add_argument("--to", dest="date_to", required=True, help="last UTC date YYYY-MM-DD")
+    b.add_argument("--force", action="store_true", help="reprocess every day")
+    b.add_argument("--jobs", type=int, default=1, help="local worker processes (default 1)")
+    b.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run the day jobs on an existing Dask cluster (dask.distributed scheduler address)")
+    b.add_argument("--check", action="store_true",
+                   help="only list the days that need (re)processing and why; change nothing")
+    b.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS")
+    b.add_argument("--no-report", action="store_true")
+    b.set_defaults(func=run_backfill)
+
+
+def _open(pc, timeout):
+    from ..archive import Archive
+
+    return Archive(pc.archive_path, timeout_s=timeout)
+
+
+def run_daily(args) -> int:
+    from ..config import load_pair
+    from ..operations import compute_day, refresh_report, store_outcome, yesterday_utc
+
+    pc = load_pair(args.config)
+    date = args.date or yesterday_utc()
+    with _open(pc, args.lock_timeout) as arc, arc.run_lock():
+        known = arc.days_done(pc.name).get(date)
+        outcome = compute_day(str(pc.path), date, known, force=args.force)
+        store_outcome(arc, pc.name, outcome)
+        if outcome.status == "ok" and not args.no_report:
+            rep = refresh_report(pc, arc)
+            if rep:
+                log.info("report refreshed: %s", rep)
+    if outcome.status == "skipped":
+        print(f"{pc.name} {date}: already done with the same inputs and configuration (use --force)")
+        return EXIT_OK
+    if outcome.status == "failed":
+        print(f"ctt: error: {pc.name} {date}: {outcome.reason}", file=sys.stderr)
+        missing = "not found" in outcome.reason or "no " in outcome.reason[:40]
+        return EXIT_MISSING_INPUT if missing else EXIT_PROCESSING
+    s = outcome.summary
+    b = s["budget"]
+    print(f"{pc.name} {date}: {s['counts']['points_ok']} points, mean A - B {b['mean_offset_ns']:.3f} ns "
+          f"+- {b['total_ns']:.3f} ns; run folder {outcome.out_dir}; archive {pc.archive_path}")
+    return EXIT_OK
+
+
+def run_backfill(args) -> int:
+    from tqdm import tqdm
+
+    from ..config import load_pair
+    from ..operations import compute_day, dates_between, needs_reprocessing, refresh_report, store_outcome
+
+    pc = load_pair(args.config)
+    try:
+        dates = dates_between(args.date_from, args.date_to)
+    except ValueError as exc:
+        raise UsageError(str(exc)) from None
+    if args.jobs < 1:
+        raise UsageError("--jobs must be at least 1")
+    with _open(pc, args.lock_timeout) as arc:
+        todo = {d: "forced" for d in dates} if args.force else needs_reprocessing(pc, arc, dates)
+        changed = {d: r for d, r in todo.items() if r != "not processed yet"}
+        if changed:
+            print(f"{len(changed)} archived day(s) need reprocessing:")
+            for d, r in changed.items():
+                print(f"  {d}: {r}")
+        if args.check:
+            print(f"{len(todo)} of {len(dates)} day(s) to process")
+            return EXIT_OK
+        if not todo:
+            print(f"all {len(dates)} day(s) already done with the same inputs and configuration")
+            return EXIT_OK
+        counts = {"ok": 0, "failed": 0, "skipped": len(dates) - len(todo)}
+        failures = []
+        with arc.run_lock():
+            work = sorted(todo)
+            for outcome in tqdm(_outcomes(str(pc.path), work, args), total=len(work), unit="day",
+                                desc=pc.name, file=sys.stderr, disable=None):
+                store_outcome(arc, pc.name, outcome)
+                counts[outcome.status] = counts.get(outcome.status, 0) + 1
+                if outcome.status == "failed":
+                    failures.append((outcome.date, outcome.reason))
+            if counts["ok"] and not args.no_report:
+                refresh_report(pc, arc)
+    for d, r in failures:
+        print(f"  failed {d}: {r}", file=sys.stderr)
+    print(f"{pc.name}: {counts['ok']} day(s) processed, {counts['failed']} failed, "
+          f"{counts['skipped']} already done")
+    return EXIT_PROCESSING if counts["failed"] and not counts["ok"] else EXIT_OK
+
+
+def _outcomes(pair_path, dates, args):
+    """Yield DayOutcomes as they complete: in this process, local processes or a Dask cluster."""
+    from ..operations import compute_day
+
+    if args.scheduler:
+        from dask.distributed import Client, as_completed
+
+        with Client(args.scheduler) as client:
+            futures = [client.submit(compute_day, pair_path, d, None, True, pure=False) for d in dates]
+            for fut in as_completed(futures):
+                yield fut.result()
+        return
+    if args.jobs == 1:
+        for d in dates:
+            yield compute_day(pair_path, d, None, True)
+        return
+    from concurrent.futures import ProcessPoolExecutor, as_completed as done
+
+    with ProcessPoolExecutor(max_workers=args.jobs) as pool:
+        futs = [pool.submit(compute_day, pair_path, d, None, True) for d in dates]
+        for f in done(futs):
+            yield f.result()

@@ -1,0 +1,241 @@
+"""Unattended operation: one pair-day into the archive, backfills, reprocessing after calibration.
+
+``process_day`` is what ``ctt daily`` runs from cron: resolve the day's files
+from the pair file, process them (:func:`ctt.pipeline.run_pair`), write the
+run folder ``<output dir>/<pair>/<YYYY-MM-DD>/`` and store the day in the
+archive in one transaction. A failure (missing or corrupt input, no common
+data) is recorded in the archive with its reason; the previous good results
+of that day, and every other day, are untouched.
+
+Work is split so that only the parent process ever writes the archive:
+:func:`compute_day` (pure: files in, tables out) runs in worker processes or on
+a Dask cluster, :func:`store_outcome` writes. A whole run holds the archive's
+run lock (a lock file with PID and host; a dead holder's lock is taken over),
+so two cron runs never interleave; the second waits up to the timeout, then
+exits with code 4.
+
+Reprocessing
+------------
+Each stored day carries two fingerprints: the SHA-256 of its input files and a
+*day configuration hash* (:func:`day_config_hash`) made of the processing
+options, both stations' coordinates and uncertainties, and the delay sets that
+cover that date. Editing a delay set therefore marks exactly the days inside
+its validity interval as needing reprocessing (``ctt backfill --check`` lists
+them with the reason; ``ctt backfill`` redoes them), while days outside it
+stay as they are.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import hashlib
+import json
+import logging
+import pathlib
+import traceback
+
+import numpy as np
+
+from . import __version__
+from . import timescales as ts
+from .errors import CttError
+
+log = logging.getLogger(__name__)
+
+
+@dataclasses.dataclass
+class DayOutcome:
+    """What :func:`compute_day` returns (picklable, for worker processes)."""
+
+    date: str
+    status: str                       #: 'ok', 'failed' or 'skipped'
+    reason: str = ""
+    offsets: object = None            #: DataFrame (offset.csv rows) when ok
+    satellites: object = None
+    summary: dict | None = None
+    inputs: dict | None = None        #: name -> {path, sha256}
+    inputs_hash: str = ""
+    config_hash: str = ""
+    out_dir: str = ""
+    started: str = ""
+    finished: str = ""
+
+
+def _now() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def dates_between(d1, d2) -> list[str]:
+    a = _dt.date.fromisoformat(str(d1))
+    b = _dt.date.fromisoformat(str(d2))
+    if b < a:
+        raise ValueError(f"--to {b} is before --from {a}")
+    return [(a + _dt.timedelta(days=k)).isoformat() for k in range((b - a).days + 1)]
+
+
+def yesterday_utc() -> str:
+    return (_dt.datetime.now(_dt.timezone.utc).date() - _dt.timedelta(days=1)).isoformat()
+
+
+def day_config_hash(pc, date) -> str:
+    """Fingerprint of everything in the configuration that can change one day's result."""
+    t0 = ts.date_to_ns(date)
+    t1 = t0 + ts.NS_PER_DAY
+
+    def station(st):
+        try:
+            sets = st.delay_sets_between(t0, t1)
+        except CttError:
+            sets = ()
+        return {
+            "id": st.id, "position_m": [round(float(v), 6) for v in st.position_m],
+            "sigma_m": [round(float(v), 6) for v in st.position_sigma_m],
+            "arp_m": [round(float(v), 6) for v in st.arp_m], "mask": st.elevation_mask_deg,
+            "delays": [{"from": d.valid_from_ns, "until": d.valid_until_ns, "receiver": dict(d.receiver_ns),
+                        "u_receiver": dict(d.u_receiver_ns), "cable": d.cable_ns, "u_cable": d.u_cable_ns,
+                        "reference": d.reference_ns, "u_reference": d.u_reference_ns} for d in sets],
+        }
+
+    blob = {"processing": dataclasses.asdict(pc.processing), "a": station(pc.station_a),
+            "b": station(pc.station_b), "version": __version__.split(".")[0]}
+    text = json.dumps(blob, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _inputs_record(found: dict) -> dict:
+    from .pipeline import sha256_file
+
+    return {k: {"path": str(v), "sha256": sha256_file(v)} for k, v in found.items() if v is not None}
+
+
+def _inputs_hash(rec: dict) -> str:
+    text = json.dumps({k: v["sha256"] for k, v in sorted(rec.items())}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def day_fingerprints(pc, date) -> tuple[dict, str, str]:
+    """(inputs record, inputs hash, day configuration hash); MissingInputError if files are missing."""
+    found = pc.resolve_inputs(date)
+    rec = _inputs_record(found)
+    return rec, _inputs_hash(rec), day_config_hash(pc, date)
+
+
+def run_folder(pc, date) -> pathlib.Path:
+    return pathlib.Path(pc.output_dir) / pc.name / str(date)
+
+
+def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bool = False) -> DayOutcome:
+    """Process one day of a pair file; never raises for bad data (status 'failed' with the reason).
+
+    ``known`` is the (inputs hash, config hash) already archived for the day;
+    when both match and ``force`` is false the day is skipped.
+    """
+    from .config import load_pair
+    from .pipeline import offset_table, pair_day_from_config, run_pair, write_pair_outputs
+
+    started = _now()
+    out = DayOutcome(date=str(date), status="failed", started=started)
+    try:
+        pc = load_pair(pair_path)
+        rec, ih, ch = day_fingerprints(pc, date)
+        out.inputs, out.inputs_hash, out.config_hash = rec, ih, ch
+        if known is not None and tuple(known) == (ih, ch) and not force:
+            out.status, out.reason = "skipped", "already done with the same inputs and configuration"
+            return out
+        inputs, sta, stb, options = pair_day_from_config(pc, date)
+        result = run_pair(inputs, sta, stb, options)
+        folder = run_folder(pc, date)
+        result.summary["config_hash"] = ch
+        result.summary["inputs_hash"] = ih
+        write_pair_outputs(result, folder)
+        out.offsets = offset_table(result.offset_by_system)
+        out.satellites = result.satellites
+        out.summary = result.summary
+        out.out_dir = str(folder)
+        out.status = "ok"
+    except CttError as exc:
+        out.reason = str(exc)
+    except Exception as exc:  # a bug must not stop a backfill: record it with the traceback's last line
+        out.reason = f"internal error: {type(exc).__name__}: {exc}"
+        log.debug("day %s failed:\n%s", date, traceback.format_exc())
+    out.finished = _now()
+    return out
+
+
+def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
+    """Write a computed day (or its failure) into the archive, in one transaction."""
+    info = {"inputs": outcome.inputs or {}, "inputs_hash": outcome.inputs_hash,
+            "config_hash": outcome.config_hash, "version": __version__,
+            "started": outcome.started, "finished": outcome.finished}
+    if outcome.status == "ok":
+        sat = outcome.satellites
+        if sat is not None and "time" in sat.columns and "time_utc_ns" not in sat.columns:
+            sat = sat.assign(time_utc_ns=ts.convert(sat["time"].to_numpy(np.int64), "GPS", "UTC"))
+        info["messages"] = []
+        archive.store_day(pair_name, outcome.date, outcome.offsets, sat, info)
+    elif outcome.status == "failed":
+        info["messages"] = [outcome.reason]
+        archive.record_failure(pair_name, outcome.date, outcome.reason, info)
+
+
+def refresh_report(pc, archive, days: int = 30) -> pathlib.Path | None:
+    """Rebuild the pair's HTML report from the last ``days`` days of the archive."""
+    from .report import build_report
+
+    off = archive.load_offsets(pc.name)
+    if off is None or not len(off):
+        return None
+    if "system" in off.columns and off["system"].nunique() > 1:
+        main = "ALL" if (off["system"] == "ALL").any() else off["system"].iloc[0]
+        off = off[off["system"] == main]
+    t = off["time_utc_ns"].to_numpy(np.int64) if "time_utc_ns" in off.columns else None
+    t_from = int(t.max()) - days * ts.NS_PER_DAY if t is not None and len(t) else None
+    changes = hardware_changes(pc)
+    try:
+        build_report(off, None, None, changes, out_html=pc.report_path, time_from_ns=t_from,
+                     title=f"{pc.name}: clock {pc.station_a.id} - clock {pc.station_b.id}",
+                     source=str(archive.path))
+    except CttError as exc:
+        log.warning("report not refreshed: %s", exc)
+        return None
+    return pathlib.Path(pc.report_path)
+
+
+def hardware_changes(pc) -> list[dict]:
+    """Both stations' change logs as the expected steps of A − B.
+
+    A delay that grows by x ns at a station whose file is not yet updated raises
+    that station's raw clock estimate by x: A − B steps by +x for a change at A
+    and by −x for a change at B.
+    """
+    out = []
+    for st, sign in ((pc.station_a, 1.0), (pc.station_b, -1.0)):
+        for c in st.changes:
+            exp = None if c.expected_delay_change_ns is None else sign * c.expected_delay_change_ns
+            out.append({"time_utc_ns": c.time_utc_ns, "what": f"{st.id}: {c.what}", "expected_ns": exp})
+    return sorted(out, key=lambda c: c["time_utc_ns"])
+
+
+def needs_reprocessing(pc, archive, dates) -> dict:
+    """{date: reason} for days whose archived fingerprints differ from the current ones."""
+    done = archive.days_done(pc.name)
+    stale = archive.stale_days(pc.name)
+    out = {}
+    for d in dates:
+        if d in stale:
+            out[d] = f"marked stale: {stale[d]}"
+            continue
+        if d not in done:
+            out[d] = "not processed yet"
+            continue
+        try:
+            _, ih, ch = day_fingerprints(pc, d)
+        except CttError as exc:
+            out[d] = f"inputs not available now ({exc})"
+            continue
+        if done[d][1] != ch:
+            out[d] = "configuration changed (processing options, coordinates or a delay set covering the day)"
+        elif done[d][0] != ih:
+            out[d] = "input files changed"
+    return out

@@ -1,0 +1,426 @@
+"""One day for one pair, end to end: the only module that wires the stages together.
+
+``run_pair(inputs, station_a, station_b, options)`` reads both observation
+files and the orbit products, runs the measurement model for each station,
+forms tracks or epoch bins, the common-view (or all-in-view) differences and
+the uncertainty budget, and returns a :class:`PairResult`;
+``write_pair_outputs`` writes ``offset.csv``, ``satellites.csv`` and
+``summary.json`` into a folder, each atomically (written to a temporary name
+and renamed), so an interrupted run never leaves a half-written file beside
+good ones.
+
+Output files
+------------
+``offset.csv``
+    one row per time bin: ``time_utc`` (ISO 8601 with Z), ``mjd_utc``,
+    ``offset_ns`` (clock A − clock B), ``u_ns`` (standard uncertainty of the
+    point), ``n_sat``, ``flag`` ('ok' or the reason), then ``system``,
+    ``scatter_ns``, ``n_rejected``, ``u_apriori_ns``, ``chi2``, ``dof``,
+    ``time_gps_ns``. With several systems the combined series ('ALL') is
+    written here and every system's own series to ``offset_by_system.csv``.
+``satellites.csv``
+    the per-satellite differences (or, all-in-view, per-station residuals)
+    behind each point, with elevations, azimuths, weights and flags.
+``summary.json``
+    inputs (paths and SHA-256), configuration, software version, counts,
+    mean offset and its uncertainty budget, rejected data by reason.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import hashlib
+import json
+import logging
+import os
+import pathlib
+import tempfile
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from . import commonview, tracks
+from . import timescales as ts
+from .errors import MissingInputError, NoDataError
+from .measure import MeasureOptions, StationDay, measure_station
+
+log = logging.getLogger(__name__)
+
+MODES = ("tracks", "epochs", "all-in-view")
+
+
+@dataclasses.dataclass(frozen=True)
+class PairInputs:
+    """Input files of one pair-day (paths; None where not given)."""
+
+    obs_a: str
+    obs_b: str
+    nav: str | None = None
+    sp3: str | None = None
+    clk: str | None = None
+    ionex: str | None = None
+    met_a: str | None = None
+    met_b: str | None = None
+    antex: str | None = None
+
+    def files(self) -> dict:
+        return {k: v for k, v in dataclasses.asdict(self).items() if v is not None}
+
+
+@dataclasses.dataclass(frozen=True)
+class PairOptions:
+    """How a pair-day is processed."""
+
+    mode: str = "tracks"                 #: tracks | epochs | all-in-view
+    bin_s: float | None = None           #: epochs/all-in-view bin; None = every epoch
+    orbits: str = "auto"                 #: auto | broadcast | precise
+    weights: str = "sin2el"
+    mad_k: float = 3.5
+    min_common: int = 1
+    measure: MeasureOptions = MeasureOptions()
+
+    def __post_init__(self):
+        if self.mode not in MODES:
+            raise ValueError(f"mode must be one of {', '.join(MODES)}, not {self.mode!r}")
+        if self.orbits not in ("auto", "broadcast", "precise"):
+            raise ValueError(f"orbits must be auto, broadcast or precise, not {self.orbits!r}")
+
+    def to_dict(self) -> dict:
+        d = dataclasses.asdict(self)
+        d["measure"]["systems"] = list(self.measure.systems)
+        d["measure"]["codes"] = list(self.measure.codes)
+        return d
+
+
+@dataclasses.dataclass
+class PairResult:
+    offset: pd.DataFrame            #: the series written to offset.csv
+    offset_by_system: pd.DataFrame  #: every system's series (and 'ALL')
+    satellites: pd.DataFrame
+    summary: dict
+    station_a: StationDay
+    station_b: StationDay
+    cv: commonview.CommonViewResult
+    budget: dict
+
+    def summary_lines(self) -> list[str]:
+        s = self.summary
+        o = self.offset
+        ok = o["flag"] == "ok"
+        lines = [f"pair {s['pair']} ({s['mode']}, {s['signals']}, {s['reference']} clocks): "
+                 f"{int(ok.sum())} of {len(o)} points ok"]
+        if ok.any():
+            lines.append(f"  clock A - clock B: mean {self.budget['mean_offset_ns']:.3f} ns, "
+                         f"total uncertainty {self.budget['total_ns']:.3f} ns (1 sigma)")
+            lines.append(f"  point scatter (RMS about the mean): "
+                         f"{np.sqrt(np.mean((o.loc[ok, 'offset_ns'] - o.loc[ok, 'offset_ns'].mean())**2)):.3f} ns, "
+                         f"median u {o.loc[ok, 'u_ns'].median():.3f} ns, "
+                         f"median satellites per point {o.loc[ok, 'n_sat'].median():.0f}")
+        for k, v in s["rejected"].items():
+            lines.append(f"  rejected {k}: {v}")
+        lines.append(commonview.format_budget(self.budget))
+        return lines
+
+
+# ------------------------------------------------------------------ inputs
+
+def sha256_file(path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for block in iter(lambda: f.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def _need(path, what):
+    if path is None:
+        raise MissingInputError(f"no {what} given")
+    if not pathlib.Path(path).is_file():
+        raise MissingInputError(f"{path}: {what} not found")
+    return str(path)
+
+
+def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = "inav"):
+    """The satellite source for a day: (orbits, nav header or None, 'broadcast'|'precise')."""
+    from .orbits import BroadcastOrbits
+    from .rinex.nav import read_nav
+
+    nav = read_nav(_need(inputs.nav, "navigation file")) if inputs.nav else None
+    use_precise = choice == "precise" or (choice == "auto" and inputs.sp3 is not None)
+    if use_precise:
+        from .rinex import products
+
+        sp3 = products.read_sp3(_need(inputs.sp3, "SP3 orbit file"))
+        clk = products.read_clk(_need(inputs.clk, "RINEX clock file")) if inputs.clk else None
+        antex = products.read_antex(_need(inputs.antex, "ANTEX file")) if inputs.antex else None
+        orbits = products.PreciseOrbits(sp3, clk=clk, antex=antex)
+        return orbits, (nav.header if nav is not None else None), "precise", nav
+    if nav is None:
+        raise MissingInputError("broadcast orbits need a navigation file (--nav)")
+    return BroadcastOrbits(nav, galileo_source=galileo_source), nav.header, "broadcast", nav
+
+
+def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions, *, met_path=None,
+                 ionex=None, reference=None, obs=None) -> StationDay:
+    """Read one observation file (unless ``obs`` is given) and run the measurement model."""
+    from .rinex.obs import read_obs
+
+    if obs is None:
+        obs = read_obs(_need(obs_path, "observation file"), on_error="skip")
+        if obs.dropped:
+            log.warning("%s: %d bad epochs skipped (first: line %s, %s)", obs_path, len(obs.dropped),
+                        obs.dropped[0][0], obs.dropped[0][1])
+    met = None
+    if met_path:
+        from .rinex import met as metmod
+
+        met = metmod.read_met(_need(met_path, "meteorological file"))
+    return measure_station(obs, orbits, station, options, nav_header=nav_header, met=met,
+                           ionex=ionex, reference=reference)
+
+
+def _reduce(day: StationDay, options: PairOptions) -> pd.DataFrame:
+    t = day.table
+    if options.mode == "tracks":
+        out = tracks.fit_tracks(t)
+    else:
+        out = tracks.bin_epochs(t, options.bin_s)
+    out.attrs["reference"] = day.reference
+    out.attrs["station"] = day.station_id
+    return out
+
+
+def _sigma_enu(station):
+    """Per-axis ECEF σ -> (σE, σN, σU) at the station (diagonal of R Σ Rᵀ)."""
+    from . import geodesy
+
+    lat, lon, _ = geodesy.ecef_to_geodetic(np.asarray(station.position_m, dtype=float))
+    r = geodesy.enu_matrix(float(lat), float(lon))
+    cov = np.diag(np.asarray(station.position_sigma_m, dtype=float) ** 2)
+    return tuple(np.sqrt(np.diag(r @ cov @ r.T)))
+
+
+def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = PairOptions(), *,
+             orbits_bundle=None) -> PairResult:
+    """Process one pair-day (see the module docstring). A is the first station."""
+    mopt = options.measure
+    galileo_source = "fnav" if "E" in mopt.systems and mopt.signals == "iono-free" else "inav"
+    if orbits_bundle is None:
+        orbits_bundle = load_orbits(inputs, options.orbits, galileo_source)
+    orbits, nav_header, reference, _nav = orbits_bundle
+    if options.mode == "all-in-view" and reference != "precise":
+        raise MissingInputError("all-in-view needs precise orbits and clocks (--sp3, optionally --clk)")
+    ionex = None
+    if inputs.ionex:
+        from . import atmosphere
+
+        ionex = atmosphere.read_ionex(_need(inputs.ionex, "IONEX file"))
+    day_a = measure_file(inputs.obs_a, station_a, orbits, nav_header, mopt, met_path=inputs.met_a,
+                         ionex=ionex, reference=reference)
+    day_b = measure_file(inputs.obs_b, station_b, orbits, nav_header, mopt, met_path=inputs.met_b,
+                         ionex=ionex, reference=reference)
+    _check_overlap(inputs, day_a, day_b)
+    red_a = _reduce(day_a, options)
+    red_b = _reduce(day_b, options)
+    cv_mode = "all-in-view" if options.mode == "all-in-view" else "cv"
+    cv = commonview.common_view(red_a, red_b, weights=options.weights, mad_k=options.mad_k,
+                                min_common=options.min_common, mode=cv_mode)
+    by_sys = cv.offset_df
+    systems = sorted(set(by_sys["system"]))
+    main_sys = "ALL" if "ALL" in systems else systems[0]
+    offset = by_sys[by_sys["system"] == main_sys].reset_index(drop=True)
+    if not (offset["flag"] == "ok").any():
+        raise NoDataError(f"no usable common-view point between {station_a.id} and {station_b.id} "
+                          f"({len(offset)} bins, flags: {offset['flag'].value_counts().to_dict()})")
+
+    # type B: hardware delays of both stations (independent), coordinates by geometry
+    type_b = {f"delays {station_a.id}": day_a.info["u_hardware_ns"],
+              f"delays {station_b.id}": day_b.info["u_hardware_ns"]}
+    budget = commonview.uncertainty_budget(
+        by_sys, type_b_items=type_b, result=cv, system=main_sys,
+        coordinate_sigma_m={"A": _sigma_enu(station_a), "B": _sigma_enu(station_b)})
+    budget["items"] = {k.replace("coordinates A", f"coordinates {station_a.id}")
+                       .replace("coordinates B", f"coordinates {station_b.id}"): v
+                       for k, v in budget["items"].items()}
+
+    summary = _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference)
+    return PairResult(offset=offset, offset_by_system=by_sys, satellites=cv.sat_df, summary=summary,
+                      station_a=day_a, station_b=day_b, cv=cv, budget=budget)
+
+
+def _check_overlap(inputs, day_a, day_b):
+    ta, tb = day_a.table["time"], day_b.table["time"]
+    lo, hi = max(ta.min(), tb.min()), min(ta.max(), tb.max())
+    if lo > hi:
+        raise NoDataError(f"{inputs.obs_a} ({ts.to_iso(int(ta.min()))}..{ts.to_iso(int(ta.max()))}) and "
+                          f"{inputs.obs_b} ({ts.to_iso(int(tb.min()))}..{ts.to_iso(int(tb.max()))}) "
+                          f"do not overlap in time")
+    span_a = ta.max() - ta.min()
+    span_b = tb.max() - tb.min()
+    common = hi - lo
+    if common < 0.9 * max(span_a, span_b):
+        msg = (f"the two files overlap for {common / 3.6e12:.1f} h only "
+               f"({ts.to_iso(int(lo))}..{ts.to_iso(int(hi))}); the result covers that part")
+        log.warning(msg)
+        warnings.warn(msg, stacklevel=3)
+
+
+def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference) -> dict:
+    files = {}
+    for k, v in inputs.files().items():
+        files[k] = {"path": str(v), "sha256": sha256_file(v)}
+    for label, st in (("station_a", station_a), ("station_b", station_b)):
+        if getattr(st, "path", None):
+            files[label] = {"path": str(st.path), "sha256": st.sha256}
+    ok = offset["flag"] == "ok"
+    rejected = {}
+    for who, day in (("A", day_a), ("B", day_b)):
+        for flag, n in day.counts.items():
+            if flag != "ok":
+                rejected[f"{who} {flag}"] = int(n)
+    sat_flags = cv.sat_df["flag"].value_counts().to_dict() if "flag" in cv.sat_df else {}
+    for flag, n in sat_flags.items():
+        if flag != "ok":
+            rejected[f"differences {flag}"] = int(n)
+    for flag, n in offset["flag"].value_counts().to_dict().items():
+        if flag != "ok":
+            rejected[f"points {flag}"] = int(n)
+    t0 = int(offset["time"].min())
+    return {
+        "software": {"name": "ctt", "version": __version__},
+        "pair": f"{station_a.id}-{station_b.id}",
+        "station_a": station_a.id, "station_b": station_b.id,
+        "date_utc": str(ts.to_iso(ts.convert(t0, "GPS", "UTC")))[:10],
+        "mode": options.mode, "signals": options.measure.signals, "reference": reference,
+        "sign": "offset_ns = clock A - clock B",
+        "inputs": files,
+        "config": options.to_dict(),
+        "models": {"A": day_a.info, "B": day_b.info},
+        "counts": {"points": int(len(offset)), "points_ok": int(ok.sum()),
+                   "differences": int(len(cv.sat_df)),
+                   "measurements_a": int(len(day_a.table)), "measurements_b": int(len(day_b.table))},
+        "mean_offset_ns": budget["mean_offset_ns"],
+        "budget": budget,
+        "isb": cv.isb.to_dict(orient="records") if len(cv.isb) else [],
+        "rejected": rejected,
+    }
+
+
+# ------------------------------------------------------------------ outputs
+
+OFFSET_CSV_COLUMNS = ["time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag", "system",
+                      "scatter_ns", "n_rejected", "u_apriori_ns", "chi2", "dof", "time_gps_ns"]
+
+
+def offset_table(offset: pd.DataFrame) -> pd.DataFrame:
+    """The offset series in the column order of ``offset.csv``."""
+    out = offset.copy()
+    out["time_gps_ns"] = out["time"].astype(np.int64)
+    cols = [c for c in OFFSET_CSV_COLUMNS if c in out.columns]
+    return out[cols]
+
+
+def _atomic_write(path: pathlib.Path, write):
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", newline="") as f:
+            write(f)
+            f.flush()
+            os.fsync(f.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def _json_default(o):
+    if isinstance(o, (np.integer,)):
+        return int(o)
+    if isinstance(o, (np.floating,)):
+        return None if not np.isfinite(o) else float(o)
+    if isinstance(o, np.ndarray):
+        return o.tolist()
+    if isinstance(o, (pathlib.Path,)):
+        return str(o)
+    return str(o)
+
+
+def _clean(o):
+    """Replace non-finite floats by None so the JSON is standard."""
+    if isinstance(o, dict):
+        return {str(k): _clean(v) for k, v in o.items()}
+    if isinstance(o, (list, tuple)):
+        return [_clean(v) for v in o]
+    if isinstance(o, float) and not np.isfinite(o):
+        return None
+    if isinstance(o, np.floating):
+        return None if not np.isfinite(o) else float(o)
+    return o
+
+
+def write_json(path, obj):
+    _atomic_write(pathlib.Path(path), lambda f: json.dump(_clean(obj), f, indent=2, default=_json_default))
+
+
+def write_pair_outputs(result: PairResult, out_dir) -> dict:
+    """Write offset.csv, satellites.csv, summary.json (and offset_by_system.csv) into ``out_dir``."""
+    out = pathlib.Path(out_dir)
+    paths = {}
+    p = out / "offset.csv"
+    _atomic_write(p, lambda f: offset_table(result.offset).to_csv(f, index=False, float_format="%.4f"))
+    paths["offset"] = p
+    if result.offset_by_system["system"].nunique() > 1:
+        p = out / "offset_by_system.csv"
+        _atomic_write(p, lambda f: offset_table(result.offset_by_system).to_csv(f, index=False,
+                                                                                   float_format="%.4f"))
+        paths["offset_by_system"] = p
+    sat = result.satellites.copy()
+    if "time" in sat.columns:
+        sat.insert(0, "time_utc", ts.to_iso(ts.convert(sat["time"].to_numpy(np.int64), "GPS", "UTC")))
+    p = out / "satellites.csv"
+    _atomic_write(p, lambda f: sat.to_csv(f, index=False, float_format="%.4f"))
+    paths["satellites"] = p
+    p = out / "summary.json"
+    write_json(p, result.summary)
+    paths["summary"] = p
+    return paths
+
+
+# ------------------------------------------------------------------ pair files
+
+def options_from_processing(proc) -> PairOptions:
+    """PairOptions from a pair file's ``[processing]`` table (ctt.config.Processing)."""
+    m = MeasureOptions(
+        signals=proc.signals, systems=tuple(proc.systems), codes=tuple(proc.codes),
+        elevation_mask_deg=proc.elevation_mask_deg,
+        troposphere=not proc.no_troposphere, ionosphere=not proc.no_ionosphere, tide=not proc.no_tide,
+        sagnac=not proc.no_sagnac, relativity=not proc.no_relativity,
+        smoothing_s=float(getattr(proc, "smoothing_s", 0.0) or 0.0),
+        mad_k=float(proc.mad_k))
+    bin_s = proc.bin_s if proc.mode != "tracks" else None
+    return PairOptions(mode=proc.mode, bin_s=bin_s, orbits=proc.orbits, mad_k=float(proc.mad_k),
+                       min_common=int(proc.min_common_sats), measure=m,
+                       weights=getattr(proc, "weights", "sin2el"))
+
+
+def pair_day_from_config(config, date):
+    """(PairInputs, station A, station B, PairOptions) for one UTC date of a pair file."""
+    from .config import load_pair
+
+    pc = config if hasattr(config, "resolve_inputs") else load_pair(config)
+    found = pc.resolve_inputs(date)
+    inputs = PairInputs(obs_a=str(found["obs_a"]), obs_b=str(found["obs_b"]),
+                        nav=_s(found.get("nav")), sp3=_s(found.get("sp3")), clk=_s(found.get("clk")),
+                        ionex=_s(found.get("ionex")), met_a=_s(found.get("met_a")), met_b=_s(found.get("met_b")))
+    options = options_from_processing(pc.processing)
+    return inputs, pc.station_a, pc.station_b, options
+
+
+def _s(p):
+    return None if p is None else str(p)
