@@ -10,9 +10,12 @@ Known georinex behaviours that are *not* copied (each is shown from the
 file's own text in a test below):
 
 * RINEX 3 epoch seconds are cut to microseconds (``int(float(s) % 1 * 1e6)``),
-  so a tag such as ``0.1234567 s`` loses its 100 ns digit; ctt keeps it.
-* A RINEX 3 event record (flags 2-5) stops georinex: it ends the read at the
-  first data line that does not start with ``>`` and drops every epoch after.
+  so a tag such as ``0.1234567 s`` loses its 100 ns digit, and float error
+  makes some tags one microsecond early (``0.3370200`` -> 337019 us); ctt
+  reads the digits exactly.
+* RINEX 3 event records (flags 2-5) confuse georinex: it reads their header
+  records as satellite records, and an event whose epoch time is blank (allowed
+  for flags 2-4) ends its read, dropping every epoch after.
 * RINEX 2 cycle-slip records (flag 6) are read by georinex as observations
   of a second epoch with the same time; RINEX 2.11 says they are "slip"
   records, not data, so ctt keeps them out of ``obs``.
@@ -134,3 +137,127 @@ def test_edge_v401_equals_v305(test_data):
         assert np.array_equal(v4.lli[c], v3.lli[c][:1]) and np.array_equal(v4.ssi[c], v3.ssi[c][:1])
     with pytest.raises(Exception, match="unknown RINEX"):
         _gr_load(test_data / "obs" / "edge_v401_mixed.rnx")
+
+
+def test_edge_v304_events_georinex_stops_at_event(test_data):
+    """georinex ends a RINEX 3 read at an event record whose time is blank; ctt reads on.
+
+    The file's own text: line 33 is '>' + blank time + flag 4 with two header records
+    (RINEX 3.05 Table A13 allows a blank epoch for flags 2-4); data epochs follow.
+    """
+    path = test_data / "obs" / "edge_v304_events.rnx"
+    lines = path.read_text().splitlines()
+    assert lines[32].startswith(">") and not lines[32][1:29].strip() and lines[32][31] == "4"
+    before = [ln for ln in lines[:32] if ln.startswith(">") and ln[31] in "01"]
+    after = [ln for ln in lines[33:] if ln.startswith(">") and ln[31] in "01"]
+    assert len(before) == 3 and len(after) == 4
+    ours = read_obs(path)
+    g = _gr_load(path)
+    assert g.sizes["time"] == len(before) and len(ours.time_ns) == len(before) + len(after)
+    # the epochs both read agree (after georinex's microsecond cut, see next test)
+    head = ours.to_xarray(indicators=True).isel(time=slice(0, 3))
+    for var in g.data_vars:
+        for sv in g.sv.values:
+            assert np.array_equal(head[var].sel(sv=sv).values, g[var].sel(sv=sv).values,
+                                  equal_nan=True), (var, sv)
+
+
+def test_fractional_seconds_georinex_cuts_to_microseconds(test_data):
+    """Epoch seconds F11.7 (RINEX 3.05 Table A13): '0.1234567' is 123 456 700 ns.
+    georinex keeps 123 456 us (int(float % 1 * 1e6)); ctt keeps the 100 ns digit."""
+    path = test_data / "obs" / "edge_v304_events.rnx"
+    first = path.read_text().splitlines()[14]
+    assert first[18:29] == "  0.1234567"
+    ours = read_obs(path)
+    g = _gr_load(path)
+    assert ours.time_ns[0] == civil_to_ns(2021, 1, 1, 12, 0, 0, 123_456_700)
+    cut = (ours.time_ns[:3] // 1000) * 1000  # truncated to the microsecond
+    assert np.array_equal(to_datetime64(cut), g.time.values.astype("datetime64[ns]"))
+    assert np.all(ours.time_ns[:3] - cut == 700)
+
+
+def test_edge_v211_events(test_data):
+    """Flag 5 (no records) and flag 2 events before 06:00:30 read the same as georinex."""
+    path = test_data / "obs" / "edge_v211_events.21o"
+    ours = read_obs(path)
+    t0, t1 = datetime(2021, 1, 1, 6, 0, 0), datetime(2021, 1, 1, 6, 0, 15)
+    _assert_same(ours, _gr_load(path, tlim=(t0, t1)), t_slice=(np.datetime64(t0), np.datetime64(t1)))
+
+
+def test_v2_cycle_slip_records_are_not_data(test_data):
+    """RINEX 2.11 flag 6: 'cycle slip records follow', slips instead of observations.
+    The file's line 37 is such a record at 06:00:30, the time of the data epoch at line 32.
+    georinex reads it as a second epoch with the same time and fails to align;
+    ctt keeps one 06:00:30 epoch with the observations, and the slip in ``events``."""
+    path = test_data / "obs" / "edge_v211_events.21o"
+    lines = path.read_text().splitlines()
+    assert lines[36][:29] == " 21  1  1  6  0 30.0000000  6"
+    assert lines[31][:29] == " 21  1  1  6  0 30.0000000  0"
+    with pytest.raises(Exception, match="duplicate"):
+        _gr_load(path, tlim=(datetime(2021, 1, 1, 6), datetime(2021, 1, 1, 6, 0, 30)))
+    ours = read_obs(path)
+    t = civil_to_ns(2021, 1, 1, 6, 0, 30)
+    assert np.count_nonzero(ours.time_ns == t) == 1
+    slip = [e for e in ours.events if e["flag"] == 6]
+    assert len(slip) == 1 and slip[0]["line"] == 37 and slip[0]["time_ns"] == t
+
+
+# ----------------------------------------------------------------- a RINEX 3 file written here
+
+def _write_rinex3(path, rng, n_ep=40):
+    """Small RINEX 3.04 file: four systems with their own types, blanks, signs, LLI/SSI."""
+    types = {"G": ["C1C", "L1C", "D1C", "S1C", "C2W", "L2W"], "E": ["C1C", "L1C", "C5Q", "L5Q", "S5Q"],
+             "R": ["C1C", "L1C", "S1C"], "C": ["C2I", "L2I", "D2I", "C7I"]}
+    sats = ["G01", "G12", "G31", "E02", "E30", "R03", "R24", "C06", "C41"]
+    out = [f"{'     3.04           OBSERVATION DATA    M':<60}RINEX VERSION / TYPE\n",
+           f"{'TST9':<60}MARKER NAME\n"]
+    out += [f"{s}  {len(t):3d} {' '.join(t):<53}SYS / # / OBS TYPES\n" for s, t in types.items()]
+    out += [f"{'  2021     1     1     0     0    0.0000000     GPS':<60}TIME OF FIRST OBS\n",
+            f"{'':<60}END OF HEADER\n"]
+    for e in range(n_ep):
+        here = [s for s in sats if rng.random() < 0.85]
+        frac = int(rng.integers(0, 10_000_000))
+        out.append(f"> 2021 01 01 00 {e // 2:02d} {(e % 2) * 30 + frac / 1e7:10.7f}  0{len(here):3d}\n")
+        for sv in here:
+            txt = sv
+            for _ in types[sv[0]]:
+                if rng.random() < 0.1:
+                    txt += " " * 16
+                    continue
+                v = rng.choice([rng.uniform(-9e8, 9e9), rng.uniform(-5000, 5000), rng.uniform(0, 60)])
+                lli = rng.choice(list(" 0123456789"))
+                ssi = rng.choice(list(" 123456789"))
+                txt += f"{v:14.3f}{lli}{ssi}"
+            out.append(txt.rstrip() + "\n")
+    path.write_text("".join(out))
+
+
+def test_written_rinex3_equals_georinex(tmp_path):
+    path = tmp_path / "TST900XXX_R_20210010000_01H_30S_MO.rnx"
+    _write_rinex3(path, np.random.default_rng(11))
+    ours = read_obs(path)
+    g = _gr_load(path)
+    # georinex cuts times to microseconds (see test above); compare values on its grid
+    gt = g.time.values.astype("datetime64[ns]")
+    # the epoch seconds as the file's text gives them (F11.7, RINEX 3.05 Table A13)
+    text = [ln for ln in path.read_text().splitlines() if ln.startswith(">")]
+    frac_100ns = np.array([int(ln[22:29]) for ln in text])
+    assert np.array_equal(ours.time_ns % 1_000_000_000, frac_100ns * 100)
+    # georinex: int(float(s) % 1 * 1e6) truncates to the microsecond and, float
+    # arithmetic being inexact, sometimes one microsecond lower than the text says
+    # (e.g. '0.3370200' -> 337019 us): allowed differences are 0 and exactly -1 us
+    text_us = (ours.time_ns // 1000) * 1000
+    diff = gt.astype(np.int64) - to_datetime64(text_us).astype(np.int64)
+    assert set(diff.tolist()) <= {0, -1000}
+    wrong = np.flatnonzero(diff)
+    assert np.all(frac_100ns[wrong] % 10 == 0)  # e.g. ...3370200: an exact microsecond in the text
+    ds = ours.to_xarray(indicators=True)
+    ds = ds.assign_coords(time=gt)
+    n = 0
+    for var in g.data_vars:
+        for sv in g.sv.values:
+            ref = g[var].sel(sv=sv).values
+            got = ds[var].sel(sv=sv).values if var in ds else np.full(len(ref), np.nan)
+            assert np.array_equal(got, ref, equal_nan=True), (var, sv)
+            n += np.isfinite(ref).sum()
+    assert n > 500

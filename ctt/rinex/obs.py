@@ -78,6 +78,7 @@ import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
+from numpy.lib.stride_tricks import sliding_window_view
 
 from ..errors import RinexFormatError
 from ..timescales import NS_PER_S, civil_to_ns, normalise_scale, to_datetime64, to_iso
@@ -346,17 +347,20 @@ class _Source:
         return RinexFormatError(self.path, None if i is None else i + 1, expected, found)
 
     def matrix(self, idx: np.ndarray, width: int, offset: int = 0) -> np.ndarray:
-        """Characters [offset, offset+width) of lines ``idx`` as uint8 (n, width), blank-padded."""
-        if self._pad is None:
-            self._pad = np.concatenate((self.buf, np.full(4096, 32, np.uint8)))
+        """Characters [offset, offset+width) of lines ``idx`` as uint8 (n, width), blank-padded.
+
+        Rows are copied whole from a sliding-window view of the buffer (one
+        memory copy per row, no per-character index), then the columns past
+        each line's end are blanked.
+        """
+        if self._pad is None or len(self._pad) < len(self.buf) + width + offset + 1:
+            self._pad = np.concatenate((self.buf, np.full(width + offset + 4096, 32, np.uint8)))
         idx = np.asarray(idx, dtype=np.int64)
         s = self.starts[idx] + offset
-        ln = self.ends[idx] - s
-        col = np.arange(width, dtype=np.int64)
-        take = s[:, None] + col
-        np.minimum(take, len(self._pad) - 1, out=take)
-        m = self._pad[take]
-        m[col >= ln[:, None]] = 32
+        ln = np.clip(self.ends[idx] - s, 0, width)
+        m = sliding_window_view(self._pad, width)[s]
+        small = np.int16 if width < 32000 else np.int64
+        np.putmask(m, np.arange(width, dtype=small) >= ln.astype(small)[:, None], np.uint8(32))
         return m
 
 
@@ -381,40 +385,96 @@ def _int_fields(m: np.ndarray, allow_blank=False):
     return val, ok
 
 
-def _num_fields(f: np.ndarray):
-    """Decode F14.3 fields: uint8 (..., 14) -> (float64 values with NaN for blank, bad mask).
+_U64 = np.uint64
+_BLANK8 = _U64(0x2020202020202020)
+_LOW6 = _U64(0x0000FFFFFFFFFFFF)  # bytes 0-5 of a little-endian word
+# What each of the 16 columns of an observation field (F14.3, I1, I1) may hold
+_COL = np.arange(16)
+_MAY_DIGIT = np.ones(16, bool)
+_MAY_DIGIT[10] = False
+_MAY_BLANK = (_COL < 9) | (_COL >= 14)
+_MAY_MINUS = _COL < 9
+_MAY_POINT = _COL == 10
+_HEAD_1_9 = (_COL >= 1) & (_COL <= 9)
 
-    Fast path for the layout the standard prescribes (point in column 11, three
-    decimals, leading blanks, optional minus sign); other non-blank text that
-    is still a right-aligned decimal number is decoded one field at a time with float().
+
+def _byte_masks(cols: np.ndarray):
+    """16 column flags -> two little-endian words with byte 0x01 where the flag is set."""
+    b = cols.astype(np.uint8)
+    return (_U64(int.from_bytes(b[:8].tobytes(), "little")), _U64(int.from_bytes(b[8:].tobytes(), "little")))
+
+
+_ONES8 = _U64(0x0101010101010101)
+_MASKS = {"digit": _byte_masks(_MAY_DIGIT), "blank": _byte_masks(_MAY_BLANK),
+          "minus": _byte_masks(_MAY_MINUS), "point": _byte_masks(_MAY_POINT),
+          "head": _byte_masks(_HEAD_1_9)}
+
+
+def _swar8(x):
+    """Eight digit values (0-9, one per byte; first byte most significant, words
+    little-endian) -> the integer they spell (SWAR digit folding, common practice)."""
+    x = (x * _U64(10) + (x >> _U64(8))) & _U64(0x00FF00FF00FF00FF)
+    x = (x * _U64(100) + (x >> _U64(16))) & _U64(0x0000FFFF0000FFFF)
+    x = (x * _U64(10000) + (x >> _U64(32))) & _U64(0x00000000FFFFFFFF)
+    return x
+
+
+def _num_fields(f: np.ndarray):
+    """Decode observation fields: uint8 (M, 16) C-contiguous, each F14.3 + LLI I1 + SSI I1.
+
+    Returns (values float64 with NaN for a blank value, bad bool, lli int8, ssi
+    int8 with -1 for blank). The fast path accepts the layout the standard
+    prescribes (point in column 11, three decimals, leading blanks, optional
+    minus sign right before the digits): the ten integer and three decimal
+    digits are folded eight bytes at a time into an exact integer count of
+    thousandths, and one division by 1000 gives the same double as float(text).
+    Other non-blank text that is still a right-aligned decimal number is
+    decoded one field at a time with float(); anything else is ``bad``.
     """
-    shape = f.shape[:-1]
-    f2 = f.reshape(-1, 14)
-    blank = f2 == 32
-    allblank = blank.all(axis=1)
-    d = _DIGIT_LUT[f2]
-    isdig = d >= 0
-    head = f2[:, :10]
-    nb = ~blank[:, :10]
-    started = np.maximum.accumulate(nb, axis=1)
-    prev = np.zeros_like(started)
-    prev[:, 1:] = started[:, :-1]
-    minus = head == 45
-    ok = np.all((blank[:, :10] & ~started) | isdig[:, :10] | (minus & ~prev), axis=1)
-    ok &= (f2[:, 10] == 46) & isdig[:, 11:].all(axis=1)
-    w = np.array([1e12, 1e11, 1e10, 1e9, 1e8, 1e7, 1e6, 1e5, 1e4, 1e3, 0, 1e2, 1e1, 1e0])
-    mant = np.where(isdig, d, 0).astype(np.float64) @ w  # exact: integers below 2**53
-    neg = minus.any(axis=1)
-    val = np.where(neg, -mant, mant) / 1000.0
+    m = f.shape[0]
+    f = np.ascontiguousarray(f)
+    d = f - np.uint8(48)
+    dig = d < 10
+    blank = f == 32
+    minus = f == 45
+    digits = (d * dig).view(np.uint64).reshape(m, 2)
+    hi = _swar8(digits[:, 0].copy())                       # columns 1-8
+    lo = _swar8(digits[:, 1] & _LOW6) // _U64(100)          # columns 9,10,'.',12-14 -> ab0cde
+    thou = hi * _U64(100000) + (lo // _U64(10000)) * _U64(1000) + lo % _U64(10000)
+    fw = f.view(np.uint64).reshape(m, 2)
+    allblank = (fw[:, 0] == _BLANK8) & ((fw[:, 1] & _LOW6) == (_BLANK8 & _LOW6))
+    # character classes checked eight columns at a time: each bool byte is 0 or 1
+    dw = dig.view(np.uint64).reshape(m, 2)
+    bw = blank.view(np.uint64).reshape(m, 2)
+    mw = minus.view(np.uint64).reshape(m, 2)
+    pw = (f == 46).view(np.uint64).reshape(m, 2)
+    # order within columns 1-10: no blank after a sign or digit, a sign only first
+    rank = dig.view(np.uint8) * np.uint8(2) + minus.view(np.uint8)
+    rf, bf, mf = rank.ravel(), blank.ravel(), minus.ravel()
+    order = np.zeros(m * 16, bool)
+    order[1:] = (rf[1:] < rf[:-1]) | (mf[1:] & ~bf[:-1])
+    ow = order.view(np.uint64).reshape(m, 2)
+    bad_w = []
+    for j in (0, 1):
+        ok = ((dw[:, j] & _MASKS["digit"][j]) | (bw[:, j] & _MASKS["blank"][j])
+              | (mw[:, j] & _MASKS["minus"][j]) | (pw[:, j] & _MASKS["point"][j]))
+        bad_w.append((ok ^ _ONES8) | (ow[:, j] & _MASKS["head"][j]))
+    bad_val = ((bad_w[0] | (bad_w[1] & _LOW6)) != 0) & ~allblank
+    bad_ind = (bad_w[1] & ~_LOW6) != 0
+    neg = (mw[:, 0] | mw[:, 1]) != 0
+    val = thou.astype(np.float64)
+    np.negative(val, out=val, where=neg)
+    val /= 1000.0
     val[allblank] = np.nan
-    bad = ~(ok | allblank)
-    if bad.any():
-        for k in np.flatnonzero(bad):
-            text = f2[k].tobytes().decode("latin-1")
+    if bad_val.any():
+        for k in np.flatnonzero(bad_val):
+            text = f[k, :14].tobytes().decode("latin-1")
             if _PLAIN_NUMBER.match(text):
                 val[k] = float(text)
-                bad[k] = False
-    return val.reshape(shape), bad.reshape(shape)
+                bad_val[k] = False
+    lli = np.where(dig[:, 14], d[:, 14], 255).astype(np.uint8).view(np.int8)
+    ssi = np.where(dig[:, 15], d[:, 15], 255).astype(np.uint8).view(np.int8)
+    return val, bad_val | bad_ind, lli, ssi
 
 
 # Right-aligned decimals with another number of decimals than three (seen from
@@ -691,16 +751,13 @@ class _Walk:
         self.ep_nsat = []
         self.rec_first = []    # per data epoch: line index of the first satellite record
         self.sat_text = []     # RINEX 2: the satellite list of each data epoch (3 chars each)
-        self.clock = []        # clock offset text
         self.events = []
-        self.dropped = []
+        self.errors = []       # (line number, RinexFormatError)
 
 
 def _bad(src, walk, on_error, i, expected, found=None):
-    err = src.error(i, expected, found)
-    if on_error == "raise":
-        raise err
-    walk.dropped.append((i + 1, str(err)))
+    """Record a bad epoch; in "raise" mode the earliest one is raised once the walk is done."""
+    walk.errors.append((int(i) + 1, src.error(i, expected, found)))
 
 
 def _walk_v3(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Walk:
@@ -711,6 +768,8 @@ def _walk_v3(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
     starts, ends = src.starts.tolist(), src.ends.tolist()
     first_char = src.buf[np.minimum(src.starts, len(raw) - 1)] if len(raw) else np.zeros(0, np.uint8)
     is_epoch = (first_char == 62) & (src.ends > src.starts)
+    if _fast_walk_v3(src, h, is_epoch, walk):
+        return walk
     seg = 0
     while i < n:
         s0, e0 = starts[i], ends[i]
@@ -753,7 +812,6 @@ def _walk_v3(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
             walk.ep_seg.append(seg)
             walk.ep_nsat.append(k)
             walk.rec_first.append(i + 1)
-            walk.clock.append(ln[41:56])
         else:
             records = [raw[starts[j]:ends[j]].decode("latin-1") for j in range(i + 1, nxt)]
             ev = {"time_ns": None, "flag": flag, "line": i + 1, "records": records,
@@ -765,6 +823,30 @@ def _walk_v3(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
                 seg += 1
         i = nxt
     return walk
+
+
+def _fast_walk_v3(src: _Source, h: ObsHeader, is_epoch: np.ndarray, walk: _Walk) -> bool:
+    """The common case in bulk: only data epochs (flags 0/1) whose counts chain exactly
+    from one '>' record to the next. Returns False (nothing filled) otherwise, and the
+    epoch-by-epoch walk then finds and reports what differs."""
+    n0, n = h.n_lines, src.n
+    ep = np.flatnonzero(is_epoch[n0:]) + n0
+    if len(ep) == 0:
+        return False
+    m = src.matrix(ep, 35)
+    flag = m[:, 31] - np.uint8(48)
+    cnt, ok = _int_fields(m[:, 32:35])
+    nxt = ep + 1 + cnt
+    empty = src.ends == src.starts
+    if not (ok.all() and (flag <= 1).all() and np.array_equal(nxt[:-1], ep[1:]) and nxt[-1] <= n
+            and empty[n0:ep[0]].all() and empty[nxt[-1]:].all()):
+        return False
+    walk.ep_line = ep
+    walk.ep_flag = flag.astype(np.int8)
+    walk.ep_seg = np.zeros(len(ep), np.int64)
+    walk.ep_nsat = cnt
+    walk.rec_first = ep + 1
+    return True
 
 
 def _next_epoch_v3(is_epoch, i):
@@ -867,7 +949,6 @@ def _walk_v2(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
             walk.ep_nsat.append(k)
             walk.rec_first.append(first)
             walk.sat_text.append(sat_text.ljust(3 * k))
-            walk.clock.append(ln[68:80])
         i = nxt
     return walk
 
@@ -922,100 +1003,111 @@ def _event_time(src, ev, v2):
 
 # ============================================================== records
 
+_SYS_OK = np.zeros(256, bool)
+_SYS_OK[np.frombuffer(SYSTEMS.encode(), np.uint8)] = True
+
+
 def _sat_ids(m3: np.ndarray):
-    """uint8 (n, 3) satellite ids -> (str array 'G07', ok mask). Blank system = GPS (RINEX 2.11)."""
-    m3 = m3.copy()
-    m3[:, 0] = np.where(m3[:, 0] == 32, ord("G"), m3[:, 0])
-    m3[:, 1] = np.where(m3[:, 1] == 32, ord("0"), m3[:, 1])
-    sysok = np.isin(m3[:, 0], np.frombuffer(SYSTEMS.encode(), np.uint8))
-    digok = (_DIGIT_LUT[m3[:, 1]] >= 0) & (_DIGIT_LUT[m3[:, 2]] >= 0)
-    ids = np.ascontiguousarray(m3).view("S3").ravel().astype("U3")
-    return ids, sysok & digok
+    """uint8 (n, 3) satellite ids -> (int codes letter*100+number, ok mask).
+
+    A blank system letter means GPS and a blank tens digit a zero ('G 7' is G07;
+    RINEX 2.11 section 5.1). Integer codes sort like the 'G07' strings.
+    """
+    letter = np.where(m3[:, 0] == 32, np.uint8(ord("G")), m3[:, 0])
+    tens = np.where(m3[:, 1] == 32, np.uint8(48), m3[:, 1]) - np.uint8(48)
+    ones = m3[:, 2] - np.uint8(48)
+    ok = _SYS_OK[letter] & (tens < 10) & (ones < 10)
+    code = letter.astype(np.int64) * 100 + tens.astype(np.int64) * 10 + ones
+    return code, ok
 
 
-def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, on_error: str,
-            systems, codes_wanted, v2: bool):
-    """Bulk-decode all satellite records -> per-record arrays (epoch, sat, values...)."""
+def _sat_names(codes: np.ndarray) -> np.ndarray:
+    """Integer satellite codes -> 'G07' strings."""
+    return np.array([f"{chr(c // 100)}{c % 100:02d}" for c in codes.tolist()], dtype="U3")
+
+
+def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
+    """Bulk-decode all satellite records.
+
+    Returns a list of segments (seg, rec_ep, sat codes, system letters as uint8,
+    values (n_rec, n_types), lli, ssi) and the per-epoch "bad" mask with reasons.
+    """
     n_ep = len(walk.ep_line)
     nsat = np.asarray(walk.ep_nsat, np.int64)
     rec_ep = np.repeat(np.arange(n_ep), nsat)
     first = np.asarray(walk.rec_first, np.int64)
     within = np.arange(len(rec_ep)) - np.repeat(np.cumsum(nsat) - nsat, nsat)
     seg_of_ep = np.asarray(walk.ep_seg, np.int64)
-    out = []  # (rec_ep, ids, code list per system, values, lli, ssi, bad_epochs)
+    ep_line = np.asarray(walk.ep_line, np.int64)
+    out = []
     bad_ep = np.zeros(n_ep, bool)
-    bad_reason = {}
+    bad_reason: dict = {}
+    sat_all = None
+    if v2 and len(rec_ep):
+        sat_all = np.frombuffer("".join(walk.sat_text).encode("latin-1"), np.uint8).reshape(-1, 3)
     for seg, types in enumerate(seg_types):
-        sel = seg_of_ep[rec_ep] == seg
-        if not sel.any():
-            continue
+        sel = seg_of_ep[rec_ep] == seg if len(seg_types) > 1 else slice(None)
         r_ep = rec_ep[sel]
+        if len(r_ep) == 0:
+            continue
         r_in = within[sel]
         if v2:
-            nobs = len(types)
-            nl_sv = -(-nobs // 5)
+            nf = len(types)
+            nl_sv = -(-nf // 5)
             line0 = first[r_ep] + r_in * nl_sv
-            m = np.concatenate([src.matrix(line0 + k, 80) for k in range(nl_sv)], axis=1)
-            sat_all = np.frombuffer("".join(walk.sat_text).encode("latin-1"), np.uint8).reshape(-1, 3)
+            parts = [src.matrix(line0 + k, 80) for k in range(nl_sv)]
+            m = parts[0] if nl_sv == 1 else np.concatenate(parts, axis=1)
             ids, idok = _sat_ids(sat_all[sel])
-            nf = nobs
-            fields = m[:, :16 * nf].reshape(-1, nf, 16)
-            field_line = line0[:, None] + (np.arange(nf) // 5)[None, :]
-            # a line of the record that is really an epoch record: the count disagrees
-            for k in range(nl_sv):
-                mm = m[:, 80 * k:80 * k + 26]
+            fields = np.ascontiguousarray(m[:, :16 * nf]).reshape(-1, 16)
+            # a record line that is really an epoch record: the satellite count disagrees
+            for k, mm in enumerate(parts):
                 looks = ((mm[:, 18] == 46) & (mm[:, 3] == 32) & (mm[:, 6] == 32) & (mm[:, 9] == 32)
-                         & (mm[:, 12] == 32) & (mm[:, 15] == 32) & (_DIGIT_LUT[mm[:, 19]] >= 0)
-                         & (m[:, 80 * k + 28] >= 48) & (m[:, 80 * k + 28] <= 54))
-                if looks.any():
-                    for r in np.flatnonzero(looks):
-                        ep = r_ep[r]
-                        _mark(bad_ep, bad_reason, ep, line0[r] + k,
-                              f"{walk.ep_nsat[ep]} satellite records after the epoch record at line "
-                              f"{walk.ep_line[ep] + 1} (its satellite count disagrees with the lines)")
-            maps = {}
+                         & (mm[:, 12] == 32) & (mm[:, 15] == 32) & (mm[:, 19] - np.uint8(48) < 10)
+                         & (mm[:, 28] >= 48) & (mm[:, 28] <= 54))
+                for r in np.flatnonzero(looks):
+                    ep = r_ep[r]
+                    _mark(bad_ep, bad_reason, ep, line0[r] + k,
+                          f"{walk.ep_nsat[ep]} satellite records of {nl_sv} line(s) after the epoch "
+                          f"record at line {ep_line[ep] + 1} (its satellite count disagrees with the lines)")
+            ntypes = None
         else:
             line0 = first[r_ep] + r_in
             nf = max(len(v) for v in types.values())
-            m = src.matrix(line0, 3 + 16 * nf)
-            ids, idok = _sat_ids(m[:, :3])
-            fields = m[:, 3:].reshape(-1, nf, 16)
-            field_line = np.broadcast_to(line0[:, None], (len(line0), nf))
-        for r in np.flatnonzero(~idok):
-            _mark(bad_ep, bad_reason, r_ep[r], field_line[r, 0] if not v2 else walk.ep_line[r_ep[r]],
-                  "satellite ids like G07 (system letter G R E C J S I and two digits)")
-        # systems of the records, number of types per record
-        sysc = np.array([s[0] for s in ids]) if len(ids) else np.zeros(0, "U1")
-        if v2:
-            ntypes = np.full(len(ids), nf)
-        else:
-            ntypes = np.full(len(ids), -1)
-            for s, v in types.items():
-                ntypes[sysc == s] = len(v)
-            missing = ntypes < 0
-            for r in np.flatnonzero(missing & idok):
+            ids, idok = _sat_ids(src.matrix(line0, 3))
+            fields = src.matrix(line0, 16 * nf, offset=3).reshape(-1, 16)
+            sysb = (ids // 100).astype(np.uint8)
+            ntypes = np.full(len(ids), -1, np.int64)
+            for sname, v in types.items():
+                ntypes[sysb == ord(sname)] = len(v)
+            for r in np.flatnonzero((ntypes < 0) & idok)[:1000]:
                 _mark(bad_ep, bad_reason, r_ep[r], line0[r],
-                      f"a satellite of a system with observation types in the header "
-                      f"({' '.join(sorted(types))})")
-        vals, badnum = _num_fields(fields[:, :, :14])
-        lli = _IND_LUT[fields[:, :, 14]]
-        ssi = _IND_LUT[fields[:, :, 15]]
-        used = np.arange(nf)[None, :] < ntypes[:, None]
-        # beyond a system's own number of types the columns must be blank
-        extra = ~used & (fields != 32).any(axis=2)
-        badfield = (badnum | (lli < -1) | (ssi < -1)) & used | extra
-        if badfield.any():
-            rr, kk = np.nonzero(badfield)
-            for r, k in zip(rr[:1000], kk[:1000]):
-                what = ("blank columns after the last observation type of this system" if extra[r, k]
+                      "a satellite of a system with observation types in the header "
+                      f"({' '.join(sorted(types))})", src.line(int(line0[r]))[:3])
+        for r in np.flatnonzero(~idok)[:1000]:
+            li = ep_line[r_ep[r]] if v2 else line0[r]
+            _mark(bad_ep, bad_reason, r_ep[r], li,
+                  "satellite ids like G07 (system letter G R E C J S I and two digits)")
+        vals, badf, lli, ssi = _num_fields(fields)
+        n_rec = len(ids)
+        vals, badf = vals.reshape(n_rec, nf), badf.reshape(n_rec, nf)
+        lli, ssi = lli.reshape(n_rec, nf), ssi.reshape(n_rec, nf)
+        extra = None
+        if ntypes is not None and (ntypes < nf).any():
+            fw = fields.view(np.uint64).reshape(n_rec, nf, 2)
+            nonblank = (fw[:, :, 0] != _BLANK8) | (fw[:, :, 1] != _BLANK8)
+            extra = nonblank & (np.arange(nf)[None, :] >= ntypes[:, None])
+            badf = (badf & (np.arange(nf)[None, :] < ntypes[:, None])) | extra
+        if badf.any():
+            rr, kk = np.nonzero(badf)
+            for r, k in zip(rr[:1000].tolist(), kk[:1000].tolist()):
+                line = line0[r] + (k // 5 if v2 else 0)
+                what = ("blank columns after the last observation type of this system"
+                        if extra is not None and extra[r, k]
                         else "an observation as F14.3 with loss-of-lock and signal-strength digits (I1, I1)")
-                _mark(bad_ep, bad_reason, r_ep[r], field_line[r, k], what,
-                      fields[r, k].tobytes().decode("latin-1"))
-        out.append((seg, r_ep, ids, sysc, vals, lli, ssi))
-    for ep in sorted(bad_reason):
-        line, expected, found = bad_reason[ep]
-        _bad(src, walk, on_error, line, expected, found)
-    return out, bad_ep
+                _mark(bad_ep, bad_reason, r_ep[r], line, what,
+                      fields[r * nf + k].tobytes().decode("latin-1"))
+        out.append((seg, r_ep, ids, (ids // 100).astype(np.uint8), vals, lli, ssi))
+    return out, bad_ep, bad_reason
 
 
 def _mark(bad_ep, bad_reason, ep, line, expected, found=None):
@@ -1026,6 +1118,25 @@ def _mark(bad_ep, bad_reason, ep, line, expected, found=None):
 
 
 # ============================================================== entry points
+
+def _clock_offsets(src, walk, ep_lines, v2, on_error):
+    """Receiver clock offsets (s) of the data epochs: RINEX 2 F12.9 in columns 69-80,
+    RINEX 3/4 F15.12 in columns 42-56 (RINEX 2.11 Table A2, 3.05 Table A13)."""
+    clock = np.full(len(ep_lines), np.nan)
+    if not len(ep_lines):
+        return clock
+    a, w = (68, 12) if v2 else (41, 15)
+    m = src.matrix(ep_lines, w, offset=a)
+    present = np.flatnonzero((m != 32).any(axis=1))
+    for e in present.tolist():
+        txt = m[e].tobytes().decode("latin-1")
+        try:
+            clock[e] = float(txt)
+        except ValueError:
+            _bad(src, walk, on_error, int(ep_lines[e]), "a receiver clock offset in seconds "
+                 f"({'F12.9, columns 69-80' if v2 else 'F15.12, columns 42-56'})", txt)
+    return clock
+
 
 def read_obs_header(path) -> ObsHeader:
     """Only the header of a RINEX observation file."""
@@ -1061,46 +1172,55 @@ def read_obs(path, *, on_error: str = "raise", systems=None, codes=None) -> ObsD
     for e in np.flatnonzero(bad_time):
         _bad(src, walk, on_error, int(ep_lines[e]), "an epoch time (year month day hour minute "
                                                     "seconds as in the format's EPOCH record)")
-    recs, bad_ep = _decode(src, walk, h, seg_types, on_error, systems, codes, v2)
-    keep = ~(bad_time | bad_ep)
-    # epochs must increase: a repeated or earlier epoch is an error
+    clock_all = _clock_offsets(src, walk, ep_lines, v2, on_error)
+    recs, bad_ep, bad_reason = _decode(src, walk, h, seg_types, v2)
+    for ep in sorted(bad_reason):
+        line, expected, found = bad_reason[ep]
+        _bad(src, walk, on_error, line, expected, found)
+    keep = ~(bad_time | bad_ep | np.isin(ep_lines, [ln - 1 for ln, _ in walk.errors]))
+    # epochs must increase: a repeated or earlier epoch is an error (RINEX 3.05 5.1:
+    # epochs in chronological order); only data epochs (flags 0, 1) are ordered
     kept = np.flatnonzero(keep)
     if len(kept) > 1:
-        tk = t_ns[kept]
-        back = np.flatnonzero(np.diff(tk) <= 0)
+        back = np.flatnonzero(np.diff(t_ns[kept]) <= 0)
         while len(back):
             b = back[0]
             e_prev, e_bad = kept[b], kept[b + 1]
-            what = "repeated" if tk[b + 1] == tk[b] else "earlier"
+            what = "repeated" if t_ns[e_bad] == t_ns[e_prev] else "earlier"
             _bad(src, walk, on_error, int(ep_lines[e_bad]),
                  f"an epoch later than {to_iso(t_ns[e_prev], 7, '')} (line {ep_lines[e_prev] + 1})",
                  f"the {what} epoch {to_iso(t_ns[e_bad], 7, '')}")
             keep[e_bad] = False
             kept = np.flatnonzero(keep)
-            tk = t_ns[kept]
-            back = np.flatnonzero(np.diff(tk) <= 0)
+            back = np.flatnonzero(np.diff(t_ns[kept]) <= 0)
+    if walk.errors and on_error == "raise":
+        raise min(walk.errors, key=lambda x: x[0])[1]
 
     # satellites and codes
-    sys_filter = set(systems.upper()) if isinstance(systems, str) else (set(systems) if systems else None)
+    if isinstance(systems, str):
+        sys_filter = set(systems.upper())
+    else:
+        sys_filter = {str(x).upper() for x in systems} if systems else None
     want = set(codes) if codes is not None else None
+    n_e = int(keep.sum())
     new_index = np.full(len(t_ns), -1, np.int64)
-    new_index[keep] = np.arange(int(keep.sum()))
-    all_ids = []
-    for seg, r_ep, ids, sysc, *_ in recs:
-        m = keep[r_ep]
+    new_index[keep] = np.arange(n_e)
+    masks = []
+    for seg, r_ep, ids, sysb, *_ in recs:
+        msk = keep[r_ep]
         if sys_filter is not None:
-            m &= np.isin(sysc, list(sys_filter))
-        all_ids.append(ids[m])
-    sats = np.unique(np.concatenate(all_ids)) if all_ids else np.zeros(0, "U3")
-    sats = sats.astype("U3")
-    n_e, n_s = int(keep.sum()), len(sats)
+            msk &= np.isin(sysb, np.frombuffer("".join(sorted(sys_filter)).encode(), np.uint8))
+        masks.append(msk)
+    all_codes = [r[2][msk] for r, msk in zip(recs, masks)]
+    sat_codes = np.unique(np.concatenate(all_codes)) if all_codes else np.zeros(0, np.int64)
+    sats = _sat_names(sat_codes)
+    n_s = len(sats)
 
-    # per-system code lists (RINEX 3 codes)
-    present_sys = sorted({s[0] for s in sats}, key=SYSTEMS.index)
+    present_sys = sorted({x[0] for x in sats.tolist()}, key=SYSTEMS.index)
     if v2:
         sys_for_types = present_sys or ([h.system] if h.system != "M" else [])
-        h.v2_to_v3 = {s: _v2_map_for(h, s) for s in sys_for_types}
-        h.obs_types = {s: [h.v2_to_v3[s][c] for c in h.obs_types_v2] for s in sys_for_types}
+        h.v2_to_v3 = {x: _v2_map_for(h, x) for x in sys_for_types}
+        h.obs_types = {x: [h.v2_to_v3[x][c] for c in h.obs_types_v2] for x in sys_for_types}
     obs, lli, ssi = {}, {}, {}
 
     def _slot(code):
@@ -1109,57 +1229,48 @@ def read_obs(path, *, on_error: str = "raise", systems=None, codes=None) -> ObsD
             lli[code] = np.full((n_e, n_s), -1, np.int8)
             ssi[code] = np.full((n_e, n_s), -1, np.int8)
 
-    for seg, r_ep, ids, sysc, vals, lli_r, ssi_r in recs:
-        m = keep[r_ep]
-        if sys_filter is not None:
-            m &= np.isin(sysc, list(sys_filter))
-        if not m.any():
+    for (seg, r_ep, ids, sysb, vals, lli_r, ssi_r), msk in zip(recs, masks):
+        if not msk.any():
             continue
-        rows = new_index[r_ep[m]]
-        cols = np.searchsorted(sats, ids[m])
-        key = rows * max(n_s, 1) + cols
-        if len(np.unique(key)) != len(key):
-            uk, cnt = np.unique(key, return_counts=True)
-            dup = uk[cnt > 1][0]
+        all_in = bool(msk.all())
+        rows = new_index[r_ep] if all_in else new_index[r_ep[msk]]
+        cols = np.searchsorted(sat_codes, ids if all_in else ids[msk])
+        flat = rows * max(n_s, 1) + cols
+        seen = np.bincount(flat, minlength=n_e * max(n_s, 1))
+        if seen.max(initial=0) > 1:
+            dup = int(np.argmax(seen > 1))
             ep_orig = np.flatnonzero(keep)[dup // max(n_s, 1)]
             raise src.error(int(ep_lines[ep_orig]), "each satellite at most once per epoch",
                             f"{sats[dup % max(n_s, 1)]} twice")
-        sysm = sysc[m]
-        v, li, si = vals[m], lli_r[m], ssi_r[m]
+        if not all_in:
+            sysb, vals, lli_r, ssi_r = sysb[msk], vals[msk], lli_r[msk], ssi_r[msk]
         types = seg_types[seg]
-        for s in sorted(set(sysm.tolist())):
-            rs = sysm == s
+        for sb in np.unique(sysb).tolist():
+            x = chr(sb)
+            rs = sysb == sb
+            single = bool(rs.all())
             if v2:
-                cmap = _v2_map_for(h, s)
+                cmap = _v2_map_for(h, x)
                 clist = [cmap[c] for c in types]
                 orig = list(types)
             else:
-                clist = list(types.get(s, []))
+                clist = list(types.get(x, []))
                 orig = clist
-            rr, cc = rows[rs], cols[rs]
+            fr = flat if single else flat[rs]
+            vs, ls, ss = (vals, lli_r, ssi_r) if single else (vals[rs], lli_r[rs], ssi_r[rs])
             for k, code in enumerate(clist):
                 if want is not None and code not in want and orig[k] not in want:
                     continue
                 _slot(code)
-                col = v[rs, k]
-                f = h.scale_factors.get((s, code))
-                if f and f != 1:
-                    col = col / f
-                obs[code][rr, cc] = col
-                lli[code][rr, cc] = li[rs, k]
-                ssi[code][rr, cc] = si[rs, k]
+                col = vs[:, k]
+                factor = h.scale_factors.get((x, code))
+                if factor and factor != 1:
+                    col = col / factor
+                obs[code].ravel()[fr] = col
+                lli[code].ravel()[fr] = ls[:, k]
+                ssi[code].ravel()[fr] = ss[:, k]
 
-    # clock offsets
-    clock = np.full(n_e, np.nan)
-    kept_idx = np.flatnonzero(keep)
-    for j, e in enumerate(kept_idx):
-        txt = walk.clock[e]
-        if txt.strip():
-            try:
-                clock[j] = float(txt)
-            except ValueError:
-                raise src.error(int(ep_lines[e]), "a receiver clock offset in seconds "
-                                                  f"({'F12.9' if v2 else 'F15.12'})", txt) from None
+    clock = clock_all[keep]
 
     events = []
     for ev in walk.events:
@@ -1167,13 +1278,13 @@ def read_obs(path, *, on_error: str = "raise", systems=None, codes=None) -> ObsD
         ev.pop("_epoch", None)
         events.append(ev)
 
-    if walk.dropped:
-        walk.dropped.sort()
-        msg = (f"{src.path}: skipped {len(walk.dropped)} bad epoch record(s); first at line "
-               f"{walk.dropped[0][0]}: {walk.dropped[0][1]}")
+    dropped = sorted((line, str(err)) for line, err in walk.errors)
+    if dropped:
+        msg = (f"{src.path}: skipped {len(dropped)} bad epoch record(s); first at line "
+               f"{dropped[0][0]}: {dropped[0][1]}")
         warnings.warn(msg, stacklevel=2)
         log.warning(msg)
 
     return ObsData(path=src.path, header=h, time_ns=t_ns[keep].astype(np.int64), sats=sats, obs=obs,
                    lli=lli, ssi=ssi, epoch_flag=np.asarray(walk.ep_flag, np.int8)[keep] if n_e else
-                   np.zeros(0, np.int8), clock_offset_s=clock, events=events, dropped=walk.dropped)
+                   np.zeros(0, np.int8), clock_offset_s=clock, events=events, dropped=dropped)
