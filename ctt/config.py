@@ -101,6 +101,8 @@ Paths are relative to the pair file's folder unless absolute.
     elevation_mask_deg = 10.0        # optional; default: the larger station mask
     min_common_sats = 2
     mad_k = 4.0                      # outlier rejection at k x MAD (scaled)
+    weights = "sin2el"               # sin2el | equal | sigma
+    smoothing_s = 0.0                # code smoothing time constant (0 = none)
     no_troposphere = false
     no_ionosphere = false
     no_tide = false
@@ -781,6 +783,8 @@ class Processing:
     elevation_mask_deg: float | None = None
     min_common_sats: int = 2
     mad_k: float = 4.0
+    weights: str = "sin2el"
+    smoothing_s: float = 0.0
     no_troposphere: bool = False
     no_ionosphere: bool = False
     no_tide: bool = False
@@ -905,8 +909,9 @@ class PairConfig:
 
 _PAIR_TOP = {"pair", "inputs", "processing", "output", "events"}
 _PAIR_KEYS = {"name", "station_a", "station_b", "data_root"}
+WEIGHTS = ("sin2el", "equal", "sigma")
 _PROC_KEYS = {"mode", "signals", "systems", "codes", "orbits", "bin_s", "elevation_mask_deg",
-              "min_common_sats", "mad_k", *_SWITCHES}
+              "min_common_sats", "mad_k", "weights", "smoothing_s", *_SWITCHES}
 
 
 def _pattern_list(r: _Reader, v, key) -> tuple[str, ...]:
@@ -1009,6 +1014,9 @@ def load_pair(path) -> PairConfig:
                                       "a number of satellites", default=2, lo=1)
     kw["mad_k"] = r.number(proc, "mad_k", "processing.mad_k", "a rejection threshold in MADs", required=False,
                            default=4.0, lo=0.0, lo_open=True)
+    kw["weights"] = r.choice(proc, "weights", "processing.weights", WEIGHTS, "sin2el")
+    kw["smoothing_s"] = r.number(proc, "smoothing_s", "processing.smoothing_s", "a smoothing time in seconds",
+                                 required=False, default=0.0, lo=0.0)
     for s in _SWITCHES:
         kw[s] = r.boolean(proc, s, f"processing.{s}", default=False)
     defaults = Processing()

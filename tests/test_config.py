@@ -316,3 +316,52 @@ def test_pair_reports_station_file_problems(pair_dir):
     with pytest.raises(ConfigError) as ei:
         C.load_pair(pair_dir / "pair.toml")
     assert any(e.path.endswith("labb.toml") and e.key == "delays[1].cable_ns" for e in ei.value.problems)
+
+
+# ---------------------------------------------------------------- ctt check-config
+
+def _fill_day(pair_dir, doy="001", yy="21"):
+    for name in (f"laba{doy}0.{yy}o", f"labb{doy}0.{yy}o", f"brdc{doy}0.{yy}n.gz"):
+        (pair_dir / "data" / name).write_text("x")
+
+
+def test_check_config_ok(pair_dir, capsys):
+    from ctt.cli import main
+    _fill_day(pair_dir)
+    assert main(["check-config", str(pair_dir / "pair.toml"), "--date", "2021-01-01"]) == 0
+    out = capsys.readouterr().out
+    assert "ok: pair laba-labb" in out and "obs_a=laba0010.21o" in out and "problem" not in out
+
+
+def test_check_config_latest_available(pair_dir, capsys):
+    from ctt.commands.check_config import check, latest_available
+    _fill_day(pair_dir, "001")
+    _fill_day(pair_dir, "003")
+    (pair_dir / "data" / "labb0050.21o").write_text("x")       # only B on day 5
+    import datetime
+    p = C.load_pair(pair_dir / "pair.toml")
+    assert latest_available(p, today=datetime.date(2021, 1, 10)) == datetime.date(2021, 1, 3)
+    problems, oks = check(pair_dir / "pair.toml", today=datetime.date(2021, 1, 10))
+    assert problems == [] and any("2021-01-03" in o for o in oks)
+
+
+def test_check_config_lists_every_problem(pair_dir, capsys):
+    from ctt.cli import main
+    st = (pair_dir / "labb.toml").read_text()
+    (pair_dir / "labb.toml").write_text(st.replace("cable_ns = 80.0", "cable_ns = 'x'")
+                                        .replace('id = "LABB"', 'id = "B"'))
+    assert main(["check-config", str(pair_dir / "pair.toml"), "--date", "2021-01-01"]) == 2
+    lines = [ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("problem:")]
+    assert len(lines) == 2
+    assert any("[delays[1].cable_ns]" in ln for ln in lines) and any("[station.id]" in ln for ln in lines)
+
+
+def test_check_config_missing_inputs_and_uncovered_dates(pair_dir, capsys):
+    from ctt.cli import main
+    _fill_day(pair_dir, "001", "19")          # 2019-01-01: before LABA's first delay set (2020-01-01)
+    (pair_dir / "data" / "labb0010.19o").unlink()
+    assert main(["check-config", str(pair_dir / "pair.toml"), "--date", "2019-01-01"]) == 2
+    out = capsys.readouterr().out
+    assert "no obs_b file for 2019-01-01" in out
+    assert "laba.toml: [delays]: no delay set covers 2019-01-01T00:00:00.000" in out
+    assert "needed for 2019-01-01" in out

@@ -194,3 +194,72 @@ def test_system_selection_and_flags():
         X.correct_events(ev, two)
     with pytest.raises(NoDataError):
         X.correct_events(ev, offsets().assign(flag="no_data"))
+
+
+# ---------------------------------------------------------------- commands
+
+@pytest.fixture()
+def archived_pair(tmp_path):
+    import shutil
+    from ctt.archive import Archive
+    cfg = __import__("pathlib").Path(__file__).parent / "data" / "config"
+    for n in ("laba.toml", "labb.toml", "pair.toml"):
+        shutil.copy(cfg / n, tmp_path / n)
+    (tmp_path / "data").mkdir()
+    with Archive(tmp_path / "out" / "ctt.sqlite") as a:
+        for day, start in (("2021-01-01", T0), ("2021-01-02", T0 + 86400 * S)):
+            a.store_day("laba-labb", day, offsets(n=2880, start=start), None, {"config_hash": "c"})
+    return tmp_path
+
+
+def test_export_command(archived_pair, capsysbinary):
+    from ctt.cli import main
+    pair = str(archived_pair / "pair.toml")
+    assert main(["export", "--config", pair, "--from", "2021-01-02", "--to", "2021-01-02"]) == 0
+    df = pd.read_csv(io.BytesIO(capsysbinary.readouterr().out))
+    assert len(df) == 2880 and df["time_utc"].iloc[0] == "2021-01-02T00:00:00Z"
+    out = archived_pair / "o.parquet"
+    assert main(["export", "--config", pair, "--from", "2021-01-01", "--to", "2021-01-02", "--format", "parquet",
+                 "--out", str(out)]) == 0
+    assert len(pd.read_parquet(out)) == 5760
+    assert main(["export", "--config", pair, "--from", "2021-02-01", "--to", "2021-02-02"]) == 3  # no data
+    assert main(["export", "--config", pair, "--from", "2021-02-03", "--to", "2021-02-02"]) == 2  # bad range
+
+
+def test_correct_events_command(archived_pair, capsys):
+    from ctt.cli import main
+    ev = archived_pair / "events.csv"
+    ev.write_text("time_utc,run\n2021-01-01T12:00:15.000000001Z,1\n2021-01-03T00:00:00Z,2\n")
+    outp = archived_pair / "corrected.csv"
+    assert main(["correct-events", "--config", str(archived_pair / "pair.toml"), "--events", str(ev),
+                 "--site", "B", "--out", str(outp), "--type-b-ns", "2.5"]) == 0
+    r = pd.read_csv(outp, dtype={"corrected_time_utc": str})
+    assert list(r["status"]) == ["ok", "refused"] and list(r["run"]) == [1, 2]
+    # offsets(): 100 ns + 0.01 ns/s since 2021-01-01T00:00 of its own day
+    assert r["offset_ns"].iloc[0] == pytest.approx(100 + 0.01 * 43215, abs=1e-6)
+    assert r["corrected_time_utc"].iloc[0] == "2021-01-01T12:00:15.000000533Z"   # +532.15 ns, rounded
+    assert r["u_ns"].iloc[0] >= 2.5
+
+
+def test_correct_events_from_run_dir_and_baseline(archived_pair, capsys):
+    from ctt.cli import main
+    run = archived_pair / "run"
+    run.mkdir()
+    X.write_offsets(offsets(n=100), run / "offset.csv")
+    (run / "summary.json").write_text(json.dumps({"budget": {"type_b_ns": 3.0}}))
+    ev = archived_pair / "events.csv"
+    ev.write_text("mjd_utc\n59215.0001\n")
+    assert main(["correct-events", "--config", str(archived_pair / "pair.toml"), "--events", str(ev),
+                 "--from-dir", str(run), "--site", "A", "--baseline"]) == 0
+    out = capsys.readouterr().out
+    assert "chord" in out and "light time" in out
+    # chord from the two ECEF positions (ARP of LABA: +0.1 m up); independent numpy check
+    a = np.array([4034007.873, 502462.242, 4898445.157])
+    b = np.array([4495078.798, 955458.494, 4408115.925])
+    chord = np.linalg.norm(b - a)
+    got = float(out.split("chord")[1].split("m")[0])
+    assert got == pytest.approx(chord, abs=0.1)     # the 0.1 m ARP shift changes the chord by < 0.1 m
+    assert f"{chord / 299_792_458.0 * 1e9:.1f}" in out
+    r = pd.read_csv(io.StringIO(out[out.index("mjd_utc"):]))
+    assert r["u_type_b_ns"].iloc[0] == 3.0 and r["target_site"].iloc[0] == "B"
+    assert r["correction_ns"].iloc[0] == pytest.approx(-(100 + 0.01 * 8.64), abs=1e-6)

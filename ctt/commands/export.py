@@ -1,0 +1,59 @@
+"""``ctt export --config PAIR.toml --from D1 --to D2 --format csv|parquet|json [--out FILE]``.
+
+Reads the archived offsets of the pair (the archive named in the pair file's
+``[output]`` table) for the dates D1..D2 inclusive and writes them to FILE,
+or to stdout when no file is given. Columns: time_utc, mjd_utc, offset_ns,
+u_ns, n_sat, flag (and system when the archive holds several systems).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import logging
+
+from ..archive import Archive
+from ..config import load_pair
+from ..errors import MissingInputError, NoDataError, UsageError
+from ..exports import OUT_FORMATS, write_offsets
+
+log = logging.getLogger("ctt.export")
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "export",
+        help="write archived offsets of a pair as CSV, Parquet or JSON",
+        description="Write the archived offset series (clock A minus clock B) of a pair for a date range.",
+    )
+    p.add_argument("--config", required=True, help="pair TOML file (its [output] archive is read)")
+    p.add_argument("--from", dest="date_from", required=True, help="first UTC date YYYY-MM-DD")
+    p.add_argument("--to", dest="date_to", required=True, help="last UTC date YYYY-MM-DD (inclusive)")
+    p.add_argument("--format", choices=OUT_FORMATS, default="csv", help="output format (default csv)")
+    p.add_argument("--system", help="only this system's rows (e.g. G or ALL); default all stored rows")
+    p.add_argument("--out", help="output file (default: stdout)")
+    p.set_defaults(func=run)
+
+
+def _date(text, what):
+    try:
+        return _dt.date.fromisoformat(text)
+    except ValueError:
+        raise UsageError(f"{what}: expected a date YYYY-MM-DD, found {text!r}") from None
+
+
+def run(args) -> int:
+    d0, d1 = _date(args.date_from, "--from"), _date(args.date_to, "--to")
+    if d1 < d0:
+        raise UsageError("--to is before --from")
+    pair = load_pair(args.config)
+    if not pair.archive_path.exists():
+        raise MissingInputError(f"{pair.archive_path}: archive not found (configured in {pair.path} [output])")
+    with Archive(pair.archive_path) as arch:
+        df = arch.load_offsets(pair.name, d0, d1, system=args.system)
+    if df.empty:
+        raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
+                          + (f" for system {args.system}" if args.system else ""))
+    write_offsets(df, args.out, args.format)
+    if args.out:
+        log.info("wrote %d rows to %s", len(df), args.out)
+    return 0
