@@ -44,9 +44,10 @@ Ephemeris selection (what a receiver would use)
 -----------------------------------------------
 For each row the record of that satellite is chosen that is
 
-* healthy: GPS/QZSS health word 0; Galileo health bits of the signals used
-  (E1-B and E5b DVS/HS for I/NAV, E5a DVS/HS for F/NAV; Galileo OS SIS ICD
-  §5.1.9.3); BeiDou SatH1 0; GLONASS B_n health 0;
+* healthy: GPS/QZSS health word 0 and URA below index 15; Galileo health
+  bits of the signals used (E1-B and E5b DVS/HS for I/NAV, E5a DVS/HS for
+  F/NAV; Galileo OS SIS ICD §5.1.9.3) and SISA not NAPA; BeiDou SatH1 0;
+  GLONASS B_n health 0 (and l_n where RINEX 3.05/4 gives the health flags);
 * of the right Galileo message: ``galileo_source='inav'`` (E1/E5b users) keeps
   only records whose data-source bits say I/NAV, ``'fnav'`` (E5a) only F/NAV;
 * IOD-consistent: GPS/QZSS IODE equal to the low 8 bits of IODC
@@ -63,6 +64,10 @@ For each row the record of that satellite is chosen that is
   is the receiver's view: a GPS data set is first broadcast about 2 h before
   its t_oe, so a rule "t_oe not after t" would force the previous, older set;
 * and among those the one whose t_oe (t_b) is closest to the instant.
+
+The record is chosen for the instant ``t_ns`` alone (``dt_s``, a light time of
+~0.07 s, does not change the choice), so the light-time iteration of the
+measurement model always evaluates one record per row.
 
 Rows that get no record keep NaN outputs and a status code (``STATUS_NAMES``,
 :func:`reason`): NO_EPHEMERIS (no record of that satellite), STALE (none
@@ -179,7 +184,8 @@ class SatStates:
     pos_m (N,3), vel_mps (N,3) Earth-fixed; clock_s, clock_drift_sps,
     relativity_s; broadcast group delays tgd_s (GPS/QZSS), bgd_e5a_s,
     bgd_e5b_s (Galileo), tgd1_s, tgd2_s (BeiDou), NaN where not applicable;
-    iode (int, −1 when none), status (int, STATUS_NAMES), toe_gps_ns (GPS time
+    iode (int, −1 when none; IODE/IODnav/AODE, for GLONASS the t_b index of
+    the ICD: the 15-min interval of the Moscow day), status (int, STATUS_NAMES), toe_gps_ns (GPS time
     of the chosen record's t_oe / t_b, int64 min when none), record (row index
     into ``nav.records[system]``, −1 when none), system (letter),
     system_time_offset_s.
@@ -363,8 +369,6 @@ class _SystemTable:
         self.sat_names, code = np.unique(sats, return_inverse=True)
         self.code = code.astype(np.int64)
         self.t0 = int(ref.min()) if len(ref) else 0
-        order = np.lexsort((ref, self.code))
-        self.order = order
         if s in ("G", "J"):
             half = (df["fit_h"].to_numpy() * 1800.0 * NS_PER_S).astype(np.int64)
         else:
@@ -385,6 +389,9 @@ class _SystemTable:
             src = df["source"].to_numpy().astype(str)
             mask = 0x1C7 if galileo_source == "inav" else 0x38
             st = np.where((health & mask) != 0, UNHEALTHY, st)
+            # SISA "no accuracy prediction available" (NAPA, written as a negative value in RINEX):
+            # Galileo OS SIS ICD §5.1.11 -- the signal may be anomalous
+            st = np.where(df["ura_m"].to_numpy() < 0, UNHEALTHY, st)
             st = np.where(src != galileo_source, WRONG_SOURCE, st)
         elif s == "R":
             hf = df["health_flags"].to_numpy()
@@ -394,6 +401,8 @@ class _SystemTable:
         else:
             st = np.where(health != 0, UNHEALTHY, st)
             if s in ("G", "J"):
+                # URA index 15 (>= 6144 m): "no accuracy prediction available", IS-GPS-200 §20.3.3.3.1.3
+                st = np.where(df["ura_m"].to_numpy() >= 6144.0, UNHEALTHY, st)
                 iode = df["iode"].to_numpy()
                 iodc = df["iodc"].to_numpy()
                 st = np.where((st == OK) & (iode != (iodc & 0xFF)), IOD_MISMATCH, st)

@@ -186,3 +186,26 @@ def test_v3_bad_epoch_reported(tmp_path, test_data):
         read_nav(p)
     assert "epoch" in ei.value.expected
     assert text.splitlines()[ei.value.line - 1].startswith("C01 2022 13")
+
+
+V2_GAL = (
+    "     2.12           N: GNSS NAV DATA    E: GALILEO          RINEX VERSION / TYPE\n"
+    "                                                            END OF HEADER\n"
+    "24 20  5 15  0  0  0.0 5.455520295072E-03-1.993782916543E-11 0.000000000000E+00\n"
+    "    8.000000000000E+01 3.037500000000E+01 2.826903466162E-09 1.111185876666E-01\n"
+    "    1.413747668266E-06 5.261546466500E-04 6.578862667084E-06 5.440599994659E+03\n"
+    "    4.320000000000E+05-3.725290298462E-08 9.568013010147E-01-1.490116119385E-08\n"
+    "    9.805210430486E-01 2.093750000000E+02 8.678592816169E-01-5.435583556730E-09\n"
+    "   -2.946551307118E-10 5.170000000000E+02 2.105000000000E+03\n"
+    "    3.120000000000E+00 0.000000000000E+00 4.540197551250E-08 5.098991096020E-08\n"
+    "    4.326650000000E+05\n"
+)
+
+
+def test_v2_galileo(tmp_path, test_data):
+    # the I/NAV E24 record of mixed_v304.rnx in a RINEX 2 Galileo layout: same values as in RINEX 3
+    nav = read_nav(_write(tmp_path, V2_GAL, "t.20l"))
+    a = nav.records["E"].drop(columns=["line"]).iloc[0]
+    v3 = read_nav(test_data / "nav" / "mixed_v304.rnx").records["E"]
+    b = v3[v3.source == "inav"].drop(columns=["line"]).iloc[0]
+    assert a.equals(b)
