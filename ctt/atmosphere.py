@@ -697,7 +697,11 @@ def _bilinear(grid, lat_grid, lon_grid, lat_deg, lon_deg):
         dlon = -dlon
     span = lon_grid[-1] - lon_grid[0]
     lon = np.asarray(lon_deg, dtype=float)
-    if abs(span - 360.0) < 1e-6 or span + dlon >= 360.0 - 1e-6:
+    if abs(span - 360.0) < 1e-6:  # global, first meridian repeated at the end (e.g. -180..180)
+        lon = lon_grid[0] + np.mod(lon - lon_grid[0], 360.0)
+    elif abs(span + dlon - 360.0) < 1e-6:  # global without the repeat (e.g. 0..355): close the ring
+        lon_grid = np.append(lon_grid, lon_grid[0] + 360.0)
+        grid = np.concatenate([grid, grid[:, :1]], axis=1)
         lon = lon_grid[0] + np.mod(lon - lon_grid[0], 360.0)
     lat = np.clip(np.asarray(lat_deg, dtype=float), lat_grid[0], lat_grid[-1])  # beyond the last band: hold
     x = (lon - lon_grid[0]) / dlon

@@ -231,6 +231,18 @@ def test_ionex_interpolation(test_data):
     assert vv.shape == (10, 5) and np.all(np.isfinite(vv))
 
 
+def test_ionex_global_grid_wraps_in_longitude(test_data):
+    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    for lon_grid in (np.arange(-180.0, 180.1, 5.0), np.arange(0.0, 356.0, 5.0)):
+        # a field periodic in longitude: 10 + cos(lon); bilinear across the ±180° seam
+        tec = np.broadcast_to(10 + np.cos(np.radians(lon_grid))[None, None, :], (3, 4, lon_grid.size)).copy()
+        g = dataclasses.replace(m, lon_deg=lon_grid, tec_tecu=tec)
+        for lon_q in (-179.0, 178.0, 358.0, -2.5, 182.5):
+            v = atm.ionex_vtec_tecu(g, m.epochs_ns[1], np.radians(45.0), np.radians(lon_q))
+            # between two grid nodes 5° apart the chord of 10 + cos deviates < 5e-3 from the curve
+            assert v == pytest.approx(10 + np.cos(np.radians(lon_q)), abs=5e-3)
+
+
 def test_ionex_slant_delay(test_data):
     m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
     t = m.epochs_ns[1]
