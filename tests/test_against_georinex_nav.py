@@ -8,7 +8,6 @@ is a parsing error (wrong column, wrong exponent, dropped digit).
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from ctt.rinex.nav import read_nav
