@@ -70,7 +70,10 @@ Multi-GNSS
     (offset_S − offset_ref) on bins where both are ``'ok'``. In all-in-view each
     station's bias is configured or estimated on that station's solutions. The
     biases used are reported in ``CommonViewResult.isb``; a system whose bias
-    cannot be determined is left out of 'ALL' (and reported with NaN).
+    cannot be determined is left out of 'ALL' (and reported with NaN). The
+    estimate's ``u_ns`` is its formal weighted-mean uncertainty (white noise
+    over the bins); :func:`uncertainty_budget` carries it into the budget of
+    'ALL'.
 
 All-in-view (``mode='all-in-view'``, both tables ``attrs['reference'] ==
 'precise'``)
@@ -734,6 +737,33 @@ def _regular_grid(t_ns, x, max_gap_fraction):
     return step / 1e9, np.interp(full, k, x)
 
 
+def isb_uncertainty_items(result: CommonViewResult) -> dict:
+    """Budget items (ns) from the uncertainty of the estimated inter-system biases in 'ALL'.
+
+    An error δ in the bias of system S shifts every combined bin by δ times the
+    weight share of S among the bin's accepted values; over the day that is
+    ``u_isb · Σ_S w / Σ w`` (accepted rows of the combined solution; per station
+    in all-in-view). Configured biases carry no estimate uncertainty here: put
+    their calibration uncertainty into ``type_b_items``.
+    """
+    s = result.sat_df
+    if "flag_all" not in s.columns or result.isb.empty:
+        return {}
+    items = {}
+    for _, row in result.isb.iterrows():
+        if row["source"] != "estimated" or not np.isfinite(row["u_ns"]):
+            continue
+        rows = s[s["flag_all"] == "ok"]
+        if "station" in s.columns and row["station"] in ("A", "B"):
+            rows = rows[rows["station"] == row["station"]]
+        wsum = rows["weight"].sum()
+        if wsum <= 0:
+            continue
+        share = rows.loc[rows["system"] == row["system"], "weight"].sum() / wsum
+        items[f"ISB {row['system']}-{row['reference_system']} ({row['station']})"] = float(row["u_ns"] * share)
+    return items
+
+
 def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = None,
                        tdev_ns_at_day: float | None = None, result: CommonViewResult | None = None,
                        coordinate_sigma_m: dict | None = None, system: str | None = None,
@@ -755,8 +785,9 @@ def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = N
     * type B: ``type_b_items`` (name → ns: delay calibrations of both stations,
       ...) plus, with ``result`` and ``coordinate_sigma_m`` (``{'A': (σE, σN, σU),
       'B': ...}`` in m), one item per station from
-      :func:`coordinate_uncertainty_ns`; combined as the root sum of squares
-      (independent items).
+      :func:`coordinate_uncertainty_ns`, and for 'ALL' with ``result`` the
+      estimated inter-system biases (:func:`isb_uncertainty_items`); combined as
+      the root sum of squares (independent items).
     * total = √(type_A² + type_B²).
 
     Returns ``{mean_offset_ns, type_a_ns, type_b_ns, total_ns, items, system,
@@ -795,6 +826,8 @@ def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = N
         for st, sig in coordinate_sigma_m.items():
             day, _ = coordinate_uncertainty_ns(result, str(st), sig, system=system)
             items[f"coordinates {str(st).upper()}"] = day
+    if result is not None and system == "ALL":
+        items.update(isb_uncertainty_items(result))
     type_b = float(np.sqrt(sum(v * v for v in items.values()))) if items else 0.0
     return {"mean_offset_ns": mean, "type_a_ns": type_a, "type_b_ns": type_b,
             "total_ns": float(np.hypot(type_a, type_b)), "items": items, "system": system,

@@ -433,3 +433,26 @@ def test_track_mode_uncertainty_matches_simulated_error():
     sd = np.hypot(np.sqrt(2 * np.sum(u2 ** 2)) / np.sum(u2), np.sqrt(2 / 9 / len(u2)))
     assert len(o) > 500
     assert abs(np.mean(err ** 2) / np.mean(u2) - 1) < 4 * sd
+
+
+def test_budget_carries_isb_uncertainty_into_all():
+    # An ISB error δ moves each combined bin by δ × (weight share of that system):
+    # the item equals u_isb × share (linear propagation), computed here directly.
+    rng = np.random.default_rng(4040)
+    a = station(lambda ts: truth(ts), GE, n_ep=400, noise0=0.7, rng=rng, isb={"E": 7.0})
+    b = station(lambda ts: 0 * ts, GE, n_ep=400, phase=0.4, noise0=0.7, rng=rng, isb={"E": 2.0})
+    r = cv.common_view(tracks.bin_epochs(a), tracks.bin_epochs(b))
+    bud = cv.uncertainty_budget(r.offset_df, result=r)
+    s = r.sat_df[r.sat_df["flag_all"] == "ok"]
+    share = s.loc[s["system"] == "E", "weight"].sum() / s["weight"].sum()
+    assert 0.3 < share < 0.7
+    assert bud["items"]["ISB E-G (A-B)"] == pytest.approx(r.isb.iloc[0]["u_ns"] * share, rel=1e-12)
+    # perturbation check of that linear propagation: configure the biases 0.05 ns
+    # off (small against the 1-ns scatter, so the bin weights barely move)
+    est = r.isb.iloc[0]["value_ns"]
+    means = []
+    for delta in (0.0, 0.05):
+        rr = cv.common_view(tracks.bin_epochs(a), tracks.bin_epochs(b),
+                            isb_ns={"A": {"E": est + delta}, "B": {"E": 0.0}}, per_system=False)
+        means.append(cv.uncertainty_budget(rr.offset_df)["mean_offset_ns"])
+    assert (means[0] - means[1]) == pytest.approx(0.05 * share, rel=0.05)
