@@ -414,3 +414,34 @@ def test_real_nav_file_as_satellite_source(shared_data, tmp_path):
     assert np.isfinite(r.obs["C1C"]).sum(axis=1).min() >= 5
     files = write_outputs(res, tmp_path)
     assert (tmp_path / "brdc0010.21n").is_file() and files["obs"]
+
+
+# ---------------------------------------------------------------- committed demo
+
+DEMO = __import__("pathlib").Path(__file__).resolve().parents[1] / "data_demo"
+
+
+def test_demo_folder_is_complete_and_small():
+    config = pytest.importorskip("ctt.config")
+    total = sum(p.stat().st_size for p in DEMO.iterdir() if p.is_file())
+    assert total < 5_000_000
+    pair = config.load_pair(DEMO / "aldr-brkw.toml")
+    found = pair.resolve_inputs("2021-01-01")
+    for k in ("obs_a", "obs_b", "nav", "met_a", "met_b"):
+        assert found[k] is not None and found[k].is_file(), k
+    assert [c.expected_delay_change_ns for c in pair.station_a.changes] == [5.0]
+    truth = pd.read_csv(DEMO / "truth.csv")
+    assert len(truth) == 2880
+    app = truth["ALDR-BRKW_apparent_ns"] - truth["ALDR-BRKW_ns"]
+    step_at = truth["time_utc"][np.flatnonzero(np.diff(app.to_numpy()) > 1)[0] + 1]
+    # the first epoch at or after 15:00:00 UTC: time tags are whole GPS half-minutes, GPS − UTC = 18 s
+    assert step_at == "2021-01-01T15:00:12Z" and app.iloc[-1] == pytest.approx(5.0, abs=1e-5)
+
+
+@pytest.mark.slow
+def test_demo_regenerates_identically(tmp_path):
+    """`ctt simulate --scenario data_demo/scenario.toml` reproduces the committed files."""
+    res = run_scenario(DEMO / "scenario.toml", tmp_path)
+    for kind in ("obs", "nav", "met", "truth"):
+        for p in res.files[kind]:
+            assert p.read_bytes() == (DEMO / p.name).read_bytes(), p.name
