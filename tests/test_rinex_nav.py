@@ -209,3 +209,13 @@ def test_v2_galileo(tmp_path, test_data):
     v3 = read_nav(test_data / "nav" / "mixed_v304.rnx").records["E"]
     b = v3[v3.source == "inav"].drop(columns=["line"]).iloc[0]
     assert a.equals(b)
+
+
+def test_gzip_file_reads_the_same(tmp_path):
+    import gzip
+
+    p = tmp_path / "t.21n.gz"
+    p.write_bytes(gzip.compress((V2_HEADER + V2_REC).encode()))
+    a = read_nav(p).records["G"]
+    b = read_nav(_write(tmp_path, V2_HEADER + V2_REC)).records["G"]
+    assert a.equals(b)
