@@ -20,9 +20,15 @@ propagate NaN: a single NaN makes the whole deviation NaN at every τ (checked
 in ``tests/test_stability.py``). So gap-free data go to allantools, and data
 with NaN go to the vectorised estimators here, which use the same formulas
 but keep only the difference terms whose samples are all present and divide
-by the number of such terms (for MDEV: the m-sums whose 3m+1 samples are all
-present). On gap-free data both paths agree to rounding (tested). With gaps,
-EDF is computed for the number of samples present, an approximation.
+by the number of such terms. MDEV (and TDEV) average the phase over windows of
+m samples; requiring all 3m samples of a term would leave no term at long τ
+once a few scattered samples are missing, so a window mean is formed from the
+samples present when at most ``MDEV_MAX_MISSING`` (10 %) of them are missing,
+and the term is skipped otherwise. That is not interpolation, but for noise
+other than white PM the mean of a partly filled window is a slightly different
+average, so MDEV with gaps is an approximation. On gap-free data both paths
+agree to rounding (tested). With gaps, EDF is computed for the number of
+samples present, also an approximation.
 
 Confidence intervals. EDF by Greenhall & Riley's algorithm
 (``allantools.edf_greenhall``, SP 1065 §5.3) with the noise type found at
@@ -61,6 +67,9 @@ ONE_SIGMA_CI = 0.6826894921370859  # erf(1/sqrt(2)), common practice
 NOISE_NAMES = {2: "white PM", 1: "flicker PM", 0: "white FM", -1: "flicker FM", -2: "random walk FM"}
 
 _KINDS = ("adev", "oadev", "mdev", "tdev", "hdev", "ohdev")
+#: MDEV/TDEV with gaps: largest fraction of a window's m samples that may be missing
+#: for the window's phase mean to be formed from the samples present.
+MDEV_MAX_MISSING = 0.1
 _MIN_NOISE_ID_POINTS = 30  # Riley & Greenhall (2004): ≳30 points after decimation
 
 
@@ -157,14 +166,19 @@ def _nan_dev(x, m, kind):
         n = int(ok.sum())
         return (math.sqrt(np.sum(d[ok] ** 2) / (6.0 * n)) / m if n else math.nan), n
     if kind == "mdev":
-        d = x[2 * m:] - 2 * x[m:-m] + x[:-2 * m]          # length N-2m
-        bad = np.isnan(d)
-        c = np.concatenate(([0.0], np.cumsum(np.where(bad, 0.0, d))))
-        cb = np.concatenate(([0], np.cumsum(bad)))
-        s = c[m:] - c[:-m]                                  # m-sums, length N-3m+1
-        ok = (cb[m:] - cb[:-m]) == 0
-        n = int(ok.sum())
-        return (math.sqrt(np.sum(s[ok] ** 2) / (2.0 * m ** 4 * n)) if n else math.nan), n
+        # phase means over windows of m samples; a window with up to MDEV_MAX_MISSING of
+        # its samples missing averages the ones present (see module docstring)
+        ok = ~np.isnan(x)
+        c = np.concatenate(([0.0], np.cumsum(np.where(ok, x, 0.0))))
+        k = np.concatenate(([0], np.cumsum(ok)))
+        cnt = k[m:] - k[:-m]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            xm = np.where(cnt >= (1.0 - MDEV_MAX_MISSING) * m - 1e-9, (c[m:] - c[:-m]) / cnt, np.nan)
+        xm[cnt == 0] = np.nan
+        d = xm[2 * m:] - 2 * xm[m:-m] + xm[:-2 * m]       # length N-3m+1
+        good = ~np.isnan(d)
+        n = int(good.sum())
+        return (math.sqrt(np.sum(d[good] ** 2) / (2.0 * m ** 2 * n)) if n else math.nan), n
     raise ValueError(kind)
 
 
@@ -806,9 +820,13 @@ def _period(t, x, start, end):
     # TDEV at the longest τ (≈ a third of the period): TDEV(τ) is the rms time
     # error left after averaging over τ, so for correlated (flicker, random
     # walk) noise it bounds how well the mean over the period is known.
-    r1 = lag1_acf(v - v.mean())
+    # (the white part from the scatter about a straight line, since a frequency
+    # offset is deterministic and not noise of the mean)
+    tv = ((g.time_ns - g.time_ns[0]) / 1e9)[np.isfinite(g.value)]
+    res = v - np.polyval(np.polyfit(tv, v, 1), tv) if len(v) > 3 else v - v.mean()
+    r1 = lag1_acf(res)
     infl = (1 + r1) / (1 - r1) if 0 < r1 < 1 else 1.0
-    u_white = float(np.std(v, ddof=1) / math.sqrt(len(v)) * math.sqrt(infl))
+    u_white = float(np.std(res, ddof=2) / math.sqrt(len(v)) * math.sqrt(infl))
     td = devs["tdev"].dev[np.isfinite(devs["tdev"].dev)]
     u_td = float(td[-1] * 1e9) if len(td) else 0.0
     return PeriodStats(int(g.time_ns[0]), int(g.time_ns[-1]), len(v), mean, max(u_white, u_td),

@@ -1,0 +1,67 @@
+"""``ctt report DIR_OR_ARCHIVE [--from ..] [--to ..] --out report.html``: one self-contained HTML report.
+
+DIR is a run folder written by ``ctt pair`` (offset.csv, satellites.csv,
+summary.json) or a folder of such day folders (concatenated; ``--from``/``--to``
+select the range). An archive (SQLite file written by :mod:`ctt.archive`) needs
+``--pair``. The report (inline CSS, figures as embedded PNG, no scripts, no
+network) and ``report.json`` with the same numbers are written side by side.
+"""
+
+from __future__ import annotations
+
+import pathlib
+
+from ..errors import UsageError
+from ..report import build_report, day_range_ns, read_run_dir
+from .stability import load_change_log
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "report", help="self-contained HTML report (and report.json) of a run folder or archive",
+        description="Write one self-contained HTML report (figures embedded, no scripts, no network) "
+        "and a JSON file with the same numbers, for a run folder, a folder of day folders, or an archive.")
+    p.add_argument("source", help="run folder, folder of day folders, or SQLite archive")
+    p.add_argument("--from", dest="time_from", metavar="DATE", help="first date or date-time (UTC)")
+    p.add_argument("--to", dest="time_to", metavar="DATE", help="last date (whole day) or date-time (UTC)")
+    p.add_argument("--out", required=True, metavar="report.html")
+    p.add_argument("--pair", help="pair name (archive input)")
+    p.add_argument("--column", default="offset_ns")
+    p.add_argument("--title")
+    p.add_argument("--log-a", metavar="STATION.toml", help="station A file whose [[changes]] to match")
+    p.add_argument("--log-b", metavar="STATION.toml", help="station B file whose [[changes]] to match")
+    p.set_defaults(func=run)
+
+
+def _is_sqlite(path: pathlib.Path) -> bool:
+    try:
+        with open(path, "rb") as fh:
+            return fh.read(16) == b"SQLite format 3\x00"
+    except OSError:
+        return False
+
+
+def run(args) -> int:
+    src = pathlib.Path(args.source)
+    try:
+        lo, hi = day_range_ns(args.time_from, args.time_to)
+    except ValueError as exc:
+        raise UsageError(f"--from/--to: {exc}") from None
+    log = load_change_log(args.log_a, args.log_b)
+    if src.is_file() and _is_sqlite(src):
+        if not args.pair:
+            raise UsageError(f"{src}: an archive needs --pair")
+        from ..archive import Archive
+        with Archive(src) as ar:
+            off = ar.load_offsets(args.pair, (args.time_from or None) and args.time_from[:10],
+                                  (args.time_to or None) and args.time_to[:10])
+        build_report(off, None, None, log, args.out, lo, hi, args.title or f"Pair {args.pair}",
+                     args.column, str(src))
+        return 0
+    if src.is_file():
+        raise UsageError(f"{src}: expected a run folder, a folder of day folders, or a SQLite archive")
+    run_data = read_run_dir(src)
+    off = run_data.offsets
+    build_report(off, run_data.satellites, run_data.summary, log, args.out, lo, hi, args.title,
+                 args.column, str(src))
+    return 0
