@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import gzip
 import json
+import math
+import re
 import warnings
 
 import numpy as np
@@ -251,3 +253,214 @@ def test_info_bad_file_exit_code(tmp_path, capsys):
 def test_header_only(tmp_path):
     h = read_obs_header(write(tmp_path, "a.rnx", small_v3()))
     assert h.version == 3.05 and h.n_lines == len(V3_HEADER.splitlines())
+
+
+# ----------------------------------------------------------------- field decoding
+
+def _reference_field(text: str):
+    """F14.3 read the way the format's Fortran descriptor defines it (RINEX 3.05 Table
+    A13): blank -> absent; right-aligned decimal -> float(text); else malformed."""
+    if not text.strip():
+        return math.nan, False
+    if re.fullmatch(r" *-?\d*\.\d+", text):
+        return float(text), False
+    return math.nan, True
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_field_decoder_against_the_format_rule(seed):
+    from ctt.rinex.obs import _num_fields
+
+    rng = np.random.default_rng(seed)
+    vals = np.concatenate([rng.uniform(-999999999.999, 9999999999.999, 3000),
+                           rng.uniform(-1, 1, 500), rng.integers(-5, 5, 200).astype(float)])
+    texts = [f"{v:14.3f}" for v in vals]
+    texts += ["              ", "         0.000", "        -0.001", "    -12345.678",
+              "9999999999.999", "-999999999.999", "   12345.6789 ", "  1234 5.678  ", " -1234-5.678  ",
+              "   12345.6x8  ", "  - 1234.567  ", "        -.123 ", "         -.123", "          .123",
+              "    12345.67  ", "      12345.67", "    1.5e3     ", "    12.345-   ", "   --12.345   ",
+              "       12.34.5", "        12,345", "\t       12.345", "      20000105.", "      123456.1"]
+    texts = [t.ljust(14)[:14] for t in texts]
+    inds = [(rng.choice(list(" 0123456789")), rng.choice(list(" 0123456789"))) for _ in texts]
+    inds[-1] = ("x", " ")  # an invalid LLI
+    raw = "".join(t + a + b for t, (a, b) in zip(texts, inds)).encode("latin-1")
+    got, bad, lli, ssi = _num_fields(np.frombuffer(raw, np.uint8).reshape(-1, 16).copy())
+    for k, (t, (a, b)) in enumerate(zip(texts, inds)):
+        ref, ref_bad = _reference_field(t)
+        ref_bad = ref_bad or a not in " 0123456789" or b not in " 0123456789"
+        assert bool(bad[k]) == ref_bad, t
+        if not ref_bad:
+            assert (math.isnan(ref) and math.isnan(got[k])) or got[k] == ref, t
+            assert lli[k] == (-1 if a == " " else int(a)) and ssi[k] == (-1 if b == " " else int(b))
+
+
+# ----------------------------------------------------------------- events and flags
+
+def test_v3_events_applied_and_recorded(test_data):
+    """RINEX 3.05 Table A13 epoch flags: 2-5 header records follow, 6 slip records."""
+    d = read_obs(test_data / "obs" / "edge_v304_events.rnx")
+    flags = [(e["flag"], e["line"]) for e in d.events]
+    assert flags == [(2, 25), (4, 33), (5, 41), (6, 47), (3, 54)]
+    ev = {e["flag"]: e for e in d.events}
+    assert ev[2]["time_ns"] == civil_to_ns(2021, 1, 1, 12, 0, 1, 500_000_000)
+    assert ev[2]["changes"]["ANTENNA: DELTA H/E/N"] == ["        0.2500        0.0000        0.0000"]
+    assert ev[4]["time_ns"] is None  # blank epoch allowed for flags 2-4
+    assert ev[5]["time_ns"] == civil_to_ns(2021, 1, 1, 12, 0, 3, 500_000_100) and ev[5]["records"] == []
+    assert ev[3]["changes"]["MARKER NAME"] == ["EXA3-B"]
+    # 7 data epochs (flags 0/1); the power-failure epoch keeps flag 1
+    assert len(d.time_ns) == 7 and d.epoch_flag.tolist() == [0, 0, 0, 0, 0, 1, 0]
+    g02 = d.sats.tolist().index("G02")
+    # flag 4 changed the GPS types to C1C L1C S1C: from epoch 4 (3.12 s) on, G02's
+    # third value is S1C (file line 37: 'G02  25379245.570 5 133574964.487 9        36.114 8')
+    assert d.obs["S1C"][3, g02] == 36.114 and d.ssi["S1C"][3, g02] == 8
+    assert np.isnan(d.obs["C2W"][3:, g02]).all() and np.isfinite(d.obs["C2W"][:3, g02]).all()
+    # the slip record (line 48) is not data: L1C of G02 at 4.12 s is line 43's value
+    assert d.obs["L1C"][4, g02] == 111070191.880
+    assert ev[6]["records"] == ["G02                         1.000 1"]
+
+
+def test_v2_events_type_change_and_gaps(test_data):
+    d = read_obs(test_data / "obs" / "edge_v211_events.21o")
+    assert [e["flag"] for e in d.events] == [5, 2, 6, 4]
+    assert d.header.obs_types_v2 == ["C1", "L1", "L2", "P2", "S1", "S2"]
+    g03 = 0
+    # after the flag-4 record the types are C1 L1 S1 (file line 51: S1 of G03 = 43.534)
+    assert d.obs["S1C"][4, g03] == 43.534 and np.isnan(d.obs["L2W"][4:, g03]).all()
+    # slip record not mixed in: L1 of G03 at 06:00:30 is line 33's value
+    assert d.obs["L1C"][2, g03] == 132436074.790 and d.lli["L1C"][2, g03] == 0
+    # interval 15 s (header); epochs 0 15 30 45 60 90 s: one epoch (75 s) missing
+    gaps = d.gaps()
+    assert gaps["missing_epochs"] == 1 and gaps["n_gaps"] == 1 and gaps["longest_gap_s"] == 15.0
+    assert gaps["longest_gap_after"].startswith("2021-01-01T06:01:00")
+
+
+def test_v2_mixed_continuation_and_mapping(test_data):
+    """RINEX 2.11: >12 satellites continue on the next line (cols 33-68); 7 types wrap
+    after 5 per line; blank system letter would be GPS."""
+    d = read_obs(test_data / "obs" / "edge_v211_mixed.21o")
+    assert len(d.sats) == 16 and {"R12", "E11", "S20"} <= set(d.sats.tolist())
+    m = d.header.v2_to_v3
+    # the table in ctt/rinex/obs.py (RINEX 3.05 attributes, RINEX 2 tracking choices)
+    assert m["G"]["P1"] == "C1W" and m["G"]["P2"] == "C2W" and m["G"]["L2"] == "L2W"
+    assert m["R"]["P1"] == "C1P" and m["R"]["L2"] == "L2P"
+    assert m["E"]["C1"] == "C1X" and m["E"]["P1"] == "P1"  # no P code on Galileo: name kept
+    # clock offset F12.9 in cols 69-80 of the first epoch line (RINEX 2.11 Table A2)
+    assert d.clock_offset_s[0] == 0.000123456 and d.clock_offset_s[1] == -0.000000789
+    assert np.isnan(d.clock_offset_s[2])
+    assert d.epoch_flag.tolist() == [0, 0, 1, 0]
+    # file line 19: G01's first record line, '  24151181.236 1  24151184.993 2 ...'
+    line19 = (test_data / "obs" / "edge_v211_mixed.21o").read_text().splitlines()[18]
+    g01 = d.sats.tolist().index("G01")
+    assert d.obs["C1C"][0, g01] == float(line19[:14]) and d.obs["C1W"][0, g01] == float(line19[16:30])
+    assert d.lli["C1C"][0, g01] == -1 and d.ssi["C1C"][0, g01] == int(line19[15])
+    # RINEX 2 code filter works with either spelling
+    assert set(read_obs(test_data / "obs" / "edge_v211_mixed.21o", codes=["P2", "C1C"]).obs) >= {"C2W", "C1C"}
+
+
+def test_v305_header_records(test_data):
+    h = read_obs_header(test_data / "obs" / "edge_v305_mixed.rnx")
+    # values as written in the file's header (RINEX 3.05 Table A2 records)
+    assert h.system == "M" and h.marker_type == "GEODETIC"
+    assert len(h.obs_types["G"]) == 14 and h.obs_types["G"][-1] == "L2L"  # continuation line
+    assert h.glonass_slots == {"R01": 1, "R12": -2}
+    assert h.glonass_code_phase_bias["C1C"] == -10.0
+    assert h.phase_shifts[0] == {"system": "G", "code": "L2L", "shift_cycles": 0.25, "sats": []}
+    assert h.signal_strength_unit == "DBHZ" and h.leap_seconds == 18
+    assert h.time_last_ns == civil_to_ns(2021, 1, 1, 0, 2, 0)
+    assert h.interval_s == 30.0 and h.time_system == "GPS"
+
+
+# ----------------------------------------------------------------- more bad input
+
+V2_HEADER = (
+    hl("     2.11           OBSERVATION DATA    G (GPS)", "RINEX VERSION / TYPE")
+    + hl("TST2", "MARKER NAME")
+    + hl("     6    C1    L1    L2    P2    S1    S2", "# / TYPES OF OBSERV")
+    + hl("    30.0000", "INTERVAL")
+    + hl("  2021     1     1     0     0    0.0000000     GPS", "TIME OF FIRST OBS")
+    + hl("", "END OF HEADER")
+)
+
+
+def v2_epoch(sec: float, sats, flag=0):
+    return f" 21  1  1  0  0{sec:11.7f}  {flag}{len(sats):3d}{''.join(sats)}\n"
+
+
+def v2_record(base: float):
+    vals = [base, base / 0.19, base / 0.24, base + 2.5, 45.25, 38.5]
+    txt = "".join(f"{v:14.3f}  " for v in vals)
+    return txt[:80].rstrip() + "\n" + txt[80:].rstrip() + "\n"
+
+
+def small_v2():
+    return (V2_HEADER + v2_epoch(0, ["G01", "G02"]) + v2_record(2.0e7) + v2_record(2.1e7)
+            + v2_epoch(30, ["G01"]) + v2_record(2.2e7))
+
+
+def test_v2_small_reads(tmp_path):
+    d = read_obs(write(tmp_path, "a.21o", small_v2()))
+    assert d.sats.tolist() == ["G01", "G02"] and len(d.time_ns) == 2
+    assert d.obs["C2W"][1, 0] == 2.2e7 + 2.5 and d.obs["S2W"][0, 1] == 38.5
+
+
+def test_v2_count_too_large(tmp_path):
+    text = small_v2().replace(v2_epoch(0, ["G01", "G02"]), v2_epoch(0, ["G01", "G02", "G03"]))
+    n = len(V2_HEADER.splitlines()) + 6  # the next epoch record sits where G03's record was due
+    _raises(tmp_path, text, n, "satellite count disagrees", name="a.21o")
+
+
+def test_v2_count_too_small(tmp_path):
+    text = small_v2().replace(v2_epoch(0, ["G01", "G02"]), v2_epoch(0, ["G01"]))
+    n = len(V2_HEADER.splitlines()) + 4  # G02's record lines are met where an epoch was due
+    _raises(tmp_path, text, n, "epoch record", name="a.21o")
+
+
+def test_v2_garbage_and_truncation(tmp_path):
+    lines = small_v2().splitlines(keepends=True)
+    k = len(V2_HEADER.splitlines()) + 2  # G01's first record line (1-based)
+    lines[k - 1] = lines[k - 1][:20] + "?" + lines[k - 1][21:]
+    _raises(tmp_path, "".join(lines), k, "F14.3", name="a.21o")
+    cut = small_v2().splitlines(keepends=True)[:-1]
+    _raises(tmp_path, "".join(cut), len(V2_HEADER.splitlines()) + 6, "records of 2 lines", name="b.21o")
+
+
+def test_bad_satellite_id_and_duplicate(tmp_path):
+    text = small_v3().replace("E11 ", "X11 ")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "satellite")
+    text = small_v3().replace("\nE11 ", "\nG07 ")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 1, "at most once")
+
+
+def test_undeclared_fields_and_system(tmp_path):
+    # Galileo declares 2 types: a third value on an E line is an error
+    text = small_v3().replace("      123456.0004", "      123456.0004  1.000")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "blank columns")
+    text = small_v3().replace("\nE11 ", "\nR11 ")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "system with observation types")
+
+
+def test_not_an_observation_file(tmp_path):
+    text = small_v3().replace("OBSERVATION DATA    M", "N: GNSS NAV DATA    M", 1)
+    _raises(tmp_path, text, 1, "file type 'O'")
+    _raises(tmp_path, "hello\n", 1, "RINEX VERSION / TYPE")
+
+
+def test_on_error_value():
+    with pytest.raises(ValueError):
+        read_obs("x", on_error="ignore")
+
+
+def test_skip_mode_several_problems(tmp_path):
+    text = (small_v3().replace(v3_epoch("30.1234567", ["G07"]), v3_epoch("0.1234567", ["G07"]))
+            + v3_epoch("60.0000000", ["G07"]) + v3_sat("G07", 1.0))
+    with pytest.warns(UserWarning, match="skipped 1 bad epoch"):
+        d = read_obs(write(tmp_path, "a.rnx", text), on_error="skip")
+    assert len(d.time_ns) == 2 and d.time_ns[-1] == civil_to_ns(2021, 1, 1, 0, 1, 0)
+    assert "repeated" in d.dropped[0][1]
+
+
+def test_info_events_text(test_data, capsys):
+    assert cli.main(["info", str(test_data / "obs" / "edge_v304_events.rnx")]) == 0
+    out = capsys.readouterr().out
+    assert "EXA3" in out and "flag 2: 1" in out and "flag 6: 1" in out and "line 25: flag 2" in out
+    assert "E  5 types" in out
