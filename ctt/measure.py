@@ -196,29 +196,40 @@ def _status_flags(states, orbits):
     return out
 
 
-def robust_epoch_mean(values, weights, mad_k=3.5, min_sats=1):
+def robust_epoch_mean(values, weights, mad_k=3.5, min_sats=1, sigma=None):
     """Per-row robust weighted mean of a 2-D array (n_epoch, n_sat), NaN = absent.
 
-    Iterates: median and MAD of the row, reject |v − med| > k·1.4826·MAD
-    (MAD floored at 0.1 ns so identical values are not all rejected), then the
-    weighted mean of what is left. Returns (mean, scatter (weighted RMS of the
-    kept residuals), n_used, rejected mask).
+    Iterates: median of the row and the deviations ``e = |v − med| / s`` with
+    ``s`` each value's a-priori σ relative to the row's median σ (so a low
+    satellite, noisier by 1/sin el, is judged against its own noise; all 1 when
+    ``sigma`` is None); reject ``e > k·1.4826·MAD(e)`` (MAD floored at 0.1 ns so
+    identical values are not all rejected); then the weighted mean of what is
+    left. No rejection in rows with fewer than 3 values. Returns (mean, scatter
+    (weighted RMS of the kept residuals), n_used, rejected mask).
     """
+    import warnings
+
     v = np.asarray(values, dtype=float)
     w = np.where(np.isfinite(v), np.asarray(weights, dtype=float), 0.0)
+    if sigma is None:
+        rel = np.ones_like(v)
+    else:
+        sg = np.where(np.isfinite(v), np.asarray(sigma, dtype=float), np.nan)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            rel = sg / np.nanmedian(sg, axis=1)[:, None]
+        rel = np.where(np.isfinite(rel) & (rel > 0), rel, 1.0)
     keep = np.isfinite(v)
-    for _ in range(3):
+    few = np.sum(keep, axis=1) < 3
+    for _ in range(5):
         vk = np.where(keep, v, np.nan)
-        with np.errstate(all="ignore"):
-            import warnings
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", RuntimeWarning)
-                med = np.nanmedian(vk, axis=1)
-                mad = np.nanmedian(np.abs(vk - med[:, None]), axis=1)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            med = np.nanmedian(vk, axis=1)
+            e = np.abs(v - med[:, None]) / rel
+            mad = np.nanmedian(np.where(keep, e, np.nan), axis=1)
         lim = mad_k * 1.4826 * np.maximum(mad, 0.1)
-        new_keep = np.isfinite(v) & (np.abs(v - med[:, None]) <= lim[:, None])
-        # rows with fewer than 3 values: no rejection possible
-        few = np.sum(np.isfinite(v), axis=1) < 3
+        new_keep = np.isfinite(v) & (e <= lim[:, None])
         new_keep[few] = np.isfinite(v[few])
         if np.array_equal(new_keep, keep):
             break
@@ -265,6 +276,11 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
 
     # --- signals per satellite
     sel = select_signals(obs, sats_all, opt)
+    if "E" in opt.systems and hasattr(orbits, "galileo_source"):
+        need = galileo_source_for(sel)
+        if orbits.galileo_source != need:
+            # the broadcast records must be those whose clocks refer to the signals used
+            orbits = type(orbits)(orbits.nav, galileo_source=need, allow_future=orbits.allow_future)
     P = sel.pseudorange_m              # (n_ep, n_sat): combination or single code, NaN where absent
     missing_second = sel.missing_second
     code_label = sel.label             # (n_sat,) e.g. 'C1C+C2W'
@@ -389,9 +405,11 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     n_sat = len(sats_all)
     grid = np.full((n_ep, n_sat), np.nan)
     wgrid = np.zeros((n_ep, n_sat))
+    sgrid = np.full((n_ep, n_sat), np.nan)
     grid[ie[ok], js[ok]] = clock_ns[ok]
     wgrid[ie[ok], js[ok]] = sin_el[ok] ** 2
-    mean, scatter, n_used, rejected = robust_epoch_mean(grid, wgrid, opt.mad_k)
+    sgrid[ie[ok], js[ok]] = sigma_ns[ok]
+    mean, scatter, n_used, rejected = robust_epoch_mean(grid, wgrid, opt.mad_k, sigma=sgrid)
     residual = clock_ns - mean[ie]
     out_rows = rejected[ie, js] & ok
     flag[out_rows] = "outlier"
@@ -422,10 +440,25 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                       counts={str(k): int(v) for k, v in counts.items()}, info=info)
 
 
+#: Second bands tried, in order, when the default one has no code for a satellite.
+SECOND_BAND_FALLBACKS = {"E": ("E5a", "E5b"), "C": ("B3I", "B2I")}
+
+
+def galileo_source_for(sel) -> str:
+    """The Galileo navigation message whose clocks match the signals used: 'fnav' when any
+    Galileo satellite is processed with E5a (F/NAV clocks refer to E1/E5a), else 'inav'
+    (I/NAV clocks refer to E1/E5b, and serve E1 single-frequency users; Galileo OS SIS ICD §5.1.5)."""
+    for sat, codes in zip(sel.sats, sel.codes):
+        if sat.startswith("E") and any(c[1:2] == "5" for c in codes if c):
+            return "fnav"
+    return "inav"
+
+
 @dataclasses.dataclass
 class SignalSelection:
     """The signals each satellite is processed with (see :func:`select_signals`)."""
 
+    sats: np.ndarray            #: satellite ids (n_sat,)
     codes: list                 #: per satellite: (code1,) or (code1, code2); () when none
     label: np.ndarray           #: per satellite 'C1C+C2W' / 'C1C' / ''
     coefficients: dict          #: label -> {code: coefficient} (sum 1), for hardware delays
@@ -453,6 +486,24 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
                     priorities.setdefault(sys_letter, {}).setdefault(band, ())
                     priorities[sys_letter][band] = priorities[sys_letter][band] + (code,)
     choice = signals.select_codes(obs.obs, sats, mode, priorities=priorities)
+    if mode == "dual":
+        # Second-band fallbacks (Galileo E5a, else E5b; BeiDou B3I, else B2I): a receiver
+        # tracking only the other band still gets its iono-free pair.
+        for sys_letter, alternatives in SECOND_BAND_FALLBACKS.items():
+            col = np.array([s[0] == sys_letter for s in sats])
+            if not col.any():
+                continue
+            for band in alternatives:
+                missing = col & (choice.code2 == "") & (choice.code1 != "")
+                if not missing.any():
+                    break
+                bands = {sys_letter: (signals.DEFAULT_BANDS[sys_letter][0], band)}
+                alt = signals.select_codes(obs.obs, sats, mode, priorities=priorities, bands=bands)
+                take = missing & (alt.code2 != "")
+                if take.any():
+                    choice = dataclasses.replace(
+                        choice, band2=np.where(take, alt.band2, choice.band2),
+                        code2=np.where(take, alt.code2, choice.code2))
     glo_k = getattr(obs.header, "glonass_slots", None) or None
     pr = signals.processing_pseudorange(obs.obs, choice, glonass_k=glo_k)
     n_sat = len(sats)
@@ -505,7 +556,7 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
         slips = lli1 | lli2
     else:
         phase, gf, slips = l1, None, lli1
-    return SignalSelection(codes=codes, label=labels.astype(str), coefficients=coefficients,
+    return SignalSelection(sats=np.asarray(sats).astype(str), codes=codes, label=labels.astype(str), coefficients=coefficients,
                            pseudorange_m=pr.value_m, missing_second=missing_second,
                            f1_hz=pr.f1_hz, f2_hz=pr.f2_hz, noise_factor=np.asarray(pr.noise_factor, dtype=float),
                            phase_m=phase if np.isfinite(phase).any() else None,
