@@ -528,8 +528,8 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
     if acc_all is not None:
         sat_df["flag_all"] = np.where(both & np.isfinite(w), np.where(acc_all, "ok", "outlier"),
                                       flag).astype(object)
-        sat_df.loc[both & np.isfinite(w) & np.isin(system, [r["system"] for r in isb_rows if not np.isfinite(r["value_ns"])]),
-                   "flag_all"] = "no_isb"
+        no_isb = [r["system"] for r in isb_rows if not np.isfinite(r["value_ns"])]
+        sat_df.loc[both & np.isfinite(w) & np.isin(system, no_isb), "flag_all"] = "no_isb"
     sat_df = sat_df.sort_values(["time", "sat"], kind="stable").reset_index(drop=True)
     isb = pd.DataFrame(isb_rows, columns=["station", "system", "reference_system", "value_ns", "u_ns",
                                           "n_bins", "source"])

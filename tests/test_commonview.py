@@ -90,7 +90,8 @@ def test_offset_recovered_exactly_without_noise(kind):
     ok = o[o["flag"] == "ok"]
     assert len(ok) > (80 if kind == "track" else 280)
     ts = (ok["time"].to_numpy() - t0) / 1e9
-    if kind == "bin300":  # a bin mean refers to the mean time of its points (30-s grid from 00:00 UTC, bins on GPS count)
+    if kind == "bin300":
+        # a bin mean refers to the mean time of its points (30-s grid from 00:00 UTC, bins on the GPS count)
         pts = a["time"].to_numpy()
         mean_t = pd.Series((pts - t0) / 1e9).groupby(pts // (300 * NS_PER_S)).mean()
         ts = mean_t.loc[ok["time"].to_numpy() // (300 * NS_PER_S)].to_numpy()
