@@ -129,7 +129,18 @@ def write_obs3(path, *, marker: str, time_ns, sats, obs: dict, types: dict, lli:
             w(header_line(head + "".join(f" {c}" for c in chunk), "SYS / # / OBS TYPES"))
     w(header_line(" DBHZ", "SIGNAL STRENGTH UNIT"))
     w(header_line(f"{interval_s:10.3f}", "INTERVAL"))
-    for label, t in (("TIME OF FIRST OBS", time_ns[0]), ("TIME OF LAST OBS", time_ns[-1])):
+    sat_sys = np.array([s[0] for s in sats])
+    present = np.zeros((n_ep, len(sats)), dtype=bool)
+    for s in systems:
+        cols = sat_sys == s
+        for c in types[s]:
+            if c in obs:
+                present[:, cols] |= np.isfinite(obs[c][:, cols])
+    with_data = np.flatnonzero(present.any(axis=1))
+    if with_data.size == 0:
+        raise ValueError("no observation to write")
+    t_first, t_last = time_ns[with_data[0]], time_ns[with_data[-1]]
+    for label, t in (("TIME OF FIRST OBS", t_first), ("TIME OF LAST OBS", t_last)):
         yy, mo, d, h, mi, sec, nano = _civil(t)
         w(header_line(f"{yy:6d}{mo:6d}{d:6d}{h:6d}{mi:6d}{sec + nano * 1e-9:13.7f}{'':5}GPS", label))
     for s in systems:
@@ -140,14 +151,7 @@ def write_obs3(path, *, marker: str, time_ns, sats, obs: dict, types: dict, lli:
         w(header_line(f"{int(leap_seconds):6d}", "LEAP SECONDS"))
     w(header_line("", "END OF HEADER"))
 
-    sat_sys = np.array([s[0] for s in sats])
     col = {s: list(types[s]) for s in systems}
-    present = np.zeros((n_ep, len(sats)), dtype=bool)
-    for s in systems:
-        cols = sat_sys == s
-        for c in col[s]:
-            if c in obs:
-                present[:, cols] |= np.isfinite(obs[c][:, cols])
     civ = ns_to_civil(time_ns)
     flags = np.zeros(n_ep, dtype=int) if epoch_flags is None else np.asarray(epoch_flags, dtype=int)
     # pre-format per system: arrays of text per (epoch, sat) built column by column
