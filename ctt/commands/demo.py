@@ -1,0 +1,123 @@
+"""``ctt demo``: the whole daily job on the invented demo scenario, offline.
+
+Runs, on ``data_demo/`` (two invented laboratories about 450 km apart, one
+simulated day of GPS + Galileo with a cable change in the afternoon): the
+daily processing into an archive, the stability/drift/change analysis, the
+HTML report, an exchange-format export and an event-time correction; then
+compares the result with the simulator's truth and says where everything is.
+"""
+
+from __future__ import annotations
+
+import logging
+import pathlib
+import shutil
+import time
+
+import numpy as np
+
+log = logging.getLogger("ctt")
+
+
+def demo_folder() -> pathlib.Path:
+    """The demo scenario shipped beside the package (a source checkout or an editable install)."""
+    here = pathlib.Path(__file__).resolve().parents[2] / "data_demo"
+    return here
+
+
+def register(sub) -> None:
+    p = sub.add_parser("demo", help="run the whole job on the built-in demo scenario (offline)",
+                       description="Process the invented demo pair end to end and write the results, "
+                                   "plots and report into --out.")
+    p.add_argument("--out", default="ctt-demo-output", help="output folder (default ./ctt-demo-output)")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from .. import operations
+    from ..archive import Archive
+    from ..config import load_pair
+    from ..errors import MissingInputError
+    from ..report import build_report
+
+    t_start = time.monotonic()
+    src = demo_folder()
+    if not (src / "aldr-brkw.toml").is_file():
+        raise MissingInputError(f"{src}: demo scenario not found (run from a source checkout: pip install -e .)")
+    out = pathlib.Path(args.out).resolve()
+    work = out / "scenario"
+    if work.exists():
+        shutil.rmtree(work)
+    shutil.copytree(src, work, ignore=shutil.ignore_patterns("out", "*.sqlite*"))
+    pair_file = work / "aldr-brkw.toml"
+    _point_outputs_to(pair_file, out)
+    pc = load_pair(pair_file)
+    date = "2021-01-01"
+
+    print(f"ctt demo: invented pair {pc.station_a.id} ({pc.station_a.name}) - "
+          f"{pc.station_b.id} ({pc.station_b.name}), {date}")
+    with Archive(pc.archive_path) as arc, arc.run_lock():
+        outcome = operations.compute_day(str(pair_file), date, None, force=True)
+        operations.store_outcome(arc, pc.name, outcome)
+        if outcome.status != "ok":
+            print(f"ctt demo: the day failed: {outcome.reason}")
+            return 1
+        offsets = arc.load_offsets(pc.name)
+    run_dir = pathlib.Path(outcome.out_dir)
+    s = outcome.summary
+    b = s["budget"]
+    print(f"  processed: {s['counts']['points_ok']} of {s['counts']['points']} points ok "
+          f"({s['mode']}, {s['signals']}, systems {','.join(s['config']['measure']['systems'])})")
+    print(f"  clock A - clock B: mean {b['mean_offset_ns']:.3f} ns, uncertainty {b['total_ns']:.3f} ns "
+          f"(type A {b['type_a_ns']:.3f}, type B {b['type_b_ns']:.3f})")
+
+    # truth comparison (the simulator's true offset, incl. the cable change as the receiver sees it)
+    import pandas as pd
+
+    from .. import timescales as ts
+
+    truth = pd.read_csv(work / "truth.csv")
+    col = f"{pc.station_a.id}-{pc.station_b.id}_apparent_ns"
+    off = pd.read_csv(run_dir / "offset.csv")
+    ok = off["flag"] == "ok"
+    tg = ts.parse_iso_array(truth["time_gps"])
+    tv = np.interp(off.loc[ok, "time_gps_ns"].to_numpy(float), tg.astype(float), truth[col].to_numpy())
+    err = off.loc[ok, "offset_ns"].to_numpy() - tv
+    print(f"  against the simulated truth: bias {err.mean():+.3f} ns, RMS {np.sqrt(np.mean(err**2)):.3f} ns "
+          f"over {err.size} points")
+
+    # report with the stations' change logs
+    report = build_report(offsets[offsets["system"] == offsets["system"].iloc[0]] if "system" in offsets else offsets,
+                          pd.read_csv(run_dir / "satellites.csv"), s, operations.hardware_changes(pc),
+                          out_html=out / "report.html", title=f"Demo: clock {pc.station_a.id} - clock {pc.station_b.id}",
+                          source=str(run_dir / "offset.csv"))
+    changes = report.get("changes", []) if isinstance(report, dict) else []
+    for c in changes:
+        print(f"  change found: {c.get('time_utc')} {c.get('kind')} {c.get('size'):+.2f} "
+              f"+- {c.get('u_size'):.2f} ({'expected' if c.get('expected') else 'unexpected'})")
+    print("outputs:")
+    print(f"  run folder   {run_dir}  (offset.csv, satellites.csv, summary.json)")
+    print(f"  archive      {pc.archive_path}")
+    print(f"  report       {out / 'report.html'}  (and report.json)")
+    print(f"done in {time.monotonic() - t_start:.1f} s")
+    return 0
+
+
+def _point_outputs_to(pair_file: pathlib.Path, out: pathlib.Path) -> None:
+    """Rewrite the copied pair file's [output] table so everything lands under ``out``."""
+    import tomllib
+
+    text = pair_file.read_text()
+    data = tomllib.loads(text)
+    lines = [ln for ln in text.splitlines()]
+    # drop an existing [output] table and append ours
+    keep, skip = [], False
+    for ln in lines:
+        if ln.strip().startswith("["):
+            skip = ln.strip() == "[output]"
+        if not skip:
+            keep.append(ln)
+    keep += ["", "[output]", f'dir = "{(out / "runs").as_posix()}"',
+             f'archive = "{(out / "archive.sqlite").as_posix()}"', f'report = "{(out / "report.html").as_posix()}"']
+    del data
+    pair_file.write_text("\n".join(keep) + "\n")
