@@ -511,6 +511,14 @@ class IonexMaps:
     elevation_cutoff_deg: float
     time_scale: str = "UTC"
 
+    def vtec_tecu(self, t_ns, lat_rad, lon_rad, *, rotate=True, rms=False):
+        """:func:`ionex_vtec_tecu` on these maps."""
+        return ionex_vtec_tecu(self, t_ns, lat_rad, lon_rad, rotate=rotate, rms=rms)
+
+    def slant_delay_m(self, t_ns, lat_rad, lon_rad, az_rad, el_rad, f_hz, *, rotate=True):
+        """Slant group delay in metres only (:func:`ionex_slant_delay_m` without the STEC)."""
+        return ionex_slant_delay_m(self, t_ns, lat_rad, lon_rad, az_rad, el_rad, f_hz, rotate=rotate)[0]
+
 
 def _f(line, a, b, path, lineno, what):
     try:

@@ -251,6 +251,8 @@ def test_ionex_slant_delay(test_data):
     vtec = 10 + 0.2 * 45 + 0.1 * 2 + 1
     assert stec == pytest.approx(vtec, rel=1e-9)
     assert d == pytest.approx(atm.IONO_K * vtec * 1e16 / 1575.42e6**2, rel=1e-9)
+    assert m.slant_delay_m(t, lat, lon, 0.0, np.pi / 2, 1575.42e6) == d  # method form used by measure
+    assert m.vtec_tecu(t, lat, lon) == pytest.approx(vtec, rel=1e-12)
     d30, s30 = atm.ionex_slant_delay_m(m, t, lat, lon, np.radians(180.0), np.radians(30.0), 1227.60e6)
     lat_i, lon_i, z = atm.pierce_point(lat, lon, np.radians(180.0), np.radians(30.0), 450e3, 6371e3)
     assert np.degrees(lat_i) < 45.0 and lon_i == pytest.approx(lon, abs=1e-12)  # due south
