@@ -464,3 +464,42 @@ def test_info_events_text(test_data, capsys):
     out = capsys.readouterr().out
     assert "EXA3" in out and "flag 2: 1" in out and "flag 6: 1" in out and "line 25: flag 2" in out
     assert "E  5 types" in out
+
+
+@pytest.mark.parametrize("name", ["edge_v305_mixed.rnx", "edge_v211_mixed.21o"])
+def test_bulk_walk_equals_epoch_by_epoch_walk(test_data, tmp_path, monkeypatch, name):
+    """The bulk fast paths and the epoch-by-epoch walk must give the same result."""
+    import ctt.rinex.obs as obs_mod
+
+    path = test_data / "obs" / name
+    lines = path.read_text().splitlines(keepends=True)
+    # drop event records so that the bulk path applies (an event forces the walk)
+    for ev in reversed(read_obs(path).events):
+        del lines[ev["line"] - 1: ev["line"] + len(ev["records"])]
+    p = write(tmp_path, name, "".join(lines))
+    fast = obs_mod.read_obs(p)
+    monkeypatch.setattr(obs_mod, "_fast_walk_v2", lambda *a: False)
+    monkeypatch.setattr(obs_mod, "_fast_walk_v3", lambda *a: False)
+    slow = obs_mod.read_obs(p)
+    assert len(fast.time_ns) >= 4 and not fast.events
+    assert np.array_equal(fast.time_ns, slow.time_ns) and np.array_equal(fast.sats, slow.sats)
+    assert fast.obs.keys() == slow.obs.keys()
+    for c in fast.obs:
+        assert np.array_equal(fast.obs[c], slow.obs[c], equal_nan=True)
+        assert np.array_equal(fast.lli[c], slow.lli[c]) and np.array_equal(fast.ssi[c], slow.ssi[c])
+    assert np.array_equal(fast.clock_offset_s, slow.clock_offset_s, equal_nan=True)
+    assert np.array_equal(fast.epoch_flag, slow.epoch_flag)
+
+
+def test_hatanaka_compressed(tmp_path):
+    """Compact RINEX (Hatanaka) input decodes to the same observations."""
+    hatanaka = pytest.importorskip("hatanaka")
+    text = small_v3()
+    plain = read_obs(write(tmp_path, "a.rnx", text))
+    crx = tmp_path / "a.crx"
+    crx.write_bytes(hatanaka.rnx2crx(text.encode()))
+    packed = read_obs(crx)
+    assert np.array_equal(plain.time_ns, packed.time_ns)
+    for c in plain.obs:
+        assert np.array_equal(plain.obs[c], packed.obs[c], equal_nan=True)
+        assert np.array_equal(plain.lli[c], packed.lli[c]) and np.array_equal(plain.ssi[c], packed.ssi[c])

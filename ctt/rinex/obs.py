@@ -877,8 +877,63 @@ def _looks_like_v2_epoch(text: str) -> bool:
     return bool(_V2_EPOCH_RE.match(text))
 
 
+def _fast_walk_v2(src: _Source, h: ObsHeader, nl_sv: int, walk: _Walk) -> bool:
+    """Bulk walk of a RINEX 2 data section holding only data epochs (flags 0/1).
+
+    Candidate epoch records are found by their fixed layout (blanks between the
+    date fields, the seconds point in column 19, flag in column 29); they are
+    accepted only if every record's satellite count chains exactly to the next
+    candidate (continuation lines of the satellite list, then ``nl_sv`` lines per
+    satellite). Returns False otherwise, and the epoch-by-epoch walk takes over.
+    """
+    n0, n = h.n_lines, src.n
+    if n <= n0:
+        return False
+    lines = np.arange(n0, n)
+    m = src.matrix(lines, 32)
+    dig = (m - np.uint8(48)) < 10
+    cand = ((m[:, 0] == 32) & (m[:, 3] == 32) & (m[:, 6] == 32) & (m[:, 9] == 32) & (m[:, 12] == 32)
+            & (m[:, 18] == 46) & dig[:, 17] & dig[:, 19:26].all(axis=1) & (m[:, 26] == 32)
+            & (m[:, 27] == 32) & dig[:, 31] & (m[:, 28] >= 48) & (m[:, 28] <= 54))
+    ep = lines[cand]
+    if len(ep) == 0:
+        return False
+    me = m[cand]
+    flag = me[:, 28] - np.uint8(48)
+    cnt, ok = _int_fields(me[:, 29:32])
+    n_cont = np.maximum(-(-cnt // 12) - 1, 0)
+    nxt = ep + 1 + n_cont + cnt * nl_sv
+    empty = src.ends == src.starts
+    if not (ok.all() and (flag <= 1).all() and np.array_equal(nxt[:-1], ep[1:]) and nxt[-1] <= n
+            and empty[n0:ep[0]].all() and empty[nxt[-1]:].all()):
+        return False
+    # satellite lists: columns 33-68 of the epoch record and of its continuation lines
+    total = int(n_cont.sum())
+    if total:
+        first_cont = np.repeat(ep + 1, n_cont) + (np.arange(total) - np.repeat(np.cumsum(n_cont) - n_cont, n_cont))
+        cont_text = src.matrix(first_cont, 36, offset=32)
+    sat_rows = src.matrix(ep, 36, offset=32)
+    texts = []
+    ci = 0
+    for k, (c, nc) in enumerate(zip(cnt.tolist(), n_cont.tolist())):
+        row = sat_rows[k].tobytes()
+        if nc:
+            row += cont_text[ci:ci + nc].tobytes()
+            ci += nc
+        texts.append(row[:3 * c].decode("latin-1"))
+    walk.ep_line = ep
+    walk.ep_flag = flag.astype(np.int8)
+    walk.ep_seg = np.zeros(len(ep), np.int64)
+    walk.ep_nsat = cnt
+    walk.rec_first = ep + 1 + n_cont
+    walk.sat_text = texts
+    return True
+
+
 def _walk_v2(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Walk:
     walk = _Walk()
+    if _fast_walk_v2(src, h, -(-len(seg_types[0]) // 5), walk):
+        return walk
     n = src.n
     i = h.n_lines
     raw = src.raw
