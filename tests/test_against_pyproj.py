@@ -11,8 +11,8 @@ from pyproj import Transformer
 from ctt import geodesy as g
 
 
-def _random_geodetic(n, seed):
-    rng = np.random.default_rng(seed)
+def _random_geodetic(n, stream):
+    rng = np.random.default_rng(stream)
     lat = np.degrees(np.arcsin(rng.uniform(-1, 1, n)))
     lon = rng.uniform(-180, 180, n)
     h = rng.uniform(-10_000.0, 30_000_000.0, n)  # below the geoid down to GNSS-orbit heights

@@ -97,5 +97,5 @@ def test_tide_vectorised_and_magnitude():
     up = g.ecef_to_enu(d, lat, lon)[:, 2]
     # radial tide peak-to-peak at mid-latitude is a few decimetres (common practice: ≤ ~0.4 m)
     assert 0.05 < np.ptp(up) < 0.8
-    # each epoch alone gives the same (no cross-talk in the vectorisation)
+    # each epoch alone gives the same (epochs do not leak into one another in the vectorisation)
     assert np.allclose(g.solid_tide_displacement(sta, t[5:6]), d[5:6], atol=1e-12)
