@@ -824,8 +824,11 @@ def synthetic_constellation(start_gps_ns: int, end_gps_ns: int, systems, rng: np
             if s["sat"][0] == "G":
                 rec.update(l2_codes=1.0, l2p_flag=0.0, ura_m=2.0, tgd_s=s["tgd"], iodc=float(iod % 256), fit_h=4.0)
             else:
-                # I/NAV (bits 0 and 2) with E5b/E1 clocks (bit 9): 517 (RINEX 3.04 table A8)
+                # I/NAV (bits 0 and 2) with E5b/E1 clocks (bit 9): 517; the same set as F/NAV (bit 1)
+                # with E5a/E1 clocks (bit 8): 258 (RINEX 3.04 table A8). One orbit and clock, so both
+                # messages say the same; BGD(E1,E5a) = BGD(E1,E5b) (module docstring).
                 rec.update(data_source=517.0, ura_m=3.12, bgd_e5a_s=s["bgd"], bgd_e5b_s=s["bgd"])
+                recs.append(dict(rec, data_source=258.0))
             recs.append(rec)
     return recs
 

@@ -445,3 +445,54 @@ def test_demo_regenerates_identically(tmp_path):
     for kind in ("obs", "nav", "met", "truth"):
         for p in res.files[kind]:
             assert p.read_bytes() == (DEMO / p.name).read_bytes(), p.name
+
+
+def test_met_file_reads_back_with_the_project_reader(written):
+    met_mod = pytest.importorskip("ctt.rinex.met")
+    res, _ = written
+    r = res.stations["LABA"]
+    m = met_mod.read_met(res.files["met"][0])
+    step = int(round(res.scenario.output["met_interval_s"] / res.scenario.interval_s))
+    np.testing.assert_array_equal(m.time_ns, r.time_ns[::step])
+    # F7.1 fields (RINEX 2.11 met): 0.05 of the unit
+    for key, typ in (("p", "PR"), ("t", "TD"), ("rh", "HR")):
+        np.testing.assert_allclose(m.values[typ], r.met[key][::step], rtol=0, atol=0.05 + 1e-9)
+    assert np.ptp(m.values["TD"]) > 0.3  # the daily cycle (4 °C amplitude) moves it even in 2 night hours
+
+
+@pytest.mark.parametrize("systems, signals", [(("G",), "iono-free"), (("E",), "iono-free"), (("G", "E"), "single")])
+def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
+    """End to end: files -> ctt.measure -> local clock − GPS time against truth.csv.
+
+    The simulator shares no measurement code with ctt.measure (module docstring of
+    ctt.simulate). Broadcast = true satellite clocks, iono_scale = 1 and the met files
+    carry the met truth, so only noise is left: the mean over all satellite-epochs must
+    agree within 4 standard errors of the mean plus 0.05 ns (met rounding to 0.1 hPa / 0.1 °C /
+    0.1 % moves the slant delay by < 1 mm at 10° elevation, 3 ps).
+    """
+    pytest.importorskip("ctt.measure")
+    from ctt.config import load_station
+    from ctt.measure import MeasureOptions, measure_station
+    from ctt.orbits import BroadcastOrbits
+    from ctt.rinex.met import read_met
+    from ctt.rinex.nav import read_nav
+    from ctt.rinex.obs import read_obs
+
+    data = _datetime_fix(_base(hours=1.0))
+    data["stations"] = data["stations"][:1]
+    res = simulate(scenario_from_dict(data))
+    files = write_outputs(res, tmp_path)
+    nav = read_nav(files["nav"][0])
+    day = measure_station(read_obs(files["obs"][0]), BroadcastOrbits(nav), load_station(files["station"][0]),
+                          MeasureOptions(systems=systems, signals=signals), nav_header=nav.header,
+                          met=read_met(files["met"][0]))
+    t = day.table
+    ok = (t["flag"] == "ok").to_numpy()
+    tt = np.asarray(t["time"])
+    tt = ts.parse_iso_array(tt) if tt.dtype == object else tt.astype(np.int64)
+    r = res.stations["LABA"]
+    k = np.searchsorted(r.time_ns, tt[ok])
+    d = t["clock_ns"].to_numpy()[ok] - r.clock_s[k] * 1e9
+    assert ok.sum() > 500
+    se = d.std() / math.sqrt(d.size)
+    assert abs(d.mean()) < 4 * se + 0.05, (d.mean(), se)
