@@ -196,7 +196,7 @@ def robust_weighted_mean(g, ng, d, w, sigma=None, *, family=None, mad_k=3.5, max
         acc = new
     a = acc.astype(np.float64)
     n = np.bincount(g, a, ng)
-    W = np.bincount(g, a * w, ng)
+    W = np.bincount(g, np.where(acc, w, 0.0), ng)  # not a * w: 0 * NaN (unusable rows) is NaN
     with np.errstate(invalid="ignore", divide="ignore"):
         m = np.bincount(g, np.where(acc, w * d, 0.0), ng) / W
         r = d - m[g]
