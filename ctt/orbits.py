@@ -224,7 +224,7 @@ class SatStates:
 def solve_kepler(m_rad, e):
     """Eccentric anomaly E with E − e·sin E = M (vectorised Newton, |ΔE| < 1e-13 rad).
 
-    Start at M (π for e > 0.8, where Newton from M can overshoot); raises
+    Start at M + e·sin M (π for e > 0.8, where Newton from there can overshoot); raises
     ProcessingError if some element has not converged after 50 iterations.
     """
     m = np.asarray(m_rad, dtype=np.float64)
@@ -234,7 +234,7 @@ def solve_kepler(m_rad, e):
     two_pi = 2.0 * np.pi
     mr = np.mod(m, two_pi)  # [0, 2π)
     big = e > 0.8
-    E = np.where(big, np.pi, mr)
+    E = np.where(big, np.pi, mr + e * np.sin(mr))
     for _ in range(KEPLER_MAX_ITER):
         d = (E - e * np.sin(E) - mr) / (1.0 - e * np.cos(E))
         E = E - d
@@ -454,6 +454,64 @@ class _SystemTable:
         found = avail[np.arange(n), j]
         return np.where(found, best, -1), in_fit.any(axis=1)
 
+    def build_table(self, allow_future, max_gap=8):
+        """Precompute the choice as a step function of time per satellite.
+
+        The chosen record and the status only change at a record's
+        transmission time, at the ends of its validity interval (t_oe ± half,
+        the end exclusive) and half-way between two reference epochs (the
+        closer one wins; the earlier on a tie). Those instants are collected
+        (midpoints for records up to ``max_gap`` apart in time order) and
+        :meth:`select` is evaluated exactly at each, so a query is one
+        ``searchsorted``. Returns False (and the caller uses :meth:`select`
+        per query) when the file spans too long for one int64 key.
+        """
+        self.table = None
+        if not len(self.ref_ns):
+            return False
+        ref, half, av, code = self.ref_ns, self.half_ns, self.avail_ns, self.code
+        ev_c = [code, code, code]
+        ev_t = [av, ref - half, ref + half + 1]
+        idx0 = self.subsets[0][0]
+        for d in range(1, max_gap + 1):
+            if len(idx0) <= d:
+                break
+            i, j = idx0[:-d], idx0[d:]
+            same = code[i] == code[j]
+            ev_c.append(code[i][same])
+            ev_t.append((ref[i][same] + ref[j][same]) // 2 + 1)
+        ev_c = np.concatenate(ev_c)
+        ev_t = np.concatenate(ev_t)
+        t0 = int(ev_t.min()) - 1
+        span = int(ev_t.max()) - t0 + 1
+        code_bits = max(1, int(self.n_sat).bit_length())
+        time_bits = max(1, span.bit_length())
+        if code_bits + time_bits > 62:
+            return False
+        ev_c = np.concatenate([ev_c, np.arange(self.n_sat, dtype=np.int64)])
+        ev_t = np.concatenate([ev_t, np.full(self.n_sat, t0, dtype=np.int64)])
+        keys = np.unique((ev_c << time_bits) | (ev_t - t0))
+        c_e = keys >> time_bits
+        t_e = (keys & ((1 << time_bits) - 1)) + t0
+        rec, st = self.select(self.sat_names[c_e], t_e, allow_future)
+        self.table = (keys, rec, st, t0, span, time_bits)
+        return True
+
+    def lookup(self, q_sat, q_t):
+        """Record and status per query from the step-function table (see :meth:`build_table`)."""
+        keys, rec_t, st_t, t0, span, time_bits = self.table
+        n = len(q_sat)
+        code = np.searchsorted(self.sat_names, q_sat)
+        code = np.clip(code, 0, self.n_sat - 1)
+        known = self.sat_names[code] == q_sat
+        rel = np.clip(np.asarray(q_t, dtype=np.int64) - t0, 0, span)
+        pos = np.searchsorted(keys, (code << time_bits) | rel, side="right") - 1
+        rec = np.where(known, rec_t[pos], -1)
+        status = np.where(known, st_t[pos], NO_EPHEMERIS)
+        if n and not known.all():
+            rec = rec.astype(np.int64)
+        return rec, status.astype(np.int64)
+
     def select(self, q_sat, q_t, allow_future):
         """Record per query (−1 none) and status codes."""
         n = len(q_sat)
@@ -514,6 +572,7 @@ class BroadcastOrbits:
         for s, df in nav.records.items():
             if s in _SCALE and len(df):
                 self._tables[s] = _SystemTable(s, df, galileo_source)
+                self._tables[s].build_table(self.allow_future)
         self._cols = {}
         for s, tab in self._tables.items():
             df = tab.df
@@ -526,7 +585,8 @@ class BroadcastOrbits:
                 prn = df["sat"].str[1:].astype(int).to_numpy()
                 cols["geo"] = np.isin(prn, sorted(BDS_GEO_PRN))
             if s != "R":
-                cols["_kep"] = np.ascontiguousarray(np.stack([cols[c] for c in _KEP_COLS], axis=1))
+                # (n_col, n_rec): a gather along axis 1 gives contiguous rows per parameter
+                cols["_kep"] = np.ascontiguousarray(np.stack([cols[c] for c in _KEP_COLS], axis=0))
             self._cols[s] = cols
 
     # ------------------------------------------------------------ offsets
@@ -603,7 +663,10 @@ class BroadcastOrbits:
                 out.status[rows] = NO_EPHEMERIS
                 continue
             tq = convert(t_ns[rows], "GPS", _SCALE[s])
-            rec, st = tab.select(sats[rows], tq, self.allow_future)
+            if tab.table is not None:
+                rec, st = tab.lookup(sats[rows], tq)
+            else:
+                rec, st = tab.select(sats[rows], tq, self.allow_future)
             out.status[rows] = st
             out.system_time_offset_s[rows] = self._system_offset(s, t_ns[rows])
             okr = rec >= 0
@@ -633,8 +696,8 @@ class BroadcastOrbits:
             out.iode[rows] = np.rint(np.mod(cols["toc_ns"][rec] / 1e9 + 3 * 3600, 86400) / 900).astype(np.int64)
             out.status[rows] = OK
             return
-        block = cols["_kep"][rec]
-        p = {c: block[:, j] for j, c in enumerate(_KEP_COLS)}
+        block = np.take(cols["_kep"], rec, axis=1)
+        p = {c: block[j] for j, c in enumerate(_KEP_COLS)}
         tk = (tq - cols["toe_ns"][rec]) / 1e9 + dts
         tc = (tq - cols["toc_ns"][rec]) / 1e9 + dts
         if s in ("G", "J"):
