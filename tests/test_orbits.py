@@ -397,3 +397,24 @@ def test_selection_with_many_copies_per_epoch(mixed):
     # newest set already transmitted (first copy sent 660 s after its t_oe) is the closest to t
     expect = toe0 + ((t - toe0 - 660 * 10**9) // (600 * 10**9)) * 600 * 10**9
     np.testing.assert_array_equal(chosen, np.maximum(expect, toe0))
+
+
+@pytest.mark.parametrize("allow_future", [False, True])
+def test_step_table_equals_direct_rule(brdc, mixed, allow_future):
+    # the precomputed step function must give what the rule gives evaluated directly, also at
+    # the boundaries themselves (validity end inclusive, transmission time inclusive, ties)
+    for nav in (brdc, mixed):
+        o = BroadcastOrbits(nav, allow_future=allow_future)
+        for s, tab in o._tables.items():
+            assert tab.table is not None
+            ref, half, av = tab.ref_ns, tab.half_ns, tab.avail_ns
+            edges = np.concatenate([ref + half, ref + half + 1, ref - half, ref - half - 1, av, av - 1,
+                                    ref, (ref[:-1] + ref[1:]) // 2, (ref[:-1] + ref[1:]) // 2 + 1])
+            rng = np.random.default_rng(3)
+            t = np.concatenate([edges, rng.integers(ref.min() - 10**13, ref.max() + 10**13, 2000)])
+            sats = tab.sat_names[rng.integers(0, tab.n_sat, len(t))]
+            sats[: len(edges)] = np.resize(tab.sat_names[tab.code], len(edges))
+            r1, s1 = tab.lookup(sats, t)
+            r2, s2 = tab.select(sats, t, allow_future)
+            np.testing.assert_array_equal(s1, s2)
+            np.testing.assert_array_equal(r1, r2)
