@@ -434,7 +434,7 @@ def test_bad_satellite_id_and_duplicate(tmp_path):
 def test_undeclared_fields_and_system(tmp_path):
     # Galileo declares 2 types: a third value on an E line is an error
     text = small_v3().replace("      123456.0004", "      123456.0004  1.000")
-    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "blank columns")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "nothing after column 35")
     text = small_v3().replace("\nE11 ", "\nR11 ")
     _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "system with observation types")
 
@@ -503,3 +503,31 @@ def test_hatanaka_compressed(tmp_path):
     for c in plain.obs:
         assert np.array_equal(plain.obs[c], packed.obs[c], equal_nan=True)
         assert np.array_equal(plain.lli[c], packed.lli[c]) and np.array_equal(plain.ssi[c], packed.ssi[c])
+
+
+def test_more_values_than_declared_types(tmp_path):
+    # a fifth GPS value where the header declares four types (RINEX 3.05: one field
+    # per declared type): refused, not silently dropped
+    text = small_v3().replace("20000105.500", "20000105.500" + " " * 20 + "       1.000")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 5, "nothing after column 67")
+    lines = small_v2().splitlines(keepends=True)
+    k = len(V2_HEADER.splitlines()) + 3  # G01's second record line: S2 ends at column 16
+    lines[k - 1] = lines[k - 1].rstrip("\n") + "        12.000  \n"
+    _raises(tmp_path, "".join(lines), k, "nothing after column 16", name="a.21o")
+
+
+def test_v2_missing_end_of_header(tmp_path):
+    text = small_v2().replace(hl("", "END OF HEADER"), "")
+    _raises(tmp_path, text, len(V2_HEADER.splitlines()), "END OF HEADER", name="a.21o")
+
+
+def test_scale_factor_divides(tmp_path):
+    """RINEX 3.05 SYS / SCALE FACTOR: stored values are divided by the factor before use."""
+    text = small_v3().replace(hl("    30.000", "INTERVAL"),
+                              hl("    30.000", "INTERVAL") + hl("G   10  1 L1C", "SYS / SCALE FACTOR"))
+    d = read_obs(write(tmp_path, "a.rnx", text))
+    plain = read_obs(write(tmp_path, "b.rnx", small_v3()))
+    g = d.sats.tolist().index("G07")
+    assert d.header.scale_factors == {("G", "L1C"): 10}
+    assert d.obs["L1C"][0, g] == plain.obs["L1C"][0, g] / 10
+    assert d.obs["C1C"][0, g] == plain.obs["C1C"][0, g]

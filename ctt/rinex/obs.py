@@ -541,7 +541,7 @@ def _changes_from_records(records: list[str]) -> dict:
 
 # ============================================================== header
 
-def _parse_header(src: _Source, *, known_version=None) -> ObsHeader:
+def _parse_header(src: _Source) -> ObsHeader:
     if src.n == 0:
         raise src.error(None, "a RINEX observation file", "an empty file")
     first = src.line(0)
@@ -577,8 +577,8 @@ def _parse_header(src: _Source, *, known_version=None) -> ObsHeader:
         if label == "END OF HEADER":
             end = i
             break
-        if not label and v2 is False and ln.startswith(">"):
-            break
+        if not label and ((not v2 and ln.startswith(">")) or (v2 and _looks_like_v2_epoch(ln))):
+            break  # data before END OF HEADER
         if pending is not None and label in ("# / TYPES OF OBSERV", "SYS / # / OBS TYPES") \
                 and body[:6].strip() == "" and (not body[:1].strip()):
             kind, s, remaining = pending
@@ -862,7 +862,6 @@ def _types_from_event_v3(src, h, i, records, current):
             continue
         if rec[0:1].strip():
             s = rec[0]
-            n = _int_or(rec[3:6], src=src, line=i, what="a number of types") or 0
             new[s] = rec[6:60].split()
             pend = s
         elif pend:
@@ -1146,19 +1145,32 @@ def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
         n_rec = len(ids)
         vals, badf = vals.reshape(n_rec, nf), badf.reshape(n_rec, nf)
         lli, ssi = lli.reshape(n_rec, nf), ssi.reshape(n_rec, nf)
-        extra = None
         if ntypes is not None and (ntypes < nf).any():
-            fw = fields.view(np.uint64).reshape(n_rec, nf, 2)
-            nonblank = (fw[:, :, 0] != _BLANK8) | (fw[:, :, 1] != _BLANK8)
-            extra = nonblank & (np.arange(nf)[None, :] >= ntypes[:, None])
-            badf = (badf & (np.arange(nf)[None, :] < ntypes[:, None])) | extra
+            # columns past a system's own types are checked by line length below
+            badf &= np.arange(nf)[None, :] < ntypes[:, None]
+        # text past the last declared field: the header and the data disagree
+        if v2:
+            checks = [(line0 + k, 16 * min(5, nf - 5 * k)) for k in range(nl_sv)]
+        else:
+            checks = [(line0, 3 + 16 * np.maximum(ntypes, 0))]
+        for lines_k, limit in checks:
+            long = np.flatnonzero(src.ends[lines_k] - src.starts[lines_k] > limit)
+            if len(long):
+                lim = np.broadcast_to(limit, lines_k.shape)[long]
+                width = int((src.ends[lines_k[long]] - src.starts[lines_k[long]]).max())
+                tail = src.matrix(lines_k[long], width)
+                beyond = (tail != 32) & (np.arange(width)[None, :] >= lim[:, None])
+                for j in np.flatnonzero(beyond.any(axis=1))[:1000].tolist():
+                    r = long[j]
+                    _mark(bad_ep, bad_reason, r_ep[r], lines_k[r],
+                          f"nothing after column {int(lim[j])} (the header declares "
+                          f"{nf if v2 else int(ntypes[r])} observation types)",
+                          tail[j, lim[j]:].tobytes().decode("latin-1"))
         if badf.any():
             rr, kk = np.nonzero(badf)
             for r, k in zip(rr[:1000].tolist(), kk[:1000].tolist()):
                 line = line0[r] + (k // 5 if v2 else 0)
-                what = ("blank columns after the last observation type of this system"
-                        if extra is not None and extra[r, k]
-                        else "an observation as F14.3 with loss-of-lock and signal-strength digits (I1, I1)")
+                what = "an observation as F14.3 with loss-of-lock and signal-strength digits (I1, I1)"
                 _mark(bad_ep, bad_reason, r_ep[r], line, what,
                       fields[r * nf + k].tobytes().decode("latin-1"))
         out.append((seg, r_ep, ids, (ids // 100).astype(np.uint8), vals, lli, ssi))
