@@ -32,13 +32,16 @@ GLONASS, *without* the periodic relativistic term and without group delays.
 ``relativity_s`` is that periodic term: F·e·√A·sin E_k (IS-GPS-200
 §20.3.3.3.3.1, F = −2√μ/c²) for Keplerian ephemerides, −2 r·v/c² for GLONASS
 states (GLONASS ICD; r·v is the same in the Earth-fixed and inertial frames).
-The satellite clock for a signal is ``clock_s + relativity_s + group_delay_s``
-(see :meth:`BroadcastOrbits.group_delay_s`), minus ``system_time_offset_s``'s
-sibling conversions done by the user: ``system_time_offset_s`` is
-(system time − GPS time) beyond the nominal offset that ``ctt.timescales``
-applies (0 for GPS; GST−GPS from the header GPGA/GAGP correction; BDT−GPS from
-BDUT−GPUT; GLONASS−GPS from GLGP, or GLUT and GPUT), NaN when the file gives
-no correction for that system.
+The satellite clock for a signal, against its own system time, is
+``clock_s + relativity_s + group_delay_s`` (see
+:meth:`BroadcastOrbits.group_delay_s`). ``system_time_offset_s`` is
+(system time − GPS time) *beyond* the nominal offset that ``ctt.timescales``
+applies (integer seconds, the 3 h of GLONASS): 0 for GPS; GST−GPS from the
+header GAGP/GPGA line; BDT−GPS from BDUT−GPUT; QZSS from QZGP or QZUT−GPUT;
+GLONASS−GPS from GLGP, or GLUT−GPUT; NaN when the file gives no usable
+correction for that system (a user of a second system then estimates the
+offset, e.g. as an extra clock parameter). The reading convention of the
+TIME SYSTEM CORR lines is given in ``BroadcastOrbits._system_offset``.
 
 Ephemeris selection (what a receiver would use)
 -----------------------------------------------

@@ -41,33 +41,39 @@ write a 10-bit GPS week (the standards ask for a continuous one) are read
 correctly. Galileo weeks in RINEX are aligned to GPS weeks (RINEX 3 standard),
 BeiDou weeks count from 2006-01-01 BDT.
 
+Columns common to all systems: ``sat`` (RINEX 3 id, e.g. ``G05``), ``line``
+(1-based line of the record's first line), ``message`` (LNAV, INAV, FNAV, D1,
+D2, FDMA), ``toc_ns`` and ``toc_gps_ns`` (see above).
+
 Columns of ``records['G']`` / ``records['J']`` (GPS / QZSS LNAV)
-    sat, line, message, toc_ns, toc_gps_ns, af0_s, af1_sps, af2_sps2,
-    iode, crs_m, delta_n_radps, m0_rad, cuc_rad, e, cus_rad, sqrt_a_sqrtm,
-    toe_sow_s, cic_rad, omega0_rad, cis_rad, i0_rad, crc_m, omega_rad,
-    omega_dot_radps, idot_radps, l2_codes, week, l2p_flag, ura_m, health,
-    tgd_s, iodc, ttm_sow_s, fit_raw, fit_h, toe_week, toe_ns, ttm_ns.
-    ``fit_raw`` is the field as written; ``fit_h`` the fit interval in hours:
-    a value >= 4 is taken as hours (RINEX: "fit interval in hours"), 0 as
-    the IS-GPS-200 fit-interval flag 0 (4 h) and 1 as flag 1 (6 h, the
-    shortest extended interval of IS-GPS-200 Table 20-XII... read as "more
-    than 4 h"). For QZSS the field is the flag: 0 -> 2 h, 1 -> 4 h
-    (QZSS IS: flag 1 means "more than 2 h"; 4 h assumed).
+    af0_s, af1_sps, af2_sps2 (clock polynomial, s, s/s, s/s²), iode, crs_m,
+    delta_n_radps, m0_rad, cuc_rad, e, cus_rad, sqrt_a_sqrtm, toe_sow_s,
+    cic_rad, omega0_rad, cis_rad, i0_rad, crc_m, omega_rad, omega_dot_radps,
+    idot_radps, l2_codes, week (as written), l2p_flag, ura_m, health, tgd_s,
+    iodc, ttm_sow_s (transmission time of message, s of week), fit_raw (as
+    written), fit_h (hours), toe_week (full week), toe_ns, ttm_ns (int64 min
+    when the file says unknown, 0.9999E9). GPS ``fit_h``: a value >= 4 is
+    hours (RINEX: "fit interval in hours"); blank or 0 is 4 h (IS-GPS-200
+    fit-interval flag 0); 1 is read as the flag 1 of IS-GPS-200 §20.3.4.4
+    ("more than 4 h") and taken as 6 h. QZSS writes the flag: 0 -> 2 h, 1 ->
+    4 h (QZSS IS: flag 1 "more than 2 h"; 4 h assumed).
 ``records['E']`` (Galileo I/NAV, F/NAV)
     as GPS without l2_codes/l2p_flag/tgd_s/iodc/fit: ``iode`` is IODnav,
     data_source (int bits as written), source ('inav' if bit 0 or 2, 'fnav' if
-    bit 1), message ('INAV'/'FNAV'), ura_m (SISA), health (bits),
-    bgd_e5a_s (E5a/E1), bgd_e5b_s (E5b/E1).
+    bit 1 -- RINEX 3 data-source field), ura_m (SISA, negative = NAPA),
+    health (bits), bgd_e5a_s (E5a/E1), bgd_e5b_s (E5b/E1).
 ``records['C']`` (BeiDou D1/D2)
-    as GPS: ``iode`` is AODE, aodc, tgd1_s (B1/B3), tgd2_s (B2/B3), health
-    (SatH1), message ('D2' for GEO PRN 1-5 and 59-63 unless the file says).
+    as GPS without l2/tgd/iodc/fit: ``iode`` is AODE, aodc, tgd1_s (B1/B3),
+    tgd2_s (B2/B3), health (SatH1), week and toe in BDT; message 'D2' for GEO
+    PRN 1-5 and 59-63 unless a RINEX 4 record says otherwise.
 ``records['R']`` (GLONASS FDMA)
-    sat, line, message, toc_ns (UTC), toc_gps_ns, minus_tau_n_s (as written),
-    tau_n_s, gamma_n, tk_s (message frame time as written), x_m, vx_mps,
-    ax_mps2, health, y_m, vy_mps, ay_mps2, freq_num, z_m, vz_mps, az_mps2,
-    age_days, status_flags, delay_l1l2_s, urai, health_flags (NaN when the
-    file has no fifth line), tk_ns (UTC calendar count of the frame time).
-    Positions are converted from the file's km to m.
+    minus_tau_n_s (as written: −τ_n), tau_n_s, gamma_n, tk_s (message frame
+    time as written: s of the UTC week in RINEX 3/4, s of day in RINEX 2),
+    x_m, vx_mps, ax_mps2, health, y_m, vy_mps, ay_mps2, freq_num, z_m,
+    vz_mps, az_mps2, age_days, status_flags, delay_l1l2_s, urai,
+    health_flags (NaN when the file has no fifth line), tk_ns (UTC calendar
+    count of the frame time). PZ-90 positions, velocities and luni-solar
+    accelerations are converted from the file's km, km/s, km/s² to m.
 """
 
 from __future__ import annotations
