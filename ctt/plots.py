@@ -66,10 +66,14 @@ _RC = {
 }
 
 
-def _save(fig, stem) -> list[pathlib.Path]:
+#: formats written by default: PNG for screens and the HTML report, SVG for documents
+FORMATS = ("png", "svg")
+
+
+def _save(fig, stem, formats=FORMATS) -> list[pathlib.Path]:
     stem = pathlib.Path(stem)
     stem.parent.mkdir(parents=True, exist_ok=True)
-    paths = [stem.with_suffix(".png"), stem.with_suffix(".svg")]
+    paths = [stem.with_suffix("." + f) for f in formats]
     for p in paths:
         fig.savefig(p, bbox_inches="tight", metadata={"Date": None} if p.suffix == ".svg" else None)
     plt.close(fig)
@@ -130,7 +134,7 @@ def _mark_changes(ax, changes, log):
 # ------------------------------------------------------------------ figures
 
 def plot_offset(time_ns, offset_ns, stem, u_ns=None, changes=None, log=None, fit_ns=None,
-                title="Clock A − clock B", ylabel="offset / ns"):
+                title="Clock A − clock B", ylabel="offset / ns", formats=FORMATS):
     """Offset series with its ±u band, the drift model, and changes marked."""
     with plt.rc_context(_RC):
         fig, ax = plt.subplots(figsize=(8.0, 3.6))
@@ -152,11 +156,11 @@ def plot_offset(time_ns, offset_ns, stem, u_ns=None, changes=None, log=None, fit
         ax.set_ylabel(ylabel)
         ax.set_title(title)
         _time_axis(ax)
-        return _save(fig, stem)
+        return _save(fig, stem, formats)
 
 
 def plot_residuals(time_ns, residual_ns, stem, u_ns=None, title="Residuals after the drift fit",
-                   note=None):
+                   note=None, formats=FORMATS):
     """Residuals (ns) with their ±u band and the residual rms in the title."""
     with plt.rc_context(_RC):
         fig, ax = plt.subplots(figsize=(8.0, 3.0))
@@ -173,7 +177,7 @@ def plot_residuals(time_ns, residual_ns, stem, u_ns=None, title="Residuals after
         ax.set_ylabel("residual / ns")
         ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
         _time_axis(ax)
-        return _save(fig, stem)
+        return _save(fig, stem, formats)
 
 
 def _dev_arrays(d, scale=1.0):
@@ -205,7 +209,7 @@ def _emptiest_corner(ax, tau, dev, size=0.36):
     ok = np.isfinite(dev) & (dev > 0)
     pts = ax.transAxes.inverted().transform(ax.transData.transform(np.column_stack([tau[ok], dev[ok]])))
     best = None
-    for x0, y0 in ((0.02, 0.13), (0.64, 0.13), (0.02, 0.60), (0.64, 0.60)):
+    for x0, y0 in ((0.02, 0.13), (0.63, 0.13), (0.02, 0.60), (0.63, 0.60)):
         inside = np.sum((pts[:, 0] > x0 - 0.02) & (pts[:, 0] < x0 + size) &
                         (pts[:, 1] > y0 - 0.02) & (pts[:, 1] < y0 + size))
         if best is None or inside < best[0]:
@@ -218,9 +222,9 @@ def _slopes(ax, slopes, tau, dev, title="reference slopes"):
     ok = np.isfinite(dev) & (dev > 0)
     if ok.sum() < 2:
         return
-    ax.figure.canvas.draw()  # settle the limits before placing the key
+    ax.get_xlim(), ax.get_ylim()  # settle the autoscaled limits before placing the key
     x0, y0 = _emptiest_corner(ax, tau, dev)
-    key = ax.inset_axes([x0, y0, 0.34, 0.27])
+    key = ax.inset_axes([x0, y0, 0.35, 0.27])
     key.set_xscale("log")
     key.set_yscale("log")
     tt = np.array([1.0, 10.0])
@@ -254,7 +258,7 @@ def _noise_strip(ax, tau, dev, noise):
                     rotation=90)
 
 
-def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev_scale=1e9):
+def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev_scale=1e9, formats=FORMATS):
     """ADEV/MDEV(/HDEV) on the left (dimensionless), TDEV (ns) on the right, log-log, 1σ CI bars.
 
     ``devs`` maps kind -> :class:`ctt.stability.Deviation` (TDEV in s, scaled by
@@ -306,7 +310,7 @@ def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev
             a2.set_visible(False)
         fig.suptitle(title)
         fig.tight_layout()
-        return _save(fig, stem)
+        return _save(fig, stem, formats)
 
 
 def _pad_log(ax, bottom=0.45, top=0.25):
@@ -326,7 +330,7 @@ def _tau_ticks(ax):
 
 
 def plot_satellite_differences(time_ns, sat, diff_ns, stem, elevation_deg=None, flag=None,
-                               title="Per-satellite differences about the epoch median"):
+                               title="Per-satellite differences about the epoch median", formats=FORMATS):
     """Per-satellite differences minus the epoch median (ns) vs time, and vs elevation.
 
     Systems differ by marker and colour; rejected rows (``flag`` not 'ok') are grey crosses.
@@ -381,10 +385,10 @@ def plot_satellite_differences(time_ns, sat, diff_ns, stem, elevation_deg=None, 
             for a in axes[0]:
                 a.set_ylim(-lim, lim)
         fig.tight_layout()
-        return _save(fig, stem)
+        return _save(fig, stem, formats)
 
 
-def plot_common_satellites(time_ns, n_sat, stem, title="Number of common-view satellites"):
+def plot_common_satellites(time_ns, n_sat, stem, title="Number of common-view satellites", formats=FORMATS):
     """Number of satellites in common view per epoch (step plot)."""
     with plt.rc_context(_RC):
         fig, ax = plt.subplots(figsize=(8.0, 2.6))
@@ -397,11 +401,11 @@ def plot_common_satellites(time_ns, n_sat, stem, title="Number of common-view sa
         ok = np.isfinite(n)
         ax.set_title(f"{title} (median {np.median(n[ok]):.0f}, min {np.min(n[ok]):.0f})" if ok.any() else title)
         _time_axis(ax)
-        return _save(fig, stem)
+        return _save(fig, stem, formats)
 
 
 def plot_sky(sat, azimuth_a_deg, elevation_a_deg, stem, azimuth_b_deg=None, elevation_b_deg=None,
-             flag=None, names=("station A", "station B"), title="Sky view of common-view satellites"):
+             flag=None, names=("station A", "station B"), title="Sky view of common-view satellites", formats=FORMATS):
     """Polar az/el of the common-view satellites seen from each station (north up, clockwise)."""
     sat = np.asarray(sat).astype(str)
     ok = np.ones(len(sat), bool) if flag is None else (np.asarray(flag).astype(str) == "ok")
@@ -426,8 +430,10 @@ def plot_sky(sat, azimuth_a_deg, elevation_a_deg, stem, azimuth_b_deg=None, elev
                 h, = ax.plot(az[~ok], r[~ok], ls="none", marker="x", ms=2.5, color=GREY)
                 handles.setdefault("rejected", h)
             ax.set_rlim(0, 90)
+            ax.grid(True, alpha=0.7, lw=0.6)
             ax.set_rticks([0, 30, 60, 90])
-            ax.set_yticklabels(["90°", "60°", "30°", "0°"], fontsize=7)
+            ax.set_yticklabels(["90°", "60°", "30°", "0°"], fontsize=7,
+                               bbox={"boxstyle": "round,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
             ax.set_rlabel_position(135)
             ax.set_xticks(np.radians([0, 90, 180, 270]))
             ax.set_xticklabels(["N", "E", "S", "W"])
@@ -436,10 +442,10 @@ def plot_sky(sat, azimuth_a_deg, elevation_a_deg, stem, azimuth_b_deg=None, elev
                    markerscale=3)
         fig.suptitle(title)
         fig.subplots_adjust(right=0.82, wspace=0.35)
-        return _save(fig, stem)
+        return _save(fig, stem, formats)
 
 
-def plot_before_after(comparison, stem, labels=("before", "after"), title="Before / after comparison"):
+def plot_before_after(comparison, stem, labels=("before", "after"), title="Before / after comparison", formats=FORMATS):
     """ADEV and TDEV of two periods overlaid (1σ CIs), with the mean offset change stated."""
     b, a = comparison.before, comparison.after
     with plt.rc_context(_RC):
@@ -468,4 +474,4 @@ def plot_before_after(comparison, stem, labels=("before", "after"), title="Befor
         fig.suptitle(f"{title}: mean offset change {comparison.delta_mean_ns:+.3f} ± "
                      f"{comparison.u_delta_mean_ns:.3f} ns (z = {comparison.z:.1f}, {verdict})")
         fig.tight_layout()
-        return _save(fig, stem)
+        return _save(fig, stem, formats)

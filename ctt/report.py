@@ -44,6 +44,7 @@ from .errors import FileFormatError, NoDataError
 from .timescales import NS_PER_DAY, from_mjd, parse_iso, to_iso
 
 TIME_COLUMNS = ("time_utc", "mjd_utc", "mjd")
+_PNG = ("png",)   # the report embeds PNG only
 _ISO_FIELDS = re.compile(r"\s*(\d{4})-(\d{2})-(\d{2})(?:[T ](\d{2}):(\d{2})(?::(\d{2}))?)?")
 
 
@@ -370,17 +371,18 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
         tmp = pathlib.Path(tmp)
         figs = []
         p = plots.plot_offset(g.time_ns, g.value, tmp / "offset", u_ns=g.u, changes=ch.changes, log=log,
-                              fit_ns=fit.model_ns, title=f"{report['title']}: clock A − clock B")
+                              fit_ns=fit.model_ns, title=f"{report['title']}: clock A − clock B", formats=_PNG)
         figs.append((p[0], "Offset with its standard uncertainty band, the drift model (with a step "
                            "at each detected phase step) and the changes found; dotted lines are "
                            "hardware-log entries."))
-        p = plots.plot_residuals(g.time_ns, fit.residual_ns, tmp / "residuals", u_ns=g.u)
+        p = plots.plot_residuals(g.time_ns, fit.residual_ns, tmp / "residuals", u_ns=g.u, formats=_PNG)
         figs.append((p[0], "Residuals after the drift fit."))
-        p = plots.plot_deviations({k: devs[k] for k in ("oadev", "mdev", "ohdev", "tdev")}, tmp / "stability")
+        p = plots.plot_deviations({k: devs[k] for k in ("oadev", "mdev", "ohdev", "tdev")}, tmp / "stability",
+                                 formats=_PNG)
         figs.append((p[0], "Overlapping ADEV, MDEV, overlapping HDEV and TDEV with 1σ confidence "
                            "intervals (Greenhall–Riley EDF); noise type by lag-1 autocorrelation."))
         if nsat is not None and np.isfinite(nsat).any():
-            p = plots.plot_common_satellites(t, nsat, tmp / "nsat")
+            p = plots.plot_common_satellites(t, nsat, tmp / "nsat", formats=_PNG)
             figs.append((p[0], "Number of satellites in common view per epoch."))
         if satellites_df is not None and len(satellites_df):
             sp = _satellite_figures(satellites_df, tmp, time_from_ns, time_to_ns)
@@ -435,12 +437,12 @@ def _satellite_figures(s, tmp, t0, t1):
     if {"elevation_a_deg", "elevation_b_deg"} <= set(s.columns):
         el = np.minimum(s["elevation_a_deg"].to_numpy(float), s["elevation_b_deg"].to_numpy(float))
     p = plots.plot_satellite_differences(ts, s["sat"], s["diff_ns"].to_numpy(float), tmp / "satellites",
-                                         elevation_deg=el, flag=flag)
+                                         elevation_deg=el, flag=flag, formats=_PNG)
     figs.append((p[0], "Per-satellite differences (clock A − clock B through each satellite) about the "
                        "epoch median; rejected rows as grey crosses."))
     if {"azimuth_a_deg", "elevation_a_deg"} <= set(s.columns):
         p = plots.plot_sky(s["sat"], s["azimuth_a_deg"], s["elevation_a_deg"], tmp / "sky",
-                           s.get("azimuth_b_deg"), s.get("elevation_b_deg"), flag=flag)
+                           s.get("azimuth_b_deg"), s.get("elevation_b_deg"), flag=flag, formats=_PNG)
         figs.append((p[0], "Sky view of the common-view satellites from each station."))
     return figs
 
