@@ -77,7 +77,8 @@ Carrier phase (cycles) of band ``f``, wavelength λ = c/f::
 
 with an integer ambiguity N drawn per continuous arc (new after a gap, a
 receiver reset or a cycle slip; LLI bit 0 is set on the first epoch of every
-arc). Signal strength S (dB-Hz) rises with elevation; the RINEX SSI digit is
+arc; the first epoch after a receiver reset has epoch flag 1, "power failure").
+Signal strength S (dB-Hz) rises with elevation; the RINEX SSI digit is
 ``min(9, max(1, S // 6))`` (RINEX 3.04 §5.7).
 
 Delays and signs (the convention of :mod:`ctt.config`)
@@ -957,6 +958,7 @@ class StationResult:
     elevation_rad: np.ndarray
     azimuth_rad: np.ndarray
     epoch_kept: np.ndarray       # bool per epoch (gaps/outages removed)
+    epoch_flag: np.ndarray       # RINEX epoch flag per epoch: 1 (power failure) after a receiver reset
     met: dict                    # met truth at the met epochs
     noise_levels: list
     parts: dict                  # per-code itemised terms (m) for checks
@@ -1144,8 +1146,11 @@ def simulate(scn: Scenario) -> SimulationResult:
                 gd_m = C_MPS * np.nan_to_num(gd)
                 if mp is not None:
                     ph0 = {"1": 0.3, "2": 1.7, "5": 2.9, "7": 4.1}[band] + (0.0 if s_letter == "G" else 0.8)
+                    # two reflections' interference terms: fast in elevation like a reflector a few
+                    # wavelengths away, slower in azimuth; a function of (az, el) only, so it repeats
+                    # with the constellation's geometry (a sidereal day for GPS)
                     mpm = (mp["amplitude_m"] * np.exp(-(np.degrees(el) - spec.elevation_mask_deg) / mp["decay_deg"])
-                           * np.sin(3.0 * az + 9.0 * el + ph0))
+                           * (0.8 * np.sin(2.0 * az + 30.0 * el + ph0) + 0.6 * np.sin(5.0 * az - 45.0 * el + 2 * ph0)))
                 else:
                     mpm = np.zeros((n_ep, n_sat))
                 code_noise = orng.standard_normal((n_ep, n_sat)) * spec.code_noise_m / sin_el
@@ -1175,7 +1180,8 @@ def simulate(scn: Scenario) -> SimulationResult:
         undocumented = (_hardware_ns(spec, first_code, t_utc) - _hardware_ns(spec, first_code, t_utc, True)) * 1e-9
         results[spec.id] = StationResult(
             spec=spec, time_ns=t_tag, sats=sats, obs=obs, lli=lli, ssi=ssi, clock_s=x,
-            apparent_s=x + undocumented, tau_s=tau, sat_clock_s=dts, rx_m=rx, elevation_rad=el, azimuth_rad=az, epoch_kept=kept,
+            apparent_s=x + undocumented, tau_s=tau, sat_clock_s=dts, rx_m=rx, elevation_rad=el, azimuth_rad=az,
+            epoch_kept=kept, epoch_flag=reset_flag.astype(int),
             met=dict(p=met_p, t=met_t, rh=met_rh), noise_levels=levels, parts=parts)
     truth, steps = _truth_tables(scn, results)
     return SimulationResult(scenario=scn, stations=results, nav_records=recs or [], iono_alpha=alpha,
@@ -1293,7 +1299,7 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
                        antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
                        receiver_number=f"{sid}-RX1", receiver_version="1.0", antenna_type=spec.antenna_type,
                        antenna_number=f"{sid}-ANT1", observer="ctt simulate", agency=spec.name,
-                       leap_seconds=leap, run_ns=int(t[0]), comments=comments)
+                       leap_seconds=leap, run_ns=int(t[0]), comments=comments, epoch_flags=r.epoch_flag)
         files["obs"].append(p)
         if scn.output["rinex2"] and "G" in spec.signals:
             y = int(ts.ns_to_civil(np.int64(t[0]))[0])

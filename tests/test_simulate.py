@@ -371,6 +371,34 @@ def test_resets_gaps_and_lli(written):
     assert tracked.sum() > 4 and np.all(r.lli["L1C"][after][tracked] == 1)  # every arc restarts
     mid = after + 5
     assert np.all(r.lli["L1C"][mid][np.isfinite(r.obs["L1C"][mid])] <= 1)
+    # RINEX epoch flag 1 ("power failure between previous and current epoch") on that epoch only
+    assert r.epoch_flag[after] == 1 and r.epoch_flag.sum() == 1
+    obs_mod = pytest.importorskip("ctt.rinex.obs")
+    o = obs_mod.read_obs(res.files["obs"][0])
+    k = np.searchsorted(o.time_ns, r.time_ns[after])
+    assert o.epoch_flag[k] == 1 and np.sum(o.epoch_flag == 1) == 1
+
+
+@pytest.mark.slow
+def test_multipath_repeats_with_the_sidereal_day():
+    """GPS geometry (two revolutions per sidereal day) and so the (az, el) multipath repeat after 86164 s."""
+    data = _datetime_fix(_base(hours=24.5))
+    data["scenario"]["systems"] = ["G"]
+    data["stations"] = data["stations"][:1]
+    data["stations"][0]["multipath"] = {"amplitude_m": 0.5, "decay_deg": 15.0}
+    res = simulate(scenario_from_dict(data))
+    r = res.stations["LABA"]
+    mp = r.parts[("G", "C1C")]["mp"]
+    lag = round(86164.0905 / 30.0)  # sidereal day (common practice) in 30-s epochs: 4.1 s short of it
+    vis = np.isfinite(r.obs["C1C"])
+    both = vis[:-lag] & vis[lag:]
+    a, b = mp[:-lag][both], mp[lag:][both]
+    # 4 s of satellite motion (≈ 0.03°) and the nodal drift (Ω̇ − Ω̇_nominal, < 0.01°/day) move it a little
+    assert np.sqrt(np.mean((a - b) ** 2)) < 0.05 * np.sqrt(np.mean(a ** 2))
+    # one solar day later it does not repeat
+    lag2 = 2880
+    both2 = vis[:-lag2] & vis[lag2:]
+    assert np.sqrt(np.mean((mp[:-lag2][both2] - mp[lag2:][both2]) ** 2)) > 0.3 * np.sqrt(np.mean(a ** 2))
 
 
 def test_reproducible_and_cli(tmp_path):
