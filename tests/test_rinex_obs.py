@@ -531,3 +531,20 @@ def test_scale_factor_divides(tmp_path):
     assert d.header.scale_factors == {("G", "L1C"): 10}
     assert d.obs["L1C"][0, g] == plain.obs["L1C"][0, g] / 10
     assert d.obs["C1C"][0, g] == plain.obs["C1C"][0, g]
+
+
+def test_event_changes_decoded(test_data):
+    d = read_obs(test_data / "obs" / "edge_v304_events.rnx")
+    ev = {e["flag"]: e for e in d.events}
+    # file line 26: '        0.2500        0.0000        0.0000  ANTENNA: DELTA H/E/N'
+    assert np.array_equal(ev[2]["applied"]["antenna_delta_hen_m"], [0.25, 0.0, 0.0])
+    assert ev[3]["applied"] == {"marker_name": "EXA3-B"}
+    assert d.header.marker_name == "EXA3"  # the header keeps the file's opening state
+
+
+def test_info_json_without_position(tmp_path, capsys):
+    text = small_v3().replace(hl("  4000000.0000  1000000.0000  4800000.0000", "APPROX POSITION XYZ"), "")
+    p = write(tmp_path, "a.rnx", text)
+    assert cli.main(["info", "--json", str(p)]) == 0
+    s = json.loads(capsys.readouterr().out)
+    assert s["approx_position_m"] == [None, None, None] and s["n_epochs"] == 2

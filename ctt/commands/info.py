@@ -92,10 +92,21 @@ def run(args) -> int:
     data = read_obs(args.file, on_error="skip" if args.skip_bad else "raise")
     s = data.summary()
     if args.json:
-        print(json.dumps(s, indent=2, allow_nan=False, default=_json_default))
+        print(json.dumps(_no_nan(s), indent=2, allow_nan=False, default=_json_default))
     else:
         print(format_summary(s))
     return 0
+
+
+def _no_nan(v):
+    """NaN (absent position, unknown interval) as JSON null."""
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    if isinstance(v, dict):
+        return {k: _no_nan(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_no_nan(x) for x in v]
+    return v
 
 
 def _json_default(v):

@@ -187,7 +187,12 @@ class ObsData:
     ssi: dict  #: code -> int8 (n_epoch, n_sat), -1 where blank
     epoch_flag: np.ndarray  #: int8 (n_epoch,): 0 or 1
     clock_offset_s: np.ndarray  #: float64 (n_epoch,), NaN when the file gives none
-    events: list = field(default_factory=list)  #: dicts: time_ns, flag, line, records, changes
+    #: epoch-flag events 2-6, dicts: ``time_ns`` (None when the record leaves it blank),
+    #: ``flag``, ``line`` (1-based), ``records`` (the raw lines that follow), ``changes``
+    #: (header label -> texts), ``applied`` (decoded marker, antenna delta, position...;
+    #: observation-type changes are applied to the epochs after them); RINEX 2 slip
+    #: records (flag 6) also carry ``sats``, their satellite list.
+    events: list = field(default_factory=list)
     dropped: list = field(default_factory=list)  #: (line number, reason) of skipped epochs
 
     @property
@@ -532,10 +537,35 @@ def _changes_from_records(records: list[str]) -> dict:
     out: dict = {}
     for rec in records:
         label = rec[60:80].strip()
-        if label and label != "COMMENT":
+        if label:
             out.setdefault(label, []).append(rec[:60].rstrip())
-        elif label == "COMMENT":
-            out.setdefault("COMMENT", []).append(rec[:60].rstrip())
+    return out
+
+
+def _applied_from_changes(changes: dict) -> dict:
+    """The station facts an event changes, decoded: marker name/number, antenna
+    delta H/E/N and approximate position (m), antenna and receiver types."""
+    out: dict = {}
+    try:
+        if "MARKER NAME" in changes:
+            out["marker_name"] = changes["MARKER NAME"][-1].strip()
+        if "MARKER NUMBER" in changes:
+            out["marker_number"] = changes["MARKER NUMBER"][-1][:20].strip()
+        if "ANTENNA: DELTA H/E/N" in changes:
+            t = changes["ANTENNA: DELTA H/E/N"][-1].ljust(42)
+            out["antenna_delta_hen_m"] = np.array([float(t[k:k + 14] or 0) for k in (0, 14, 28)])
+        if "APPROX POSITION XYZ" in changes:
+            t = changes["APPROX POSITION XYZ"][-1].ljust(42)
+            out["approx_position_m"] = np.array([float(t[k:k + 14]) for k in (0, 14, 28)])
+        if "ANT # / TYPE" in changes:
+            t = changes["ANT # / TYPE"][-1].ljust(40)
+            out["antenna_serial"], out["antenna_type"] = t[:20].strip(), t[20:40].strip()
+        if "REC # / TYPE / VERS" in changes:
+            t = changes["REC # / TYPE / VERS"][-1].ljust(60)
+            out["receiver_serial"], out["receiver_type"], out["receiver_version"] = (
+                t[:20].strip(), t[20:40].strip(), t[40:60].strip())
+    except ValueError:
+        out["unreadable"] = True
     return out
 
 
@@ -816,6 +846,7 @@ def _walk_v3(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
             records = [raw[starts[j]:ends[j]].decode("latin-1") for j in range(i + 1, nxt)]
             ev = {"time_ns": None, "flag": flag, "line": i + 1, "records": records,
                   "changes": {} if flag == 6 else _changes_from_records(records), "_epoch": ln}
+            ev["applied"] = _applied_from_changes(ev["changes"])
             walk.events.append(ev)
             if flag in (3, 4) and "SYS / # / OBS TYPES" in ev["changes"]:
                 new = _types_from_event_v3(src, h, i, records, seg_types[-1])
@@ -963,6 +994,7 @@ def _walk_v2(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
             records = [raw[starts[j]:ends[j]].decode("latin-1") for j in range(i + 1, nxt)]
             ev = {"time_ns": None, "flag": flag, "line": i + 1, "records": records,
                   "changes": _changes_from_records(records), "_epoch": ln}
+            ev["applied"] = _applied_from_changes(ev["changes"])
             walk.events.append(ev)
             if flag in (3, 4) and "# / TYPES OF OBSERV" in ev["changes"]:
                 types = []
@@ -995,7 +1027,7 @@ def _walk_v2(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
         if flag == 6:
             records = [raw[starts[j]:ends[j]].decode("latin-1") for j in range(i + 1, nxt)]
             walk.events.append({"time_ns": None, "flag": 6, "line": i + 1, "records": records,
-                                "changes": {}, "sats": sat_text, "_epoch": ln})
+                                "changes": {}, "applied": {}, "sats": sat_text, "_epoch": ln})
         else:
             walk.ep_line.append(i)
             walk.ep_flag.append(flag)
