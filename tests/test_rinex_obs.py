@@ -548,3 +548,20 @@ def test_info_json_without_position(tmp_path, capsys):
     assert cli.main(["info", "--json", str(p)]) == 0
     s = json.loads(capsys.readouterr().out)
     assert s["approx_position_m"] == [None, None, None] and s["n_epochs"] == 2
+
+
+def test_skip_mode_many_backward_epochs(tmp_path):
+    """Epochs 0, 60, 30, 30, 90, 60, 120 s: the ones not later than the latest before
+    them (30, 30, 60) are dropped, each against the epoch that makes it late."""
+    secs = [0, 60, 30, 30, 90, 60, 120]
+    body = "".join(f"> 2021 01 01 00 {s // 60:02d} {s % 60:10.7f}  0  1\n" + v3_sat("G07", float(s))
+                   for s in secs)
+    p = write(tmp_path, "a.rnx", V3_HEADER + body)
+    with pytest.raises(RinexFormatError, match="later than 2021-01-01T00:01:00") as exc:
+        read_obs(p)
+    assert exc.value.line == len(V3_HEADER.splitlines()) + 5
+    with pytest.warns(UserWarning, match="skipped 3 bad epoch"):
+        d = read_obs(p, on_error="skip")
+    assert (d.time_ns - d.time_ns[0]).tolist() == [int(x * 1e9) for x in (0, 60, 90, 120)]
+    assert d.obs["C1C"][:, 0].tolist() == [0.0, 60.0, 90.0, 120.0]
+    assert ["repeated" in r or "earlier" in r for _, r in d.dropped] == [True] * 3

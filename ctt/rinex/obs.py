@@ -795,11 +795,11 @@ def _walk_v3(src: _Source, h: ObsHeader, on_error: str, seg_types: list) -> _Wal
     n = src.n
     i = h.n_lines
     raw = src.raw
-    starts, ends = src.starts.tolist(), src.ends.tolist()
     first_char = src.buf[np.minimum(src.starts, len(raw) - 1)] if len(raw) else np.zeros(0, np.uint8)
     is_epoch = (first_char == 62) & (src.ends > src.starts)
     if _fast_walk_v3(src, h, is_epoch, walk):
         return walk
+    starts, ends = src.starts.tolist(), src.ends.tolist()
     seg = 0
     while i < n:
         s0, e0 = starts[i], ends[i]
@@ -1279,19 +1279,23 @@ def read_obs(path, *, on_error: str = "raise", systems=None, codes=None) -> ObsD
     keep = ~(bad_time | bad_ep | np.isin(ep_lines, [ln - 1 for ln, _ in walk.errors]))
     # epochs must increase: a repeated or earlier epoch is an error (RINEX 3.05 5.1:
     # epochs in chronological order); only data epochs (flags 0, 1) are ordered
+    # An epoch not later than the latest one before it is dropped; dropping it never
+    # changes that running maximum, so one cumulative maximum finds them all.
     kept = np.flatnonzero(keep)
     if len(kept) > 1:
-        back = np.flatnonzero(np.diff(t_ns[kept]) <= 0)
-        while len(back):
-            b = back[0]
-            e_prev, e_bad = kept[b], kept[b + 1]
-            what = "repeated" if t_ns[e_bad] == t_ns[e_prev] else "earlier"
-            _bad(src, walk, on_error, int(ep_lines[e_bad]),
-                 f"an epoch later than {to_iso(t_ns[e_prev], 7, '')} (line {ep_lines[e_prev] + 1})",
-                 f"the {what} epoch {to_iso(t_ns[e_bad], 7, '')}")
-            keep[e_bad] = False
-            kept = np.flatnonzero(keep)
-            back = np.flatnonzero(np.diff(t_ns[kept]) <= 0)
+        tk = t_ns[kept]
+        run_max = np.maximum.accumulate(tk)
+        back = np.flatnonzero(tk[1:] <= run_max[:-1]) + 1
+        if len(back):
+            pos = np.arange(len(tk))
+            arg_max = np.maximum.accumulate(np.where(tk == run_max, pos, 0))
+            for b in back.tolist():
+                e_prev, e_bad = kept[arg_max[b - 1]], kept[b]
+                what = "repeated" if t_ns[e_bad] == t_ns[e_prev] else "earlier"
+                _bad(src, walk, on_error, int(ep_lines[e_bad]),
+                     f"an epoch later than {to_iso(t_ns[e_prev], 7, '')} (line {ep_lines[e_prev] + 1})",
+                     f"the {what} epoch {to_iso(t_ns[e_bad], 7, '')}")
+            keep[kept[back]] = False
     if walk.errors and on_error == "raise":
         raise min(walk.errors, key=lambda x: x[0])[1]
 
