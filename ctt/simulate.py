@@ -851,6 +851,7 @@ class KeplerEphemerides:
 
         self.sats = sorted({r["sat"] for r in records})
         self._index = {s: i for i, s in enumerate(self.sats)}
+        self._sats_arr = np.array(self.sats)
         by_sat = {s: sorted([r for r in records if r["sat"] == s], key=lambda r: r["toc_ns"]) for s in self.sats}
         n_rec = max(len(v) for v in by_sat.values())
         self.toe_ns = np.full((len(self.sats), n_rec), np.iinfo(np.int64).max // 4, dtype=np.int64)
@@ -867,7 +868,10 @@ class KeplerEphemerides:
         sats = np.asarray(sats).astype(str)
         t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), sats.shape)
         dt_s = np.broadcast_to(np.asarray(dt_s, dtype=float), sats.shape)
-        si = np.array([self._index[s] for s in sats.ravel()]).reshape(sats.shape)
+        si = np.searchsorted(self._sats_arr, sats)  # self.sats is sorted
+        bad = (si >= len(self.sats)) | (self._sats_arr[np.minimum(si, len(self.sats) - 1)] != sats)
+        if np.any(bad):
+            raise KeyError(f"no ephemeris records for {sorted(set(sats[bad].tolist()))[:5]}")
         toe = self.toe_ns[si]  # (N, n_rec)
         j = np.argmin(np.abs(toe - t_ns[..., None]), axis=-1)
         g = {k: v[si, j] for k, v in self.p.items()}
