@@ -862,37 +862,18 @@ AU_M = 149_597_870_700.0  # IAU 2012 astronomical unit
 
 
 def sun_position_ecef(t_ns, dt_s=0.0) -> np.ndarray:
-    """Low-precision Sun position, ECEF metres, at GPS instants (``t_ns + dt_s``).
+    """Low-precision Sun position, ECEF metres ``(N, 3)``, at GPS instants ``t_ns + dt_s``.
 
-    The Astronomical Almanac's low-precision formula for the Sun (apparent
-    ecliptic longitude from the mean longitude and anomaly, accuracy about
-    0.01° between 1950 and 2050; formula from memory), equatorial coordinates
-    of date with the mean obliquity, rotated to the Earth-fixed frame by the
-    apparent sidereal time (GMST, IAU 1982 linear form, plus the approximate
-    equation of the equinoxes of the US Naval Observatory note on approximate
-    sidereal time; from memory). UT1 is taken as UTC (|UT1−UTC| < 0.9 s,
-    i.e. < 0.004°) and polar motion is ignored (< 1e-4°). Good for satellite
-    attitude, not for astronomy.
+    The Astronomical Almanac's low-precision formula as implemented in
+    :func:`ctt.geodesy.sun_moon_ecef` (about 0.01°; enough for satellite
+    attitude, not for astronomy).
     """
-    t = np.asarray(t_ns, dtype=np.int64)
-    utc = convert(t, "GPS", "UTC")
-    j2000 = int(civil_to_ns(2000, 1, 1, 12))
-    n = (utc - j2000).astype(np.float64) / 86400e9 + np.asarray(dt_s, float) / 86400.0
-    rad = np.pi / 180.0
-    L = (280.460 + 0.9856474 * n) % 360.0
-    g = ((357.528 + 0.9856003 * n) % 360.0) * rad
-    lam = (L + 1.915 * np.sin(g) + 0.020 * np.sin(2 * g)) * rad
-    eps = (23.439 - 0.0000004 * n) * rad
-    r = (1.00014 - 0.01671 * np.cos(g) - 0.00014 * np.cos(2 * g)) * AU_M
-    x = r * np.cos(lam)
-    y = r * np.cos(eps) * np.sin(lam)
-    z = r * np.sin(eps) * np.sin(lam)
-    gmst_deg = (280.46061837 + 360.98564736629 * n) % 360.0
-    omega = (125.04 - 0.052954 * n) * rad
-    eqeq_deg = (-0.000319 * np.sin(omega) - 0.000024 * np.sin(2 * L * rad)) * 15.0
-    th = (gmst_deg + eqeq_deg) * rad
-    c, s = np.cos(th), np.sin(th)
-    return np.stack([c * x + s * y, -s * x + c * y, z], axis=-1)
+    from ..geodesy import sun_moon_ecef
+
+    t = np.atleast_1d(np.asarray(t_ns, dtype=np.int64))
+    dt = np.broadcast_to(np.asarray(dt_s, dtype=float), t.shape)
+    t = t + np.rint(dt * 1e9).astype(np.int64)
+    return sun_moon_ecef(t, time_scale="GPS")[0]
 
 
 def body_frame(pos_m: np.ndarray, sun_m: np.ndarray):
