@@ -858,7 +858,6 @@ def read_antex(path) -> AntexData:
 
 # ------------------------------------------------------------------ Sun
 
-AU_M = 149_597_870_700.0  # IAU 2012 astronomical unit
 
 
 def sun_position_ecef(t_ns, dt_s=0.0) -> np.ndarray:
