@@ -143,7 +143,7 @@ def test_edge_v304_events_georinex_stops_at_event(test_data):
     """georinex ends a RINEX 3 read at an event record whose time is blank; ctt reads on.
 
     The file's own text: line 33 is '>' + blank time + flag 4 with two header records
-    (RINEX 3.05 Table A13 allows a blank epoch for flags 2-4); data epochs follow.
+    (RINEX 3.05, observation data record description allows a blank epoch for flags 2-4); data epochs follow.
     """
     path = test_data / "obs" / "edge_v304_events.rnx"
     lines = path.read_text().splitlines()
@@ -163,7 +163,7 @@ def test_edge_v304_events_georinex_stops_at_event(test_data):
 
 
 def test_fractional_seconds_georinex_cuts_to_microseconds(test_data):
-    """Epoch seconds F11.7 (RINEX 3.05 Table A13): '0.1234567' is 123 456 700 ns.
+    """Epoch seconds F11.7 (RINEX 3.05, observation data record description): '0.1234567' is 123 456 700 ns.
     georinex keeps 123 456 us (int(float % 1 * 1e6)); ctt keeps the 100 ns digit."""
     path = test_data / "obs" / "edge_v304_events.rnx"
     first = path.read_text().splitlines()[14]
@@ -239,7 +239,7 @@ def test_written_rinex3_equals_georinex(tmp_path):
     g = _gr_load(path)
     # georinex cuts times to microseconds (see test above); compare values on its grid
     gt = g.time.values.astype("datetime64[ns]")
-    # the epoch seconds as the file's text gives them (F11.7, RINEX 3.05 Table A13)
+    # the epoch seconds as the file's text gives them (F11.7, RINEX 3.05, observation data record description)
     text = [ln for ln in path.read_text().splitlines() if ln.startswith(">")]
     frac_100ns = np.array([int(ln[22:29]) for ln in text])
     assert np.array_equal(ours.time_ns % 1_000_000_000, frac_100ns * 100)

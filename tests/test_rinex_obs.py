@@ -44,7 +44,7 @@ V3_HEADER = (
 
 
 def v3_epoch(sec: str, sats: list[str], flag=0, clock="") -> str:
-    """Epoch record '> yyyy mm dd hh mm ss.sssssss  f nnn' (RINEX 3.05 Table A13)."""
+    """Epoch record '> yyyy mm dd hh mm ss.sssssss  f nnn' (RINEX 3.05, observation data record description)."""
     ln = f"> 2021 01 01 00 00 {sec:>10}  {flag}{len(sats):3d}"
     if clock:
         ln = f"{ln:<41}{clock:>15}"
@@ -52,7 +52,7 @@ def v3_epoch(sec: str, sats: list[str], flag=0, clock="") -> str:
 
 
 def v3_sat(sv: str, *vals) -> str:
-    """Observation record: A3 then per type F14.3, I1 LLI, I1 SSI (RINEX 3.05 Table A13)."""
+    """Observation record: A3 then per type F14.3, I1 LLI, I1 SSI (RINEX 3.05, observation data record description)."""
     out = sv
     for v in vals:
         if v is None:
@@ -82,7 +82,7 @@ def write(tmp_path, name, text):
 
 def test_v3_values_times_indicators(tmp_path):
     d = read_obs(write(tmp_path, "a.rnx", small_v3()))
-    # epoch seconds F11.7 exactly to 100 ns, no float rounding (RINEX 3.05 Table A13)
+    # epoch seconds F11.7 exactly to 100 ns, no float rounding (RINEX 3.05, observation data record description)
     assert d.time_ns.dtype == np.int64
     assert d.time_ns.tolist() == [int(civil_to_ns(2021, 1, 1, 0, 0, 0, 123_456_700)),
                                   int(civil_to_ns(2021, 1, 1, 0, 0, 30, 123_456_700))]
@@ -100,7 +100,7 @@ def test_v3_values_times_indicators(tmp_path):
     assert d.ssi["L2W"][0, g] == 5 and d.lli["L2W"][0, g] == -1
     assert d.obs["C1C"][1, g] == 20000100.001 and d.obs["C2W"][1, g] == 20000105.5
     assert np.isnan(d.obs["C1C"][1, e])
-    # receiver clock offset F15.12, cols 42-56 (RINEX 3.05 Table A13), NaN when absent
+    # receiver clock offset F15.12, cols 42-56 (RINEX 3.05, observation data record description), NaN when absent
     assert d.clock_offset_s[0] == 0.000000123456 and np.isnan(d.clock_offset_s[1])
     assert d.epoch_flag.tolist() == [0, 0]
     h = d.header
@@ -297,7 +297,7 @@ def test_field_decoder_against_the_format_rule(seed):
 # ----------------------------------------------------------------- events and flags
 
 def test_v3_events_applied_and_recorded(test_data):
-    """RINEX 3.05 Table A13 epoch flags: 2-5 header records follow, 6 slip records."""
+    """RINEX 3.05, observation data record description epoch flags: 2-5 header records follow, 6 slip records."""
     d = read_obs(test_data / "obs" / "edge_v304_events.rnx")
     flags = [(e["flag"], e["line"]) for e in d.events]
     assert flags == [(2, 25), (4, 33), (5, 41), (6, 47), (3, 54)]
@@ -359,7 +359,7 @@ def test_v2_mixed_continuation_and_mapping(test_data):
 
 def test_v305_header_records(test_data):
     h = read_obs_header(test_data / "obs" / "edge_v305_mixed.rnx")
-    # values as written in the file's header (RINEX 3.05 Table A2 records)
+    # values as written in the file's header (RINEX 3.05 header section description)
     assert h.system == "M" and h.marker_type == "GEODETIC"
     assert len(h.obs_types["G"]) == 14 and h.obs_types["G"][-1] == "L2L"  # continuation line
     assert h.glonass_slots == {"R01": 1, "R12": -2}

@@ -35,10 +35,10 @@ Epoch flags (RINEX 2.11 and 3.05, "EPOCH/SAT" record)
 RINEX 2 observation codes
 -------------------------
 RINEX 2 two-letter codes are mapped to RINEX 3 three-character codes
-(band + tracking attribute, RINEX 3.05 section 5.1 and its table of
-observation codes). RINEX 2 does not say how a signal was tracked, so the
-choice per system is the one that fits what receivers of the RINEX 2 era
-delivered; the table is :data:`V2_TO_V3`:
+(band + tracking attribute, from the RINEX 3.05 table of observation codes;
+its section number, 5.1, from memory). RINEX 2 does not say how a signal
+was tracked, so the choice per system is the one that fits what receivers
+of the RINEX 2 era delivered; the table is :data:`V2_TO_V3`:
 
 ========  ========================================================================
 system    mapping
@@ -1220,7 +1220,8 @@ def _mark(bad_ep, bad_reason, ep, line, expected, found=None):
 
 def _clock_offsets(src, walk, ep_lines, v2, on_error):
     """Receiver clock offsets (s) of the data epochs: RINEX 2 F12.9 in columns 69-80,
-    RINEX 3/4 F15.12 in columns 42-56 (RINEX 2.11 Table A2, 3.05 Table A13)."""
+    RINEX 3/4 F15.12 in columns 42-56 (RINEX 2.11 Table A2; RINEX 3.05 observation
+    data record description)."""
     clock = np.full(len(ep_lines), np.nan)
     if not len(ep_lines):
         return clock
@@ -1277,8 +1278,8 @@ def read_obs(path, *, on_error: str = "raise", systems=None, codes=None) -> ObsD
         line, expected, found = bad_reason[ep]
         _bad(src, walk, on_error, line, expected, found)
     keep = ~(bad_time | bad_ep | np.isin(ep_lines, [ln - 1 for ln, _ in walk.errors]))
-    # epochs must increase: a repeated or earlier epoch is an error (RINEX 3.05 5.1:
-    # epochs in chronological order); only data epochs (flags 0, 1) are ordered
+    # epochs must increase: a repeated or earlier epoch is an error (common practice:
+    # RINEX data epochs are in time order); only data epochs (flags 0, 1) are ordered
     # An epoch not later than the latest one before it is dropped; dropping it never
     # changes that running maximum, so one cumulative maximum finds them all.
     kept = np.flatnonzero(keep)
