@@ -300,7 +300,8 @@ class Archive:
     def _insert_run(self, con, pair, date, status, run_info, messages):
         run_info = dict(run_info or {})
         inputs = run_info.get("inputs", {}) or {}
-        msgs = list(run_info.get("messages", []) or []) + list(messages or [])
+        msgs = list(run_info.get("messages", []) or [])
+        msgs += [m for m in (messages or []) if m not in msgs]
         cur = con.execute(
             "INSERT INTO runs (pair, date, status, inputs_json, inputs_hash, config_hash, version, messages,"
             " started_utc, finished_utc) VALUES (?,?,?,?,?,?,?,?,?,?)",
@@ -372,12 +373,14 @@ class Archive:
 
     # ------------------------------------------------------------ reading
 
-    def load_offsets(self, pair: str, date_from=None, date_to=None, system: str | None = None) -> pd.DataFrame:
+    def load_offsets(self, pair: str, date_from=None, date_to=None, system: str | None = None,
+                     extras: bool = True) -> pd.DataFrame:
         """Stored per-bin offsets of ``pair`` for dates ``date_from..date_to`` inclusive, sorted by time.
 
         Columns: ``time_utc`` (ISO, 9 digits, Z), ``time_utc_ns`` (int64), ``mjd_utc``,
         ``offset_ns``, ``u_ns``, ``n_sat``, ``flag``, ``system``, ``date``, plus any extra
-        columns stored. ``system`` selects one system's rows.
+        columns stored (``extras=False`` skips them: faster for long spans). ``system``
+        selects one system's rows.
         """
         q = ("SELECT time_utc, time_utc_ns, mjd_utc, offset_ns, u_ns, n_sat, flag, system, date, extra"
              " FROM offsets WHERE pair=?")
@@ -398,8 +401,8 @@ class Archive:
         df["time_utc_ns"] = df["time_utc_ns"].astype(np.int64)
         for c in ("mjd_utc", "offset_ns", "u_ns"):
             df[c] = df[c].astype(float)
-        if df["extra"].notna().any():
-            ext = pd.DataFrame([json.loads(e) if e else {} for e in df["extra"]], index=df.index)
+        if extras and df["extra"].notna().any():
+            ext = pd.DataFrame.from_records([json.loads(e) if e else {} for e in df["extra"]], index=df.index)
             df = pd.concat([df.drop(columns="extra"), ext], axis=1)
         else:
             df = df.drop(columns="extra")

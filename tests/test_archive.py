@@ -96,6 +96,7 @@ def test_extra_columns_and_nan(tmp_path):
         a.store_day(PAIR, DAY, off, None, {})
         got = a.load_offsets(PAIR)
         assert got["u_ns"].isna().all() and (got["u_type_a_ns"] == 0.25).all()
+        assert "u_type_a_ns" not in a.load_offsets(PAIR, extras=False).columns
 
 
 def test_failure_keeps_previous_results(tmp_path):
@@ -108,14 +109,14 @@ def test_failure_keeps_previous_results(tmp_path):
     with Archive(tmp_path / "a.sqlite") as a:
         a.store_day(PAIR, DAY, off, sat, {"inputs": rec, "config_hash": "c1"})
         done_before = a.days_done(PAIR)
-        a.record_failure(PAIR, DAY, "nav file truncated", {"config_hash": "c2"})
+        a.record_failure(PAIR, DAY, "nav file truncated", {"config_hash": "c2", "messages": ["nav file truncated"]})
         assert len(a.load_offsets(PAIR)) == len(off)          # kept
         info = a.day_info(PAIR, DAY)
         assert info["latest_status"] == "failed" and info["run_id"] != info["latest_run_id"]
         assert a.days_done(PAIR) == done_before
         runs = a.runs(PAIR, DAY)
         assert list(runs["status"]) == ["ok", "failed"]
-        assert "nav file truncated" in json.loads(runs["messages"].iloc[1])
+        assert json.loads(runs["messages"].iloc[1]) == ["nav file truncated"]   # once, not twice
         assert json.loads(runs["inputs_json"].iloc[0])["obs_a"]["sha256"] == rec["obs_a"]["sha256"]
         a.record_failure(PAIR, "2021-01-02", "no common satellites", {})
         assert "2021-01-02" not in a.days_done(PAIR)

@@ -108,7 +108,7 @@ def run(args) -> int:
         d0 = _dt.date.fromisoformat(to_iso(int(t.min()) - NS_PER_DAY)[:10])
         d1 = _dt.date.fromisoformat(to_iso(int(t.max()) + NS_PER_DAY)[:10])
         with Archive(pair.archive_path) as arch:
-            offsets = arch.load_offsets(pair.name, d0, d1)
+            offsets = arch.load_offsets(pair.name, d0, d1, extras=False)
         if offsets.empty:
             raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}")
     if type_b is None:

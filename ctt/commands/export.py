@@ -49,7 +49,7 @@ def run(args) -> int:
     if not pair.archive_path.exists():
         raise MissingInputError(f"{pair.archive_path}: archive not found (configured in {pair.path} [output])")
     with Archive(pair.archive_path) as arch:
-        df = arch.load_offsets(pair.name, d0, d1, system=args.system)
+        df = arch.load_offsets(pair.name, d0, d1, system=args.system, extras=False)
     if df.empty:
         raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
                           + (f" for system {args.system}" if args.system else ""))
