@@ -185,6 +185,7 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     code_noise_m = 0.3                  # sigma0 of sigma(el) = sigma0 / sin(el)
     phase_noise_m = 0.002
     signals = { G = ["C1C", "C2W", "C5Q"], E = ["C1C", "C5Q", "C7Q"] }
+    cycle_slips_per_h = 0.0             # random carrier-phase slips per satellite-hour (LLI set)
     [stations.delays]
     receiver_ns = { C1C = 25.1, C2W = 27.0, C5Q = 24.0, C7Q = 24.5 }
     cable_ns = 152.4
@@ -209,9 +210,11 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     [[stations.clock.noise]]
     type = "white_fm"                   # white_pm flicker_pm white_fm flicker_fm random_walk_fm
     adev_1s = 1.0e-11                   # or h = 2.0e-22
+    source = "caesium class, common practice"   # optional note
     [[stations.clock.steps]]
     time = 2021-01-01T10:00:00Z
     phase_ns = 5.0                      # and/or frequency = 1e-14
+    what = "clock swapped"              # optional
     [[stations.gaps]]
     start = 2021-01-01T04:00:00Z
     end = 2021-01-01T04:10:00Z
@@ -368,6 +371,7 @@ class ClockStep:
     time_utc_ns: int
     phase_ns: float = 0.0
     frequency: float = 0.0
+    what: str = ""
 
 
 @dataclasses.dataclass(frozen=True)
@@ -671,7 +675,8 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
     for j, s in enumerate(ck.get("steps", []), start=1):
         sw = f"{w}.clock.steps[{j}]"
         r.keys(s, {"time", "phase_ns", "frequency", "what"}, sw)
-        steps.append(ClockStep(r.utc(s, "time", sw), r.num(s, "phase_ns", sw, 0.0), r.num(s, "frequency", sw, 0.0)))
+        steps.append(ClockStep(r.utc(s, "time", sw), r.num(s, "phase_ns", sw, 0.0), r.num(s, "frequency", sw, 0.0),
+                               r.text(s, "what", sw, "")))
     clock = ClockSpec(offset_ns=r.num(ck, "offset_ns", f"{w}.clock", 0.0),
                       frequency_offset=r.num(ck, "frequency_offset", f"{w}.clock", 0.0),
                       drift_per_day=r.num(ck, "drift_per_day", f"{w}.clock", 0.0),
@@ -1213,11 +1218,11 @@ def _truth_tables(scn: Scenario, results: dict):
             if stp.phase_ns:
                 rows.append(dict(time_utc=ts.to_iso(stp.time_utc_ns, 0, "Z"), station=spec.id, kind="clock_phase",
                                  phase_ns=stp.phase_ns, frequency=0.0, apparent_step_ns=stp.phase_ns,
-                                 in_delays=False, what="clock phase step"))
+                                 in_delays=False, what=stp.what or "clock phase step"))
             if stp.frequency:
                 rows.append(dict(time_utc=ts.to_iso(stp.time_utc_ns, 0, "Z"), station=spec.id,
                                  kind="clock_frequency", phase_ns=0.0, frequency=stp.frequency, apparent_step_ns=0.0,
-                                 in_delays=False, what="clock frequency step"))
+                                 in_delays=False, what=stp.what or "clock frequency step"))
         first_code = next(iter(spec.signals.get("G", spec.signals.get("E", ("C1C",)))))
         for ch in spec.delay_changes:
             d = ch.receiver_ns.get(first_code, 0.0) + ch.cable_ns - ch.reference_ns

@@ -215,6 +215,37 @@ def test_station_and_pair_files_load_with_config(written):
 
 # ---------------------------------------------------------------- truth
 
+def test_truth_clock_has_the_configured_level(written):
+    """LABB: white FM σ_y(1 s) = 1e-13 only, so σ_y(30 s) = 1e-13/√30 (NIST SP 1065 slope −1/2)."""
+    allantools = pytest.importorskip("allantools")
+    res, out = written
+    x = pd.read_csv(out / "truth.csv")["LABB_ns"].to_numpy() * 1e-9
+    _, dev, _, _ = allantools.oadev(x, rate=1 / 30.0, data_type="phase", taus=[30.0])
+    edf = allantools.edf_greenhall(alpha=0, d=2, m=1, N=x.size, overlapping=True, modified=False)
+    lo, hi = allantools.confidence_interval(dev[0], edf, ci=0.99)
+    assert lo <= 1e-13 / math.sqrt(30.0) <= hi
+
+
+def test_cycle_slips_are_integer_jumps_with_lli():
+    data = _quiet(_datetime_fix(_base(hours=1.0)))
+    data["stations"][0]["cycle_slips_per_h"] = 2.0
+    data["stations"] = data["stations"][:1]
+    res = simulate(scenario_from_dict(data))
+    r = res.stations["LABA"]
+    lam = C_MPS / 1575.42e6
+    # quiet scenario: code minus phase on L1 is the ambiguity alone (no ionosphere, no noise)
+    gd = np.where(np.array([s[0] == "G" for s in r.sats])[None, :], r.parts[("G", "C1C")]["gd"],
+                  r.parts[("E", "C1C")]["gd"])
+    amb = (r.obs["C1C"] - gd) / lam - r.obs["L1C"]
+    jump = np.diff(amb, axis=0)
+    both = np.isfinite(jump)
+    slipped = both & (np.abs(jump) > 0.5)
+    np.testing.assert_allclose(jump[both], np.round(jump[both]), rtol=0, atol=0.01)
+    assert slipped.sum() >= 5
+    # every jump between tracked epochs carries LLI bit 0 on the later epoch
+    assert np.all(r.lli["L1C"][1:][slipped] == 1)
+
+
 def test_steps_in_truth_tables(written):
     res, out = written
     truth = pd.read_csv(out / "truth.csv")
