@@ -35,8 +35,8 @@ Epoch flags (RINEX 2.11 and 3.05, "EPOCH/SAT" record)
 RINEX 2 observation codes
 -------------------------
 RINEX 2 two-letter codes are mapped to RINEX 3 three-character codes
-(band + tracking attribute, from the RINEX 3.05 table of observation codes;
-its section number, 5.1, from memory). RINEX 2 does not say how a signal
+(band + tracking attribute: RINEX 3.04 section 5.1 "Observation codes",
+Tables 4-10 per system; 3.05 keeps them). RINEX 2 does not say how a signal
 was tracked, so the choice per system is the one that fits what receivers
 of the RINEX 2 era delivered; the table is :data:`V2_TO_V3`:
 
