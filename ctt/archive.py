@@ -51,7 +51,7 @@ import datetime as _dt
 import numpy as np
 import pandas as pd
 
-from .errors import ConfigError, LockTimeoutError, ProcessingError
+from .errors import ConfigError, FileFormatError, LockTimeoutError, ProcessingError
 from .timescales import parse_iso_array, to_iso, to_mjd_float
 
 __all__ = ["Archive", "file_sha256", "inputs_record", "OFFSET_COLUMNS", "offsets_checksum"]
@@ -227,9 +227,15 @@ class Archive:
             self._con = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
         except sqlite3.Error as exc:
             raise ConfigError(self.path, None, f"cannot open the archive: {exc}") from None
-        self._con.execute("PRAGMA foreign_keys = ON")
-        self._con.execute("PRAGMA synchronous = FULL")  # a committed day survives power loss too
-        self._with_lock("open", self._init_schema)
+        try:
+            self._con.execute("PRAGMA foreign_keys = ON")
+            self._con.execute("PRAGMA synchronous = FULL")  # a committed day survives power loss too
+            self._with_lock("open", self._init_schema)
+        except sqlite3.DatabaseError as exc:
+            if isinstance(exc, sqlite3.OperationalError) and "locked" in str(exc):
+                raise
+            self._con.close()
+            raise FileFormatError(self.path, None, "an SQLite archive written by ctt", str(exc)) from None
 
     # ------------------------------------------------------------ plumbing
 

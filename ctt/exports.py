@@ -622,7 +622,11 @@ _HEAD_RE = {
 def read_cggtts(path):
     """Read a version 2E file -> (CggttsHeader, tracks DataFrame); checksums verified."""
     path = pathlib.Path(path)
-    raw = path.read_bytes()
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        from .errors import MissingInputError
+        raise MissingInputError(f"{path}: CGGTTS file not found") from None
     try:
         text = raw.decode("ascii")
     except UnicodeDecodeError as exc:

@@ -21,7 +21,7 @@ import pandas as pd
 import pytest
 
 from ctt.archive import Archive, inputs_record, offsets_checksum
-from ctt.errors import EXIT_LOCKED, LockTimeoutError
+from ctt.errors import EXIT_LOCKED, FileFormatError, LockTimeoutError
 from ctt.timescales import parse_iso
 
 PAIR = "laba-labb"
@@ -138,6 +138,15 @@ def test_days_done_and_stale(tmp_path):
         assert a.stale_days(PAIR) == {"2021-01-03": "cable delay recalibrated"}
         assert a.days_done(PAIR)["2021-01-02"][1] == "c2"
         assert a.days_done("other-pair") == {}
+
+
+def test_not_an_archive(tmp_path):
+    p = tmp_path / "junk.sqlite"
+    p.write_bytes(b"this is not a database file at all" * 200)
+    with pytest.raises(FileFormatError) as ei:
+        Archive(p)
+    assert str(p) in str(ei.value) and "SQLite archive" in str(ei.value)
+    assert p.read_bytes().startswith(b"this is not")        # left untouched
 
 
 def test_repeated_times_refused(tmp_path):
