@@ -24,8 +24,9 @@ Time tags. A timing receiver steers its time tags to GPS time; the common
 case simulated here is that the RINEX time tags are exact nominal epochs
 ``t_tag = start + k·interval`` read on the receiver's clock. With
 ``x(t) = local clock − GPS time`` (the truth, seconds) the true receive
-instant in GPS time is ``t_r = t_tag − x(t_r)`` (solved by one fixed-point
-step; x changes by < 1e-11 of itself meanwhile).
+instant in GPS time is ``t_r = t_tag − x(t_r)``; x is taken at the time tag
+(between t_tag and t_r it changes by |y|·|x| < 1e-11·|x|, far below 1 ps).
+``truth.csv`` gives x at every time tag.
 
 Light time. The transmit instant ``t_t = t_r − τ`` solves, exactly, the
 geometric light-time equation in the Earth-fixed frame of ``t_r``::

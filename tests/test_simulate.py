@@ -132,6 +132,16 @@ def test_project_reader_reads_back_exactly(written):
                 np.testing.assert_array_equal(np.where(o.lli[code] < 0, 0, o.lli[code]),
                                               r.lli[code][r.epoch_kept][:, idx])
         assert n_values > 10_000
+    # the RINEX 2.11 file too (GPS; the reader maps C1/L1/P2/L2 to C1C/L1C/C2W/L2W, RINEX 3.05 §5.1)
+    r = res.stations["LABA"]
+    o2 = obs_mod.read_obs(res.files["obs2"][0])
+    assert o2.header.version == pytest.approx(2.11)
+    idx = [r.sats.index(s) for s in o2.sats]
+    for code in ("C1C", "L1C", "C2W", "L2W", "S1C"):
+        mine = r.obs[code][r.epoch_kept][:, idx]
+        got = o2.obs[code]
+        assert np.array_equal(np.isfinite(got), np.isfinite(mine)), code
+        np.testing.assert_allclose(got[np.isfinite(got)], mine[np.isfinite(mine)], rtol=0, atol=5e-4)
 
 
 def test_georinex_reads_the_files(written):
