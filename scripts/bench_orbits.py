@@ -5,7 +5,8 @@ positions + velocities + clocks from the real merged broadcast file
 ``../shared/data/real-2021-001/brdc0010.21n`` through
 ``BroadcastOrbits.states``, which includes the per-row ephemeris selection.
 Also times the same for a transmission-time offset array (dt_s), as the
-measurement model calls it, and the reader on that file.
+measurement model calls it, the reader on that file, and the GLONASS RK4
+integrator alone for 24 satellites x 2880 epochs.
 
 Target (DESIGN.md performance budget): <= 0.2 s for the 92 160 rows.
 The machine is shared, so figures are noisy; the script reports the median
@@ -27,7 +28,7 @@ import numpy as np
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from ctt.orbits import STATUS_NAMES, BroadcastOrbits  # noqa: E402
+from ctt.orbits import STATUS_NAMES, BroadcastOrbits, glonass_propagate, glonass_states_from_records  # noqa: E402,E501
 from ctt.rinex.nav import read_nav  # noqa: E402
 from ctt.timescales import civil_to_ns  # noqa: E402
 
@@ -69,6 +70,22 @@ def main(argv=None):
     st = orb.states(s, t, dt)
     names, counts = np.unique(st.status, return_counts=True)
     print("status:", ", ".join(f"{STATUS_NAMES[k]} {c}" for k, c in zip(names, counts)))
+    # GLONASS: RK4 integration for 24 satellites x 2880 epochs, each row at most 15 min from the
+    # t_b of its record (48 records per satellite and day), as states() does it (one integration
+    # per record to 60 s nodes, then one step per row), and row by row for comparison
+    rng = np.random.default_rng(0)
+    m, nrec = 24 * 2880, 24 * 48
+    base_r = np.tile([[8450493.65, -18744716.80, 15109795.41]], (nrec, 1))
+    base_v = np.tile([[1381.17, -1543.29, -2684.22]], (nrec, 1))
+    r0, v0 = glonass_propagate(base_r, base_v, np.zeros((nrec, 3)), rng.uniform(0, 40000, nrec))
+    a0 = np.zeros((nrec, 3))
+    rec = np.repeat(np.arange(nrec), m // nrec)
+    dts = np.tile(np.arange(-900.0, 900.0, 30.0), nrec)
+    runs = max(3, args.runs // 2)
+    med3, best3 = _time(lambda: glonass_states_from_records(rec, r0, v0, a0, dts), runs)
+    print(f"GLONASS RK4 via record nodes, {m} rows: median {med3 * 1e3:.1f} ms, min {best3 * 1e3:.1f} ms")
+    med4, best4 = _time(lambda: glonass_propagate(r0[rec], v0[rec], a0[rec], dts), runs)
+    print(f"GLONASS RK4 row by row (<= 15 steps each): median {med4 * 1e3:.1f} ms, min {best4 * 1e3:.1f} ms")
     return 0
 
 
