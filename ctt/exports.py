@@ -109,7 +109,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import FileFormatError, NoDataError, ProcessingError, UsageError
-from .timescales import NS_PER_DAY, EPOCH_MJD, from_mjd, parse_iso_array, to_iso, to_mjd, to_mjd_float
+from .timescales import EPOCH_MJD, NS_PER_DAY, parse_iso_array, to_iso, to_mjd_float
 
 __all__ = ["write_offsets", "read_offsets_csv", "write_cggtts", "read_cggtts", "CggttsHeader", "cggtts_checksum",
            "TRACK_COLUMNS", "read_events", "parse_iso_exact", "parse_mjd_exact", "correct_events",

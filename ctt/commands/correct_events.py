@@ -20,7 +20,6 @@ import logging
 import pathlib
 
 import numpy as np
-import pandas as pd
 
 from ..archive import Archive
 from ..config import load_pair
