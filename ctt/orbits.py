@@ -65,7 +65,9 @@ For each row the record of that satellite is chosen that is
   time t_k) not after the instant, unless ``allow_future=True``; where a file
   gives no transmission time the start of the validity interval is used. This
   is the receiver's view: a GPS data set is first broadcast about 2 h before
-  its t_oe, so a rule "t_oe not after t" would force the previous, older set;
+  its t_oe, so a rule "t_oe not after t" would force the previous, older set
+  (that stricter rule is available as ``available_from='reference'``: a
+  record then counts only from its t_oe / t_b on);
 * and among those the one whose t_oe (t_b) is closest to the instant.
 
 The record is chosen for the instant ``t_ns`` alone (``dt_s``, a light time of
@@ -410,7 +412,7 @@ def glonass_states_from_records(rec, r0, v0, a0, dt_s, step_s=60.0):
 class _SystemTable:
     """Records of one system, sorted by (satellite, reference epoch), with selection helpers."""
 
-    def __init__(self, s, df, galileo_source):
+    def __init__(self, s, df, galileo_source, available_from="transmission"):
         self.s = s
         self.df = df
         sats = df["sat"].to_numpy().astype(str)
@@ -431,6 +433,8 @@ class _SystemTable:
         else:
             ttm = df["ttm_ns"].to_numpy()
             avail = np.where(ttm == _I64MIN, ref - half, ttm)
+        if available_from == "reference":
+            avail = ref  # a record counts from its t_oe / t_b on
         self.avail_ns = avail.astype(np.int64)
         # static checks -> a reason code per record (OK when usable)
         st = np.full(len(df), OK, dtype=np.int64)
@@ -608,9 +612,14 @@ _KEP_COLS = ["sqrt_a_sqrtm", "delta_n_radps", "e", "m0_rad", "omega_rad", "cus_r
 class BroadcastOrbits:
     """Satellite states from a :class:`ctt.rinex.nav.NavData` (see the module docstring)."""
 
-    def __init__(self, nav: NavData, *, galileo_source="inav", allow_future=False, bias_file=None):
+    def __init__(self, nav: NavData, *, galileo_source="inav", allow_future=False, bias_file=None,
+                 available_from="transmission"):
         if galileo_source not in ("inav", "fnav"):
             raise ValueError("galileo_source must be 'inav' (E1/E5b) or 'fnav' (E5a)")
+        if available_from not in ("transmission", "reference"):
+            raise ValueError("available_from must be 'transmission' (message transmission time) or "
+                             "'reference' (t_oe / t_b)")
+        self.available_from = available_from
         if bias_file is not None:
             raise NotImplementedError("external satellite bias files are not supported yet; "
                                       "use the broadcast group delays (bias_file=None)")
@@ -621,7 +630,7 @@ class BroadcastOrbits:
         self._tables = {}
         for s, df in nav.records.items():
             if s in _SCALE and len(df):
-                self._tables[s] = _SystemTable(s, df, galileo_source)
+                self._tables[s] = _SystemTable(s, df, galileo_source, available_from)
                 self._tables[s].build_table(self.allow_future)
         self._cols = {}
         for s, tab in self._tables.items():

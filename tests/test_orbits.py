@@ -434,3 +434,18 @@ def test_glonass_node_integration_matches_row_by_row(mixed):
     p1, v1 = orbits.glonass_states_from_records(rec, r0, v0, a0, dt)
     p2, v2 = orbits.glonass_propagate(r0[rec], v0[rec], a0[rec], dt)
     assert np.max(np.abs(p1 - p2)) < 1e-3 and np.max(np.abs(v1 - v2)) < 1e-6
+
+
+def test_reference_epoch_rule(brdc):
+    # available_from='reference': no record whose t_oe is after the instant is used
+    rng = np.random.default_rng(5)
+    t = civil_to_ns(2020, 12, 31, 22, 0, 0) + rng.integers(0, 26 * 3600, 2000) * 10**9
+    sats = np.array([f"G{p:02d}" for p in rng.integers(1, 33, 2000)])
+    o = BroadcastOrbits(brdc, available_from="reference")
+    st = o.states(sats, t)
+    ok = st.status == orbits.OK
+    assert ok.mean() > 0.9
+    assert np.all(st.toe_gps_ns[ok] <= t[ok])
+    # while the default (transmission time) uses the set on the air, often with t_oe ahead
+    st2 = BroadcastOrbits(brdc).states(sats, t)
+    assert np.any(st2.toe_gps_ns[st2.status == 0] > t[st2.status == 0])
