@@ -339,7 +339,6 @@ class _Source:
         self.starts = starts.astype(np.int64)
         self.ends = ends.astype(np.int64)
         self.n = len(starts)
-        self.ends_with_newline = raw.endswith(b"\n")
         self._pad = None
 
     def line(self, i: int) -> str:
@@ -371,9 +370,6 @@ class _Source:
 
 _DIGIT_LUT = np.full(256, -1, np.int8)
 _DIGIT_LUT[48:58] = np.arange(10)
-_IND_LUT = np.full(256, -2, np.int8)  # -2: invalid character
-_IND_LUT[48:58] = np.arange(10)
-_IND_LUT[32] = -1
 
 
 def _int_fields(m: np.ndarray, allow_blank=False):
@@ -612,7 +608,7 @@ def _parse_header(src: _Source) -> ObsHeader:
         if pending is not None and label in ("# / TYPES OF OBSERV", "SYS / # / OBS TYPES") \
                 and body[:6].strip() == "" and (not body[:1].strip()):
             kind, s, remaining = pending
-            codes = body[6:60].split() if kind == "v3" else body[6:60].split()
+            codes = body[6:60].split()
             if kind == "v2":
                 v2_types += codes
                 remaining -= len(codes)
