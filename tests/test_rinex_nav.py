@@ -219,3 +219,13 @@ def test_gzip_file_reads_the_same(tmp_path):
     a = read_nav(p).records["G"]
     b = read_nav(_write(tmp_path, V2_HEADER + V2_REC)).records["G"]
     assert a.equals(b)
+
+
+def test_blank_lines_in_body_are_ignored_with_true_line_numbers(tmp_path):
+    text = V2_HEADER + "\n" + V2_REC + "\n\n" + V2_REC.replace(" 2 20 12 31 22", " 3 20 12 31 22")
+    nav = read_nav(_write(tmp_path, text))
+    assert list(nav.records["G"].line) == [8, 18] and nav.dropped == []
+    bad = text.replace("-7.018750000000D+01", "-7.01875000000xD+01", 1)
+    with pytest.raises(RinexFormatError) as ei:
+        read_nav(_write(tmp_path, bad, "bad.21n"))
+    assert ei.value.line == 9 and bad.splitlines()[8].startswith("    5.9")

@@ -252,6 +252,20 @@ def _parse_header(lines, name):
 
 # ------------------------------------------------------------------ body
 
+class _Lines(list):
+    """The file's lines with blank body lines removed; ``num[i]`` is the 1-based file line of item i."""
+
+    num: np.ndarray
+
+
+def _lno(lines, i):
+    """1-based file line number(s) of list index(es) ``i``."""
+    num = getattr(lines, "num", None)
+    if num is None:
+        return np.asarray(i) + 1 if np.ndim(i) else int(i) + 1
+    return num[np.asarray(i)] if np.ndim(i) else int(num[i])
+
+
 def _split_records(lines, start, hdr, name):
     """Find record starts. Returns per-system lists of (line_index, n_lines) and skips."""
     v = hdr.version
@@ -325,7 +339,7 @@ def _bulk_floats(lines, recs, nlines, first_off, cont_off, fields, optional, nam
     if bad_blank.any():
         r, f = np.argwhere(bad_blank)[0]
         k, c = where[f]
-        raise RinexFormatError(name, recs[r] + k + 1,
+        raise RinexFormatError(name, _lno(lines, recs[r] + k),
                                f"a number (D19.12) for {names[f]} in columns {c + 1}-{c + W}",
                                lines[recs[r] + k])
     chars[blank] = np.frombuffer(b"nan".ljust(W), dtype=np.uint8)
@@ -340,7 +354,7 @@ def _bulk_floats(lines, recs, nlines, first_off, cont_off, fields, optional, nam
                 except ValueError:
                     k, c = where[f]
                     raise RinexFormatError(
-                        name, recs[r] + k + 1,
+                        name, _lno(lines, recs[r] + k),
                         f"a number (D19.12) for {names[f]} in columns {c + 1}-{c + W}",
                         lines[recs[r] + k]) from None
         raise
@@ -366,7 +380,7 @@ def _parse_epochs(lines, recs, v3, name):
                 try:
                     float(t)
                 except ValueError:
-                    raise RinexFormatError(name, recs[r] + 1,
+                    raise RinexFormatError(name, _lno(lines, recs[r]),
                                            f"a satellite number and epoch (numbers in columns {a + 1}-{b})",
                                            lines[recs[r]]) from None
             raise
@@ -377,7 +391,8 @@ def _parse_epochs(lines, recs, v3, name):
             & (mm >= 0) & (mm < 60) & (ss >= 0) & (ss < 61) & (prn >= 1) & (prn == np.floor(prn)))
     if bad.any():
         r = int(np.argmax(bad))
-        raise RinexFormatError(name, recs[r] + 1, "a valid satellite number and epoch (yyyy mm dd hh mm ss)",
+        raise RinexFormatError(name, _lno(lines, recs[r]),
+                               "a valid satellite number and epoch (yyyy mm dd hh mm ss)",
                                lines[recs[r]])
     return prn.astype(np.int64), year, mon, day, hh, mm, ss
 
@@ -388,11 +403,11 @@ def _parse_system(s, lines, entries, hdr, name, dropped):
     ok = []
     for a, nl, msg in entries:
         if nl < min_l:
-            dropped.append((a + 1, f"{s} record has {nl} lines, expected {min_l}"))
+            dropped.append((_lno(lines, a), f"{s} record has {nl} lines, expected {min_l}"))
             continue
         if nl > max_l:
             # more lines than the layout: keep the layout's lines, note the extra ones
-            dropped.append((a + max_l + 1, f"{nl - max_l} unexpected line(s) after a {s} record ignored"))
+            dropped.append((_lno(lines, a + max_l), f"{nl - max_l} unexpected line(s) after a {s} record ignored"))
         ok.append((a, min(nl, max_l), msg))
     if not ok:
         return None
@@ -412,7 +427,7 @@ def _parse_system(s, lines, entries, hdr, name, dropped):
                           hh.astype(np.int64), mm.astype(np.int64), ss)
         df.insert(0, "toc_ns", toc)
         df.insert(0, "message", [e[2] for e in sub])
-        df.insert(0, "line", np.asarray(recs, dtype=np.int64) + 1)
+        df.insert(0, "line", np.asarray(_lno(lines, np.asarray(recs, dtype=np.int64)), dtype=np.int64))
         df.insert(0, "sat", np.char.add(s, np.char.zfill(prn.astype(str), 2)))
         frames.append(df)
     df = pd.concat(frames, ignore_index=True) if len(frames) > 1 else frames[0]
@@ -500,6 +515,12 @@ def read_nav(path) -> NavData:
     text = read_text(path)
     lines = text.splitlines()
     hdr, body = _parse_header(lines, name)
+    if any(not ln.strip() for ln in lines[body:]):
+        # blank lines inside the body carry nothing; drop them but keep the file's line numbers
+        keep = [i for i in range(body, len(lines)) if lines[i].strip()]
+        filtered = _Lines(lines[:body] + [lines[i] for i in keep])
+        filtered.num = np.concatenate([np.arange(1, body + 1), np.asarray(keep, dtype=np.int64) + 1])
+        lines = filtered
     groups, dropped, skipped = _split_records(lines, body, hdr, name)
     records = {}
     for s, entries in groups.items():
