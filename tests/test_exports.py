@@ -239,6 +239,14 @@ def test_correct_events_command(archived_pair, capsys):
     assert r["offset_ns"].iloc[0] == pytest.approx(100 + 0.01 * 43215, abs=1e-6)
     assert r["corrected_time_utc"].iloc[0] == "2021-01-01T12:00:15.000000533Z"   # +532.15 ns, rounded
     assert r["u_ns"].iloc[0] >= 2.5
+    # without --type-b-ns, the daily run folders' summary.json give it (the larger of the days)
+    for day, ub in (("2021-01-01", 1.5), ("2021-01-02", 4.0)):
+        d = archived_pair / "out" / "laba-labb" / day
+        d.mkdir(parents=True)
+        (d / "summary.json").write_text(json.dumps({"budget": {"type_b_ns": ub}}))
+    assert main(["correct-events", "--config", str(archived_pair / "pair.toml"), "--events", str(ev),
+                 "--out", str(outp)]) == 0
+    assert pd.read_csv(outp)["u_type_b_ns"].iloc[0] == 4.0
 
 
 def test_correct_events_from_run_dir_and_baseline(archived_pair, capsys):

@@ -6,7 +6,9 @@
 The offsets (clock A minus clock B) come from the pair's archive, or with
 ``--from-dir`` from a run folder's ``offset.csv``; the type-B uncertainty from
 ``--type-b-ns``, else from the run folder's ``summary.json`` (``budget.type_b_ns``)
-when present, else 0 with a warning. TDEV is measured on the series itself.
+when present (from the archive: the daily run folders
+``<output dir>/<pair>/<date>/summary.json`` of the days spanned, the largest
+value), else 0 with a warning. TDEV is measured on the series itself.
 See :mod:`ctt.exports` for the formulas. ``--baseline`` prints the chord
 between the two antenna reference points with its uncertainty and the light
 time (and may be used without ``--events``).
@@ -110,6 +112,14 @@ def run(args) -> int:
             offsets = arch.load_offsets(pair.name, d0, d1, extras=False)
         if offsets.empty:
             raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}")
+        if type_b is None:
+            # the daily runs' folders (<output dir>/<pair>/<date>/summary.json): the largest
+            # type-B value of the days spanned (conservative when a calibration changed)
+            found = [_type_b_from_summary(pathlib.Path(pair.output_dir) / pair.name / str(d))
+                     for d in sorted(set(offsets["date"]))] if "date" in offsets.columns else []
+            found = [v for v in found if v is not None]
+            if found:
+                type_b = max(found)
     if type_b is None:
         log.warning("no type-B uncertainty given (--type-b-ns) or found (summary.json): "
                     "event uncertainties exclude calibration")
