@@ -53,7 +53,7 @@ def format_summary(s: dict) -> str:
         f"offset H/E/N {dh[0]:.4f} {dh[1]:.4f} {dh[2]:.4f} m")
     add(f"position       {_fmt_pos(s['approx_position_m'])}")
     add(f"time system    {s['time_system']}")
-    add(f"span           {s['first_epoch'] or '-'}  to  {s['last_epoch'] or '-'}")
+    add(f"span           {s['first_epoch'] or '-'}  to  {s['last_epoch'] or '-'}  ({s['time_system']} time)")
     iv = s["interval_s"]
     add(f"interval       {iv:g} s" if math.isfinite(iv) else "interval       (unknown)")
     add(f"epochs         {s['n_epochs']}")

@@ -268,7 +268,7 @@ class ObsData:
         if out["n_gaps"]:
             k = int(np.argmax(d))
             out["longest_gap_s"] = float(d[k] - step) / NS_PER_S
-            out["longest_gap_after"] = str(to_iso(self.time_ns[k]))
+            out["longest_gap_after"] = str(to_iso(self.time_ns[k], 7, ""))
         return out
 
     def summary(self) -> dict:
