@@ -5,7 +5,9 @@ writes, for every station, a RINEX 3.04 observation file (code, carrier phase
 and signal strength; optionally RINEX 2.11 too), a RINEX 2.11 meteorological
 file and a station TOML file for :mod:`ctt.config`; one RINEX 3.04
 navigation file; a pair TOML file per pair; ``truth.csv`` (the true clock
-offsets) and ``truth_steps.csv`` (the true steps).
+offsets) and ``truth_steps.csv`` (the true steps). A scenario longer than a
+day is written as one observation, navigation and met file per GPS day (the
+pair file's patterns then end in a glob, so every date resolves).
 
 The forward model is written here on purpose and does not call the
 measurement code of :mod:`ctt.measure` (light time, Sagnac, relativity, delay
@@ -1282,52 +1284,72 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
     files = {"obs": [], "obs2": [], "met": [], "station": [], "pair": [], "nav": [], "truth": []}
     comments = [f"simulated by ctt: scenario {scn.name}", f"random_state {scn.random_state}",
                 "synthetic data: invented stations and clocks"]
-    # navigation
-    if res.nav_records:
-        week, sow = ts.gps_week_sow(t[0])
-        nav_path = out / nav_file_name(int(t[0]), duration_s, gz)
-        write_nav3(nav_path, res.nav_records,
-                   iono={"GPSA": res.iono_alpha, "GPSB": res.iono_beta, "GAL": [60.0, 0.2, 0.003]},
-                   time_corrections={"GPUT": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week)),
-                                     "GAGP": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week))},
-                   leap_seconds=leap, run_ns=int(t[0]), comments=comments[:1])
-        nav_name = nav_path.name
+    # one set of files per GPS day when the scenario is longer than a day, else one set
+    day = t // ts.NS_PER_DAY
+    if duration_s > 86400:
+        segments = [np.flatnonzero(day == d) for d in np.unique(day)]
     else:
-        src = scn.satellites["nav_file"]
-        nav_name = src.name
-        if (out / nav_name).resolve() != src.resolve():
-            shutil.copyfile(src, out / nav_name)
-        nav_path = out / nav_name
-    files["nav"].append(nav_path)
+        segments = [np.arange(t.size)]
+    split = len(segments) > 1
     met_step = max(1, int(round(scn.output["met_interval_s"] / scn.interval_s)))
+    nav_names = []
+    for seg in segments:
+        ts0, ts1 = int(t[seg[0]]), int(t[seg[-1]])
+        seg_s = seg.size * scn.interval_s
+        # navigation
+        if res.nav_records:
+            week, sow = ts.gps_week_sow(ts0)
+            margin = 4 * 3600 * NS
+            recs = [rc for rc in res.nav_records if ts0 - margin <= rc["toc_ns"] <= ts1 + margin]
+            nav_path = out / nav_file_name(ts0, seg_s, gz)
+            write_nav3(nav_path, recs,
+                       iono={"GPSA": res.iono_alpha, "GPSB": res.iono_beta, "GAL": [60.0, 0.2, 0.003]},
+                       time_corrections={"GPUT": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week)),
+                                         "GAGP": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week))},
+                       leap_seconds=leap, run_ns=int(t[0]), comments=comments[:1])
+            files["nav"].append(nav_path)
+        elif not files["nav"]:
+            src = scn.satellites["nav_file"]
+            if (out / src.name).resolve() != src.resolve():
+                shutil.copyfile(src, out / src.name)
+            files["nav"].append(out / src.name)
+        for sid, r in res.stations.items():
+            spec = r.spec
+            obs_types = {s: [k + c[1:] for c in spec.signals[s] for k in "CLS"]
+                         for s in scn.systems if s in spec.signals}
+            sub = {k: v[seg] for k, v in r.obs.items()}
+            sub_lli = {k: v[seg] for k, v in r.lli.items()}
+            sub_ssi = {k: v[seg] for k, v in r.ssi.items()}
+            if not any(np.isfinite(v).any() for v in sub.values()):
+                continue
+            p = write_obs3(out / obs_file_name(sid, ts0, seg_s, scn.interval_s, gz), marker=sid,
+                           time_ns=t[seg], sats=r.sats, obs=sub, types=obs_types, lli=sub_lli, ssi=sub_ssi,
+                           interval_s=scn.interval_s, approx_xyz_m=spec.marker_m,
+                           antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
+                           receiver_number=f"{sid}-RX1", receiver_version="1.0", antenna_type=spec.antenna_type,
+                           antenna_number=f"{sid}-ANT1", observer="ctt simulate", agency=spec.name,
+                           leap_seconds=leap, run_ns=int(t[0]), comments=comments, epoch_flags=r.epoch_flag[seg])
+            files["obs"].append(p)
+            if scn.output["rinex2"] and "G" in spec.signals:
+                y = int(ts.ns_to_civil(np.int64(ts0))[0])
+                doy = int(ts.day_of_year(np.int64(ts0)))
+                name2 = f"{sid[:4].lower()}{doy:03d}0.{y % 100:02d}o" + (".gz" if gz else "")
+                codes = [k + c[1:] for c in spec.signals["G"] for k in "CLS"]
+                files["obs2"].append(write_obs2(
+                    out / name2, marker=sid, time_ns=t[seg], sats=r.sats, obs=sub, codes=codes, lli=sub_lli,
+                    ssi=sub_ssi, interval_s=scn.interval_s, approx_xyz_m=spec.marker_m,
+                    antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
+                    antenna_type=spec.antenna_type, observer="ctt simulate", agency=spec.name, leap_seconds=leap,
+                    run_ns=int(t[0])))
+            lat, lon, hgt = (float(v) for v in ecef_to_geodetic(spec.marker_m))
+            mi = seg[(seg - seg[0]) % met_step == 0]
+            files["met"].append(write_met2(out / met_file_name(sid, ts0), marker=sid, time_ns=t[mi],
+                                           pressure_hpa=r.met["p"][mi], temperature_c=r.met["t"][mi],
+                                           humidity_pct=r.met["rh"][mi],
+                                           sensor_xyz_h_m=(*spec.marker_m, hgt), run_ns=int(t[0])))
+    nav_name = files["nav"][0].name
     for sid, r in res.stations.items():
         spec = r.spec
-        obs_types = {s: [k + c[1:] for c in spec.signals[s] for k in "CLS"] for s in scn.systems if s in spec.signals}
-        p = write_obs3(out / obs_file_name(sid, int(t[0]), duration_s, scn.interval_s, gz), marker=sid,
-                       time_ns=t, sats=r.sats, obs=r.obs, types=obs_types, lli=r.lli, ssi=r.ssi,
-                       interval_s=scn.interval_s, approx_xyz_m=spec.marker_m,
-                       antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
-                       receiver_number=f"{sid}-RX1", receiver_version="1.0", antenna_type=spec.antenna_type,
-                       antenna_number=f"{sid}-ANT1", observer="ctt simulate", agency=spec.name,
-                       leap_seconds=leap, run_ns=int(t[0]), comments=comments, epoch_flags=r.epoch_flag)
-        files["obs"].append(p)
-        if scn.output["rinex2"] and "G" in spec.signals:
-            y = int(ts.ns_to_civil(np.int64(t[0]))[0])
-            doy = int(ts.day_of_year(np.int64(t[0])))
-            name2 = f"{sid[:4].lower()}{doy:03d}0.{y % 100:02d}o" + (".gz" if gz else "")
-            codes = [k + c[1:] for c in spec.signals["G"] for k in "CLS"]
-            files["obs2"].append(write_obs2(out / name2, marker=sid, time_ns=t, sats=r.sats, obs=r.obs, codes=codes,
-                                            lli=r.lli, ssi=r.ssi, interval_s=scn.interval_s,
-                                            approx_xyz_m=spec.marker_m, antenna_delta_hen_m=spec.antenna_delta_hen_m,
-                                            receiver_type=spec.receiver_type, antenna_type=spec.antenna_type,
-                                            observer="ctt simulate", agency=spec.name, leap_seconds=leap,
-                                            run_ns=int(t[0])))
-        lat, lon, hgt = (float(v) for v in ecef_to_geodetic(spec.marker_m))
-        mi = np.arange(0, t.size, met_step)
-        files["met"].append(write_met2(out / met_file_name(sid, int(t[0])), marker=sid, time_ns=t[mi],
-                                       pressure_hpa=r.met["p"][mi], temperature_c=r.met["t"][mi],
-                                       humidity_pct=r.met["rh"][mi],
-                                       sensor_xyz_h_m=(*spec.marker_m, hgt), run_ns=int(t[0])))
         # station TOML: the true delays; documented changes open a new [[delays]] set
         utc0 = int(ts.convert(np.int64(t[0]), "GPS", "UTC"))
         valid_from = ts.date_to_ns(str(ts.to_datetime64(utc0 - 30 * ts.NS_PER_DAY))[:10])
@@ -1362,11 +1384,13 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
         sp = out / f"{sid.lower()}.toml"
         sp.write_text("# simulated station (invented); written by ctt simulate\n" + dump_station(cfg))
         files["station"].append(sp)
-    obs_pattern = (f"{{STATION}}00XXX_R_{{yyyy}}{{doy:03d}}0000_{_period_code(duration_s)}_"
+    period = "*" if split else _period_code(duration_s)
+    obs_pattern = (f"{{STATION}}00XXX_R_{{yyyy}}{{doy:03d}}{'*' if split else '0000'}_{period}_"
                    f"{int(round(scn.interval_s)):02d}S_MO.rnx" + (".gz" if gz else ""))
     nav_pattern = nav_name
     if res.nav_records:
-        nav_pattern = f"BRDC00XXX_R_{{yyyy}}{{doy:03d}}0000_{_period_code(duration_s)}_MN.rnx" + (".gz" if gz else "")
+        nav_pattern = (f"BRDC00XXX_R_{{yyyy}}{{doy:03d}}{'*' if split else '0000'}_{period}_MN.rnx"
+                       + (".gz" if gz else ""))
     for a, b in scn.pairs:
         pp = out / f"{a.lower()}-{b.lower()}.toml"
         systems = ", ".join(f'"{s}"' for s in scn.systems)

@@ -565,3 +565,22 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
     assert ok.sum() > 500
     se = d.std() / math.sqrt(d.size)
     assert abs(d.mean()) < 4 * se + 0.05, (d.mean(), se)
+
+
+def test_multi_day_scenario_writes_daily_files(tmp_path):
+    config = pytest.importorskip("ctt.config")
+    obs_mod = pytest.importorskip("ctt.rinex.obs")
+    data = _datetime_fix(_base(hours=48.0))
+    data["scenario"]["interval_s"] = 300.0  # keeps the test quick
+    res = simulate(scenario_from_dict(data))
+    files = write_outputs(res, tmp_path)
+    assert len(files["obs"]) == 4 and len(files["nav"]) == 2 and len(files["met"]) == 4
+    assert {p.name[12:19] for p in files["obs"]} == {"2021001", "2021002"}
+    pair = config.load_pair(files["pair"][0])
+    for date, doy in (("2021-01-01", "001"), ("2021-01-02", "002")):
+        found = pair.resolve_inputs(date)
+        assert doy in found["obs_a"].name and doy in found["nav"].name and doy in found["met_b"].name
+    second = next(p for p in files["obs"] if p.name.startswith("LABA") and "2021002" in p.name)
+    o = obs_mod.read_obs(second)
+    assert o.time_ns[0] == ts.civil_to_ns(2021, 1, 2) and o.time_ns.size == 288
+    assert len(res.truth) == 576
