@@ -43,9 +43,11 @@ def _hl(body: str, label: str) -> str:
     return f"{body:<60}{label}\n"
 
 
-def write_rinex3(path: pathlib.Path, *, seed: int = 1, hours: float = 24.0, interval_s: int = 30) -> None:
-    """A RINEX 3.04 observation file of plausible (not physical) values, seeded."""
-    rng = np.random.default_rng(seed)
+def write_rinex3(path: pathlib.Path, *, stream: int = 1, hours: float = 24.0, interval_s: int = 30) -> None:
+    """A RINEX 3.04 observation file of plausible (not physical) values.
+
+    The same ``stream`` number of numpy's generator gives the same file."""
+    rng = np.random.default_rng(stream)
     n_ep = int(hours * 3600 / interval_s)
     sats = GPS_SATS + GAL_SATS
     types = {"G": GPS_TYPES, "E": GAL_TYPES}
@@ -117,8 +119,8 @@ def main(argv=None) -> int:
     day = folder / "BNCH00XXX_R_20210010000_01D_30S_MO.rnx"
     part = folder / "BNCH00XXX_R_20210010000_03H_30S_MO.rnx"
     t0 = time.perf_counter()
-    write_rinex3(day, seed=1)
-    write_rinex3(part, seed=1, hours=3)
+    write_rinex3(day, stream=1)
+    write_rinex3(part, stream=1, hours=3)
     print(f"wrote {day.name}: {day.stat().st_size / 1e6:.2f} MB, and the 3 h slice "
           f"{part.stat().st_size / 1e6:.2f} MB in {time.perf_counter() - t0:.1f} s")
 

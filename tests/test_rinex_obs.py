@@ -267,11 +267,11 @@ def _reference_field(text: str):
     return math.nan, True
 
 
-@pytest.mark.parametrize("seed", [1, 2])
-def test_field_decoder_against_the_format_rule(seed):
+@pytest.mark.parametrize("stream", [1, 2])
+def test_field_decoder_against_the_format_rule(stream):
     from ctt.rinex.obs import _num_fields
 
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(stream)
     vals = np.concatenate([rng.uniform(-999999999.999, 9999999999.999, 3000),
                            rng.uniform(-1, 1, 500), rng.integers(-5, 5, 200).astype(float)])
     texts = [f"{v:14.3f}" for v in vals]
