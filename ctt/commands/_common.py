@@ -7,6 +7,15 @@ from ..measure import MeasureOptions
 SWITCHES = ("troposphere", "ionosphere", "tide", "sagnac", "relativity")
 
 
+def add_product_arguments(g) -> None:
+    """Orbit, clock and ionosphere product files (shared by measure and pair)."""
+    g.add_argument("--nav", help="broadcast navigation file")
+    g.add_argument("--sp3", help="precise orbits (SP3); with it the precise product is the clock reference")
+    g.add_argument("--clk", help="precise satellite clocks (RINEX clock)")
+    g.add_argument("--antex", help="ANTEX file for the satellite antenna offsets of SP3 orbits")
+    g.add_argument("--ionex", help="IONEX ionosphere maps")
+
+
 def add_model_arguments(p) -> None:
     g = p.add_argument_group("models")
     g.add_argument("--signals", choices=("iono-free", "single"), default=None,

@@ -6,7 +6,7 @@ import logging
 import pathlib
 
 from ..errors import UsageError
-from ._common import add_model_arguments, measure_options
+from ._common import add_model_arguments, add_product_arguments, measure_options
 
 log = logging.getLogger("ctt")
 
@@ -16,11 +16,7 @@ def register(sub) -> None:
                        description="Compute, for each epoch and satellite, the station's local reference clock "
                                    "minus the GNSS system time, with every correction as its own column.")
     p.add_argument("obs", help="RINEX observation file (any compression)")
-    p.add_argument("--nav", help="broadcast navigation file")
-    p.add_argument("--sp3", help="precise orbits (SP3); with it the precise product is the clock reference")
-    p.add_argument("--clk", help="precise satellite clocks (RINEX clock)")
-    p.add_argument("--antex", help="ANTEX file for the satellite antenna offsets of SP3 orbits")
-    p.add_argument("--ionex", help="IONEX ionosphere maps")
+    add_product_arguments(p)
     p.add_argument("--met", help="RINEX meteorological file of the station")
     p.add_argument("--station", required=True, help="station TOML file")
     p.add_argument("--out", help="write the table to FILE.csv or FILE.parquet")

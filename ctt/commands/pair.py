@@ -7,7 +7,7 @@ import logging
 import pathlib
 
 from ..errors import UsageError
-from ._common import add_model_arguments, measure_options
+from ._common import add_model_arguments, add_product_arguments, measure_options
 
 log = logging.getLogger("ctt")
 
@@ -21,11 +21,7 @@ def register(sub) -> None:
     src = p.add_argument_group("inputs (files)")
     src.add_argument("--obs-a", help="observation file of station A")
     src.add_argument("--obs-b", help="observation file of station B")
-    src.add_argument("--nav", help="broadcast navigation file")
-    src.add_argument("--sp3", help="precise orbits (SP3)")
-    src.add_argument("--clk", help="precise satellite clocks (RINEX clock)")
-    src.add_argument("--antex", help="ANTEX file (satellite antenna offsets for SP3 orbits)")
-    src.add_argument("--ionex", help="IONEX ionosphere maps")
+    add_product_arguments(src)
     src.add_argument("--met-a", help="meteorological file of station A")
     src.add_argument("--met-b", help="meteorological file of station B")
     src.add_argument("--station-a", help="station TOML file of A")
