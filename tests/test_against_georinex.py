@@ -75,7 +75,7 @@ def _assert_same(ours, g, *, t_slice=None):
     return n_checked
 
 
-# ----------------------------------------------------------------- real data (IGS, UNAVCO)
+# ----------------------------------------------------------------- real open data (../shared/data/README.md)
 
 @pytest.mark.parametrize("name", ["zimm0010.21o.gz", "cn000010.21o.gz"])
 def test_real_rinex2_slice(shared_data, name):

@@ -1,7 +1,7 @@
 """Behaviour of ctt.rinex.obs.read_obs and `ctt info`.
 
-Format facts are from the RINEX 2.11 and RINEX 3.05 format descriptions
-(IGS/RTCM), cited beside each check. Small files are written here in
+Format facts are from the RINEX 2.11 and RINEX 3.05 format descriptions,
+cited beside each check. Small files are written here in
 ``tmp_path`` or stored under tests/data/obs/.
 """
 
