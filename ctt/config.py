@@ -605,6 +605,8 @@ def load_station(path) -> StationConfig:
     delay_sets = _read_delays(r, data.get("delays"), path)
     changes = _read_changes(r, data.get("changes"))
     r.raise_if_any()
+    for arr in (position, sigma, antenna.delta_hen_m):
+        arr.setflags(write=False)  # frozen really frozen: no in-place edits of a loaded station
     cfg = StationConfig(
         id=sid, name=name, position_m=position, position_sigma_m=sigma, frame=frame, epoch=epoch,
         is_marker=is_marker, antenna=antenna, elevation_mask_deg=mask, met_pattern=met_pattern,

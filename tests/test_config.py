@@ -44,6 +44,8 @@ def test_station_values():
     assert len(s.delay_sets) == 2 and len(s.changes) == 1
     assert s.changes[0].expected_delay_change_ns == 3.2
     assert len(s.sha256) == 64
+    with pytest.raises(ValueError):
+        s.position_m[0] = 0.0          # read-only arrays in a frozen config
     b = C.load_station(CFG / "labb.toml")
     np.testing.assert_array_equal(b.position_sigma_m, [0.03, 0.02, 0.04])
     assert b.delay_sets[0].valid_until_ns is None           # open-ended
