@@ -114,7 +114,8 @@ def test_writer_output_matches_the_layout_and_checksums(tmp_path):
         assert len(ln) == 127 and ln[125:] == _ck(ln[:125])
 
 
-def test_round_trip_to_the_format_resolution(tmp_path):
+@pytest.mark.parametrize("kind", ["SYS", "TOT"])
+def test_round_trip_to_the_format_resolution(tmp_path, kind):
     rng = np.random.default_rng(7)
     n = 60
     df = pd.DataFrame({
@@ -128,12 +129,16 @@ def test_round_trip_to_the_format_resolution(tmp_path):
         "msio_ns": rng.uniform(0, 99, n), "smsi_ps_s": rng.uniform(-99, 99, n), "isg_ns": rng.uniform(0, 9, n),
         "fr": 0, "hc": rng.integers(0, 20, n), "frc": "L3P"})
     df.loc[5, "mdio_ns"] = np.nan
-    hdr = X.CggttsHeader(lab="LABB", x_m=4495078.80, y_m=955458.49, z_m=4408115.93, delay_kind="SYS",
+    hdr = X.CggttsHeader(lab="LABB", x_m=4495078.80, y_m=955458.49, z_m=4408115.93, delay_kind=kind,
                          delays=[(190.2, "GPS C1")], ref_dly_ns=5.0, ref="LABB-H1")
     p = tmp_path / "rt.cggtts"
     X.write_cggtts(p, df, hdr)
+    text = p.read_text()
+    # SYS: no CAB DLY line; TOT: neither CAB DLY nor REF DLY (from memory of the three variants)
+    assert "CAB DLY" not in text and (("REF DLY = 5.0 ns" in text) == (kind == "SYS"))
     hdr2, back = X.read_cggtts(p)
-    assert hdr2.delay_kind == "SYS" and hdr2.cab_dly_ns is None and hdr2.ref_dly_ns == 5.0
+    assert hdr2.delay_kind == kind and hdr2.cab_dly_ns is None
+    assert hdr2.ref_dly_ns == (5.0 if kind == "SYS" else None)
     assert hdr2.lab == "LABB" and hdr2.delays == [(190.2, "GPS C1")]
     for c in X.TRACK_COLUMNS:
         a, b = df[c].to_numpy(), back[c].to_numpy()
