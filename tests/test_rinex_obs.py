@@ -427,6 +427,9 @@ def test_v2_garbage_and_truncation(tmp_path):
 def test_bad_satellite_id_and_duplicate(tmp_path):
     text = small_v3().replace("E11 ", "X11 ")
     _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 3, "satellite")
+    # RINEX 3.05: the system letter is required (a blank one means GPS only in RINEX 2)
+    text = small_v3().replace("\nG07  20000100", "\n 07  20000100")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 5, "satellite ids")
     text = small_v3().replace("\nE11 ", "\nG07 ")
     _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 1, "at most once")
 

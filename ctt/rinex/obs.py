@@ -1089,13 +1089,14 @@ _SYS_OK = np.zeros(256, bool)
 _SYS_OK[np.frombuffer(SYSTEMS.encode(), np.uint8)] = True
 
 
-def _sat_ids(m3: np.ndarray):
+def _sat_ids(m3: np.ndarray, blank_is_gps: bool):
     """uint8 (n, 3) satellite ids -> (int codes letter*100+number, ok mask).
 
-    A blank system letter means GPS and a blank tens digit a zero ('G 7' is G07;
-    RINEX 2.11 section 5.1). Integer codes sort like the 'G07' strings.
+    In RINEX 2 a blank system letter means GPS (RINEX 2.11 section 5.1); RINEX 3
+    requires the letter. A blank tens digit is a zero ('G 7' is G07). Integer
+    codes sort like the 'G07' strings.
     """
-    letter = np.where(m3[:, 0] == 32, np.uint8(ord("G")), m3[:, 0])
+    letter = np.where(m3[:, 0] == 32, np.uint8(ord("G")), m3[:, 0]) if blank_is_gps else m3[:, 0]
     tens = np.where(m3[:, 1] == 32, np.uint8(48), m3[:, 1]) - np.uint8(48)
     ones = m3[:, 2] - np.uint8(48)
     ok = _SYS_OK[letter] & (tens < 10) & (ones < 10)
@@ -1139,7 +1140,7 @@ def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
             line0 = first[r_ep] + r_in * nl_sv
             parts = [src.matrix(line0 + k, 80) for k in range(nl_sv)]
             m = parts[0] if nl_sv == 1 else np.concatenate(parts, axis=1)
-            ids, idok = _sat_ids(sat_all[sel])
+            ids, idok = _sat_ids(sat_all[sel], True)
             fields = np.ascontiguousarray(m[:, :16 * nf]).reshape(-1, 16)
             # a record line that is really an epoch record: the satellite count disagrees
             for k, mm in enumerate(parts):
@@ -1155,7 +1156,7 @@ def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
         else:
             line0 = first[r_ep] + r_in
             nf = max(len(v) for v in types.values())
-            ids, idok = _sat_ids(src.matrix(line0, 3))
+            ids, idok = _sat_ids(src.matrix(line0, 3), False)
             fields = src.matrix(line0, 16 * nf, offset=3).reshape(-1, 16)
             sysb = (ids // 100).astype(np.uint8)
             ntypes = np.full(len(ids), -1, np.int64)
