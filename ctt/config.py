@@ -86,7 +86,7 @@ Paths are relative to the pair file's folder unless absolute.
     met = "{station}{doy:03d}0.{yy:02d}m"       # optional (else each station's met pattern)
     optional = ["met"]               # kinds whose absence is not an error (default ["met"])
 
-    [inputs.a]                       # optional per-station overrides: obs, nav, met
+    [inputs.a]                       # optional per-station overrides: obs, met
     obs = "a/{STATION}{doy:03d}*.rnx"
     [inputs.b]
     obs = "b/{station}{doy:03d}0.{yy:02d}o.gz"
@@ -167,7 +167,7 @@ MODES = ("tracks", "epochs", "all-in-view")
 SIGNALS = ("iono-free", "single")
 ORBITS = ("auto", "broadcast", "precise")
 INPUT_KINDS = ("obs", "nav", "sp3", "clk", "ionex", "met")
-STATION_INPUT_KINDS = ("obs", "nav", "met")
+STATION_INPUT_KINDS = ("obs", "met")
 
 
 # ---------------------------------------------------------------- problem collection
@@ -802,7 +802,7 @@ class PairConfig:
     """A validated pair file with both station files loaded.
 
     ``patterns[kind]`` are the shared patterns (tuples of alternatives);
-    ``station_patterns['a'|'b'][kind]`` the per-station ones (obs, nav, met),
+    ``station_patterns['a'|'b'][kind]`` the per-station ones (obs, met),
     falling back to the shared ones and, for met, to the station file's pattern.
     """
 
@@ -862,7 +862,7 @@ class PairConfig:
             rel = format_pattern(pat, sid, date)
             cand = self.data_root / rel
             if any(ch in rel for ch in "*?["):
-                matches = sorted(_glob.glob(str(cand)))
+                matches = sorted(_glob.glob(str(pathlib.Path(_glob.escape(str(self.data_root))) / rel)))
                 tried.append((pat, str(cand)))
                 for m in matches:
                     mp = self._inside_root(pathlib.Path(m), key)
@@ -886,7 +886,6 @@ class PairConfig:
         out = {}
         wanted = [("obs_a", "obs", "a"), ("obs_b", "obs", "b"), ("nav", "nav", None), ("sp3", "sp3", None),
                   ("clk", "clk", None), ("ionex", "ionex", None), ("met_a", "met", "a"), ("met_b", "met", "b")]
-        # a station-specific nav pattern, when given, is used for that station only
         for name, kind, which in wanted:
             pats = self.patterns_for(kind, which)
             if not pats:
@@ -899,13 +898,6 @@ class PairConfig:
                 detail = "; ".join(f"pattern {p!r} -> {c}" for p, c in tried)
                 raise MissingInputError(f"{self.path}: no {name} file for {_as_date(date)}: tried {detail}")
             out[name] = found
-        for which in ("a", "b"):
-            if self.station_patterns.get(which, {}).get("nav"):
-                found, tried = self.resolve_one("nav", date, which)
-                if found is None:
-                    detail = "; ".join(f"pattern {p!r} -> {c}" for p, c in tried)
-                    raise MissingInputError(f"{self.path}: no nav_{which} file for {_as_date(date)}: tried {detail}")
-                out[f"nav_{which}"] = found
         return out
 
 
@@ -984,7 +976,7 @@ def load_pair(path) -> PairConfig:
             {kind: _pattern_list(r, sub[kind], f"inputs.{which}.{kind}") for kind in STATION_INPUT_KINDS if kind in sub})
         if "obs" not in patterns and "obs" not in st_pats[which]:
             r.fail(f"inputs.{which}.obs", "missing; expected an obs pattern in [inputs] or [inputs.a]/[inputs.b]")
-    if "nav" not in patterns and not all("nav" in st_pats[w] for w in ("a", "b")):
+    if "nav" not in patterns:
         r.fail("inputs.nav", "missing; expected a broadcast navigation file pattern")
     opt = inp.get("optional", ["met"])
     if not isinstance(opt, list) or any(o not in INPUT_KINDS or o == "obs" for o in opt):
