@@ -55,6 +55,10 @@ Code pseudorange of code ``k`` on frequency ``f``::
 * ``dt_sat`` = broadcast clock polynomial + periodic relativistic term
   F·e·√A·sin E (IS-GPS-200 §20.3.3.3.3.1) (+ an optional "true minus
   broadcast" satellite clock error, ``[satellites] clock_error_ns``).
+* The true satellite position is the broadcast one plus, optionally, an
+  orbit error (``[satellites] orbit_error_m``: per satellite and axis a
+  constant and a once-per-revolution term, together of that rms), which a
+  user of the broadcast file cannot see.
 * Satellite group delays as broadcast (IS-GPS-200 §20.3.3.3.3.2: an L1 P(Y)
   user subtracts T_GD from the clock, i.e. the L1 code is late by T_GD
   relative to the iono-free clock reference): GPS ``g = T_GD`` on L1 (C1C
@@ -163,6 +167,7 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     klobuchar_alpha = [1.1e-8, 0.0, -6.0e-8, 0.0]   # synthetic nav header (GPSA)
     klobuchar_beta = [9.0e4, 0.0, -2.0e5, 0.0]      # (GPSB)
     clock_error_ns = 0.0                # true minus broadcast satellite clock, rms (random walk)
+    orbit_error_m = 0.0                 # true minus broadcast position, rms per axis (constant + once per rev)
 
     [propagation]
     earth_rotation = true
@@ -546,11 +551,12 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
 
     sat = data.get("satellites", {})
     r.keys(sat, {"source", "nav_file", "gps_count", "galileo_count", "klobuchar_alpha", "klobuchar_beta",
-                 "clock_error_ns"}, "satellites")
+                 "clock_error_ns", "orbit_error_m"}, "satellites")
     source = r.text(sat, "source", "satellites", "synthetic")
     if source not in ("synthetic", "nav"):
         r.fail("satellites.source", f"expected 'synthetic' or 'nav', found {source!r}")
-    sat_out = {"source": source, "clock_error_ns": r.num(sat, "clock_error_ns", "satellites", 0.0, lo=0)}
+    sat_out = {"source": source, "clock_error_ns": r.num(sat, "clock_error_ns", "satellites", 0.0, lo=0),
+               "orbit_error_m": r.num(sat, "orbit_error_m", "satellites", 0.0, lo=0)}
     if source == "nav":
         nav_rel = r.text(sat, "nav_file", "satellites")
         nav_path = pathlib.Path(nav_rel)
@@ -924,6 +930,31 @@ class _States:
     status: np.ndarray
 
 
+class _OrbitError:
+    """Truth satellite model: a broadcast model plus a per-satellite orbit error (module docstring).
+
+    Error per satellite and ECEF axis: ``a + b·sin(2π (t − t0)/P + φ)`` with P half a
+    sidereal day; a and b have rms ``rms_m/√2`` and ``rms_m`` so the total rms is ``rms_m``.
+    """
+
+    def __init__(self, model, sats, rms_m, t0_ns, rng):
+        self.model = model
+        self.sats = np.array(sorted(sats))
+        n = len(self.sats)
+        self.a = rng.standard_normal((n, 3)) * rms_m / math.sqrt(2.0)
+        self.b = rng.standard_normal((n, 3)) * rms_m
+        self.phi = rng.uniform(0, 2 * math.pi, (n, 3))
+        self.t0 = t0_ns
+
+    def states(self, sats, t_ns, dt_s=0.0):
+        st = self.model.states(sats, t_ns, dt_s)
+        i = np.searchsorted(self.sats, np.asarray(sats).astype(str))
+        t = ((np.asarray(t_ns, dtype=np.int64) - self.t0) / 1e9 + dt_s)[..., None]
+        err = self.a[i] + self.b[i] * np.sin(2 * math.pi * t / (SIDEREAL_DAY_S / 2) + self.phi[i])
+        st.pos_m = st.pos_m + err
+        return st
+
+
 def light_time(model, sats, t_r_ns, t_r_dt_s, rx_m, *, earth_rotation: bool = True, tol_s: float = 1e-15):
     """Exact geometric light time τ (s) and the satellite position in the receive-time Earth frame.
 
@@ -1069,6 +1100,8 @@ def simulate(scn: Scenario) -> SimulationResult:
         walk /= max(np.sqrt(np.mean(walk ** 2)), 1e-30)
         sat_clock_err = walk * scn.satellites["clock_error_ns"] * 1e-9
     sat_arr = np.array(sats)
+    if scn.satellites["orbit_error_m"] > 0:
+        model = _OrbitError(model, sats, scn.satellites["orbit_error_m"], int(t_tag[0]), rng_sats)
     results = {}
     for spec in scn.stations:
         srng = np.random.default_rng(rng_clocks.integers(0, 2 ** 63))

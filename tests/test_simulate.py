@@ -584,3 +584,17 @@ def test_multi_day_scenario_writes_daily_files(tmp_path):
     o = obs_mod.read_obs(second)
     assert o.time_ns[0] == ts.civil_to_ns(2021, 1, 2) and o.time_ns.size == 288
     assert len(res.truth) == 576
+
+
+def test_orbit_error_moves_the_range_by_its_line_of_sight_part():
+    base = _quiet(_datetime_fix(_base(hours=0.5)))
+    base["stations"] = base["stations"][:1]
+    res0 = simulate(scenario_from_dict(copy.deepcopy(base)))
+    base["satellites"] = {"orbit_error_m": 1.0}
+    res1 = simulate(scenario_from_dict(base))
+    d = res1.stations["LABA"].obs["C1C"] - res0.stations["LABA"].obs["C1C"]
+    ok = np.isfinite(d)
+    # the line-of-sight part of a 3-D error of 1 m rms per axis has an rms near 1 m (0.2..1.5 m allowed)
+    # and never exceeds the error's length (5 m bounds it for these draws)
+    assert 0.2 < np.sqrt(np.mean(d[ok] ** 2)) < 1.5
+    assert np.abs(d[ok]).max() < 5.0
