@@ -568,3 +568,10 @@ def test_skip_mode_many_backward_epochs(tmp_path):
     assert (d.time_ns - d.time_ns[0]).tolist() == [int(x * 1e9) for x in (0, 60, 90, 120)]
     assert d.obs["C1C"][:, 0].tolist() == [0.0, 60.0, 90.0, 120.0]
     assert ["repeated" in r or "earlier" in r for _, r in d.dropped] == [True] * 3
+
+
+def test_epoch_seconds_need_seven_decimals(tmp_path):
+    """Epoch seconds are F11.7 (RINEX 3.05 observation data record description):
+    '30.12345  ' (blanks in the decimals) is refused rather than read as another time."""
+    text = small_v3().replace("30.1234567  0  1", "30.12345    0  1")
+    _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 4, "epoch time")

@@ -1061,8 +1061,9 @@ def _epoch_times(src: _Source, lines: np.ndarray, v2: bool):
         v, o = _int_fields(m[:, a:b])
         vals.append(v)
         ok &= o
-    fv, fo = _int_fields(m[:, frac[0]:frac[1]])
-    ok &= fo & (m[:, point] == 46)
+    fm = m[:, frac[0]:frac[1]]
+    fv, fo = _int_fields(fm)
+    ok &= fo & (m[:, point] == 46) & ((fm - np.uint8(48)) < 10).all(axis=1)  # all seven decimals
     y, mo, d, hh, mi, ss = vals
     if v2:
         y = np.where(y < 80, y + 2000, y + 1900)
