@@ -9,17 +9,26 @@ indicators as int8 (-1 where blank).
 
 How the data section is read
 ----------------------------
-The text is turned into one ``uint8`` buffer. A short Python walk visits the
-*epoch records only* (one step per epoch: it reads the epoch flag and the
-count of records that follow, and jumps over them); everything per satellite
-and per value is done in bulk with numpy: every satellite record is cut from
+The text is turned into one ``uint8`` buffer. In the common case (data
+epochs only) the epoch records are found in bulk: by their leading ``>`` in
+RINEX 3/4, by their fixed layout in RINEX 2, and accepted when every record's
+satellite count chains exactly to the next one. Otherwise (events, or a
+problem to locate) a Python walk visits the *epoch records only*, one step
+per epoch. Everything per satellite and per value is done in bulk with
+numpy: every satellite record is cut from
 the buffer into a fixed-width character matrix (RINEX 2 records spanning
 several 80-column lines are laid side by side), and all observation fields are
 decoded at once. Values are decoded exactly: an ``F14.3`` field is read as an
 integer count of thousandths and divided by 1000, which gives the same double
 as ``float(text)`` (one correctly rounded division of exact integers).
 Epoch seconds (``F11.7``) are read digit by digit into int64 nanoseconds, with
-no floating point.
+no floating point. Values in another right-aligned decimal layout are read
+with ``float`` one field at a time (slow, but exact).
+
+Bad input raises :class:`ctt.errors.RinexFormatError` with the file, the
+1-based line and what the format expects there (the earliest problem in the
+file); ``on_error="skip"`` drops the bad epochs instead, lists them in
+``ObsData.dropped`` and warns once with their count.
 
 Epoch flags (RINEX 2.11 and 3.05, "EPOCH/SAT" record)
 -----------------------------------------------------
