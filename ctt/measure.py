@@ -394,6 +394,8 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     ok = flag == "ok"
     flag[ok & (elev_deg < mask_deg)] = "low_elevation"
     ok = flag == "ok"
+    flag[ok & ~np.isfinite(gd_s)] = "no_group_delay"
+    ok = flag == "ok"
     flag[ok & ~np.isfinite(clock_ns)] = "no_value"
     ok = flag == "ok"
 
@@ -433,7 +435,11 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     info = {"codes": {str(s): str(code_label[k]) for k, s in enumerate(sats_all) if use_sys[k]},
             "signals": opt.signals, "troposphere": met_source if opt.troposphere else "off",
             "ionosphere": iono_info, "tide": "IERS 2010 §7.1.1" if opt.tide else "off",
-            "sagnac": opt.sagnac, "relativity": opt.relativity, "smoothing_s": opt.smoothing_s,
+            "sagnac": opt.sagnac, "relativity": opt.relativity,
+            "group_delay": ("broadcast TGD/BGD of the signals used" if reference == "broadcast" else
+                            "none: precise clocks refer to the iono-free combination"
+                            + (" (single-frequency users carry the satellites' code biases; "
+                               "apply a bias file)" if opt.signals == "single" else "")), "smoothing_s": opt.smoothing_s,
             "elevation_mask_deg": mask_deg, "u_hardware_ns": u_hw, "reference": reference,
             "position_m": [float(v) for v in rx]}
     return StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
@@ -594,7 +600,7 @@ def _group_delay(orbits, sats, st, sel, js, reference):
     """
     from .orbits import group_delay_correction_s
 
-    out = np.zeros(len(sats))
+    out = np.zeros(len(sats)) if reference == "precise" else np.full(len(sats), np.nan)
     # one call per distinct signal choice (a handful), vectorised over rows
     keys = np.asarray(sel.label, dtype=object)[js]
     for key in np.unique(keys):
@@ -603,12 +609,14 @@ def _group_delay(orbits, sats, st, sel, js, reference):
         rows = keys == key
         sig = tuple(key.split("+"))
         sig = sig if len(sig) == 2 else sig[0]
-        if reference == "precise" and isinstance(sig, tuple):
+        if reference == "precise":
+            # precise clocks refer to the iono-free combination: 0 for it; for one code the
+            # product carries no group delays (documented above), so 0 with the fact recorded
             continue
         galileo_source = "fnav" if any(c[1] == "5" for c in (sig if isinstance(sig, tuple) else (sig,))) \
             else "inav"
         vals = group_delay_correction_s(sats[rows], _subset(st, rows), sig, galileo_source=galileo_source)
-        out[rows] = np.where(np.isfinite(vals), vals, 0.0)
+        out[rows] = vals  # NaN where the broadcast message has no delay for this signal
     return out
 
 
