@@ -566,9 +566,11 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
     else:
         sat_out["gps_count"] = int(r.num(sat, "gps_count", "satellites", 31, lo=24, hi=32))
         sat_out["galileo_count"] = int(r.num(sat, "galileo_count", "satellites", 24, lo=1, hi=36))
-        for k, dflt in (("klobuchar_alpha", [1.1e-8, 0.0, -6.0e-8, 0.0]), ("klobuchar_beta", [9.0e4, 0.0, -2.0e5, 0.0])):
+        for k, dflt in (("klobuchar_alpha", [1.1e-8, 0.0, -6.0e-8, 0.0]),
+                        ("klobuchar_beta", [9.0e4, 0.0, -2.0e5, 0.0])):
             v = sat.get(k, dflt)
-            if not isinstance(v, list) or len(v) != 4 or any(isinstance(x, bool) or not isinstance(x, (int, float)) for x in v):
+            if (not isinstance(v, list) or len(v) != 4
+                    or any(isinstance(x, bool) or not isinstance(x, (int, float)) for x in v)):
                 r.fail(f"satellites.{k}", f"expected 4 numbers, found {v!r}")
             sat_out[k] = [float(x) for x in v]
 
@@ -1142,7 +1144,8 @@ def simulate(scn: Scenario) -> SimulationResult:
             trop = np.zeros((n_ep, n_sat))
         if prop["ionosphere"]:
             sow = _gps_sow_s(t_tag)[:, None]
-            iono_l1 = prop["iono_scale"] * C_MPS * klobuchar_delay_s(alpha, beta, lat, lon, az, np.maximum(el, 0.0), sow)
+            iono_l1 = prop["iono_scale"] * C_MPS * klobuchar_delay_s(alpha, beta, lat, lon, az,
+                                                                     np.maximum(el, 0.0), sow)
         else:
             iono_l1 = np.zeros((n_ep, n_sat))
         # visibility, gaps, resets

@@ -448,7 +448,8 @@ def test_reproducible_and_cli(tmp_path):
     scn = tmp_path / "s.toml"
     scn.write_text(
         '[scenario]\nname = "cli"\nstart_gps = 2021-01-01T00:00:00\nduration_h = 0.25\ninterval_s = 30.0\n'
-        'random_state = 5\nsystems = ["G"]\n\n[[stations]]\nid = "LABA"\nposition_m = [4300000.0, 700000.0, 4650000.0]\n'
+        'random_state = 5\nsystems = ["G"]\n\n[[stations]]\nid = "LABA"\n'
+        'position_m = [4300000.0, 700000.0, 4650000.0]\n'
         '[stations.delays]\nreceiver_ns = { C1C = 1.0, C2W = 2.0, C5Q = 3.0 }\n'
         '[stations.clock]\noffset_ns = 3.0\n[[stations.clock.noise]]\ntype = "flicker_fm"\nadev_1s = 1e-14\n')
     assert main(["simulate", "--scenario", str(scn), "--out", str(tmp_path / "a")]) == 0

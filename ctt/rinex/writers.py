@@ -313,8 +313,8 @@ def write_nav3(path, records: list, *, iono: dict | None = None, time_correction
     w = buf.write
     systems = sorted({r["sat"][0] for r in records}, key="GREJCIS".index)
     sys_char = systems[0] if len(systems) == 1 else "M"
-    w(header_line(f"{'3.04':>9}{'':11}{'N: GNSS NAV DATA':<20}{sys_char + ': MIXED' if sys_char == 'M' else sys_char:<20}",
-                  "RINEX VERSION / TYPE"))
+    sys_text = "M: MIXED" if sys_char == "M" else sys_char
+    w(header_line(f"{'3.04':>9}{'':11}{'N: GNSS NAV DATA':<20}{sys_text:<20}", "RINEX VERSION / TYPE"))
     t0 = run_ns if run_ns is not None else (records[0]["toc_ns"] if records else 0)
     w(header_line(f"{PROGRAM:<20}{'ctt':<20}{_run_date(t0):<20}", "PGM / RUN BY / DATE"))
     for c in comments:
