@@ -575,3 +575,10 @@ def test_epoch_seconds_need_seven_decimals(tmp_path):
     '30.12345  ' (blanks in the decimals) is refused rather than read as another time."""
     text = small_v3().replace("30.1234567  0  1", "30.12345    0  1")
     _raises(tmp_path, text, len(V3_HEADER.splitlines()) + 4, "epoch time")
+
+
+def test_header_only_rinex2_types(tmp_path):
+    h = read_obs_header(write(tmp_path, "a.21o", small_v2()))
+    # mapping table of ctt/rinex/obs.py for GPS: C1 L1 L2 P2 S1 S2
+    assert h.obs_types == {"G": ["C1C", "L1C", "L2W", "C2W", "S1C", "S2W"]}
+    assert h.obs_types_v2 == ["C1", "L1", "L2", "P2", "S1", "S2"]

@@ -739,6 +739,9 @@ def _parse_header(src: _Source) -> ObsHeader:
         if bad:
             raise src.error(None, "RINEX 2 observation codes such as C1 P2 L1 D1 S1", " ".join(bad))
         h.obs_types_v2 = list(v2_types)
+        if h.system != "M":  # mixed files: filled by read_obs for the systems present
+            h.v2_to_v3 = {h.system: _v2_map_for(h, h.system)}
+            h.obs_types = {h.system: [h.v2_to_v3[h.system][c] for c in v2_types]}
     else:
         for s, (n, li) in getattr(h, "_declared", {}).items():
             if len(h.obs_types[s]) != n:
