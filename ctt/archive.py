@@ -30,9 +30,9 @@ Semantics
 * Writers are serialised by ``BEGIN IMMEDIATE`` with SQLite's busy timeout: a
   second writer waits up to ``timeout_s`` and then raises
   :class:`ctt.errors.LockTimeoutError` (exit code 4). Readers are never blocked
-  (WAL). For a whole cron run, :meth:`Archive.run_lock` takes an advisory lock
-  file ``<archive>.lock`` holding PID, host name and time; a lock whose PID is
-  dead on this host is taken over.
+  (WAL). For a whole cron run, :meth:`Archive.run_lock` takes a lock file
+  ``<archive>.lock`` (flock; PID, host name and time recorded in it); a lock
+  left by a dead process on this host is taken over.
 """
 
 from __future__ import annotations
@@ -469,70 +469,59 @@ class Archive:
 
     @contextlib.contextmanager
     def run_lock(self, timeout_s: float | None = None, poll_s: float = 0.2):
-        """Advisory lock file ``<archive>.lock`` for a whole run (PID, host, time inside).
+        """Lock file ``<archive>.lock`` held for a whole run; it records PID, host and time.
 
-        Waits up to ``timeout_s`` (default: the archive's) for a live holder; a lock left
-        by a dead process on this host is taken over; a lock from another host is
-        only reported (its PID cannot be checked) and waited for.
+        The lock is an ``flock`` on that file, which the kernel releases when the
+        holder dies (even by SIGKILL), so a lock left by a dead process on this host
+        is simply taken over; its recorded PID/host/time only serve the messages.
+        A record naming another host (a shared file system, where flock may not
+        reach across machines) is respected and waited for, never broken. Waits up
+        to ``timeout_s`` (default: the archive's), then raises LockTimeoutError.
+        On release the record is emptied; the file itself stays (unlinking a
+        flock'ed file would let two processes lock different inodes).
         """
+        import fcntl
+
         lock = self.path.with_name(self.path.name + ".lock")
         timeout = self.timeout_s if timeout_s is None else timeout_s
         deadline = time.monotonic() + timeout
-        me = {"pid": os.getpid(), "host": socket.gethostname(), "time": _now_iso()}
-        while True:
-            try:
-                fd = os.open(lock, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o644)
-            except FileExistsError:
-                holder = _read_lock(lock)
-                if holder is None and _age_s(lock) > 60.0:
-                    holder = {}  # empty/unreadable for a minute: its writer died while creating it
-                if holder is not None and (holder == {} or _lock_is_dead(holder)):
-                    # take over: remove only if it is still the same dead holder's file
-                    if (_read_lock(lock) or {}) == holder:
-                        with contextlib.suppress(FileNotFoundError):
-                            os.unlink(lock)
-                    continue
+        host = socket.gethostname()
+        fd = os.open(lock, os.O_RDWR | os.O_CREAT, 0o644)
+        held = False
+        try:
+            while True:
+                try:
+                    fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                except BlockingIOError:
+                    holder = _read_lock(lock)
+                    foreign = False
+                else:
+                    holder = _read_lock(lock)
+                    foreign = bool(holder) and holder.get("host") != host
+                    if not foreign:
+                        break          # free, or the record of a dead process on this host
+                    fcntl.flock(fd, fcntl.LOCK_UN)
                 if time.monotonic() >= deadline:
                     who = (f"PID {holder.get('pid')} on {holder.get('host')} since {holder.get('time')}"
-                           if holder else "an unreadable lock file")
-                    raise LockTimeoutError(f"{lock}: archive locked by {who}; waited {timeout:g} s") from None
+                           if holder else "another process")
+                    hint = f" (remove {lock} if that host is down)" if foreign else ""
+                    raise LockTimeoutError(f"{lock}: archive locked by {who}; waited {timeout:g} s{hint}")
                 time.sleep(poll_s)
-                continue
-            with os.fdopen(fd, "w") as f:
-                json.dump(me, f)
-            break
-        try:
+            held = True
+            me = {"pid": os.getpid(), "host": host, "time": _now_iso()}
+            os.ftruncate(fd, 0)
+            os.pwrite(fd, json.dumps(me).encode(), 0)
+            os.fsync(fd)
             yield lock
         finally:
-            if _read_lock(lock) == me:
-                with contextlib.suppress(FileNotFoundError):
-                    os.unlink(lock)
+            if held:
+                os.ftruncate(fd, 0)
+                fcntl.flock(fd, fcntl.LOCK_UN)
+            os.close(fd)
 
 
 def _read_lock(lock: pathlib.Path):
     try:
-        return json.loads(lock.read_text())
+        return json.loads(lock.read_text() or "null")
     except (FileNotFoundError, ValueError):
         return None
-
-
-def _age_s(lock: pathlib.Path) -> float:
-    try:
-        return time.time() - lock.stat().st_mtime
-    except FileNotFoundError:
-        return 0.0
-
-
-def _lock_is_dead(holder: dict) -> bool:
-    if holder.get("host") != socket.gethostname():
-        return False
-    pid = holder.get("pid")
-    if not isinstance(pid, int) or pid <= 0:
-        return True
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return True
-    except PermissionError:
-        return False
-    return False

@@ -245,28 +245,44 @@ def test_two_simultaneous_writers_no_duplicates(tmp_path):
         assert a.integrity_check() == "ok"
 
 
+def _hold_run_lock(path, ready_w):
+    with Archive(path) as a, a.run_lock():
+        os.write(ready_w, b"r")
+        time.sleep(60)
+
+
 def test_run_lock_waits_and_takes_over_dead_holder(tmp_path):
     path = tmp_path / "a.sqlite"
     with Archive(path, timeout_s=0.3) as a:
         with a.run_lock() as lock:
             held = json.loads(lock.read_text())
             assert held["pid"] == os.getpid() and held["host"] == socket.gethostname()
-            # a live holder (this process) -> the second attempt times out
+            # a live holder (this process, another open of the file) -> the second attempt times out
             with pytest.raises(LockTimeoutError, match=f"PID {os.getpid()}"):
                 with a.run_lock(timeout_s=0.3, poll_s=0.05):
                     pass
-        assert not lock.exists()
-        # a dead PID's lock is taken over
+        assert lock.read_text() == ""            # released: record emptied
+        # a holder killed with SIGKILL: its lock is taken over at once
         ctx = mp.get_context("fork")
-        p = ctx.Process(target=lambda: None)
+        r, w = os.pipe()
+        p = ctx.Process(target=_hold_run_lock, args=(path, w))
         p.start()
+        os.read(r, 1)
+        with pytest.raises(LockTimeoutError, match=f"PID {p.pid}"):
+            with a.run_lock(timeout_s=0.2, poll_s=0.05):
+                pass
+        os.kill(p.pid, signal.SIGKILL)
         p.join()
+        assert json.loads(lock.read_text())["pid"] == p.pid   # its record is still there
+        with a.run_lock(timeout_s=0.3):
+            assert json.loads(lock.read_text())["pid"] == os.getpid()
+        # a record of a dead PID written by hand (e.g. an older run) is taken over too
         lock.write_text(json.dumps({"pid": p.pid, "host": socket.gethostname(), "time": "2021-01-01T00:00:00Z"}))
         with a.run_lock(timeout_s=0.3):
             assert json.loads(lock.read_text())["pid"] == os.getpid()
-        # a lock from another host is never broken
+        # a lock recorded by another host is never broken
         lock.write_text(json.dumps({"pid": 1, "host": "some-other-host", "time": "2021-01-01T00:00:00Z"}))
-        with pytest.raises(LockTimeoutError, match="some-other-host"):
+        with pytest.raises(LockTimeoutError, match="some-other-host.*if that host is down"):
             with a.run_lock(timeout_s=0.2, poll_s=0.05):
                 pass
 
