@@ -819,8 +819,8 @@ class PairConfig:
     archive_path: pathlib.Path
     report_path: pathlib.Path
     max_gap_s: float
-    config_hash: str
-    sha256: str
+    config_hash: str   # SHA-256 of the normalised processing options and both stations' content
+    sha256: str        # SHA-256 of the pair file's bytes
 
     def stations(self) -> tuple[StationConfig, StationConfig]:
         return self.station_a, self.station_b
@@ -1034,10 +1034,14 @@ def load_pair(path) -> PairConfig:
     name = pr.get("name") or f"{sa.id.lower()}-{sb.id.lower()}"
     if not isinstance(name, str) or not re.match(r"^[A-Za-z0-9_.-]+$", name):
         raise ConfigError(path, "pair.name", f"expected letters, digits, '-', '_' or '.', found {name!r}")
-    h = hashlib.sha256()
-    h.update(_content_sha256(data).encode())
-    h.update(station_hashes["a"].encode())
-    h.update(station_hashes["b"].encode())
+    # config hash: what determines the results, normalised through the dataclasses, so
+    # comments, formatting, defaults written out or not, output locations, the data
+    # root and file patterns (the input files' own hashes cover which files were
+    # used) do not force a reprocessing; the station files enter by their
+    # normalised content, A before B.
+    norm = {"processing": dataclasses.asdict(processing),
+            "station_a": station_hashes["a"], "station_b": station_hashes["b"]}
+    h = hashlib.sha256(json.dumps(_canonical(norm), sort_keys=True, separators=(",", ":")).encode())
     return PairConfig(
         path=path, name=name, station_a=sa, station_b=sb, data_root=data_root,
         patterns=types.MappingProxyType(patterns), station_patterns=types.MappingProxyType(st_pats),

@@ -222,6 +222,13 @@ def test_config_hash_stable_and_sensitive(pair_dir):
     txt = (pair_dir / "pair.toml").read_text()
     (pair_dir / "pair.toml").write_text("# another comment\n" + txt.replace("mode = \"tracks\"", "mode   =   'tracks'"))
     assert C.load_pair(pair_dir / "pair.toml").config_hash == h0     # formatting only
+    txt2 = (pair_dir / "pair.toml").read_text()
+    (pair_dir / "pair.toml").write_text(txt2.replace('dir = "out"', 'dir = "elsewhere"')
+                                        .replace("min_common_sats = 3", "min_common_sats = 3\nmad_k = 4.0"))
+    assert C.load_pair(pair_dir / "pair.toml").config_hash == h0     # output place, explicit default
+    (pair_dir / "pair.toml").write_text(txt2.replace("min_common_sats = 3", "min_common_sats = 4"))
+    assert C.load_pair(pair_dir / "pair.toml").config_hash != h0     # a processing option
+    (pair_dir / "pair.toml").write_text(txt2)
     st = (pair_dir / "labb.toml").read_text()
     (pair_dir / "labb.toml").write_text(st.replace("cable_ns = 80.0", "cable_ns = 80.5"))
     assert C.load_pair(pair_dir / "pair.toml").config_hash != h0     # a delay changed
