@@ -8,6 +8,7 @@ group delays, ωe), the RINEX 3.04 format (field resolution 0.001), georinex
 from __future__ import annotations
 
 import copy
+import datetime as _dt
 import gzip
 import math
 
@@ -27,7 +28,7 @@ DELAYS_B = {"receiver_ns": {"C1C": 20.3, "C2W": 22.2, "C5Q": 21.0, "C7Q": 21.4},
 
 def _base(hours=2.0, **prop):
     return {
-        "scenario": {"name": "unit", "start_gps": ts.to_datetime64(ts.civil_to_ns(2021, 1, 1)).astype(object),
+        "scenario": {"name": "unit", "start_gps": _dt.datetime(2021, 1, 1),  # TOML local date-time: GPS
                      "duration_h": hours, "interval_s": 30.0, "random_state": 4242, "systems": ["G", "E"]},
         "propagation": prop,
         "output": {"gzip": True},
@@ -56,23 +57,14 @@ def _quiet(data):
     return data
 
 
-def _datetime_fix(data):
-    # tomllib gives datetime objects; build one for start_gps (local, read on GPS time)
-    import datetime as dt
-
-    data["scenario"]["start_gps"] = dt.datetime(2021, 1, 1, 0, 0, 0)
-    return data
-
-
 def _utc(text):
-    import datetime as dt
-
-    return dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
+    """A TOML offset date-time with Z, as tomllib returns it."""
+    return _dt.datetime.fromisoformat(text.replace("Z", "+00:00"))
 
 
 @pytest.fixture(scope="module")
 def written(tmp_path_factory):
-    data = _datetime_fix(_base(hours=2.0, wet_random_walk_mm_per_sqrt_h=3.0, iono_scale=1.3))
+    data = _base(hours=2.0, wet_random_walk_mm_per_sqrt_h=3.0, iono_scale=1.3)
     data["output"]["rinex2"] = True
     a = data["stations"][0]
     a["multipath"] = {"amplitude_m": 0.5, "decay_deg": 15.0}
@@ -237,7 +229,7 @@ def test_truth_clock_has_the_configured_level(written):
 
 
 def test_cycle_slips_are_integer_jumps_with_lli():
-    data = _quiet(_datetime_fix(_base(hours=1.0)))
+    data = _quiet(_base(hours=1.0))
     data["stations"][0]["cycle_slips_per_h"] = 2.0
     data["stations"] = data["stations"][:1]
     res = simulate(scenario_from_dict(data))
@@ -316,7 +308,7 @@ def test_light_time_without_earth_rotation_is_the_straight_distance():
 
 def test_geometric_pseudorange_independent_check():
     """Quiet scenario, Earth rotation off: C1C = |r_sat(t_t) − r_rx| + c·(x − dt_sat) + c·TGD exactly."""
-    data = _quiet(_datetime_fix(_base(hours=0.5, earth_rotation=False)))
+    data = _quiet(_base(hours=0.5, earth_rotation=False))
     res = simulate(scenario_from_dict(data))
     r = res.stations["LABA"]
     km = KeplerEphemerides(res.nav_records)
@@ -337,7 +329,7 @@ def test_geometric_pseudorange_independent_check():
 def test_hardware_delay_signs_and_recovery_with_config():
     """Sign convention of ctt.config: x = raw − (receiver + cable) + reference."""
     config = pytest.importorskip("ctt.config")
-    base = _quiet(_datetime_fix(_base(hours=0.5)))
+    base = _quiet(_base(hours=0.5))
     res0 = simulate(scenario_from_dict(copy.deepcopy(base)))
     d = copy.deepcopy(base)
     d["stations"][0]["delays"] = copy.deepcopy(DELAYS_A)
@@ -363,7 +355,7 @@ def test_hardware_delay_signs_and_recovery_with_config():
 
 
 def test_ionosphere_is_dispersive_and_opposite_on_phase():
-    base = _quiet(_datetime_fix(_base(hours=0.5)))
+    base = _quiet(_base(hours=0.5))
     base["propagation"]["ionosphere"] = True
     base["propagation"]["iono_scale"] = 1.3
     res = simulate(scenario_from_dict(base))
@@ -385,7 +377,7 @@ def test_ionosphere_is_dispersive_and_opposite_on_phase():
 
 
 def test_code_noise_follows_sigma0_over_sin_el():
-    base = _quiet(_datetime_fix(_base(hours=1.0)))
+    base = _quiet(_base(hours=1.0))
     res0 = simulate(scenario_from_dict(copy.deepcopy(base)))
     d = copy.deepcopy(base)
     d["stations"][0]["code_noise_m"] = 0.3
@@ -423,7 +415,7 @@ def test_resets_gaps_and_lli(written):
 @pytest.mark.slow
 def test_multipath_repeats_with_the_sidereal_day():
     """GPS geometry (two revolutions per sidereal day) and so the (az, el) multipath repeat after 86164 s."""
-    data = _datetime_fix(_base(hours=24.5))
+    data = _base(hours=24.5)
     data["scenario"]["systems"] = ["G"]
     data["stations"] = data["stations"][:1]
     data["stations"][0]["multipath"] = {"amplitude_m": 0.5, "decay_deg": 15.0}
@@ -475,7 +467,7 @@ def test_bad_scenario_names_the_key(tmp_path):
 
 def test_real_nav_file_as_satellite_source(shared_data, tmp_path):
     pytest.importorskip("ctt.orbits")
-    data = _datetime_fix(_base(hours=0.5))
+    data = _base(hours=0.5)
     data["scenario"]["systems"] = ["G"]
     data["satellites"] = {"source": "nav", "nav_file": str(shared_data / "brdc0010.21n")}
     res = simulate(scenario_from_dict(data))
@@ -548,7 +540,7 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
     from ctt.rinex.nav import read_nav
     from ctt.rinex.obs import read_obs
 
-    data = _datetime_fix(_base(hours=1.0))
+    data = _base(hours=1.0)
     data["stations"] = data["stations"][:1]
     res = simulate(scenario_from_dict(data))
     files = write_outputs(res, tmp_path)
@@ -571,7 +563,7 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
 def test_multi_day_scenario_writes_daily_files(tmp_path):
     config = pytest.importorskip("ctt.config")
     obs_mod = pytest.importorskip("ctt.rinex.obs")
-    data = _datetime_fix(_base(hours=48.0))
+    data = _base(hours=48.0)
     data["scenario"]["interval_s"] = 300.0  # keeps the test quick
     res = simulate(scenario_from_dict(data))
     files = write_outputs(res, tmp_path)
@@ -588,7 +580,7 @@ def test_multi_day_scenario_writes_daily_files(tmp_path):
 
 
 def test_orbit_error_moves_the_range_by_its_line_of_sight_part():
-    base = _quiet(_datetime_fix(_base(hours=0.5)))
+    base = _quiet(_base(hours=0.5))
     base["stations"] = base["stations"][:1]
     res0 = simulate(scenario_from_dict(copy.deepcopy(base)))
     base["satellites"] = {"orbit_error_m": 1.0}
