@@ -80,7 +80,10 @@ uncertainty combines, in quadrature,
   mean square is ``<(D2x)^2>/4 = d^2 AVAR(d)/2``; with ``TVAR = d^2 MVAR/3``
   and ``MVAR = AVAR/2`` for white FM (random-walk phase, the clock noise that
   dominates between points) this is ``3 TVAR(d)``. For flicker and
-  random-walk FM MVAR/AVAR > 1/2, so the formula is conservative there.
+  random-walk FM MVAR/AVAR > 1/2 (about 0.67 and 0.82 at large m; ratios
+  from memory of NIST SP 1065), so the formula is conservative there. The
+  measured TDEV also holds the points' white PM noise, which ``u_pts`` already
+  counts: another conservative overlap, small where the clocks dominate.
   TDEV is taken from allantools on the longest gap-free stretch of the series,
   interpolated log-log in tau; below the series' own spacing tau0 it scales as
   ``TDEV(tau0) sqrt(d/tau0)`` (white FM; zero at a data point, whose own
