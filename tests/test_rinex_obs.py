@@ -582,3 +582,25 @@ def test_header_only_rinex2_types(tmp_path):
     # mapping table of ctt/rinex/obs.py for GPS: C1 L1 L2 P2 S1 S2
     assert h.obs_types == {"G": ["C1C", "L1C", "L2W", "C2W", "S1C", "S2W"]}
     assert h.obs_types_v2 == ["C1", "L1", "L2", "P2", "S1", "S2"]
+
+
+@pytest.mark.parametrize("name", ["edge_v211_mixed.21o", "edge_v305_mixed.rnx"])
+def test_block_decoding_equals_one_block(test_data, tmp_path, monkeypatch, name):
+    """Large files are decoded in blocks of fields; small blocks must change nothing,
+    and an error in a later block still names its own line."""
+    import ctt.rinex.obs as obs_mod
+
+    path = test_data / "obs" / name
+    whole = obs_mod.read_obs(path)
+    monkeypatch.setattr(obs_mod, "_CHUNK_FIELDS", 17)
+    blocks = obs_mod.read_obs(path)
+    for c in whole.obs:
+        assert np.array_equal(whole.obs[c], blocks.obs[c], equal_nan=True)
+        assert np.array_equal(whole.lli[c], blocks.lli[c]) and np.array_equal(whole.ssi[c], blocks.ssi[c])
+    lines = path.read_text().splitlines(keepends=True)
+    k = len(lines) - 1  # the last line holds observations in both files
+    lines[k] = lines[k][:20] + "#" + lines[k][21:]
+    bad = write(tmp_path, name, "".join(lines))
+    with pytest.raises(RinexFormatError) as exc:
+        obs_mod.read_obs(bad)
+    assert exc.value.line == k + 1 and "#" in exc.value.found

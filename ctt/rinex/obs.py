@@ -1122,6 +1122,9 @@ def _sat_names(codes: np.ndarray) -> np.ndarray:
     return np.array([f"{chr(c // 100)}{c % 100:02d}" for c in codes.tolist()], dtype="U3")
 
 
+_CHUNK_FIELDS = 2_000_000  # observation fields decoded per block (32 MB of characters)
+
+
 def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
     """Bulk-decode all satellite records.
 
@@ -1151,26 +1154,13 @@ def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
             nf = len(types)
             nl_sv = -(-nf // 5)
             line0 = first[r_ep] + r_in * nl_sv
-            parts = [src.matrix(line0 + k, 80) for k in range(nl_sv)]
-            m = parts[0] if nl_sv == 1 else np.concatenate(parts, axis=1)
             ids, idok = _sat_ids(sat_all[sel], True)
-            fields = np.ascontiguousarray(m[:, :16 * nf]).reshape(-1, 16)
-            # a record line that is really an epoch record: the satellite count disagrees
-            for k, mm in enumerate(parts):
-                looks = ((mm[:, 18] == 46) & (mm[:, 3] == 32) & (mm[:, 6] == 32) & (mm[:, 9] == 32)
-                         & (mm[:, 12] == 32) & (mm[:, 15] == 32) & (mm[:, 19] - np.uint8(48) < 10)
-                         & (mm[:, 28] >= 48) & (mm[:, 28] <= 54))
-                for r in np.flatnonzero(looks):
-                    ep = r_ep[r]
-                    _mark(bad_ep, bad_reason, ep, line0[r] + k,
-                          f"{walk.ep_nsat[ep]} satellite records of {nl_sv} line(s) after the epoch "
-                          f"record at line {ep_line[ep] + 1} (its satellite count disagrees with the lines)")
             ntypes = None
         else:
+            nl_sv = 1
             line0 = first[r_ep] + r_in
             nf = max(len(v) for v in types.values())
             ids, idok = _sat_ids(src.matrix(line0, 3), False)
-            fields = src.matrix(line0, 16 * nf, offset=3).reshape(-1, 16)
             sysb = (ids // 100).astype(np.uint8)
             ntypes = np.full(len(ids), -1, np.int64)
             for sname, v in types.items():
@@ -1183,10 +1173,34 @@ def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
             li = ep_line[r_ep[r]] if v2 else line0[r]
             _mark(bad_ep, bad_reason, r_ep[r], li,
                   "satellite ids like G07 (system letter G R E C J S I and two digits)")
-        vals, badf, lli, ssi = _num_fields(fields)
         n_rec = len(ids)
-        vals, badf = vals.reshape(n_rec, nf), badf.reshape(n_rec, nf)
-        lli, ssi = lli.reshape(n_rec, nf), ssi.reshape(n_rec, nf)
+        vals = np.empty((n_rec, nf))
+        badf = np.empty((n_rec, nf), bool)
+        lli = np.empty((n_rec, nf), np.int8)
+        ssi = np.empty((n_rec, nf), np.int8)
+        step = max(1, _CHUNK_FIELDS // nf)  # bounded temporaries for large (1 Hz) files
+        for a in range(0, n_rec, step):
+            b = min(n_rec, a + step)
+            if v2:
+                parts = [src.matrix(line0[a:b] + k, 80) for k in range(nl_sv)]
+                m = parts[0] if nl_sv == 1 else np.concatenate(parts, axis=1)
+                fields = np.ascontiguousarray(m[:, :16 * nf]).reshape(-1, 16)
+                # a record line that is really an epoch record: the satellite count disagrees
+                for k, mm in enumerate(parts):
+                    looks = ((mm[:, 18] == 46) & (mm[:, 3] == 32) & (mm[:, 6] == 32) & (mm[:, 9] == 32)
+                             & (mm[:, 12] == 32) & (mm[:, 15] == 32) & (mm[:, 19] - np.uint8(48) < 10)
+                             & (mm[:, 28] >= 48) & (mm[:, 28] <= 54))
+                    for r in (np.flatnonzero(looks) + a).tolist():
+                        ep = r_ep[r]
+                        _mark(bad_ep, bad_reason, ep, line0[r] + k,
+                              f"{walk.ep_nsat[ep]} satellite records of {nl_sv} line(s) after the epoch "
+                              f"record at line {ep_line[ep] + 1} (its satellite count disagrees with "
+                              "the lines)")
+            else:
+                fields = src.matrix(line0[a:b], 16 * nf, offset=3).reshape(-1, 16)
+            v, bd, li, si = _num_fields(fields)
+            vals[a:b], badf[a:b] = v.reshape(-1, nf), bd.reshape(-1, nf)
+            lli[a:b], ssi[a:b] = li.reshape(-1, nf), si.reshape(-1, nf)
         if ntypes is not None and (ntypes < nf).any():
             # columns past a system's own types are checked by line length below
             badf &= np.arange(nf)[None, :] < ntypes[:, None]
@@ -1213,8 +1227,9 @@ def _decode(src: _Source, walk: _Walk, h: ObsHeader, seg_types: list, v2: bool):
             for r, k in zip(rr[:1000].tolist(), kk[:1000].tolist()):
                 line = line0[r] + (k // 5 if v2 else 0)
                 what = "an observation as F14.3 with loss-of-lock and signal-strength digits (I1, I1)"
-                _mark(bad_ep, bad_reason, r_ep[r], line, what,
-                      fields[r * nf + k].tobytes().decode("latin-1"))
+                col = 16 * (k % 5) if v2 else 3 + 16 * k
+                text = src.matrix(np.array([line]), 16, offset=col)[0].tobytes().decode("latin-1")
+                _mark(bad_ep, bad_reason, r_ep[r], line, what, text)
         out.append((seg, r_ep, ids, (ids // 100).astype(np.uint8), vals, lli, ssi))
     return out, bad_ep, bad_reason
 
