@@ -1,0 +1,91 @@
+"""Daily operation on the demo scenario: idempotent re-runs, failures recorded, reprocessing after a calibration.
+
+The demo pair (data_demo/, invented and simulated) is copied into a temporary
+folder so the tests never write into the repository.
+"""
+
+import pathlib
+import shutil
+import sqlite3
+
+import pytest
+
+from ctt.cli import main
+
+DEMO = pathlib.Path(__file__).resolve().parents[1] / "data_demo"
+
+
+@pytest.fixture()
+def demo(tmp_path):
+    work = tmp_path / "demo"
+    shutil.copytree(DEMO, work, ignore=shutil.ignore_patterns("out", "*.sqlite*"))
+    pair = work / "aldr-brkw.toml"
+    text = pair.read_text()
+    if "[output]" not in text:
+        text += '\n[output]\ndir = "out"\n'
+    pair.write_text(text)
+    return work, pair
+
+
+def _counts(db):
+    con = sqlite3.connect(db)
+    try:
+        return {t: con.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in ("offsets", "satellites", "runs")}
+    finally:
+        con.close()
+
+
+@pytest.mark.slow
+def test_daily_twice_is_idempotent_and_backfill_sees_calibration_changes(demo, capsys):
+    work, pair = demo
+    assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"]) == 0
+    db = next((work / "out").glob("*.sqlite"))
+    first = _counts(db)
+    assert first["offsets"] > 0 and first["satellites"] > 0
+    # same inputs, same configuration: skipped; forced: replaced, same rows
+    assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"]) == 0
+    assert "already done" in capsys.readouterr().out
+    assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--force", "--no-report"]) == 0
+    second = _counts(db)
+    assert second["offsets"] == first["offsets"] and second["satellites"] == first["satellites"]
+    with sqlite3.connect(db) as con:
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        dup = con.execute("SELECT COUNT(*) FROM (SELECT pair, date, system, time_utc, COUNT(*) c FROM offsets "
+                          "GROUP BY pair, date, system, time_utc HAVING c > 1)").fetchone()[0]
+    assert dup == 0
+
+    # nothing to do for the day ...
+    capsys.readouterr()
+    assert main(["backfill", "--config", str(pair), "--from", "2021-01-01", "--to", "2021-01-01", "--check"]) == 0
+    assert "0 of 1 day(s) to process" in capsys.readouterr().out
+    # ... until a delay set covering it changes (a new calibration of B's cable)
+    st_b = work / "brkw.toml"
+    st_b.write_text(st_b.read_text().replace("cable_ns = 96.8", "cable_ns = 97.3"))
+    assert main(["backfill", "--config", str(pair), "--from", "2021-01-01", "--to", "2021-01-01", "--check"]) == 0
+    out = capsys.readouterr().out
+    assert "2021-01-01: configuration changed" in out
+
+
+@pytest.mark.slow
+def test_a_missing_or_corrupt_day_is_recorded_and_others_are_kept(demo, capsys):
+    work, pair = demo
+    # day 2 has no files at all: recorded as failed, day 1 processed
+    rc = main(["backfill", "--config", str(pair), "--from", "2021-01-01", "--to", "2021-01-02", "--no-report"])
+    assert rc == 0
+    err = capsys.readouterr().err
+    assert "failed 2021-01-02" in err and "no obs_a file" in err
+    db = next((work / "out").glob("*.sqlite"))
+    with sqlite3.connect(db) as con:
+        status = dict(con.execute("SELECT date, latest_status FROM days").fetchall())
+        n1 = con.execute("SELECT COUNT(*) FROM offsets WHERE date='2021-01-01'").fetchone()[0]
+    assert status == {"2021-01-01": "ok", "2021-01-02": "failed"}
+    # corrupt day 1's observation file: the re-run fails with the reason, the old results stay
+    obs = next(work.glob("ALDR*_MO.rnx.gz"))
+    obs.write_bytes(obs.read_bytes()[:5000])
+    rc = main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"])
+    assert rc in (1, 3)
+    assert str(obs.name) in capsys.readouterr().err
+    with sqlite3.connect(db) as con:
+        status = dict(con.execute("SELECT date, latest_status FROM days").fetchall())
+        n1b = con.execute("SELECT COUNT(*) FROM offsets WHERE date='2021-01-01'").fetchone()[0]
+    assert status["2021-01-01"] == "failed" and n1b == n1
