@@ -658,7 +658,8 @@ def _local_fit(ts, x, i_lo, i_b, i_hi):
 
 def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
                    max_points: int = 4000, min_sigma: float = 5.0,
-                   tolerance_s: float | None = None, window: int = 200) -> ChangeReport:
+                   tolerance_s: float | None = None, window: int = 200,
+                   max_candidates: int = 100) -> ChangeReport:
     """Phase steps and frequency changes by change-point search (ruptures), matched to a log.
 
     Method (documented choices):
@@ -677,12 +678,16 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
        white-noise estimate of the phase (MAD of first differences /√2,
        :func:`robust_sigma_white`). Minimum segment 5 blocks.
     3. Each candidate is re-measured by a local least-squares fit of
-       a + b·t + s·H(t−t_b) + f·(t−t_b)·H(t−t_b) over up to ``window`` blocks either
-       side (bounded by neighbouring candidates), the uncertainty scaled by the
+       a + b·t + s·H(t−t_b) + f·(t−t_b)·H(t−t_b) over ``window`` blocks either
+       side (first pass), then the survivors again between their surviving
+       neighbours (second pass), the uncertainty scaled by the
        residual scatter and inflated by the lag-1 autocorrelation factor
-       (1+r1)/(1−r1). A step is reported when |s|/u(s) ≥ ``min_sigma`` and a
-       frequency change when |f|/u(f) ≥ ``min_sigma`` (5, a conventional
-       detection threshold); one break can give both.
+       (1+r1)/(1−r1), and never taken below the spread of the same estimator
+       over all positions of the series (:func:`_scan_null`): for white phase
+       noise both agree, for random-walk-like phase only the second is honest.
+       A step is reported when |s|/u(s) ≥ ``min_sigma`` and a frequency change
+       when |f|/u(f) ≥ ``min_sigma`` (5, a conventional detection threshold); one
+       break can give both. At most ``max_candidates`` (100) breaks are examined.
     4. Matching: a change is *expected* when a log entry lies within
        ``tolerance_s`` of it (default: max(1 h, 3 blocks)); the closest entry is
        taken. Log entries with no detected change within tolerance are listed
@@ -723,20 +728,64 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
         design = np.column_stack([xd, np.ones_like(ts), ts / max(ts[-1], 1.0)])
         algo = rpt.Binseg(model="linear", min_size=5, jump=1).fit(design)
         bps = algo.predict(pen=penalty_k * sig_phase ** 2 * math.log(len(xd)))[:-1]
-    found = []
-    for k, b in enumerate(bps):
-        lo = max(bps[k - 1] if k > 0 else 0, b - window)
-        hi = min(bps[k + 1] if k + 1 < len(bps) else len(xd), b + window)
-        r = _local_fit(ts, xb, lo, b, hi)
-        if r is None:
-            continue
-        c, sd = r
-        for kind, size, u in (("phase step", c[2], sd[2]),
-                              ("frequency change", c[3] * 1e-9, sd[3] * 1e-9)):
-            sig = abs(size) / u if u > 0 else math.inf
-            if sig >= min_sigma:
-                found.append(Change(int(tb[b]), kind, float(size), float(u), False,
-                                    significance=float(sig)))
+        if len(bps) > max_candidates:
+            bps = algo.predict(n_bkps=max_candidates)[:-1]
+    w = max(5, min(window, len(xb) // 8))
+    step_s = float(np.median(np.diff(ts)))
+
+    def evaluate(xnull):
+        """Candidates kept against max(formal u, scan spread of ``xnull``); returns Changes."""
+        nulls = {}
+
+        def measure(b, lo, hi):
+            r = _local_fit(ts, xb, lo, b, hi)
+            if r is None:
+                return None
+            key = (b - lo, hi - b)
+            if key not in nulls:
+                nulls[key] = _scan_null(xnull, *key)
+            ns_, nf = nulls[key]
+            c, sd = r
+            return ((c[2], max(sd[2], ns_)), (c[3] * 1e-9, max(sd[3], nf / step_s) * 1e-9))
+
+        # pass 1: every candidate with the same window (w blocks each side, cut at the ends)
+        kept = []
+        for b in bps:
+            m = measure(b, max(0, b - w), min(len(xb), b + w))
+            if m is not None and any(abs(v) / u >= min_sigma for v, u in m if u > 0):
+                kept.append(b)
+        # pass 2: survivors re-measured between their neighbours, so that a nearby
+        # change does not leak into the fit
+        out = []
+        for k, b in enumerate(kept):
+            lo = max(kept[k - 1] if k > 0 else 0, b - w)
+            hi = min(kept[k + 1] if k + 1 < len(kept) else len(xb), b + w)
+            m = measure(b, lo, hi)
+            if m is None:
+                continue
+            for kind, (size, u) in zip(("phase step", "frequency change"), m):
+                sig = abs(size) / u if u > 0 else math.inf
+                if sig >= min_sigma:
+                    out.append((b, Change(int(tb[b]), kind, float(size), float(u), False,
+                                          significance=float(sig))))
+        return out
+
+    # The scan spread is first taken on the series as it is (real changes inflate it,
+    # so only clear changes pass), then on the series with the changes found so far
+    # removed, until the set of changes stops changing (at most 4 rounds).
+    xnull = xb
+    found_b = evaluate(xnull)
+    for _ in range(4):
+        clean = xb.copy()
+        for b, c in found_b:
+            dt_ = ts - ts[b]
+            clean -= (c.size if c.kind == "phase step" else c.size * 1e9 * dt_) * (dt_ >= 0)
+        nxt = evaluate(clean)
+        same = [(b, c.kind) for b, c in nxt] == [(b, c.kind) for b, c in found_b]
+        found_b = nxt
+        if same:
+            break
+    found = [c for _, c in found_b]
     # one change may be found at neighbouring breaks: keep the most significant
     found = _dedupe(found, tol)
     used = set()
@@ -755,6 +804,24 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
             used.add(best[1])
     undetected = _undetected([e for j, e in enumerate(log) if j not in used], tb, xb, found, window)
     return ChangeReport(found, undetected, sig_phase, block, penalty_k, tol)
+
+
+def _scan_null(xb, wl, wr=None):
+    """Robust spread (1.4826·MAD) of the local step and slope-change estimators taken at
+    every position of the block series (window w blocks each side, equal spacing
+    assumed). Real changes are few, so this is the spread under "no change" whatever
+    the noise is: for white PM it equals the formal u, for random-walk-like phase it
+    is much larger, which the formal u (even AR(1)-inflated) is not. ``wl``/``wr``:
+    blocks before/after the break."""
+    wr = wl if wr is None else wr
+    j = np.arange(-wl, wr, dtype=float)
+    h = (j >= 0).astype(float)
+    W = np.linalg.pinv(np.column_stack([np.ones_like(j), j, h, j * h]))
+    out = []
+    for row in (W[2], W[3]):
+        v = np.correlate(xb, row, "valid")
+        out.append(float(1.4826 * np.median(np.abs(v - np.median(v)))) if len(v) else 0.0)
+    return out[0], out[1]
 
 
 def _dedupe(found, tol):

@@ -248,6 +248,26 @@ def test_no_changes_in_pure_white_noise():
         assert rep.changes == []
 
 
+def test_no_changes_in_random_walk_phase():
+    # White FM (random-walk phase) plus white PM: the formal u of a local fit is far
+    # too small here; the scan spread keeps false alarms away (5 seeds, none expected).
+    for seed in range(5):
+        rng = np.random.default_rng(200 + seed)
+        t = (np.arange(5760) * 30 * NS).astype(np.int64)
+        x = np.cumsum(rng.normal(scale=0.05, size=5760)) + rng.normal(scale=0.3, size=5760)
+        assert stability.detect_changes(t, x).changes == []
+
+
+def test_step_in_random_walk_phase_found_with_honest_u():
+    rng = np.random.default_rng(300)
+    t = (np.arange(5760) * 30 * NS).astype(np.int64)
+    x = np.cumsum(rng.normal(scale=0.05, size=5760)) + rng.normal(scale=0.3, size=5760)
+    x[3000:] += 6.0
+    ch = stability.detect_changes(t, x).changes
+    assert len(ch) == 1 and ch[0].kind == "phase step"
+    assert abs(ch[0].size - 6.0) < 3 * ch[0].u_size and ch[0].u_size > 0.3   # RW wander, not 0.05 ns
+
+
 def test_robust_sigma_ignores_steps():
     rng = np.random.default_rng(6)
     x = rng.normal(scale=2.0, size=10000)
