@@ -140,9 +140,11 @@ random_walk_fm  −2   (2π)²·τ·h₋₂ / 6                         +1/2
   frequency of the generated series.
 * ``h`` is used as given, with the same f_h = 1/(2τ0) for the PM types.
 
-The generated series has the table's σ_y(τ) for τ ≥ a few τ0; at τ = τ0
-exactly, the discrete flicker and random-walk series are 10-20 % above the
-continuous formula (a known property of sampled power-law noise).
+The generated series has the table's σ_y(τ) exactly for white PM and white
+FM; for flicker FM and random-walk FM from τ ≈ 16 τ0 on (within 0.5 %), while
+at τ = τ0 itself the sampled series are 20-22 % above the continuous formula
+(a known property of sampled power-law noise); flicker PM stays 2-3 % above
+the table's approximate formula over 16-256 τ0 (tests/test_against_kasdin_walter.py).
 
 Scenario file
 =============

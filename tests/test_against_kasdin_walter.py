@@ -73,7 +73,9 @@ def test_adev_slope_matches_nist_table(kind):
         expected = math.log(adev_from_h(kind, 1.0, m2 * TAU0, 0.5 / TAU0)
                             / adev_from_h(kind, 1.0, m1 * TAU0, 0.5 / TAU0)) / math.log(m2 / m1)
         assert -1.0 < expected < -0.8
-    assert abs(measured - expected) < 4 * se + 1e-3, (kind, measured, expected, se)
+    # (the discrete series' excess at 4τ0 over the table, < 2.5 % for flicker/random-walk FM, see
+    # test_expected_level_is_the_nist_relation, biases the slope by < 0.006, well inside 4 se)
+    assert abs(measured - expected) < 4 * se, (kind, measured, expected, se)
     # and the slope tells this noise type from its neighbours in the table (slopes 1/2 apart,
     # flicker and white PM share −1 and are told apart by MDEV, not by ADEV)
     for other, s in NIST_SLOPE.items():
@@ -87,26 +89,62 @@ def test_level_at_tau0_is_the_configured_adev(kind):
     configured = 1e-11 * TAU0 ** NIST_SLOPE[kind]
     devs = [float(_oadev(_series(kind, k)[0], [1])[0]) for k in range(REALISATIONS)]
     rel_se = math.sqrt(1 / (2 * _edf(kind, 1))) / math.sqrt(REALISATIONS)
-    assert abs(np.mean(devs) / configured - 1) < 2.6 * rel_se + 1e-3, (np.mean(devs), configured)
+    assert abs(np.mean(devs) / configured - 1) < 2.6 * rel_se, (np.mean(devs), configured)
     _, level = _series(kind, 0)
     assert level.adev_tau0 == pytest.approx(configured, rel=1e-12)
 
 
-@pytest.mark.parametrize("kind, m", [("flicker_fm", 8), ("random_walk_fm", 8), ("flicker_pm", 64)])
-def test_level_of_flicker_and_random_walk_follows_the_h_relation(kind, m):
-    """σ_y(m τ0) against the NIST h_α relation (f_h = 1/(2τ0)) where the discrete series has reached it.
+def _expected_discrete_adev(kind, h, m):
+    """Exact expected overlapping ADEV at m·τ0 of the Kasdin & Walter series of length N.
 
-    At τ = τ0 itself sampled flicker/random-walk series exceed the continuous
-    formula by 10-20 % (Kasdin & Walter 1992 discuss the discrete spectrum);
-    m is chosen past that region.
+    x_k = Σ_{j<=k} h_j w_{k-j} (their filter, Q_d from eq. 39), so the second difference
+    x_{k+2m} − 2x_{k+m} + x_k has variance Q_d·Σ_{j<=k+2m} d_j², d = h − 2h(·−m) + h(·−2m);
+    averaged over the N − 2m differences the estimator uses.
     """
+    alpha, _ = NOISE_TYPES[kind]
+    qd = h / (2.0 * (2 * math.pi) ** alpha * TAU0 ** (alpha - 1))
+    b = alpha - 2
+    j = np.arange(1, N)
+    hh = np.ones(N)
+    hh[1:] = np.cumprod((j - 1 - b / 2.0) / j)
+    d = hh.copy()
+    d[m:] -= 2 * hh[:-m]
+    d[2 * m:] += hh[:-2 * m]
+    var2 = np.cumsum(d ** 2)
+    return math.sqrt(qd * np.mean(var2[2 * m:]) / (2.0 * m * m * TAU0 ** 2))
+
+
+@pytest.mark.parametrize("kind", list(NOISE_TYPES))
+@pytest.mark.parametrize("m", [1, 16])
+def test_level_matches_the_expected_adev(kind, m):
+    """Mean measured σ_y(m τ0) of the realisations against its exact expectation, within 3 standard errors."""
     devs, expected = [], None
     for k in range(REALISATIONS):
         x, level = _series(kind, k)
         devs.append(float(_oadev(x, [m])[0]))
-        expected = adev_from_h(kind, level.h, m * TAU0, 0.5 / TAU0)
+        expected = _expected_discrete_adev(kind, level.h, m)
     rel_se = math.sqrt(1 / (2 * _edf(kind, m))) / math.sqrt(REALISATIONS)
-    assert abs(np.mean(devs) / expected - 1) < 3 * rel_se + 0.02, (kind, np.mean(devs), expected, rel_se)
+    assert abs(np.mean(devs) / expected - 1) < 3 * rel_se, (kind, m, np.mean(devs), expected, rel_se)
+
+
+@pytest.mark.parametrize("kind", list(NOISE_TYPES))
+def test_expected_level_is_the_nist_relation(kind):
+    """The generated series has the NIST SP 1065 σ_y(τ) of its h_α (f_h = 1/(2τ0)).
+
+    Exactly for white PM and white FM at every τ; for flicker FM and random-walk FM from
+    ~16 τ0 on (at τ0 itself sampled series are 20-22 % above the continuous formula);
+    flicker PM stays 2-3 % above it (the table's constant 1.038 + 3 ln(2π f_h τ) holds for
+    2π f_h τ >> 1, and the discrete series approaches it only logarithmically).
+    """
+    h, _ = noise_level(kind, TAU0, adev_1s=1e-11)
+    ratio = {m: _expected_discrete_adev(kind, h, m) / adev_from_h(kind, h, m * TAU0, 0.5 / TAU0)
+             for m in (1, 16, 256)}
+    if kind in ("white_pm", "white_fm"):
+        assert all(abs(r - 1) < 1e-9 for r in ratio.values()), ratio
+    elif kind == "flicker_pm":
+        assert 1.0 < ratio[256] < ratio[16] < 1.03, ratio
+    else:
+        assert abs(ratio[16] - 1) < 0.005 and abs(ratio[256] - 1) < 0.001 and ratio[1] > 1.15, ratio
 
 
 @pytest.mark.parametrize("kind", list(NOISE_TYPES))
