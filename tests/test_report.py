@@ -201,3 +201,21 @@ def test_compare_periods_command(run_dir, capsys):
 def test_bad_file_exit_code(capsys):
     assert main(["stability", str(DATA / "bad_value.csv")]) == 1
     assert "bad_value.csv:5" in capsys.readouterr().err
+
+
+def test_report_from_archive(run_dir, tmp_path):
+    archive = pytest.importorskip("ctt.archive")
+    d, _ = run_dir
+    off = pd.read_csv(d / "offset.csv")
+    db = tmp_path / "a.sqlite"
+    with archive.Archive(db) as ar:
+        for day, rows in off.groupby(off["time_utc"].str[:10]):
+            ar.store_day("alpha-bravo", day, rows, None,
+                         {"inputs": {"obs_a": {"path": f"alpha_{day}.rnx", "sha256": "ab" * 32}},
+                          "version": "0.0-test"})
+    out = tmp_path / "arch.html"
+    assert main(["report", str(db), "--pair", "alpha-bravo", "--from", "2026-03-02", "--out", str(out)]) == 0
+    r = json.loads(out.with_suffix(".json").read_text())
+    assert r["series"]["start"] == "2026-03-02T00:00:00Z" and r["provenance"]["days"] == 2
+    assert r["provenance"]["inputs"][0]["sha256"] == "ab" * 32
+    assert main(["report", str(db), "--out", str(out)]) == 2          # --pair missing

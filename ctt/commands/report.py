@@ -11,7 +11,9 @@ from __future__ import annotations
 
 import pathlib
 
-from ..errors import UsageError
+import json
+
+from ..errors import NoDataError, UsageError
 from ..report import build_report, day_range_ns, read_run_dir
 from .stability import load_change_log
 
@@ -41,6 +43,24 @@ def _is_sqlite(path: pathlib.Path) -> bool:
         return False
 
 
+def _archive_provenance(runs, dates) -> dict:
+    """Inputs (with hashes) and versions of the good runs behind the reported days."""
+    inputs, versions = [], set()
+    if len(runs):
+        ok = runs[(runs["status"] == "ok") & runs["date"].isin(dates)]
+        ok = ok.sort_values("run_id").groupby("date").tail(1)
+        for _, r in ok.iterrows():
+            versions.add(str(r.get("version")))
+            try:
+                ins = json.loads(r.get("inputs_json") or "{}")
+            except json.JSONDecodeError:
+                ins = {}
+            for name, v in (ins.items() if isinstance(ins, dict) else []):
+                v = v if isinstance(v, dict) else {"path": v}
+                inputs.append({"name": f"{r['date']} {name}", "path": v.get("path"), "sha256": v.get("sha256")})
+    return {"inputs": inputs, "version": ", ".join(sorted(versions)) or None, "days": len(dates)}
+
+
 def run(args) -> int:
     src = pathlib.Path(args.source)
     try:
@@ -53,9 +73,12 @@ def run(args) -> int:
             raise UsageError(f"{src}: an archive needs --pair")
         from ..archive import Archive
         with Archive(src) as ar:
-            off = ar.load_offsets(args.pair, (args.time_from or None) and args.time_from[:10],
-                                  (args.time_to or None) and args.time_to[:10])
-        build_report(off, None, None, log, args.out, lo, hi, args.title or f"Pair {args.pair}",
+            off = ar.load_offsets(args.pair, args.time_from[:10] if args.time_from else None,
+                                  args.time_to[:10] if args.time_to else None)
+            if len(off) == 0:
+                raise NoDataError(f"{src}: no offsets stored for pair {args.pair!r} in the range")
+            summary = _archive_provenance(ar.runs(args.pair), set(off["date"]))
+        build_report(off, None, summary, log, args.out, lo, hi, args.title or f"Pair {args.pair}",
                      args.column, str(src))
         return 0
     if src.is_file():
