@@ -130,11 +130,6 @@ assert abs(F_GPS - (-4.442807633e-10)) < 5e-19, F_GPS
 # few the broadcast group delays refer to.
 F_L1 = 1575.42e6
 F_L2 = 1227.60e6
-F_E5A = 1176.45e6
-F_E5B = 1207.14e6
-F_B1I = 1561.098e6
-F_B2I = 1207.14e6
-F_B3I = 1268.52e6
 
 KEPLER_TOL_RAD = 1e-13
 KEPLER_MAX_ITER = 50
@@ -802,65 +797,33 @@ class BroadcastOrbits:
         return group_delay_correction_s(sats, states, signal, galileo_source=self.galileo_source)
 
 
-def _single_delay(letter, band, st, galileo_source):
-    """Per-signal group-delay correction (s) and frequency for one system letter."""
-    gam = (F_L1 / F_L2) ** 2
-    n = len(st.status)
-    if letter in ("G", "J"):
-        # IS-GPS-200 §20.3.3.3.3.2: (Δt_SV)_L1P(Y) = Δt_SV − T_GD, (Δt_SV)_L2P(Y) = Δt_SV − γ·T_GD;
-        # L1 C/A uses T_GD as L1 P(Y) does with the legacy message (common practice).
-        if band == "1":
-            return -st.tgd_s, F_L1
-        if band == "2":
-            return -gam * st.tgd_s, F_L2
-        return np.full(n, np.nan), np.nan
-    if letter == "E":
-        # Galileo OS SIS ICD §5.1.5: single frequency E1: Δt − BGD(E1,E5x);
-        # E5x: Δt − (f_E1/f_E5x)²·BGD(E1,E5x); x = a with F/NAV clocks, b with I/NAV.
-        if galileo_source == "inav":
-            b, f2, other = st.bgd_e5b_s, F_E5B, "7"
-        else:
-            b, f2, other = st.bgd_e5a_s, F_E5A, "5"
-        if band == "1":
-            return -b, F_L1
-        if band == other:
-            return -((F_L1 / f2) ** 2) * b, f2
-        return np.full(n, np.nan), np.nan
-    if letter == "C":
-        # BDS SIS ICD (B1I/B3I §5.2.4.10): clock refers to B3I; B1I: Δt − T_GD1; B2I: Δt − T_GD2.
-        # RINEX 3.02+ codes: B1I is band 2 (C2I), B2I band 7, B3I band 6; band 1 is B1C (no D1/D2 delay).
-        if band == "2":
-            return -st.tgd1_s, F_B1I
-        if band == "7":
-            return -st.tgd2_s, F_B2I
-        if band == "6":
-            return np.zeros(n), F_B3I
-        return np.full(n, np.nan), np.nan
-    return np.full(n, np.nan), np.nan
-
-
 def group_delay_correction_s(sats, states: SatStates, signal, *, galileo_source="inav"):
     """Group-delay correction (s) to add to the broadcast clock for ``signal`` (see
-    :meth:`BroadcastOrbits.group_delay_s`). For an iono-free pair (a, b) the
-    correction is (f_a²·d_a − f_b²·d_b)/(f_a² − f_b²) of the single-signal
-    corrections d, which is 0 for the pair the clock refers to (GPS L1/L2 P(Y),
-    Galileo E1/E5b with I/NAV, E1/E5a with F/NAV) as the ICDs state.
+    :meth:`BroadcastOrbits.group_delay_s`): ``−Σ factor · parameter`` with the ICD
+    factors of :func:`ctt.signals.group_delay_factor` (the one place they are
+    written down). For an iono-free pair the terms combine like the codes, which
+    is 0 for the pair the clock refers to (GPS L1/L2 P(Y), Galileo E1/E5b with
+    I/NAV, E1/E5a with F/NAV). NaN where the broadcast message defines no
+    delay for the signal (e.g. GPS L5 in LNAV) and on unusable rows.
     """
-    sats = np.asarray(sats).astype(str)
+    from .signals import group_delay_factor
+
     letters = np.asarray(states.system).astype(str)
     out = np.full(len(states.status), np.nan)
-    pair = isinstance(signal, (tuple, list))
+    codes = tuple(signal) if isinstance(signal, (tuple, list)) else (str(signal),)
+    params = {"tgd_s": states.tgd_s, "bgd_e1e5a_s": states.bgd_e5a_s, "bgd_e1e5b_s": states.bgd_e5b_s,
+              "tgd1_s": states.tgd1_s, "tgd2_s": states.tgd2_s}
+    bands = {c[1:2] for c in codes}
     for letter in np.unique(letters):
         rows = letters == letter
-        if pair:
-            da, fa = _single_delay(letter, str(signal[0])[1:2], states, galileo_source)
-            db, fb = _single_delay(letter, str(signal[1])[1:2], states, galileo_source)
-            if not (np.isfinite(fa) and np.isfinite(fb)):
-                continue
-            val = (fa**2 * da - fb**2 * db) / (fa**2 - fb**2)
-        else:
-            val, _ = _single_delay(letter, str(signal)[1:2], states, galileo_source)
-        out[rows] = val[rows]
+        if letter == "E" and (("5" in bands and galileo_source == "inav") or ("7" in bands and galileo_source == "fnav")):
+            # the clock of these records refers to the other pair (OS SIS ICD §5.1.5): undefined
+            continue
+        try:
+            gd = group_delay_factor(letter, codes, nav=galileo_source.upper())
+        except ValueError:
+            continue  # no broadcast model for this signal: NaN
+        out[rows] = -np.broadcast_to(gd.correction_s(params), out.shape)[rows]
     out[states.status != OK] = np.nan
     return out
 
