@@ -276,7 +276,7 @@ __all__ = [
     "NOISE_TYPES", "C_MPS", "OMEGA_E", "kasdin_walter", "h_from_adev", "adev_from_h", "noise_level",
     "power_law_noise", "clock_series", "Scenario", "StationSpec", "ClockSpec", "load_scenario",
     "scenario_from_dict", "synthetic_constellation", "KeplerEphemerides", "light_time", "simulate", "run_scenario",
-    "SimulationResult",
+    "SimulationResult", "StationResult", "write_outputs", "obs_file_name", "nav_file_name", "met_file_name",
 ]
 
 C_MPS = 299_792_458.0  # SI
