@@ -125,11 +125,6 @@ F_GAL = -2.0 * math.sqrt(GM_GAL) / C_MPS**2
 F_BDS = -2.0 * math.sqrt(GM_BDS) / C_MPS**2
 assert abs(F_GPS - (-4.442807633e-10)) < 5e-19, F_GPS
 
-# Carrier frequencies (Hz) for the group-delay scaling (IS-GPS-200, Galileo OS
-# SIS ICD, BDS SIS ICDs). ctt.signals owns the general table; these are the
-# few the broadcast group delays refer to.
-F_L1 = 1575.42e6
-F_L2 = 1227.60e6
 
 KEPLER_TOL_RAD = 1e-13
 KEPLER_MAX_ITER = 50
