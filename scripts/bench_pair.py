@@ -1,7 +1,7 @@
-"""Benchmark: one station-day through `measure` and one pair-day from files to offset.csv.
+"""Benchmark: one pair-day from files to offset.csv (see bench_measure.py for one station).
 
-Targets (DESIGN.md performance budget, 2-core machine): one station-day through
-measure <= 2 s; one pair-day, files to offset series <= 3 s. Uses the demo
+Target (DESIGN.md performance budget, 2-core machine): one pair-day, files to
+offset series <= 3 s. Uses the demo
 scenario (GPS + Galileo, 24 h at 30 s) and, when present, the real pair
 ZIMM-CN00 of ../shared/data/real-2021-001 (GPS). Prints median of 3 runs.
 """
@@ -18,11 +18,7 @@ ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from ctt.config import load_station  # noqa: E402
-from ctt.measure import MeasureOptions, measure_station  # noqa: E402
-from ctt.orbits import BroadcastOrbits  # noqa: E402
 from ctt.pipeline import PairInputs, PairOptions, pair_day_from_config, run_pair, write_pair_outputs  # noqa: E402
-from ctt.rinex.nav import read_nav  # noqa: E402
-from ctt.rinex.obs import read_obs  # noqa: E402
 
 
 def timed(fn, n=3):
@@ -36,14 +32,6 @@ def timed(fn, n=3):
 
 def main() -> None:
     inputs, a, b, opts = pair_day_from_config(ROOT / "data_demo" / "aldr-brkw.toml", "2021-01-01")
-    obs = read_obs(inputs.obs_a)
-    nav = read_nav(inputs.nav)
-    orb = BroadcastOrbits(nav)
-    mopt = opts.measure
-    t_meas, day = timed(lambda: measure_station(obs, orb, a, mopt, nav_header=nav.header))
-    print(f"measure, demo station-day ({len(day.table)} rows, GPS+Galileo): {t_meas:.2f} s (target <= 2 s)")
-    t_read, _ = timed(lambda: read_obs(inputs.obs_a))
-    print(f"  of which not included: reading the observation file {t_read:.2f} s")
     with tempfile.TemporaryDirectory() as tmp:
         for mode in ("tracks", "epochs"):
             import dataclasses
@@ -60,11 +48,6 @@ def main() -> None:
             for mode in ("tracks", "epochs"):
                 t_pair, _ = timed(lambda: write_pair_outputs(run_pair(ri, sa, sb, PairOptions(mode=mode)), tmp))
                 print(f"pair-day, real ZIMM-CN00, files -> offset.csv ({mode}): {t_pair:.2f} s (target <= 3 s)")
-            obs_z = read_obs(real / "zimm0010.21o.gz")
-            nav_r = read_nav(real / "brdc0010.21n")
-            t_meas, _ = timed(lambda: measure_station(obs_z, BroadcastOrbits(nav_r), sa, MeasureOptions(),
-                                                      nav_header=nav_r.header))
-            print(f"measure, real ZIMM station-day (GPS): {t_meas:.2f} s (target <= 2 s)")
 
 
 if __name__ == "__main__":

@@ -1,0 +1,64 @@
+"""Benchmark: one 24 h, 30 s station-day through the measurement model.
+
+Target (DESIGN.md performance budget, 2-core machine): <= 2 s. Uses the demo
+station ALDR (GPS + Galileo) and, when present, the real ZIMM day of
+../shared/data/real-2021-001 (GPS, iono-free and single, broadcast and IGS
+precise orbits). Reading the files is timed separately. Median of 3 runs.
+"""
+
+from __future__ import annotations
+
+import pathlib
+import statistics
+import sys
+import time
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from ctt.config import load_station  # noqa: E402
+from ctt.measure import MeasureOptions, measure_station  # noqa: E402
+from ctt.orbits import BroadcastOrbits  # noqa: E402
+from ctt.pipeline import pair_day_from_config  # noqa: E402
+from ctt.rinex import products  # noqa: E402
+from ctt.rinex.nav import read_nav  # noqa: E402
+from ctt.rinex.obs import read_obs  # noqa: E402
+
+
+def timed(fn, n=3):
+    ts = []
+    out = None
+    for _ in range(n):
+        t0 = time.perf_counter()
+        out = fn()
+        ts.append(time.perf_counter() - t0)
+    return statistics.median(ts), out
+
+
+def main() -> None:
+    inputs, a, _, opts = pair_day_from_config(ROOT / "data_demo" / "aldr-brkw.toml", "2021-01-01")
+    t_read, obs = timed(lambda: read_obs(inputs.obs_a))
+    nav = read_nav(inputs.nav)
+    orb = BroadcastOrbits(nav)
+    t, day = timed(lambda: measure_station(obs, orb, a, opts.measure, nav_header=nav.header))
+    print(f"demo ALDR, GPS+Galileo, iono-free: {len(day.table)} rows in {t:.2f} s (target <= 2 s); "
+          f"reading the file {t_read:.2f} s")
+    real = ROOT.parent / "shared" / "data" / "real-2021-001"
+    if not real.is_dir():
+        print("real data not present: skipped the ZIMM figures")
+        return
+    st = load_station(ROOT / "tests" / "data" / "stations" / "zimm.toml")
+    obs = read_obs(real / "zimm0010.21o.gz")
+    nav = read_nav(real / "brdc0010.21n")
+    bo = BroadcastOrbits(nav)
+    po = products.PreciseOrbits(products.read_sp3(real / "igs21385.sp3"))
+    for label, orbits, mo in (("broadcast, iono-free", bo, MeasureOptions()),
+                              ("broadcast, single + Klobuchar", bo, MeasureOptions(signals="single")),
+                              ("IGS final, iono-free", po, MeasureOptions()),
+                              ("IGS final, iono-free, smoothing 600 s", po, MeasureOptions(smoothing_s=600))):
+        t, day = timed(lambda: measure_station(obs, orbits, st, mo, nav_header=nav.header))
+        print(f"real ZIMM, {label}: {len(day.table)} rows in {t:.2f} s (target <= 2 s)")
+
+
+if __name__ == "__main__":
+    main()
