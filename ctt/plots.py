@@ -19,6 +19,7 @@ matplotlib.use("Agg")
 import matplotlib.dates as mdates  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
 
 from . import timescales  # noqa: E402
 
@@ -258,7 +259,8 @@ def _noise_strip(ax, tau, dev, noise):
                     rotation=90)
 
 
-def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev_scale=1e9, formats=FORMATS):
+def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev_scale=1e9,
+                    formats=FORMATS):
     """ADEV/MDEV(/HDEV) on the left (dimensionless), TDEV (ns) on the right, log-log, 1σ CI bars.
 
     ``devs`` maps kind -> :class:`ctt.stability.Deviation` (TDEV in s, scaled by
@@ -330,7 +332,8 @@ def _tau_ticks(ax):
 
 
 def plot_satellite_differences(time_ns, sat, diff_ns, stem, elevation_deg=None, flag=None,
-                               title="Per-satellite differences about the epoch median", formats=FORMATS):
+                               title="Per-satellite differences about the epoch median",
+                               formats=FORMATS):
     """Per-satellite differences minus the epoch median (ns) vs time, and vs elevation.
 
     Systems differ by marker and colour; rejected rows (``flag`` not 'ok') are grey crosses.
@@ -339,15 +342,10 @@ def plot_satellite_differences(time_ns, sat, diff_ns, stem, elevation_deg=None, 
     d = np.asarray(diff_ns, dtype=float)
     sat = np.asarray(sat).astype(str)
     ok = np.ones(len(d), bool) if flag is None else (np.asarray(flag).astype(str) == "ok")
-    # epoch median of the accepted differences (vectorised by sorting on time)
+    # epoch median of the accepted differences (pandas groupby: vectorised)
     uniq, inv = np.unique(t, return_inverse=True)
-    med = np.full(len(uniq), np.nan)
-    order = np.lexsort((d, inv))
-    vals = np.where(ok, d, np.nan)
-    import pandas as pd
-    med = pd.Series(vals).groupby(inv).median().reindex(range(len(uniq))).to_numpy()
+    med = pd.Series(np.where(ok, d, np.nan)).groupby(inv).median().reindex(range(len(uniq))).to_numpy()
     res = d - med[inv]
-    del order
     with plt.rc_context(_RC):
         ncol = 2 if elevation_deg is not None else 1
         fig, axes = plt.subplots(1, ncol, figsize=(10.5 if ncol == 2 else 8.0, 3.8),
@@ -388,7 +386,8 @@ def plot_satellite_differences(time_ns, sat, diff_ns, stem, elevation_deg=None, 
         return _save(fig, stem, formats)
 
 
-def plot_common_satellites(time_ns, n_sat, stem, title="Number of common-view satellites", formats=FORMATS):
+def plot_common_satellites(time_ns, n_sat, stem, title="Number of common-view satellites",
+                           formats=FORMATS):
     """Number of satellites in common view per epoch (step plot)."""
     with plt.rc_context(_RC):
         fig, ax = plt.subplots(figsize=(8.0, 2.6))
@@ -405,7 +404,8 @@ def plot_common_satellites(time_ns, n_sat, stem, title="Number of common-view sa
 
 
 def plot_sky(sat, azimuth_a_deg, elevation_a_deg, stem, azimuth_b_deg=None, elevation_b_deg=None,
-             flag=None, names=("station A", "station B"), title="Sky view of common-view satellites", formats=FORMATS):
+             flag=None, names=("station A", "station B"), title="Sky view of common-view satellites",
+             formats=FORMATS):
     """Polar az/el of the common-view satellites seen from each station (north up, clockwise)."""
     sat = np.asarray(sat).astype(str)
     ok = np.ones(len(sat), bool) if flag is None else (np.asarray(flag).astype(str) == "ok")
@@ -445,7 +445,8 @@ def plot_sky(sat, azimuth_a_deg, elevation_a_deg, stem, azimuth_b_deg=None, elev
         return _save(fig, stem, formats)
 
 
-def plot_before_after(comparison, stem, labels=("before", "after"), title="Before / after comparison", formats=FORMATS):
+def plot_before_after(comparison, stem, labels=("before", "after"), title="Before / after comparison",
+                      formats=FORMATS):
     """ADEV and TDEV of two periods overlaid (1σ CIs), with the mean offset change stated."""
     b, a = comparison.before, comparison.after
     with plt.rc_context(_RC):

@@ -409,6 +409,13 @@ def stability_set(x_s, rate, taus=None, kinds=("oadev", "mdev", "tdev", "ohdev")
         dmax = 3 if k in ("hdev", "ohdev") else 2
         if dmax not in ids:
             ids[dmax] = _noise_ids(x, m, dmax)
+        if k == "tdev" and "mdev" in out:
+            # TDEV = τ·MDEV/√3 (SP 1065 eq. 15) with the MDEV EDF: no second MDEV pass
+            md = out["mdev"]
+            f = md.tau_s / math.sqrt(3.0)
+            out[k] = Deviation("tdev", md.tau_s, md.dev * f, md.ci_low * f, md.ci_high * f, md.edf, md.n,
+                               md.alpha, md.alpha_int, list(md.noise), md.noise_tau_s, md.ci)
+            continue
         out[k] = deviation(k, x, rate, "phase", m / rate, ci, noise=ids[dmax])
     return out
 

@@ -310,3 +310,11 @@ def test_analyse_json_shape():
     assert out["units"]["tdev"] == "ns"
     assert set(out["drift"]["offset_ns"]) >= {"value", "u"}
     assert math.isfinite(out["drift"]["drift_per_day"]["u"])
+
+
+def test_stability_set_tdev_equals_direct_tdev():
+    # allantools.tdev (reference library) vs the TDEV derived from the shared MDEV pass
+    x = kasdin(-2, 2 ** 12) * 1e-9
+    s = stability.stability_set(x, 1.0, kinds=("mdev", "tdev"))
+    ref = allantools.tdev(x, 1.0, "phase", s["tdev"].tau_s)[1]
+    np.testing.assert_allclose(s["tdev"].dev, ref, rtol=1e-12)
