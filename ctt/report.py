@@ -254,11 +254,12 @@ def _taus_with_marks(n, tau0):
     return np.array(sorted(taus))
 
 
-def analyse_series(time_ns, value_ns, u_ns=None, changes=None):
+def analyse_series(time_ns, value_ns, u_ns=None, changes=None, remove_steps=False):
     """stability.analyse with 1 h and 1 d added to the τ list where the span allows."""
     g = stability.to_grid(time_ns, value_ns, u_ns)
     taus = _taus_with_marks(len(g.value), g.tau0_s)
-    return stability.analyse(time_ns, value_ns, u_ns, changes=changes, taus=taus, to_iso=to_iso)
+    return stability.analyse(time_ns, value_ns, u_ns, changes=changes, taus=taus, to_iso=to_iso,
+                             remove_steps=remove_steps)
 
 
 # ------------------------------------------------------------------ HTML

@@ -957,7 +957,8 @@ def compare_periods(time_ns, offset_ns, before, after, level: float = 0.05) -> C
 
 # ------------------------------------------------------------------ one call for a series
 
-def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None):
+def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
+            remove_steps: bool = False):
     """Everything for one offset series in ns: deviations, drift, changes.
 
     Returns ``(summary, devs, fit, change_report, grid)``: ``summary`` is the
@@ -965,16 +966,26 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None)
 
     ``dev`` is dimensionless for ADEV/MDEV/HDEV and in ns for TDEV (``units``).
     ``adev`` is the overlapping Allan deviation and ``hdev`` the overlapping
-    Hadamard deviation.
+    Hadamard deviation. By default the deviations are of the series as given,
+    steps included (a step adds to ADEV at every τ); with ``remove_steps`` the
+    phase steps found (sizes from the drift fit with steps) are subtracted
+    first, and the summary lists them under ``steps_removed``.
     """
     g = to_grid(time_ns, offset_ns, u_ns)
     rate = 1.0 / g.tau0_s
-    devs = stability_set(g.value * 1e-9, rate, taus=taus)
     ch = detect_changes(g.time_ns, g.value, changes)
     # the drift model carries a step at every detected phase step, so the residuals
     # show what the model misses rather than the steps themselves
     step_epochs = [c.time_ns for c in ch.changes if c.kind == "phase step"]
     fit = fit_drift(g.time_ns, g.value, g.u, step_epochs_ns=step_epochs)
+    xs = g.value
+    removed = []
+    if remove_steps and step_epochs:
+        xs = g.value.copy()
+        for te, p in zip(fit.step_epochs_ns, fit.steps_ns):
+            xs[g.time_ns >= te] -= p.value
+            removed.append({"time_ns": int(te), "size_ns": _f(p.value), "u_ns": _f(p.u)})
+    devs = stability_set(xs * 1e-9, rate, taus=taus)
     iso = to_iso or (lambda ns: int(ns))
     out = {
         "units": {"adev": "1 (fractional frequency)", "mdev": "1 (fractional frequency)",
@@ -998,4 +1009,5 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None)
     }
     out["drift"]["t_ref"] = iso(fit.t_ref_ns)
     out["drift"]["step_epochs"] = [iso(t) for t in fit.step_epochs_ns]
+    out["steps_removed"] = [{**r, "time_utc": iso(r["time_ns"])} for r in removed]
     return out, devs, fit, ch, g

@@ -318,3 +318,21 @@ def test_stability_set_tdev_equals_direct_tdev():
     s = stability.stability_set(x, 1.0, kinds=("mdev", "tdev"))
     ref = allantools.tdev(x, 1.0, "phase", s["tdev"].tau_s)[1]
     np.testing.assert_allclose(s["tdev"].dev, ref, rtol=1e-12)
+
+
+def test_remove_steps_restores_white_pm_adev():
+    # White PM of σ has ADEV(τ) = √3·σ/τ (common practice); a 20 σ step inflates ADEV at
+    # long τ; with the detected step removed ADEV is within 3 half-widths of its 1σ CI
+    # (SP 1065 §5.3) of the truth.
+    rng = np.random.default_rng(12)
+    n = 2880
+    t = (np.arange(n) * 30 * NS).astype(np.int64)
+    x = rng.normal(size=n)
+    x[1500:] += 20.0
+    raw, *_ = stability.analyse(t, x)
+    clean, *_ = stability.analyse(t, x, remove_steps=True)
+    assert len(clean["steps_removed"]) == 1 and abs(clean["steps_removed"][0]["size_ns"] - 20) < 0.5
+    last = clean["adev"][-1]
+    truth = math.sqrt(3) * 1e-9 / last["tau_s"]
+    assert raw["adev"][-1]["dev"] > 3 * truth
+    assert abs(last["dev"] - truth) < 3 * (last["ci_high"] - last["ci_low"]) / 2

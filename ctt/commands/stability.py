@@ -40,6 +40,8 @@ def register(subparsers) -> None:
     p.add_argument("--column", default="offset_ns", help="value column in ns (default offset_ns)")
     p.add_argument("--out", metavar="DIR", help="write stability.json and figures (PNG+SVG) here")
     p.add_argument("--json", action="store_true", help="print one JSON object")
+    p.add_argument("--remove-steps", action="store_true",
+                   help="subtract the phase steps found before computing the deviations (listed in the output)")
     _log_args(p)
     p.set_defaults(func=run_stability)
 
@@ -85,7 +87,7 @@ def _dump(obj) -> str:
 def run_stability(args) -> int:
     s = read_series(args.series, column=args.column)
     log = load_change_log(getattr(args, "log_a", None), getattr(args, "log_b", None))
-    res, devs, fit, ch, g = analyse_series(s.time_ns, s.value, s.u_ns, log)
+    res, devs, fit, ch, g = analyse_series(s.time_ns, s.value, s.u_ns, log, remove_steps=args.remove_steps)
     res["source"] = str(args.series)
     res["column"] = args.column
     res["n_flagged"] = s.n_flagged
