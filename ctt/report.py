@@ -254,9 +254,23 @@ def _taus_with_marks(n, tau0):
     return np.array(sorted(taus))
 
 
-def analyse_series(time_ns, value_ns, u_ns=None, changes=None, remove_steps=False):
-    """stability.analyse with 1 h and 1 d added to the τ list where the span allows."""
-    g = stability.to_grid(time_ns, value_ns, u_ns)
+MIN_SAMPLES = 8  # fewer leave no τ with more than a couple of difference terms
+
+
+def analyse_series(time_ns, value_ns, u_ns=None, changes=None, remove_steps=False, source="<series>"):
+    """stability.analyse with 1 h and 1 d added to the τ list where the span allows.
+
+    Raises NoDataError for fewer than ``MIN_SAMPLES`` usable samples and
+    FileFormatError (naming ``source``) for samples off a regular grid or repeated.
+    """
+    n_ok = int(np.count_nonzero(np.isfinite(np.asarray(value_ns, dtype=float))))
+    if n_ok < MIN_SAMPLES:
+        raise NoDataError(f"{source}: {n_ok} usable samples; at least {MIN_SAMPLES} are needed")
+    try:
+        g = stability.to_grid(time_ns, value_ns, u_ns)
+    except ValueError as exc:
+        raise FileFormatError(source, None, "samples on one regular time grid, each instant once",
+                              str(exc)) from None
     taus = _taus_with_marks(len(g.value), g.tau0_s)
     return stability.analyse(time_ns, value_ns, u_ns, changes=changes, taus=taus, to_iso=to_iso,
                              remove_steps=remove_steps)
@@ -335,7 +349,7 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
     u = None if u is None else u[sel]
     nsat = None if series.n_sat is None else series.n_sat[sel]
     log = [c for c in (changes or []) if t[0] <= int(c["time_utc_ns"]) <= t[-1]]
-    res, devs, fit, ch, g = analyse_series(t, x, u, log)
+    res, devs, fit, ch, g = analyse_series(t, x, u, log, source=source)
 
     span_s = (g.time_ns[-1] - g.time_ns[0]) / 1e9
     fin = np.isfinite(g.value)

@@ -219,3 +219,14 @@ def test_report_from_archive(run_dir, tmp_path):
     assert r["series"]["start"] == "2026-03-02T00:00:00Z" and r["provenance"]["days"] == 2
     assert r["provenance"]["inputs"][0]["sha256"] == "ab" * 32
     assert main(["report", str(db), "--out", str(out)]) == 2          # --pair missing
+
+
+def test_too_short_and_off_grid_series(tmp_path, capsys):
+    p = tmp_path / "short.csv"
+    p.write_text("mjd,value\n61100.0,1\n61100.1,2\n61100.2,1.5\n")
+    assert main(["stability", str(p), "--column", "value"]) == 3          # missing input / no data
+    assert "at least 8" in capsys.readouterr().err
+    rows = [f"{61100 + 0.1 * k:.1f},{k % 3}" for k in range(9)] + ["61100.85,1"]
+    p.write_text("mjd,value\n" + "\n".join(rows) + "\n")
+    assert main(["stability", str(p), "--column", "value"]) == 1
+    assert "regular time grid" in capsys.readouterr().err

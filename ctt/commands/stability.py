@@ -87,7 +87,8 @@ def _dump(obj) -> str:
 def run_stability(args) -> int:
     s = read_series(args.series, column=args.column)
     log = load_change_log(getattr(args, "log_a", None), getattr(args, "log_b", None))
-    res, devs, fit, ch, g = analyse_series(s.time_ns, s.value, s.u_ns, log, remove_steps=args.remove_steps)
+    res, devs, fit, ch, g = analyse_series(s.time_ns, s.value, s.u_ns, log, remove_steps=args.remove_steps,
+                                           source=str(args.series))
     res["source"] = str(args.series)
     res["column"] = args.column
     res["n_flagged"] = s.n_flagged
