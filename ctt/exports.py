@@ -731,3 +731,109 @@ def read_cggtts(path):
         if not iono:
             df[c] = np.nan
     return hdr, df
+
+
+# ---------------------------------------------------------------- CGGTTS <-> ctt track tables
+
+#: Frequency codes of the FRC column for the signals ctt processes (from memory of
+#: the 2E document: 'L1C' C/A on L1, 'L3P' iono-free P1/P2; the Galileo ones follow
+#: the same pattern, 'E1 ' single E1 and 'L3E' iono-free E1/E5a or E1/E5b).
+_FRC = {("G", 1): "L1C", ("G", 2): "L3P", ("E", 1): "E1 ", ("E", 2): "L3E"}
+
+
+def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.DataFrame:
+    """Per-track CGGTTS columns from one station's :mod:`ctt.measure` table.
+
+    Each quantity is fitted over the standard track with :func:`ctt.tracks.fit_tracks`
+    (value at mid-track and slope): REFSYS from ``clock_ns`` (local clock −
+    system time, the station's delays applied), REFSV from ``clock_ns`` minus the
+    satellite clock terms (local clock − satellite time), MDTR/SMDT and MDIO/SMDI
+    from the modelled delays, MSIO/SMSI from the measured (P2 − P1) ionosphere
+    when the processing was dual-frequency; DSG is the residual RMS of the REFSYS
+    fit and ISG that of MSIO. Only tracks flagged ``ok`` are written (the format
+    has no flag column).
+    """
+    from . import tracks as trk
+
+    t = meas_table
+    base = trk.fit_tracks(t, schedule)
+
+    def fit(values):
+        tt = t.assign(clock_ns=values)
+        return trk.fit_tracks(tt, schedule).set_index(["track_start_utc_ns", "sat"])
+
+    key = ["track_start_utc_ns", "sat"]
+    refsv = fit(t["clock_ns"] - t["sat_clock_ns"] - t["relativity_ns"] - t["group_delay_ns"])
+    mdtr = fit(t["troposphere_m"] / C_MPS * 1e9)
+    mdio = fit(t["ionosphere_m"] / C_MPS * 1e9)
+    has_meas = "iono_measured_m" in t and np.isfinite(t["iono_measured_m"]).any()
+    msio = fit(t["iono_measured_m"] / C_MPS * 1e9) if has_meas else None
+    ok = base[base["flag"] == "ok"].set_index(key)
+    if ok.empty:
+        return pd.DataFrame(columns=list(TRACK_COLUMNS))
+    from .timescales import to_mjd
+
+    start = ok.index.get_level_values(0).to_numpy(np.int64)
+    mjd, sod = to_mjd(start)
+    sod = np.rint(sod).astype(int)
+    sttime = [f"{s // 3600:02d}{s % 3600 // 60:02d}{s % 60:02d}" for s in sod]
+    iode = t.groupby(["sat"])["iode"].agg(lambda v: int(v.iloc[len(v) // 2])) if "iode" in t else None
+    n_codes = ok["signal"].astype(str).str.count(r"\+") + 1
+
+    def col(frame, name, scale=1.0):
+        if frame is None:
+            return np.full(len(ok), np.nan)
+        return frame[name].reindex(ok.index).to_numpy(float) * scale
+
+    out = pd.DataFrame({
+        "sat": ok.index.get_level_values(1).astype(str),
+        "cl": "FF", "mjd": mjd.astype(int), "sttime": sttime, "trkl_s": 780,
+        "elv_deg": ok["elevation_deg"].to_numpy(float), "azth_deg": ok["azimuth_deg"].to_numpy(float),
+        "refsv_ns": col(refsv, "value_ns"), "srsv_ps_s": col(refsv, "slope_ps_s"),
+        "refsys_ns": ok["value_ns"].to_numpy(float), "srsys_ps_s": ok["slope_ps_s"].to_numpy(float),
+        "dsg_ns": ok["rms_ns"].to_numpy(float),
+        "ioe": ([int(iode.get(s, 0)) % 1000 for s in ok.index.get_level_values(1)] if iode is not None
+                else 0),
+        "mdtr_ns": col(mdtr, "value_ns"), "smdt_ps_s": col(mdtr, "slope_ps_s"),
+        "mdio_ns": col(mdio, "value_ns"), "smdi_ps_s": col(mdio, "slope_ps_s"),
+        "msio_ns": col(msio, "value_ns"), "smsi_ps_s": col(msio, "slope_ps_s"),
+        "isg_ns": col(msio, "rms_ns"), "fr": 0, "hc": 0,
+        "frc": [_FRC.get((s[0], int(n)), "L3P") for s, n in zip(ok.index.get_level_values(1), n_codes)],
+    })
+    out["ioe"] = np.maximum(out["ioe"].to_numpy(), 0)
+    return out.sort_values(["mjd", "sttime", "sat"], kind="stable").reset_index(drop=True)
+
+
+def cggtts_to_track_table(header: CggttsHeader, df: pd.DataFrame, *, sampling_s: float = 30.0) -> pd.DataFrame:
+    """A partner's CGGTTS tracks as a :func:`ctt.tracks.fit_tracks`-shaped table for common view.
+
+    ``value_ns`` is REFSYS (the partner's local clock − system time, its own delays
+    applied as its header states); the track midpoint is the start (MJD, STTIME,
+    UTC) plus TRKL/2, in GPS time. ``u_ns`` = DSG/√(TRKL/``sampling_s``): the
+    standard error of the mid-track value for white residuals (the file gives
+    the residual RMS, not the point count).
+    """
+    from .timescales import NS_PER_S, convert, from_mjd
+
+    if df.empty:
+        raise FileFormatError(header.lab, None, "at least one track", "none")
+    hh = df["sttime"].str[0:2].astype(int).to_numpy()
+    mm = df["sttime"].str[2:4].astype(int).to_numpy()
+    ss = df["sttime"].str[4:6].astype(int).to_numpy()
+    start_utc = from_mjd(df["mjd"].to_numpy(int), hh * 3600.0 + mm * 60.0 + ss)
+    trkl = df["trkl_s"].to_numpy(float)
+    mid = convert(start_utc, "UTC", "GPS") + np.rint(trkl / 2 * NS_PER_S).astype(np.int64)
+    n = np.maximum(trkl / sampling_s, 1.0)
+    dsg = df["dsg_ns"].to_numpy(float)
+    out = pd.DataFrame({
+        "track_start_utc_ns": start_utc, "mid_time": mid, "sat": df["sat"].astype(str).to_numpy(),
+        "system": df["sat"].astype(str).str[0].to_numpy(), "signal": df["frc"].astype(str).to_numpy(),
+        "n_points": n.astype(int), "n_flagged": 0, "value_ns": df["refsys_ns"].to_numpy(float),
+        "u_ns": dsg / np.sqrt(n), "u_fit_ns": dsg / np.sqrt(n), "u_apriori_ns": np.nan,
+        "slope_ps_s": df["srsys_ps_s"].to_numpy(float), "rms_ns": dsg,
+        "elevation_deg": df["elv_deg"].to_numpy(float), "azimuth_deg": df["azth_deg"].to_numpy(float),
+        "troposphere_m": df["mdtr_ns"].to_numpy(float) * C_MPS * 1e-9,
+        "ionosphere_m": df["mdio_ns"].to_numpy(float) * C_MPS * 1e-9, "flag": "ok",
+    })
+    out.attrs.update(reference="broadcast", mode="track", window_s=780.0, station=header.lab)
+    return out.sort_values(["mid_time", "sat"], kind="stable").reset_index(drop=True)

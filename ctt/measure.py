@@ -427,6 +427,9 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
         "flag": flag.astype(str),
     })
     table["smoothing_reset"] = reset_mask[ie, js]
+    table["iode"] = np.asarray(st.iode, dtype=np.int64)
+    table["iono_measured_m"] = (sel.iono_measured_m[ie, js] if sel.iono_measured_m is not None
+                                else np.full(len(ie), np.nan))
     table.attrs["reference"] = reference
     table.attrs["station"] = station.id
     epochs = pd.DataFrame({"time": t_tag, "clock_ns": mean, "scatter_ns": scatter,
@@ -475,6 +478,7 @@ class SignalSelection:
     noise_factor: np.ndarray    #: σ(used code)/σ(one code)
     phase_m: np.ndarray | None  #: carrier phase of the same combination, metres
     geometry_free_m: np.ndarray | None
+    iono_measured_m: np.ndarray | None  #: first-order ionosphere on the first code from P2 − P1 (dual only)
     slip_flags: np.ndarray | None  #: LLI bit 0 on a phase used
 
 
@@ -533,8 +537,12 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
     if mode == "dual":
         p2 = signals.gather(obs.obs, choice.code2)
         missing_second = np.isfinite(p1) & ~np.isfinite(p2)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            # P1 = ρ + I1, P2 = ρ + γ·I1 (γ = f1²/f2²): I1 = (P2 − P1)·f2²/(f1² − f2²); carries the DCB
+            iono_meas = (p2 - p1) * (pr.f2_hz**2 / (pr.f1_hz**2 - pr.f2_hz**2))[None, :]
     else:
         missing_second = np.zeros(p1.shape, dtype=bool)
+        iono_meas = None
     # carrier phases of the same bands, metres
     def phase_of(code_arr):
         ph = np.full(p1.shape, np.nan)
@@ -566,7 +574,7 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
                            pseudorange_m=pr.value_m, missing_second=missing_second,
                            f1_hz=pr.f1_hz, f2_hz=pr.f2_hz, noise_factor=np.asarray(pr.noise_factor, dtype=float),
                            phase_m=phase if np.isfinite(phase).any() else None,
-                           geometry_free_m=gf, slip_flags=slips)
+                           geometry_free_m=gf, slip_flags=slips, iono_measured_m=iono_meas)
 
 
 def _epoch_median(ie, values, n_ep):

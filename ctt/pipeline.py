@@ -55,8 +55,8 @@ MODES = ("tracks", "epochs", "all-in-view")
 class PairInputs:
     """Input files of one pair-day (paths; None where not given)."""
 
-    obs_a: str
-    obs_b: str
+    obs_a: str | None
+    obs_b: str | None
     nav: str | None = None
     sp3: str | None = None
     clk: str | None = None
@@ -64,6 +64,8 @@ class PairInputs:
     met_a: str | None = None
     met_b: str | None = None
     antex: str | None = None
+    tracks_a: str | None = None   #: a partner's CGGTTS track file in place of obs_a
+    tracks_b: str | None = None   #: ... in place of obs_b
 
     def files(self) -> dict:
         return {k: v for k, v in dataclasses.asdict(self).items() if v is not None}
@@ -100,8 +102,8 @@ class PairResult:
     offset_by_system: pd.DataFrame  #: every system's series (and 'ALL')
     satellites: pd.DataFrame
     summary: dict
-    station_a: StationDay
-    station_b: StationDay
+    station_a: StationDay | None  #: None when A came as a track file
+    station_b: StationDay | None
     cv: commonview.CommonViewResult
     budget: dict
 
@@ -217,13 +219,22 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
         from . import atmosphere
 
         ionex = atmosphere.read_ionex(_need(inputs.ionex, "IONEX file"))
-    day_a = measure_file(inputs.obs_a, station_a, orbits, nav_header, mopt, met_path=inputs.met_a,
-                         ionex=ionex, reference=reference)
-    day_b = measure_file(inputs.obs_b, station_b, orbits, nav_header, mopt, met_path=inputs.met_b,
-                         ionex=ionex, reference=reference)
-    _check_overlap(inputs, day_a, day_b)
-    red_a = _reduce(day_a, options)
-    red_b = _reduce(day_b, options)
+    days, reduced = [], []
+    for obs_path, trk_path, met_path, station in ((inputs.obs_a, inputs.tracks_a, inputs.met_a, station_a),
+                                                   (inputs.obs_b, inputs.tracks_b, inputs.met_b, station_b)):
+        if trk_path:
+            if options.mode != "tracks":
+                raise MissingInputError("a CGGTTS track file can only be used in tracks mode (--mode tracks)")
+            days.append(None)
+            reduced.append(read_track_file(trk_path))
+            continue
+        day = measure_file(obs_path, station, orbits, nav_header, mopt, met_path=met_path, ionex=ionex,
+                           reference=reference)
+        days.append(day)
+        reduced.append(_reduce(day, options))
+    day_a, day_b = days
+    red_a, red_b = reduced
+    _check_overlap(inputs, red_a, red_b)
     cv_mode = "all-in-view" if options.mode == "all-in-view" else "cv"
     cv = commonview.common_view(red_a, red_b, weights=options.weights, mad_k=options.mad_k,
                                 min_common=options.min_common, mode=cv_mode)
@@ -236,8 +247,16 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
                           f"({len(offset)} bins, flags: {offset['flag'].value_counts().to_dict()})")
 
     # type B: hardware delays of both stations (independent), coordinates by geometry
-    type_b = {f"delays {station_a.id}": day_a.info["u_hardware_ns"],
-              f"delays {station_b.id}": day_b.info["u_hardware_ns"]}
+    type_b = {}
+    for st, day in ((station_a, day_a), (station_b, day_b)):
+        if day is not None:
+            type_b[f"delays {st.id}"] = day.info["u_hardware_ns"]
+        else:
+            # a partner's track file: its own delays are applied; take their uncertainty
+            # from its station file (the largest code delay uncertainty, common practice)
+            ds = st.delays_at(int(ts.convert(int(red_a["mid_time"].min()), "GPS", "UTC")))
+            type_b[f"delays {st.id} (partner file)"] = max(
+                ds.u_hardware_ns(c) for c in ds.receiver_ns) if ds.receiver_ns else 0.0
     budget = commonview.uncertainty_budget(
         by_sys, type_b_items=type_b, result=cv, system=main_sys,
         coordinate_sigma_m={"A": _sigma_enu(station_a), "B": _sigma_enu(station_b)})
@@ -250,18 +269,30 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
                       station_a=day_a, station_b=day_b, cv=cv, budget=budget)
 
 
-def _check_overlap(inputs, day_a, day_b):
-    ta, tb = day_a.table["time"], day_b.table["time"]
+def read_track_file(path) -> pd.DataFrame:
+    """A partner's CGGTTS 2E file as a track table for :func:`ctt.commonview.common_view`."""
+    from .exports import cggtts_to_track_table, read_cggtts
+
+    header, df = read_cggtts(_need(path, "CGGTTS track file"))
+    return cggtts_to_track_table(header, df)
+
+
+def _check_overlap(inputs, red_a, red_b):
+    ta, tb = red_a["mid_time"], red_b["mid_time"]
+    name_a = inputs.obs_a or inputs.tracks_a
+    name_b = inputs.obs_b or inputs.tracks_b
+    if ta.empty or tb.empty:
+        raise NoDataError(f"no usable data in {name_a if ta.empty else name_b}")
     lo, hi = max(ta.min(), tb.min()), min(ta.max(), tb.max())
     if lo > hi:
-        raise NoDataError(f"{inputs.obs_a} ({ts.to_iso(int(ta.min()))}..{ts.to_iso(int(ta.max()))}) and "
-                          f"{inputs.obs_b} ({ts.to_iso(int(tb.min()))}..{ts.to_iso(int(tb.max()))}) "
+        raise NoDataError(f"{name_a} ({ts.to_iso(int(ta.min()))}..{ts.to_iso(int(ta.max()))} GPS) and "
+                          f"{name_b} ({ts.to_iso(int(tb.min()))}..{ts.to_iso(int(tb.max()))} GPS) "
                           f"do not overlap in time")
     span_a = ta.max() - ta.min()
     span_b = tb.max() - tb.min()
     common = hi - lo
     if common < 0.9 * max(span_a, span_b):
-        msg = (f"the two files overlap for {common / 3.6e12:.1f} h only "
+        msg = (f"the two stations' data overlap for {common / 3.6e12:.1f} h only "
                f"({ts.to_iso(int(lo))}..{ts.to_iso(int(hi))}); the result covers that part")
         log.warning(msg)
         warnings.warn(msg, stacklevel=3)
@@ -277,7 +308,7 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
     ok = offset["flag"] == "ok"
     rejected = {}
     for who, day in (("A", day_a), ("B", day_b)):
-        for flag, n in day.counts.items():
+        for flag, n in (day.counts.items() if day is not None else ()):
             if flag != "ok":
                 rejected[f"{who} {flag}"] = int(n)
     sat_flags = cv.sat_df["flag"].value_counts().to_dict() if "flag" in cv.sat_df else {}
@@ -297,10 +328,12 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
         "sign": "offset_ns = clock A - clock B",
         "inputs": files,
         "config": options.to_dict(),
-        "models": {"A": day_a.info, "B": day_b.info},
+        "models": {"A": day_a.info if day_a is not None else {"source": f"track file {inputs.tracks_a}"},
+                   "B": day_b.info if day_b is not None else {"source": f"track file {inputs.tracks_b}"}},
         "counts": {"points": int(len(offset)), "points_ok": int(ok.sum()),
                    "differences": int(len(cv.sat_df)),
-                   "measurements_a": int(len(day_a.table)), "measurements_b": int(len(day_b.table))},
+                   "measurements_a": int(len(day_a.table)) if day_a is not None else 0,
+                   "measurements_b": int(len(day_b.table)) if day_b is not None else 0},
         "mean_offset_ns": budget["mean_offset_ns"],
         "budget": budget,
         "isb": cv.isb.to_dict(orient="records") if len(cv.isb) else [],

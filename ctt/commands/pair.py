@@ -21,6 +21,8 @@ def register(sub) -> None:
     src = p.add_argument_group("inputs (files)")
     src.add_argument("--obs-a", help="observation file of station A")
     src.add_argument("--obs-b", help="observation file of station B")
+    src.add_argument("--tracks-a", help="a partner's CGGTTS 2E track file in place of --obs-a (tracks mode)")
+    src.add_argument("--tracks-b", help="a partner's CGGTTS 2E track file in place of --obs-b (tracks mode)")
     add_product_arguments(src)
     src.add_argument("--met-a", help="meteorological file of station A")
     src.add_argument("--met-b", help="meteorological file of station B")
@@ -78,14 +80,17 @@ def run(args) -> int:
         inputs, sta, stb, base = pair_day_from_config(args.config, args.date)
         options = options_from_args(args, base)
     else:
-        missing = [n for n in ("obs_a", "obs_b", "station_a", "station_b") if not getattr(args, n)]
+        missing = [n for n in ("station_a", "station_b") if not getattr(args, n)]
+        missing += [f"obs_{w} (or --tracks-{w})" for w in "ab"
+                    if not getattr(args, f"obs_{w}") and not getattr(args, f"tracks_{w}")]
         if missing:
             raise UsageError("give " + ", ".join("--" + m.replace("_", "-") for m in missing)
                              + " (or --config PAIR.toml --date YYYY-MM-DD)")
-        if not args.nav and not args.sp3:
+        if not args.nav and not args.sp3 and not (args.tracks_a and args.tracks_b):
             raise UsageError("give --nav (broadcast) and/or --sp3 (precise orbits)")
         inputs = PairInputs(obs_a=args.obs_a, obs_b=args.obs_b, nav=args.nav, sp3=args.sp3, clk=args.clk,
-                            ionex=args.ionex, met_a=args.met_a, met_b=args.met_b, antex=args.antex)
+                            ionex=args.ionex, met_a=args.met_a, met_b=args.met_b, antex=args.antex,
+                            tracks_a=args.tracks_a, tracks_b=args.tracks_b)
         sta, stb = load_station(args.station_a), load_station(args.station_b)
         options = options_from_args(args)
     result = run_pair(inputs, sta, stb, options)

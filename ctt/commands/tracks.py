@@ -1,0 +1,63 @@
+"""``ctt tracks``: one station's standard 13-minute tracks in the open CV exchange format (CGGTTS 2E)."""
+
+from __future__ import annotations
+
+import logging
+import pathlib
+
+from ..errors import UsageError
+from ._common import add_model_arguments, add_product_arguments, measure_options
+
+log = logging.getLogger("ctt")
+
+
+def register(sub) -> None:
+    p = sub.add_parser("tracks", help="a station's standard tracks as a CGGTTS 2E file (exchange with partners)",
+                       description="Measure one station-day and write its per-track results in the time "
+                                   "community's open common-view exchange format (CGGTTS version 2E), so it "
+                                   "can be differenced with a partner's published track files "
+                                   "(ctt pair --tracks-b FILE).")
+    p.add_argument("obs", help="RINEX observation file of the station")
+    p.add_argument("--station", required=True, help="station TOML file")
+    p.add_argument("--met", help="RINEX meteorological file")
+    add_product_arguments(p)
+    p.add_argument("--lab", help="laboratory code for the LAB line (default: the station id)")
+    p.add_argument("--out", required=True, help="output file, e.g. LABA59215.cggtts")
+    add_model_arguments(p)
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from ..config import load_station
+    from ..exports import CggttsHeader, station_tracks_to_cggtts, write_cggtts
+    from ..pipeline import PairInputs, load_orbits, measure_file
+    from .. import timescales as ts
+
+    if not args.nav and not args.sp3:
+        raise UsageError("give --nav (broadcast) or --sp3 (precise orbits)")
+    opts = measure_options(args)
+    station = load_station(args.station)
+    inputs = PairInputs(obs_a=args.obs, obs_b=args.obs, nav=args.nav, sp3=args.sp3, clk=args.clk,
+                        ionex=args.ionex, antex=args.antex)
+    orbits, nav_header, reference, _ = load_orbits(inputs, "auto")
+    day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, reference=reference)
+    tracks = station_tracks_to_cggtts(day.table)
+    t0 = int(day.table["time"].min())
+    ds = station.delays_at(int(ts.convert(t0, "GPS", "UTC")))
+    names = {"G": "GPS", "E": "GAL", "C": "BDS", "R": "GLO", "J": "QZS"}
+    codes = sorted({(names.get(sat[0], sat[0]), c) for sat, lab in day.info["codes"].items()
+                    for c in lab.split("+") if c})
+    header = CggttsHeader(
+        rev_date="2023-01-01", rcvr=f"ctt measurement of {station.id}", ch=0, ims="99999",
+        lab=args.lab or station.id, x_m=float(station.arp_m[0]), y_m=float(station.arp_m[1]),
+        z_m=float(station.arp_m[2]), frame=station.frame,
+        comments=f"ctt; clock reference {reference}; {opts.signals}",
+        delay_kind="INT", delays=[(ds.receiver_ns[c], f"{sysname} {c}") for sysname, c in codes if c in ds.receiver_ns],
+        cal_id=(ds.note or "NA")[:20].replace(",", " "), cab_dly_ns=ds.cable_ns, ref_dly_ns=ds.reference_ns,
+        ref=station.id)
+    out = pathlib.Path(args.out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    write_cggtts(out, tracks, header)
+    print(f"{station.id}: {len(tracks)} tracks written to {out} (REFSYS = local clock - system time, "
+          f"delays applied)")
+    return 0
