@@ -8,6 +8,7 @@ import pathlib
 import shutil
 import sqlite3
 
+import numpy as np
 import pytest
 
 from ctt.cli import main
@@ -89,3 +90,63 @@ def test_a_missing_or_corrupt_day_is_recorded_and_others_are_kept(demo, capsys):
         status = dict(con.execute("SELECT date, latest_status FROM days").fetchall())
         n1b = con.execute("SELECT COUNT(*) FROM offsets WHERE date='2021-01-01'").fetchone()[0]
     assert status["2021-01-01"] == "failed" and n1b == n1
+
+
+@pytest.mark.slow
+def test_export_gives_the_rows_of_offset_csv(demo, tmp_path):
+    import pandas as pd
+
+    work, pair = demo
+    assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"]) == 0
+    run = next((work / "out").glob("*/2021-01-01"))
+    out = tmp_path / "export.csv"
+    assert main(["export", "--config", str(pair), "--from", "2021-01-01", "--to", "2021-01-01",
+                 "--format", "csv", "--out", str(out)]) == 0
+    exp = pd.read_csv(out)  # the main series by default, as offset.csv
+    ref = pd.read_csv(run / "offset.csv")
+    assert list(exp["time_utc"]) == list(ref["time_utc"])
+    assert list(exp["system"]) == list(ref["system"])
+    for col in ("offset_ns", "u_ns", "n_sat"):
+        a, b = exp[col].to_numpy(float), ref[col].to_numpy(float)
+        assert np.array_equal(np.isnan(a), np.isnan(b))
+        assert np.nanmax(np.abs(a - b)) <= 1e-4  # offset.csv keeps 4 decimals
+    assert list(exp["flag"]) == list(ref["flag"])
+
+
+@pytest.mark.slow
+def test_two_simultaneous_daily_runs(demo):
+    import subprocess
+    import sys
+
+    work, pair = demo
+    cmd = [sys.executable, "-m", "ctt", "daily", "--config", str(pair), "--date", "2021-01-01", "--force",
+           "--no-report", "--lock-timeout", "120"]
+    procs = [subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True) for _ in range(2)]
+    codes = [p.wait(timeout=300) for p in procs]
+    # both complete one after the other (the second waits for the lock), or the second
+    # gives up with the documented exit code 4; never both writing at once
+    assert sorted(codes) in ([0, 0], [0, 4])
+    db = next((work / "out").glob("*.sqlite"))
+    with sqlite3.connect(db) as con:
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        dup = con.execute("SELECT COUNT(*) FROM (SELECT pair, date, system, time_utc, COUNT(*) c FROM offsets "
+                          "GROUP BY pair, date, system, time_utc HAVING c > 1)").fetchone()[0]
+        runs = con.execute("SELECT COUNT(*) FROM runs WHERE status='ok'").fetchone()[0]
+    assert dup == 0 and runs == codes.count(0)
+
+
+@pytest.mark.slow
+def test_backfill_on_a_dask_cluster(demo, capsys):
+    distributed = pytest.importorskip("dask.distributed")
+    work, pair = demo
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=1, processes=False,
+                                  dashboard_address=None) as cluster:
+        rc = main(["backfill", "--config", str(pair), "--from", "2021-01-01", "--to", "2021-01-02",
+                   "--scheduler", cluster.scheduler_address, "--no-report"])
+    assert rc == 0
+    out = capsys.readouterr()
+    assert "1 day(s) processed, 1 failed" in out.out
+    db = next((work / "out").glob("*.sqlite"))
+    with sqlite3.connect(db) as con:
+        status = dict(con.execute("SELECT date, latest_status FROM days").fetchall())
+    assert status == {"2021-01-01": "ok", "2021-01-02": "failed"}

@@ -3,7 +3,10 @@
 Reads the archived offsets of the pair (the archive named in the pair file's
 ``[output]`` table) for the dates D1..D2 inclusive and writes them to FILE,
 or to stdout when no file is given. Columns: time_utc, mjd_utc, offset_ns,
-u_ns, n_sat, flag (and system when the archive holds several systems).
+u_ns, n_sat, flag, system. By default only the pair's main series is
+written, the one ``offset.csv`` holds (the combined 'ALL' series when several
+systems were processed, else the single system); ``--system all`` writes every
+stored series.
 """
 
 from __future__ import annotations
@@ -29,7 +32,8 @@ def register(subparsers) -> None:
     p.add_argument("--from", dest="date_from", required=True, help="first UTC date YYYY-MM-DD")
     p.add_argument("--to", dest="date_to", required=True, help="last UTC date YYYY-MM-DD (inclusive)")
     p.add_argument("--format", choices=OUT_FORMATS, default="csv", help="output format (default csv)")
-    p.add_argument("--system", help="only this system's rows (e.g. G or ALL); default all stored rows")
+    p.add_argument("--system", help="G, E, ALL ... or 'all' for every stored series "
+                                    "(default: the main series, as in offset.csv)")
     p.add_argument("--out", help="output file (default: stdout)")
     p.set_defaults(func=run)
 
@@ -49,7 +53,11 @@ def run(args) -> int:
     if not pair.archive_path.exists():
         raise MissingInputError(f"{pair.archive_path}: archive not found (configured in {pair.path} [output])")
     with Archive(pair.archive_path) as arch:
-        df = arch.load_offsets(pair.name, d0, d1, system=args.system, extras=False)
+        system = None if (args.system or "").lower() == "all" else args.system
+        df = arch.load_offsets(pair.name, d0, d1, system=system, extras=False)
+    if args.system is None and "system" in df.columns and df["system"].nunique() > 1:
+        main = "ALL" if (df["system"] == "ALL").any() else sorted(df["system"].unique())[0]
+        df = df[df["system"] == main].reset_index(drop=True)
     if df.empty:
         raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
                           + (f" for system {args.system}" if args.system else ""))
