@@ -253,7 +253,11 @@ def _noise_strip(ax, tau, dev, noise):
     ok = np.isfinite(dev)
     short = {"white PM": "WPM", "flicker PM": "FPM", "white FM": "WFM", "flicker FM": "FFM",
              "random walk FM": "RWFM"}
+    last = None
     for tt, nn in zip(tau[ok], np.array(noise)[ok]):
+        if last is not None and tt < last * 1.4:      # an extra τ (1 h, 1 d) next to an octave one
+            continue
+        last = tt
         ax.annotate(short.get(nn, nn), (tt, 0.0), xycoords=("data", "axes fraction"), fontsize=6,
                     xytext=(0, 3), textcoords="offset points", ha="center", va="bottom", color=BLUE,
                     rotation=90)

@@ -83,6 +83,9 @@ class Deviation:
     (dimensionless for ADEV/MDEV/HDEV, seconds for TDEV). ``alpha`` is the
     α estimate (float) from the lag-1 ACF, ``alpha_int`` the integer used for
     EDF, ``noise`` its name. ``n`` is the number of difference terms averaged.
+    Names cover the five Allan-range types; Hadamard estimators can identify
+    α = −3, −4 (flicker walk, random run FM), kept in ``alpha_int`` and named
+    'random walk FM'.
     """
 
     kind: str
