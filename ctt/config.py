@@ -425,8 +425,10 @@ class StationConfig:
         """Antenna reference point, ECEF m: position plus the (up, east, north) delta if a marker."""
         if not self.is_marker:
             return self.position_m.copy()
-        return self.position_m + enu_to_ecef_matrix(self.position_m) @ np.array(
-            [self.antenna.delta_hen_m[1], self.antenna.delta_hen_m[2], self.antenna.delta_hen_m[0]])
+        from .geodesy import antenna_reference_point
+
+        h, e, n = (float(v) for v in self.antenna.delta_hen_m)
+        return antenna_reference_point(self.position_m, h, e, n)
 
     def delays_at(self, time_utc_ns) -> DelaySet:
         """The delay set covering the UTC instant; ConfigError naming the file if none does."""
@@ -453,29 +455,6 @@ class StationConfig:
 
     def changes_between(self, t0_ns: int, t1_ns: int) -> tuple[HardwareChange, ...]:
         return tuple(c for c in self.changes if t0_ns <= c.time_utc_ns < t1_ns)
-
-
-def enu_to_ecef_matrix(xyz) -> np.ndarray:
-    """3x3 matrix taking local (east, north, up) to ECEF at the point (WGS 84 geodetic latitude).
-
-    Only used to rotate antenna eccentricities of a few metres; the latitude is
-    found by a short fixed-point iteration (converges to < 1e-12 rad in 5 steps).
-    """
-    x, y, z = (float(v) for v in xyz)
-    a, f = 6378137.0, 1 / 298.257223563  # WGS 84 (NIMA TR8350.2)
-    e2 = f * (2 - f)
-    lon = math.atan2(y, x)
-    p = math.hypot(x, y)
-    lat = math.atan2(z, p * (1 - e2))
-    for _ in range(5):
-        n = a / math.sqrt(1 - e2 * math.sin(lat) ** 2)
-        h = p / math.cos(lat) - n if abs(lat) < 1.5 else z / math.sin(lat) - n * (1 - e2)
-        lat = math.atan2(z, p * (1 - e2 * n / (n + h)))
-    sl, cl = math.sin(lat), math.cos(lat)
-    so, co = math.sin(lon), math.cos(lon)
-    return np.array([[-so, -sl * co, cl * co],
-                     [co, -sl * so, cl * so],
-                     [0.0, cl, sl]])
 
 
 # ---------------------------------------------------------------- patterns
