@@ -306,6 +306,13 @@ def _fmt(v, digits=4, unit=""):
     return f"{v:.{digits}g}{unit}"
 
 
+def _num(v):
+    try:
+        return _fmt(float(v))
+    except (TypeError, ValueError):
+        return "—"
+
+
 def _pm(d, digits=4, scale=1.0, unit=""):
     if not d or d.get("value") is None:
         return "—"
@@ -476,9 +483,9 @@ def _html(r, figs):
         ("Drift fit χ²/ν, lag-1 ACF of residuals", f"{_fmt(d.get('chi2_red'))}, {_fmt(d.get('lag1_acf'), 3)}"),
     ]
     b = r.get("budget")
-    if b:
-        rows.append(("Uncertainty budget", _e(f"type A {_fmt(b.get('type_a_ns'))} ns, type B "
-                                                f"{_fmt(b.get('type_b_ns'))} ns, total {_fmt(b.get('total_ns'))} ns")))
+    if isinstance(b, dict):
+        rows.append(("Uncertainty budget", _e(f"type A {_num(b.get('type_a_ns'))} ns, type B "
+                                                f"{_num(b.get('type_b_ns'))} ns, total {_num(b.get('total_ns'))} ns")))
     for lab, v in r["stability_at"].items():
         a, td = v["adev"], v["tdev_ns"]
         if a is None:
@@ -539,11 +546,19 @@ def _html(r, figs):
     for k in ("config", "counts", "rejected"):
         if prov.get(k) is not None:
             prov_html += f"<h3>{k}</h3><pre>{_e(json.dumps(prov[k], indent=1, default=str))}</pre>"
-    items = (b or {}).get("items") if b else None
+    items = b.get("items") if isinstance(b, dict) else None
+    items = items if isinstance(items, dict) else None
     budget_html = ""
     if items:
+        def cell(v):  # a number, or a small table of its own (e.g. {"u_ns": .., "type": "B"})
+            if isinstance(v, dict):
+                return _e(", ".join(f"{a}: {b}" for a, b in v.items()))
+            try:
+                return _fmt(float(v))
+            except (TypeError, ValueError):
+                return _e(v)
         budget_html = ("<table><tr><th>budget item</th><th>u / ns</th></tr>" + "".join(
-            f"<tr><td>{_e(k)}</td><td class=num>{_fmt(v)}</td></tr>" for k, v in items.items()) + "</table>")
+            f"<tr><td>{_e(k)}</td><td class=num>{cell(v)}</td></tr>" for k, v in items.items()) + "</table>")
 
     return f"""<!DOCTYPE html>
 <html lang="en"><head><meta charset="utf-8">

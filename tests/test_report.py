@@ -230,3 +230,15 @@ def test_too_short_and_off_grid_series(tmp_path, capsys):
     p.write_text("mjd,value\n" + "\n".join(rows) + "\n")
     assert main(["stability", str(p), "--column", "value"]) == 1
     assert "regular time grid" in capsys.readouterr().err
+
+
+def test_summary_with_nested_budget_and_input_dict(run_dir, tmp_path):
+    # summary.json written by another stage may nest budget items and give inputs as a mapping
+    d, _ = run_dir
+    rd = report.read_run_dir(d)
+    summary = {"inputs": {"obs_a": {"path": "a.rnx", "sha256": "cd" * 32}},
+               "budget": {"type_a_ns": 0.5, "type_b_ns": "2.0", "total_ns": None,
+                          "items": {"cable A": {"u_ns": 0.2, "type": "B"}, "note": "see config"}}}
+    report.build_report(rd.offsets, None, summary, None, tmp_path / "n.html")
+    doc = (tmp_path / "n.html").read_text()
+    assert "cd" * 32 in doc and "u_ns: 0.2, type: B" in doc and "type B 2 ns" in doc
