@@ -87,6 +87,7 @@ class MeasureOptions:
     smoothing_s: float = 0.0            #: Hatch filter window (0 = no carrier smoothing)
     mad_k: float = 3.5                  #: epoch outlier rejection at k × 1.4826 × MAD
     sigma0_m: float = 0.3               #: a-priori code noise at zenith (σ = σ0 / sin el)
+    biases: object = None               #: ctt.signals.BiasSet (Bias-SINEX) mapping codes onto the clock's
 
     def __post_init__(self):
         if self.signals not in ("iono-free", "single"):
@@ -396,6 +397,9 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     ok = flag == "ok"
     flag[ok & ~np.isfinite(gd_s)] = "no_group_delay"
     ok = flag == "ok"
+    if sel.no_bias is not None and sel.no_bias.any():
+        flag[ok & sel.no_bias[js]] = "no_code_bias"
+    ok = flag == "ok"
     flag[ok & ~np.isfinite(clock_ns)] = "no_value"
     ok = flag == "ok"
 
@@ -443,7 +447,9 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                             "none: precise clocks refer to the iono-free combination"
                             + (" (single-frequency users carry the satellites' code biases; "
                                "apply a bias file)" if opt.signals == "single" else "")), "smoothing_s": opt.smoothing_s,
-            "elevation_mask_deg": mask_deg, "u_hardware_ns": u_hw, "reference": reference,
+            "elevation_mask_deg": mask_deg,
+            "code_biases": ("bias file: codes mapped onto " + "/".join(sorted(set(CLOCK_REFERENCE_CODES.values())))
+                            if opt.biases is not None else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
             "position_m": [float(v) for v in rx]}
     return StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
                       counts={str(k): int(v) for k, v in counts.items()}, info=info)
@@ -480,6 +486,27 @@ class SignalSelection:
     geometry_free_m: np.ndarray | None
     iono_measured_m: np.ndarray | None  #: first-order ionosphere on the first code from P2 − P1 (dual only)
     slip_flags: np.ndarray | None  #: LLI bit 0 on a phase used
+    no_bias: np.ndarray | None = None  #: (n_sat,) a bias file was given but has no entry for a code used
+
+
+#: Codes the broadcast (and IGS) GPS clocks refer to: a bias file maps the codes used onto these
+#: (IS-GPS-200 §20.3.3.3.3.2: the clock is defined for the L1/L2 P(Y) codes).
+CLOCK_REFERENCE_CODES = {("G", "1"): "C1W", ("G", "2"): "C2W"}
+
+
+def _code_biases_m(biases, sats, codes, obs):
+    """Per-satellite bias (m) to subtract so each code reads like the clock's reference code.
+
+    GPS codes are mapped onto C1W/C2W with the file's DSB (or two OSBs); codes of
+    other systems, and reference codes themselves, get 0. Returns (bias_m, found):
+    found is False where the file has no entry for a code that needs one."""
+    sats = np.asarray(sats).astype(str)
+    codes = np.asarray(codes).astype(str)
+    ref = np.array([CLOCK_REFERENCE_CODES.get((s[0], c[1:2]), c) if c else "" for s, c in zip(sats, codes)])
+    t0 = int(obs.time_ns[0]) if len(obs.time_ns) else 0
+    val, found = signals.code_bias_s(biases, sats, codes, t0, reference=ref)
+    found = np.asarray(found) | (codes == ref) | (codes == "")
+    return np.where(found, np.asarray(val) * C_MPS, 0.0), found
 
 
 def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
@@ -515,7 +542,14 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
                         choice, band2=np.where(take, alt.band2, choice.band2),
                         code2=np.where(take, alt.code2, choice.code2))
     glo_k = getattr(obs.header, "glonass_slots", None) or None
-    pr = signals.processing_pseudorange(obs.obs, choice, glonass_k=glo_k)
+    b1 = b2 = None
+    no_bias = np.zeros(len(sats), dtype=bool)
+    if opt.biases is not None:
+        b1, f1_found = _code_biases_m(opt.biases, sats, choice.code1, obs)
+        b2, f2_found = (_code_biases_m(opt.biases, sats, choice.code2, obs) if mode == "dual"
+                        else (None, np.ones(len(sats), bool)))
+        no_bias = ~(f1_found & f2_found)
+    pr = signals.processing_pseudorange(obs.obs, choice, glonass_k=glo_k, bias_m1=b1, bias_m2=b2)
     n_sat = len(sats)
     codes, labels = [], np.empty(n_sat, dtype=object)
     coefficients = {}
@@ -574,7 +608,8 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
                            pseudorange_m=pr.value_m, missing_second=missing_second,
                            f1_hz=pr.f1_hz, f2_hz=pr.f2_hz, noise_factor=np.asarray(pr.noise_factor, dtype=float),
                            phase_m=phase if np.isfinite(phase).any() else None,
-                           geometry_free_m=gf, slip_flags=slips, iono_measured_m=iono_meas)
+                           geometry_free_m=gf, slip_flags=slips, iono_measured_m=iono_meas,
+                           no_bias=no_bias)
 
 
 def _epoch_median(ie, values, n_ep):

@@ -1,6 +1,6 @@
 """Satellite position, velocity and clock at an instant, from broadcast ephemerides.
 
-``BroadcastOrbits(nav, *, galileo_source='inav', allow_future=False, bias_file=None)``
+``BroadcastOrbits(nav, *, galileo_source='inav', allow_future=False)``
 and its ``states(sats, t_ns, dt_s=0.0) -> SatStates`` (the interface shared with
 ``ctt.rinex.products.PreciseOrbits``). Everything is vectorised over the flat
 query arrays (satellites × epochs flattened to N rows).
@@ -602,7 +602,7 @@ _KEP_COLS = ["sqrt_a_sqrtm", "delta_n_radps", "e", "m0_rad", "omega_rad", "cus_r
 class BroadcastOrbits:
     """Satellite states from a :class:`ctt.rinex.nav.NavData` (see the module docstring)."""
 
-    def __init__(self, nav: NavData, *, galileo_source="inav", allow_future=False, bias_file=None,
+    def __init__(self, nav: NavData, *, galileo_source="inav", allow_future=False,
                  available_from="transmission"):
         if galileo_source not in ("inav", "fnav"):
             raise ValueError("galileo_source must be 'inav' (E1/E5b) or 'fnav' (E5a)")
@@ -610,13 +610,9 @@ class BroadcastOrbits:
             raise ValueError("available_from must be 'transmission' (message transmission time) or "
                              "'reference' (t_oe / t_b)")
         self.available_from = available_from
-        if bias_file is not None:
-            raise NotImplementedError("external satellite bias files are not supported yet; "
-                                      "use the broadcast group delays (bias_file=None)")
         self.nav = nav
         self.galileo_source = galileo_source
         self.allow_future = bool(allow_future)
-        self.bias_file = bias_file
         self._tables = {}
         for s, df in nav.records.items():
             if s in _SCALE and len(df):

@@ -90,7 +90,9 @@ class PairOptions:
             raise ValueError(f"orbits must be auto, broadcast or precise, not {self.orbits!r}")
 
     def to_dict(self) -> dict:
-        d = dataclasses.asdict(self)
+        biases = self.measure.biases
+        d = dataclasses.asdict(dataclasses.replace(self, measure=dataclasses.replace(self.measure, biases=None)))
+        d["measure"]["biases"] = getattr(biases, "path", None)
         d["measure"]["systems"] = list(self.measure.systems)
         d["measure"]["codes"] = list(self.measure.codes)
         return d

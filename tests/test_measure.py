@@ -201,3 +201,37 @@ def test_switches_zero_their_columns(tmp_path):
     # Without the rotation the light time (and so the transmit instant) moves by
     # up to ~0.1 µs, the satellite by range-rate × 0.1 µs < 0.1 mm: 1 ps tolerance.
     np.testing.assert_allclose(d, expect, atol=1e-3)
+
+
+def test_bias_file_maps_c1c_onto_the_clock_reference(tmp_path):
+    # IS-GPS-200 §20.3.3.3.3.2: the broadcast clock is the L1/L2 P(Y) iono-free clock, so a
+    # C1C bias b (C1C = C1W + b) enters the iono-free value times a1 = f1²/(f1²−f2²) = 2.546
+    # (ctt.signals notes); with the DSB C1C-C1W from a bias file it is removed.
+    from ctt.signals import BiasSet
+
+    rx = _geodetic_xyz(46.0, 7.0, 500.0)
+    st = _station(tmp_path, rx)
+    obs = _simulate(rx, lambda t: 2e-6 + 0 * t, (20.0 + 100.0 - 5.0) * 1e-9, n_ep=40)
+    dsb_ns = {s: 0.3 * (k - 3.5) for k, s in enumerate(sorted(SATS))}  # -1.05 .. +1.05 ns
+    for j, s in enumerate(obs.sats):
+        obs.obs["C1C"][:, j] += dsb_ns[s] * 1e-9 * C_MPS
+    n = len(dsb_ns)
+    bs = BiasSet(path="test.bsx", kind=np.array(["DSB"] * n), prn=np.array(sorted(dsb_ns)),
+                 station=np.array([""] * n), obs1=np.array(["C1C"] * n), obs2=np.array(["C1W"] * n),
+                 start_ns=np.zeros(n, np.int64), end_ns=np.full(n, -1, np.int64),
+                 value_s=np.array([dsb_ns[s] * 1e-9 for s in sorted(dsb_ns)]), sigma_s=np.zeros(n), skipped=0)
+    plain = measure_station(obs, InertialOrbits(), st, MeasureOptions(**OFF))
+    fixed = measure_station(obs, InertialOrbits(), st, MeasureOptions(biases=bs, **OFF))
+    ok = plain.table["flag"] == "ok"
+    a1 = 1575.42**2 / (1575.42**2 - 1227.60**2)
+    expect = plain.table.loc[ok, "sat"].map(dsb_ns) * a1
+    truth = 2e3  # ns
+    np.testing.assert_allclose(plain.table.loc[ok, "clock_ns"] - truth, expect, atol=2e-3)
+    np.testing.assert_allclose(fixed.table.loc[ok, "clock_ns"], truth, atol=2e-3)
+    # a satellite the file does not cover is flagged, not used with a silent zero
+    bs2 = BiasSet(**{**bs.__dict__, **{k: getattr(bs, k)[1:] for k in
+                                       ("kind", "prn", "station", "obs1", "obs2", "start_ns", "end_ns",
+                                        "value_s", "sigma_s")}})
+    part = measure_station(obs, InertialOrbits(), st, MeasureOptions(biases=bs2, **OFF))
+    g01 = part.table["sat"] == sorted(SATS)[0]
+    assert (part.table.loc[g01 & (part.table["elevation_deg"] > 10), "flag"] == "no_code_bias").all()

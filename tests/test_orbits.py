@@ -342,11 +342,6 @@ def test_qzss_unhealthy_and_iod_mismatch(mixed):
     assert orbits.STATUS_NAMES[st.status[0]] == "IOD_MISMATCH" and np.isnan(st.pos_m[0, 0])
 
 
-def test_unsupported_bias_file_is_refused(mixed):
-    with pytest.raises(NotImplementedError):
-        BroadcastOrbits(mixed, bias_file="x.bsx")
-
-
 def test_vectorised_selection_matches_brute_force(brdc):
     # the windowed numpy selection must pick what a per-row scan of all records picks with the
     # documented rule (healthy, IODE == IODC & 0xFF, |t - toe| <= fit/2, ttm <= t, closest toe)
