@@ -93,3 +93,32 @@ def test_met_file_changes_troposphere_by_the_pressure_difference(real):
     db = b.table["troposphere_m"].to_numpy()
     assert np.nanmax(np.abs(da - db)) > 0.005  # the met file is really used
     assert a.info["troposphere"] == "met" and b.info["troposphere"] == "standard atmosphere"
+
+
+def test_ionex_maps_are_used_for_single_frequency(real, test_data):
+    # Wiring check with the small hand-made IONEX 1.0 file of tests/data/atmosphere
+    # (00-04 h of 2021-01-01 over 30-60 N, 40 W-40 E; invented TEC values): the
+    # single-frequency ionosphere column is the map's slant delay at each row.
+    import dataclasses
+
+    from ctt.atmosphere import ionex_slant_delay_m, read_ionex
+    from ctt.geodesy import ecef_to_geodetic
+
+    ionex = read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    obs = real["obs"]["zimm"]
+    # the maps are on UTC epochs (00:00 UTC = 00:00:18 GPS): stay inside their span
+    keep = (obs.time_ns >= obs.time_ns[0] + 60 * 10**9) & (obs.time_ns < obs.time_ns[0] + 4 * 3600 * 10**9 - 60 * 10**9)
+    sub = dataclasses.replace(obs, time_ns=obs.time_ns[keep], obs={k: v[keep] for k, v in obs.obs.items()},
+                              lli={k: v[keep] for k, v in obs.lli.items()}, ssi={k: v[keep] for k, v in obs.ssi.items()},
+                              epoch_flag=obs.epoch_flag[keep], clock_offset_s=obs.clock_offset_s[keep])
+    st = real["station"]["zimm"]
+    day = measure_station(sub, real["broadcast"], st, MeasureOptions(signals="single", iono_model="ionex"),
+                          nav_header=real["nav"].header, ionex=ionex)
+    assert day.info["ionosphere"] == "IONEX"
+    t = day.table[day.table["flag"] == "ok"]
+    lat, lon, _ = ecef_to_geodetic(st.arp_m)
+    direct = ionex_slant_delay_m(ionex, t["time"].to_numpy(), float(lat), float(lon),
+                                 np.radians(t["azimuth_deg"].to_numpy()), np.radians(t["elevation_deg"].to_numpy()),
+                                 np.full(len(t), 1575.42e6))[0]
+    np.testing.assert_allclose(t["ionosphere_m"].to_numpy(), direct, rtol=1e-12)
+    assert (t["ionosphere_m"] > 0).all()
