@@ -476,7 +476,12 @@ def plot_before_after(comparison, stem, labels=("before", "after"), title="Befor
         a2.set_ylabel("TDEV / ns")
         a2.set_title("TDEV")
         verdict = "significant" if comparison.significant else "not significant"
-        fig.suptitle(f"{title}: mean offset change {comparison.delta_mean_ns:+.3f} ± "
-                     f"{comparison.u_delta_mean_ns:.3f} ns (z = {comparison.z:.1f}, {verdict})")
+        line2 = f"mean offset change {comparison.delta_mean_ns:+.3f} ± {comparison.u_delta_mean_ns:.3f} ns " \
+                f"(z = {comparison.z:.1f}, {verdict})"
+        if math.isfinite(getattr(comparison, "step_at_boundary_ns", math.nan)):
+            v2 = "significant" if comparison.step_significant else "not significant"
+            line2 = (f"offset change at the boundary {comparison.step_at_boundary_ns:+.3f} ± "
+                     f"{comparison.u_step_at_boundary_ns:.3f} ns ({v2}); " + line2)
+        fig.suptitle(f"{title}\n{line2}", fontsize=9.5)
         fig.tight_layout()
         return _save(fig, stem, formats)

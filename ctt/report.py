@@ -387,6 +387,7 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
         "units": res["units"],
         "provenance": {k: summ.get(k) for k in ("inputs", "config", "version", "counts", "rejected", "days")
                        if k in summ},
+        "before_after": [],
     }
 
     with tempfile.TemporaryDirectory(prefix="ctt-report-") as tmp:
@@ -409,6 +410,26 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
         if satellites_df is not None and len(satellites_df):
             sp = _satellite_figures(satellites_df, tmp, time_from_ns, time_to_ns)
             figs.extend(sp)
+        # before/after each logged hardware change (the first three in the range)
+        for k, e in enumerate(sorted(log, key=lambda e: int(e["time_utc_ns"]))[:3]):
+            te = int(e["time_utc_ns"])
+            try:
+                c = stability.compare_periods(g.time_ns, g.value, (int(g.time_ns[0]), te - 1),
+                                              (te, int(g.time_ns[-1])))
+            except ValueError:
+                continue
+            report["before_after"].append({
+                "change_time_utc": to_iso(te), "what": e.get("what"), "expected_ns": e.get("expected_ns"),
+                "step_at_change_ns": {"value": c.step_at_boundary_ns, "u": c.u_step_at_boundary_ns,
+                                      "significant": c.step_significant},
+                "delta_mean_ns": {"value": c.delta_mean_ns, "u": c.u_delta_mean_ns}, "z": c.z,
+                "significant": c.significant, "adev_ratio_after_over_before": c.adev_ratio})
+            p = plots.plot_before_after(c, tmp / f"before_after_{k}", formats=_PNG,
+                                        title=f"Before / after {e.get('what') or 'logged change'}")
+            figs.append((p[0], f"ADEV and TDEV before and after the logged change at {to_iso(te)} "
+                               f"({e.get('what')}). The step at the change comes from phase-and-frequency lines "
+                               "fitted to each side; the mean change also contains the frequency offset "
+                               "times the distance between the period centres."))
         body_figs = "\n".join(
             f'<figure><img alt="{_e(cap)}" src="{_img(png)}"><figcaption>{_e(cap)}</figcaption></figure>'
             for png, cap in figs)
@@ -580,10 +601,30 @@ understates flicker and random-walk noise.</p>
 {figs}
 <h2>Stability</h2>
 {dev_tab}
+{_before_after_html(r)}
 <h2>Provenance</h2>
 {prov_html}
 </body></html>
 """
+
+
+def _before_after_html(r):
+    if not r.get("before_after"):
+        return ""
+    rows = []
+    for b in r["before_after"]:
+        sig = [x["tau_s"] for x in b["adev_ratio_after_over_before"] if x["significant"]]
+        rows.append("<tr>" + "".join(f"<td>{_e(v)}</td>" for v in (
+            b["change_time_utc"], b.get("what") or "", _fmt(b.get("expected_ns")),
+            f"{b['step_at_change_ns']['value']:+.4g} ± {b['step_at_change_ns']['u']:.2g}"
+            + (" (significant)" if b["step_at_change_ns"]["significant"] else ""),
+            f"{b['delta_mean_ns']['value']:+.4g} ± {b['delta_mean_ns']['u']:.2g}", f"{b['z']:.2f}",
+            "yes" if b["significant"] else "no",
+            ", ".join(f"{t:g}" for t in sig) or "none")) + "</tr>")
+    return ("<h3>Before / after logged changes</h3><table><tr><th>change (UTC)</th><th>what</th>"
+            "<th>expected / ns</th><th>step at the change / ns (lines fitted either side)</th>"
+            "<th>mean change / ns</th><th>z (mean)</th><th>mean change significant (5 %)</th>"
+            "<th>τ / s where ADEV differs (F test, 5 %)</th></tr>" + "\n".join(rows) + "</table>")
 
 
 def day_range_ns(text_from: str | None, text_to: str | None):

@@ -920,6 +920,11 @@ class Comparison:
     significant: bool
     adev_ratio: list          # per common τ: {tau_s, ratio, p_value, significant}
     level: float = 0.05
+    boundary_ns: int = 0                # midway between the end of before and the start of after
+    step_at_boundary_ns: float = math.nan
+    u_step_at_boundary_ns: float = math.nan
+    z_step: float = math.nan
+    step_significant: bool = False
 
 
 def compare_periods(time_ns, offset_ns, before, after, level: float = 0.05) -> Comparison:
@@ -930,6 +935,13 @@ def compare_periods(time_ns, offset_ns, before, after, level: float = 0.05) -> C
     |Δ|/u(Δ) > z at two-sided ``level`` (normal approximation; 1.96 at 5 %).
     ADEV at each common τ: two-sided F test of the variance ratio with the
     two EDFs as degrees of freedom (SP 1065 §5.3: ν·s²/σ² is χ²_ν), at ``level``.
+
+    The mean change contains the frequency offset times the distance between the
+    period centres; the change *at* the boundary is also given: phase + frequency
+    fitted to each period (:func:`fit_drift`, no drift term) and both lines
+    evaluated midway between the periods, u from the lag-1 inflated ``u_ar1`` of
+    offset and frequency (uncorrelated at the fit's weighted mean epoch), tested
+    like the mean.
     """
     from scipy import stats
 
@@ -955,7 +967,19 @@ def compare_periods(time_ns, offset_ns, before, after, level: float = 0.05) -> C
         p = 2 * min(stats.f.cdf(f, ea, eb), stats.f.sf(f, ea, eb))
         rows.append({"tau_s": float(tau), "ratio": float(math.sqrt(f)), "p_value": float(p),
                      "significant": bool(p < level)})
-    return Comparison(b, a, d, u, z, bool(abs(z) > zc), rows, level)
+    tb_ = int(b.end_ns + (a.start_ns - b.end_ns) // 2)
+    ends = []
+    for per in (b, a):
+        sel = (t >= per.start_ns) & (t <= per.end_ns) & np.isfinite(x)
+        f = fit_drift(t[sel], x[sel], quadratic=False)
+        dt_s = (tb_ - f.t_ref_ns) / 1e9
+        ends.append((f.offset_ns.value + f.frequency.value * 1e9 * dt_s,
+                     math.hypot(f.offset_ns.u_ar1, f.frequency.u_ar1 * 1e9 * dt_s)))
+    step = ends[1][0] - ends[0][0]
+    u_step = math.hypot(ends[0][1], ends[1][1])
+    z_step = step / u_step if u_step > 0 else math.inf
+    return Comparison(b, a, d, u, z, bool(abs(z) > zc), rows, level, tb_, step, u_step, z_step,
+                      bool(abs(z_step) > zc))
 
 
 # ------------------------------------------------------------------ one call for a series

@@ -287,7 +287,21 @@ def test_compare_periods_finds_step_and_not_noise():
     x[2880:] += 1.0
     moved = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
     assert moved.significant and abs(moved.delta_mean_ns - 1.0) < 3 * moved.u_delta_mean_ns
+    assert moved.step_significant and abs(moved.step_at_boundary_ns - 1.0) < 3 * moved.u_step_at_boundary_ns
+    assert not same.step_significant
     assert not any(r["significant"] for r in moved.adev_ratio[:3])
+
+
+def test_compare_periods_step_at_boundary_ignores_frequency_offset():
+    # A pure frequency offset (1e-13, 8.6 ns per day) moves the means of two adjacent days
+    # by ~8.6 ns but leaves no step at the boundary.
+    rng = np.random.default_rng(17)
+    n = 2880 * 2
+    t = (np.arange(n) * 30 * NS).astype(np.int64)
+    x = rng.normal(scale=1.0, size=n) + 1e-13 * 1e9 * np.arange(n) * 30.0
+    c = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
+    assert c.significant and c.delta_mean_ns == pytest.approx(8.64, abs=0.2)
+    assert abs(c.step_at_boundary_ns) < 3 * c.u_step_at_boundary_ns
 
 
 def test_compare_periods_flags_noisier_after():

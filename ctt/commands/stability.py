@@ -159,8 +159,11 @@ def run_compare(args) -> int:
         "before": _period(c.before), "after": _period(c.after),
         "delta_mean_ns": {"value": c.delta_mean_ns, "u": c.u_delta_mean_ns},
         "z": c.z, "significant": c.significant,
-        "test": "mean: |delta|/u > z(1 - level/2), normal; ADEV: two-sided F test on the variance "
-                "ratio with the EDFs as degrees of freedom",
+        "step_at_boundary_ns": {"value": c.step_at_boundary_ns, "u": c.u_step_at_boundary_ns,
+                                "at": to_iso(c.boundary_ns), "z": c.z_step,
+                                "significant": c.step_significant},
+        "test": "mean and step: |delta|/u > z(1 - level/2), normal; ADEV: two-sided F test on the "
+                "variance ratio with the EDFs as degrees of freedom",
         "level": c.level, "adev_ratio_after_over_before": c.adev_ratio,
         "units": {"adev": "1", "tdev": "ns", "mean_ns": "ns"},
     }
@@ -178,6 +181,9 @@ def run_compare(args) -> int:
         print(f"after   {res['after']['start']} .. {res['after']['end']}: mean {c.after.mean_ns:.4f} ± "
               f"{c.after.u_mean_ns:.2g} ns")
         print(f"change  {c.delta_mean_ns:+.4f} ± {c.u_delta_mean_ns:.2g} ns (z = {c.z:.2f}, {v} at {c.level:g})")
+        v2 = "significant" if c.step_significant else "not significant"
+        print(f"step    {c.step_at_boundary_ns:+.4f} ± {c.u_step_at_boundary_ns:.2g} ns at {to_iso(c.boundary_ns)} "
+              f"(lines fitted either side; z = {c.z_step:.2f}, {v2})")
         for r in c.adev_ratio:
             print(f"tau {r['tau_s']:<10g} ADEV after/before {r['ratio']:.3f}  p = {r['p_value']:.3g}"
                   f"{'  significant' if r['significant'] else ''}")
