@@ -470,7 +470,7 @@ def plot_before_after(comparison, stem, labels=("before", "after"), title="Befor
             ax.legend(loc="best", frameon=True, framealpha=0.9)
             _tau_ticks(ax)
         sig = [r["tau_s"] for r in comparison.adev_ratio if r["significant"]]
-        a1.set_ylabel("overlapping ADEV σ_y(τ) (dimensionless)")
+        a1.set_ylabel(r"overlapping ADEV $\sigma_y(\tau)$ (dimensionless)")
         a1.set_title("ADEV" + (f" (differs at {len(sig)} τ, F test {comparison.level:g})" if sig
                                 else " (no significant difference)"))
         a2.set_ylabel("TDEV / ns")
