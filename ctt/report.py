@@ -261,15 +261,17 @@ def analyse_series(time_ns, value_ns, u_ns=None, changes=None, remove_steps=Fals
     """stability.analyse with 1 h and 1 d added to the τ list where the span allows.
 
     Raises NoDataError for fewer than ``MIN_SAMPLES`` usable samples and
-    FileFormatError (naming ``source``) for samples off a regular grid or repeated.
+    FileFormatError (naming ``source``) for repeated instants. Samples off one
+    regular grid (tracks whose schedule shifts daily) are snapped to the nearest
+    grid instant, reported under ``grid`` in the result.
     """
     n_ok = int(np.count_nonzero(np.isfinite(np.asarray(value_ns, dtype=float))))
     if n_ok < MIN_SAMPLES:
         raise NoDataError(f"{source}: {n_ok} usable samples; at least {MIN_SAMPLES} are needed")
     try:
-        g = stability.to_grid(time_ns, value_ns, u_ns)
+        g = stability.grid_series(time_ns, value_ns, u_ns)
     except ValueError as exc:
-        raise FileFormatError(source, None, "samples on one regular time grid, each instant once",
+        raise FileFormatError(source, None, "each instant once",
                               str(exc)) from None
     taus = _taus_with_marks(len(g.value), g.tau0_s)
     return stability.analyse(time_ns, value_ns, u_ns, changes=changes, taus=taus, to_iso=to_iso,

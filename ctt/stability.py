@@ -427,20 +427,38 @@ def stability_set(x_s, rate, taus=None, kinds=("oadev", "mdev", "tdev", "ohdev")
 
 @dataclass
 class Grid:
-    """A series on its regular grid: ``time_ns`` (int64), ``value`` with NaN in gaps."""
+    """A series on its regular grid: ``time_ns`` (int64), ``value`` with NaN in gaps.
+
+    ``n_snapped`` samples were moved to their nearest grid instant, by at most
+    ``max_shift_s``; ``n_dropped`` fell on an instant already taken (see :func:`to_grid`).
+    """
 
     time_ns: np.ndarray
     value: np.ndarray
     tau0_s: float
     u: np.ndarray | None = None
     n_missing: int = 0
+    n_snapped: int = 0
+    max_shift_s: float = 0.0
+    n_dropped: int = 0
+
+    def info(self) -> dict:
+        return {"tau0_s": self.tau0_s, "n_missing": self.n_missing, "n_snapped": self.n_snapped,
+                "max_shift_s": self.max_shift_s, "n_dropped": self.n_dropped}
 
 
-def to_grid(time_ns, value, u=None, tau0_s: float | None = None, tolerance: float = 0.01) -> Grid:
+def to_grid(time_ns, value, u=None, tau0_s: float | None = None, tolerance: float = 0.01,
+            snap: bool = False) -> Grid:
     """Place samples on the regular grid t0 + k·τ0, NaN where missing (no interpolation).
 
     τ0 defaults to the most common spacing. Raises ``ValueError`` for
-    duplicate instants or samples more than ``tolerance``·τ0 off the grid.
+    duplicate instants or samples more than ``tolerance``·τ0 off the grid,
+    unless ``snap``: then every sample goes to its nearest grid instant (the
+    first one wins where two land on the same instant; the others are counted
+    in ``n_dropped``). Snapping is for schedules that drift against a fixed
+    grid, e.g. common-view tracks that start 4 min earlier each day: the value
+    is kept, only its epoch moves, by at most τ0/2, which changes the phase by
+    |y|·shift (y the fractional frequency offset: 1e-13 × 8 min = 0.05 ns).
     """
     t = np.asarray(time_ns, dtype=np.int64)
     v = np.asarray(value, dtype=float)
@@ -458,11 +476,19 @@ def to_grid(time_ns, value, u=None, tau0_s: float | None = None, tolerance: floa
         step = int(vals[np.argmax(counts)])
     else:
         step = int(round(tau0_s * 1e9))
-    k = np.rint((t - t[0]) / step).astype(np.int64)
+    # nearest grid instant, halves rounded up (integer arithmetic): a schedule shifted
+    # by exactly τ0/2 then maps monotonically, without two samples on one instant
+    k = (t - t[0] + step // 2) // step
     off = np.abs((t - t[0]) - k * step)
-    if np.any(off > tolerance * step):
-        i = int(np.nonzero(off > tolerance * step)[0][0])
+    bad = off > tolerance * step
+    if np.any(bad) and not snap:
+        i = int(np.nonzero(bad)[0][0])
         raise ValueError(f"sample {i + 1} is {off[i] / 1e9:g} s off the regular {step / 1e9:g} s grid")
+    first = np.ones(len(k), bool)
+    first[1:] = k[1:] != k[:-1]          # k is non-decreasing: keep the first sample per instant
+    n_dropped = int((~first).sum())
+    k, v = k[first], v[first]
+    uu = None if uu is None else uu[first]
     n = int(k[-1]) + 1
     gv = np.full(n, np.nan)
     gv[k] = v
@@ -471,7 +497,18 @@ def to_grid(time_ns, value, u=None, tau0_s: float | None = None, tolerance: floa
         gu = np.full(n, np.nan)
         gu[k] = uu
     gt = t[0] + np.arange(n, dtype=np.int64) * step
-    return Grid(gt, gv, step / 1e9, gu, int(n - np.count_nonzero(~np.isnan(gv))))
+    return Grid(gt, gv, step / 1e9, gu, int(n - np.count_nonzero(~np.isnan(gv))),
+                int(bad.sum()), float(off.max() / 1e9) if bad.any() else 0.0, n_dropped)
+
+
+def grid_series(time_ns, value, u=None) -> Grid:
+    """:func:`to_grid`, snapping only when the samples are not on one grid (see there)."""
+    try:
+        return to_grid(time_ns, value, u)
+    except ValueError as exc:
+        if "off the regular" not in str(exc):
+            raise
+        return to_grid(time_ns, value, u, snap=True)
 
 
 # ------------------------------------------------------------------ drift fit
@@ -711,7 +748,7 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
     t = np.asarray(time_ns, dtype=np.int64)
     x = np.asarray(offset_ns, dtype=float)
     log = list(changes or [])
-    g = to_grid(t, x)
+    g = grid_series(t, x)
     n = len(g.value)
     block = max(1, int(math.ceil(n / max_points)))
     nb = n // block
@@ -887,7 +924,7 @@ def _period(t, x, start, end):
     sel = (t >= start) & (t <= end) & np.isfinite(x)
     if np.count_nonzero(sel) < 8:
         raise ValueError(f"period {start}..{end} has {np.count_nonzero(sel)} samples; need at least 8")
-    g = to_grid(t[sel], x[sel])
+    g = grid_series(t[sel], x[sel])
     xs = g.value * 1e-9
     rate = 1.0 / g.tau0_s
     devs = stability_set(xs, rate, kinds=("oadev", "tdev"))
@@ -998,7 +1035,7 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
     phase steps found (sizes from the drift fit with steps) are subtracted
     first, and the summary lists them under ``steps_removed``.
     """
-    g = to_grid(time_ns, offset_ns, u_ns)
+    g = grid_series(time_ns, offset_ns, u_ns)
     rate = 1.0 / g.tau0_s
     ch = detect_changes(g.time_ns, g.value, changes)
     # the drift model carries a step at every detected phase step, so the residuals
@@ -1022,7 +1059,7 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
         "estimators": {"adev": "overlapping Allan", "mdev": "modified Allan", "tdev": "time deviation",
                        "hdev": "overlapping Hadamard",
                        "ci": "68.3 % chi-square interval, Greenhall-Riley EDF"},
-        "tau0_s": g.tau0_s, "n_samples": int(np.count_nonzero(np.isfinite(g.value))),
+        "tau0_s": g.tau0_s, "n_samples": int(np.count_nonzero(np.isfinite(g.value))), "grid": g.info(),
         "n_missing": g.n_missing, "start": iso(int(g.time_ns[0])), "end": iso(int(g.time_ns[-1])),
         "adev": devs["oadev"].records(), "mdev": devs["mdev"].records(),
         "tdev": devs["tdev"].records(1e9), "hdev": devs["ohdev"].records(),

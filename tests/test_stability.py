@@ -87,6 +87,20 @@ def test_to_grid_places_nan_and_refuses_off_grid():
         stability.to_grid(np.array([0, 30, 30, 60]) * NS, [1, 2, 3, 4])
 
 
+def test_track_schedule_is_snapped_to_a_grid():
+    # Common-view tracks every 16 min, the schedule 4 min earlier each day (common
+    # practice for the standard track schedule): not one grid over several days.
+    day = 86400 * NS
+    t = np.concatenate([d * day - d * 240 * NS + 120 * NS + np.arange(89) * 960 * NS for d in range(4)])
+    x = np.random.default_rng(21).normal(size=len(t))
+    with pytest.raises(ValueError, match="off the regular"):
+        stability.to_grid(t, x)
+    g = stability.grid_series(t, x)
+    assert g.tau0_s == 960 and g.n_dropped == 0
+    assert 0 < g.max_shift_s <= 480                          # at most τ0/2
+    assert np.count_nonzero(np.isfinite(g.value)) == len(t)  # every value kept, none invented
+
+
 def test_octave_taus_stop_at_a_third_of_the_span():
     taus = stability.octave_taus(2881, 30.0)          # one day of 30 s phase points
     assert taus[0] == 30.0 and taus[-1] <= 2880 * 30 / 3 and taus[-1] * 2 > 2880 * 30 / 3
