@@ -618,15 +618,21 @@ def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_it
 
 # ---------------------------------------------------------------- uncertainty budget
 
+def main_system(systems) -> str | None:
+    """The series a user means by "the offset": the combined 'ALL' when several
+    systems were solved, else the only system; None when that is ambiguous."""
+    systems = sorted({str(s) for s in systems})
+    if "ALL" in systems:
+        return "ALL"
+    return systems[0] if len(systems) == 1 else None
+
+
 def _pick_system(offset_df, system):
-    systems = list(pd.unique(offset_df["system"]))
     if system is None:
-        if "ALL" in systems:
-            system = "ALL"
-        elif len(systems) == 1:
-            system = systems[0]
-        else:
-            raise ProcessingError(f"several systems {systems} and no combined solution: say which one")
+        system = main_system(offset_df["system"])
+        if system is None:
+            raise ProcessingError(f"several systems {sorted(set(offset_df['system']))} and no combined "
+                                  "solution: say which one")
     return system
 
 

@@ -353,14 +353,13 @@ def _tdev_at(d_s, taus, tdev_ns, tau0):
 def _usable(offsets_df: pd.DataFrame, system: str | None):
     df = offsets_df
     if "system" in df.columns:
-        systems = sorted(set(df["system"].astype(str)))
         if system is None:
-            if "ALL" in systems:
-                system = "ALL"
-            elif len(systems) == 1:
-                system = systems[0]
-            else:
-                raise UsageError(f"the offsets hold systems {', '.join(systems)}; choose one")
+            from .commonview import main_system
+
+            system = main_system(df["system"])
+            if system is None:
+                raise UsageError(f"the offsets hold systems {', '.join(sorted(set(df['system'].astype(str))))}; "
+                                 "choose one")
         df = df[df["system"].astype(str) == system]
     if "time_utc_ns" in df.columns:
         t = df["time_utc_ns"].to_numpy(np.int64)

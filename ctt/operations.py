@@ -179,21 +179,26 @@ def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
         archive.record_failure(pair_name, outcome.date, outcome.reason, info)
 
 
-def refresh_report(pc, archive, days: int = 30) -> pathlib.Path | None:
-    """Rebuild the pair's HTML report from the last ``days`` days of the archive."""
+def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, satellites=None):
+    """Rebuild the pair's HTML report from the last ``days`` days of the archive.
+
+    ``summary`` (the latest day's summary.json) and ``satellites`` (its
+    satellites.csv table) add the provenance and the per-satellite figures.
+    Returns the report path, or None when it could not be made (logged)."""
     from .report import build_report
 
     off = archive.load_offsets(pc.name)
     if off is None or not len(off):
         return None
     if "system" in off.columns and off["system"].nunique() > 1:
-        main = "ALL" if (off["system"] == "ALL").any() else off["system"].iloc[0]
-        off = off[off["system"] == main]
+        from .commonview import main_system
+
+        off = off[off["system"] == (main_system(off["system"]) or off["system"].iloc[0])]
     t = off["time_utc_ns"].to_numpy(np.int64) if "time_utc_ns" in off.columns else None
     t_from = int(t.max()) - days * ts.NS_PER_DAY if t is not None and len(t) else None
     changes = hardware_changes(pc)
     try:
-        build_report(off, None, None, changes, out_html=pc.report_path, time_from_ns=t_from,
+        build_report(off, satellites, summary, changes, out_html=pc.report_path, time_from_ns=t_from,
                      title=f"{pc.name}: clock {pc.station_a.id} - clock {pc.station_b.id}",
                      source=str(archive.path))
     except CttError as exc:

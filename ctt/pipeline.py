@@ -241,8 +241,7 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
     cv = commonview.common_view(red_a, red_b, weights=options.weights, mad_k=options.mad_k,
                                 min_common=options.min_common, mode=cv_mode)
     by_sys = cv.offset_df
-    systems = sorted(set(by_sys["system"]))
-    main_sys = "ALL" if "ALL" in systems else systems[0]
+    main_sys = commonview.main_system(by_sys["system"]) or sorted(set(by_sys["system"]))[0]
     offset = by_sys[by_sys["system"] == main_sys].reset_index(drop=True)
     if not (offset["flag"] == "ok").any():
         raise NoDataError(f"no usable common-view point between {station_a.id} and {station_b.id} "

@@ -58,7 +58,7 @@ def run_daily(args) -> int:
         outcome = compute_day(str(pc.path), date, known, force=args.force)
         store_outcome(arc, pc.name, outcome)
         if outcome.status == "ok" and not args.no_report:
-            rep = refresh_report(pc, arc)
+            rep = refresh_report(pc, arc, summary=outcome.summary, satellites=outcome.satellites)
             if rep:
                 log.info("report refreshed: %s", rep)
     if outcome.status == "skipped":

@@ -2,9 +2,10 @@
 
 Runs, on ``data_demo/`` (two invented laboratories about 450 km apart, one
 simulated day of GPS + Galileo with a cable change in the afternoon): the
-daily processing into an archive, the stability/drift/change analysis, the
-HTML report, an exchange-format export and an event-time correction; then
-compares the result with the simulator's truth and says where everything is.
+daily processing into an archive (as ``ctt daily``), the comparison with the
+simulator's truth, the HTML report with the stability, drift and change
+analysis, and an event-time correction of a few invented events; then says
+where everything is.
 """
 
 from __future__ import annotations
@@ -38,7 +39,6 @@ def run(args) -> int:
     from ..archive import Archive
     from ..config import load_pair
     from ..errors import MissingInputError
-    from ..report import build_report
 
     t_start = time.monotonic()
     src = demo_folder()
@@ -62,7 +62,6 @@ def run(args) -> int:
         if outcome.status != "ok":
             print(f"ctt demo: the day failed: {outcome.reason}")
             return 1
-        offsets = arc.load_offsets(pc.name)
     run_dir = pathlib.Path(outcome.out_dir)
     s = outcome.summary
     b = s["budget"]
@@ -86,19 +85,37 @@ def run(args) -> int:
     print(f"  against the simulated truth: bias {err.mean():+.3f} ns, RMS {np.sqrt(np.mean(err**2)):.3f} ns "
           f"over {err.size} points")
 
-    # report with the stations' change logs
-    report = build_report(offsets[offsets["system"] == offsets["system"].iloc[0]] if "system" in offsets else offsets,
-                          pd.read_csv(run_dir / "satellites.csv"), s, operations.hardware_changes(pc),
-                          out_html=out / "report.html", title=f"Demo: clock {pc.station_a.id} - clock {pc.station_b.id}",
-                          source=str(run_dir / "offset.csv"))
-    changes = report.get("changes", []) if isinstance(report, dict) else []
-    for c in changes:
+    # the report, as the daily run makes it (archive series, change log, provenance)
+    with Archive(pc.archive_path) as arc:
+        operations.refresh_report(pc, arc, summary=s, satellites=pd.read_csv(run_dir / "satellites.csv"))
+    rep_json = pathlib.Path(pc.report_path).with_suffix(".json")
+    import json
+
+    report = json.loads(rep_json.read_text()) if rep_json.is_file() else {}
+    for c in report.get("changes", []):
         print(f"  change found: {c.get('time_utc')} {c.get('kind')} {c.get('size'):+.2f} "
               f"+- {c.get('u_size'):.2f} ({'expected' if c.get('expected') else 'unexpected'})")
+    # the time-of-flight hand-off: events stamped on B's clock, expressed on A's time scale
+    events = out / "events_b.csv"
+    events.write_text("time_utc,event_id\n2021-01-01T06:00:00.123456789Z,1\n"
+                      "2021-01-01T15:30:00.000000001Z,2\n2021-01-02T06:00:00Z,3\n")
+    corrected = out / "events_b_on_a.csv"
+    from ..cli import main as cli_main
+
+    cli_main(["-q", "correct-events", "--config", str(pair_file), "--events", str(events), "--site", "B",
+              "--out", str(corrected)])
+    ev = pd.read_csv(corrected)
+    for _, r in ev.iterrows():
+        if r.get("status") == "ok":
+            print(f"  event {r['event_id']} at {r['time_utc']} on B's clock = {r['corrected_time_utc']} on A's "
+                  f"(+{r['correction_ns']:.3f} ns, u {r['u_ns']:.3f} ns)")
+        else:
+            print(f"  event {r['event_id']} at {r['time_utc']}: refused ({r['reason']})")
     print("outputs:")
     print(f"  run folder   {run_dir}  (offset.csv, satellites.csv, summary.json)")
     print(f"  archive      {pc.archive_path}")
-    print(f"  report       {out / 'report.html'}  (and report.json)")
+    print(f"  report       {pc.report_path}  (and {rep_json.name})")
+    print(f"  events       {corrected}")
     print(f"done in {time.monotonic() - t_start:.1f} s")
     return 0
 

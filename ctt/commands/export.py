@@ -56,7 +56,9 @@ def run(args) -> int:
         system = None if (args.system or "").lower() == "all" else args.system
         df = arch.load_offsets(pair.name, d0, d1, system=system, extras=False)
     if args.system is None and "system" in df.columns and df["system"].nunique() > 1:
-        main = "ALL" if (df["system"] == "ALL").any() else sorted(df["system"].unique())[0]
+        from ..commonview import main_system
+
+        main = main_system(df["system"]) or sorted(df["system"].unique())[0]
         df = df[df["system"] == main].reset_index(drop=True)
     if df.empty:
         raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
