@@ -122,3 +122,24 @@ def test_ionex_maps_are_used_for_single_frequency(real, test_data):
                                  np.full(len(t), 1575.42e6))[0]
     np.testing.assert_allclose(t["ionosphere_m"].to_numpy(), direct, rtol=1e-12)
     assert (t["ionosphere_m"] > 0).all()
+
+
+def test_measure_command_must_show(shared_data, test_data, tmp_path, capsys):
+    # The issue's "must show" command: iono-free with the IGS final orbits and clocks and the met file.
+    import pandas as pd
+
+    from ctt.cli import main
+
+    out = tmp_path / "zimm.csv"
+    rc = main(["measure", str(shared_data / "zimm0010.21o.gz"), "--nav", str(shared_data / "brdc0010.21n"),
+               "--sp3", str(shared_data / "igs21385.sp3"), "--met", str(shared_data / "zimm0010.21m"),
+               "--station", str(test_data / "stations" / "zimm.toml"), "--signals", "iono-free", "--out", str(out)])
+    assert rc == 0
+    t = pd.read_csv(out)
+    for col in ("time", "sat", "system", "signal", "elevation_deg", "azimuth_deg", "clock_ns", "geometry_m",
+                "sat_clock_ns", "relativity_ns", "group_delay_ns", "sagnac_m", "troposphere_m", "ionosphere_m",
+                "tide_m", "hardware_ns", "residual_ns", "flag"):
+        assert col in t.columns
+    ok = (t["flag"] == "ok") & (t["elevation_deg"] > 15)
+    assert np.sqrt(np.mean(t.loc[ok, "residual_ns"] ** 2)) * C * 1e-9 <= 1.3  # issue bound (precise, iono-free)
+    assert "clock reference: precise" in capsys.readouterr().out

@@ -64,3 +64,34 @@ def measure_options(args, base: MeasureOptions | None = None) -> MeasureOptions:
     import dataclasses
 
     return dataclasses.replace(base, **kw)
+
+
+def add_station_day_arguments(p) -> None:
+    """One station-day's inputs: the observation file, the station file, met and products."""
+    p.add_argument("obs", help="RINEX observation file (any compression)")
+    p.add_argument("--station", required=True, help="station TOML file")
+    p.add_argument("--met", help="RINEX meteorological file of the station")
+    add_product_arguments(p)
+
+
+def measure_station_day(args):
+    """Run the measurement model for ``add_station_day_arguments``; returns (station, StationDay, options)."""
+    from ..config import load_station
+    from ..errors import UsageError
+    from ..pipeline import PairInputs, load_orbits, measure_file
+
+    if not args.nav and not args.sp3:
+        raise UsageError("give --nav (broadcast) or --sp3 (precise orbits)")
+    opts = measure_options(args)
+    station = load_station(args.station)
+    inputs = PairInputs(obs_a=args.obs, obs_b=None, nav=args.nav, sp3=args.sp3, clk=args.clk,
+                        ionex=args.ionex, met_a=args.met, antex=args.antex)
+    orbits, nav_header, reference, _ = load_orbits(inputs, "auto")
+    ionex = None
+    if args.ionex:
+        from ..atmosphere import read_ionex
+
+        ionex = read_ionex(args.ionex)
+    day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, ionex=ionex,
+                       reference=reference)
+    return station, day, opts

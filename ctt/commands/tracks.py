@@ -5,8 +5,7 @@ from __future__ import annotations
 import logging
 import pathlib
 
-from ..errors import UsageError
-from ._common import add_model_arguments, add_product_arguments, measure_options
+from ._common import add_model_arguments, add_station_day_arguments, measure_station_day
 
 log = logging.getLogger("ctt")
 
@@ -17,10 +16,7 @@ def register(sub) -> None:
                                    "community's open common-view exchange format (CGGTTS version 2E), so it "
                                    "can be differenced with a partner's published track files "
                                    "(ctt pair --tracks-b FILE).")
-    p.add_argument("obs", help="RINEX observation file of the station")
-    p.add_argument("--station", required=True, help="station TOML file")
-    p.add_argument("--met", help="RINEX meteorological file")
-    add_product_arguments(p)
+    add_station_day_arguments(p)
     p.add_argument("--lab", help="laboratory code for the LAB line (default: the station id)")
     p.add_argument("--out", required=True, help="output file, e.g. LABA59215.cggtts")
     add_model_arguments(p)
@@ -28,19 +24,11 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
-    from ..config import load_station
-    from ..exports import CggttsHeader, station_tracks_to_cggtts, write_cggtts
-    from ..pipeline import PairInputs, load_orbits, measure_file
     from .. import timescales as ts
+    from ..exports import CggttsHeader, station_tracks_to_cggtts, write_cggtts
 
-    if not args.nav and not args.sp3:
-        raise UsageError("give --nav (broadcast) or --sp3 (precise orbits)")
-    opts = measure_options(args)
-    station = load_station(args.station)
-    inputs = PairInputs(obs_a=args.obs, obs_b=args.obs, nav=args.nav, sp3=args.sp3, clk=args.clk,
-                        ionex=args.ionex, antex=args.antex)
-    orbits, nav_header, reference, _ = load_orbits(inputs, "auto")
-    day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, reference=reference)
+    station, day, opts = measure_station_day(args)
+    reference = day.reference
     tracks = station_tracks_to_cggtts(day.table)
     t0 = int(day.table["time"].min())
     ds = station.delays_at(int(ts.convert(t0, "GPS", "UTC")))
