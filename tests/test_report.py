@@ -97,7 +97,7 @@ def test_missing_column_is_clear(tmp_path):
 
 def test_day_folders_are_concatenated(tmp_path):
     for k, name in enumerate(("2026-03-01", "2026-03-02")):
-        synth.write_run(tmp_path / name, days=1.0, step_s=300.0, seed=20 + k, with_sats=False)
+        synth.write_run(tmp_path / name, days=1.0, step_s=300.0, draw=20 + k, with_sats=False)
     # second day shifted by a day: rewrite its times
     f = pd.read_csv(tmp_path / "2026-03-02" / "offset.csv")
     f["time_utc"] = (pd.to_datetime(f["time_utc"]) + pd.Timedelta(days=1)).dt.strftime("%Y-%m-%dT%H:%M:%SZ")

@@ -1,6 +1,6 @@
 """Write a synthetic run folder (offset.csv, satellites.csv, summary.json) for tests.
 
-Invented data (seeded): two stations "alpha" and "bravo", white PM of 1.2 ns plus a
+Invented, reproducible data (fixed generator state): two stations "alpha" and "bravo", white PM of 1.2 ns plus a
 little white FM, a frequency offset and drift, a logged 5 ns step (an invented cable
 change) and per-satellite differences for GPS and Galileo with a simple sky track.
 Used by tests/test_plots.py and tests/test_report.py (loaded by path).
@@ -21,8 +21,8 @@ T0_NS = int((np.datetime64("2026-03-01T00:00:00", "ns") - np.datetime64("1980-01
             .astype(np.int64))
 
 
-def make_offset(days=3.0, step_s=300.0, seed=11, step_at_day=1.5, step_ns=5.0):
-    rng = np.random.default_rng(seed)
+def make_offset(days=3.0, step_s=300.0, draw=11, step_at_day=1.5, step_ns=5.0):
+    rng = np.random.default_rng(draw)
     n = int(days * 86400 / step_s)
     t = T0_NS + (np.arange(n) * step_s * NS).astype(np.int64)
     ts = (t - t[0]) / 1e9
@@ -43,17 +43,17 @@ def iso(ns):
                                  + np.asarray(ns, dtype=np.int64).astype("timedelta64[ns]"), unit="s")
 
 
-def write_run(folder, days=3.0, step_s=300.0, seed=11, with_sats=True):
+def write_run(folder, days=3.0, step_s=300.0, draw=11, with_sats=True):
     folder = pathlib.Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    t, x, u, nsat, flag, te = make_offset(days, step_s, seed)
+    t, x, u, nsat, flag, te = make_offset(days, step_s, draw)
     mjd = 44244 + (t // (86400 * NS)) + (t % (86400 * NS)) / (86400 * NS)
     off = pd.DataFrame({"time_utc": np.char.add(iso(t).astype(str), "Z"), "mjd_utc": np.round(mjd, 8),
                         "offset_ns": np.round(x, 4), "u_ns": u, "n_sat": nsat, "flag": flag,
                         "extra_column": 1})
     off.to_csv(folder / "offset.csv", index=False)
     if with_sats:
-        rng = np.random.default_rng(seed + 1)
+        rng = np.random.default_rng(draw + 1)
         rows = []
         sats = [f"G{k:02d}" for k in (3, 7, 12, 19, 25)] + [f"E{k:02d}" for k in (4, 11, 26)]
         every = max(1, len(t) // 150)
