@@ -322,6 +322,7 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
     t0 = int(offset["time"].min())
     return {
         "software": {"name": "ctt", "version": __version__},
+        "version": __version__,
         "pair": f"{station_a.id}-{station_b.id}",
         "station_a": station_a.id, "station_b": station_b.id,
         "date_utc": str(ts.to_iso(ts.convert(t0, "GPS", "UTC")))[:10],
