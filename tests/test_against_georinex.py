@@ -261,3 +261,19 @@ def test_written_rinex3_equals_georinex(tmp_path):
             assert np.array_equal(got, ref, equal_nan=True), (var, sv)
             n += np.isfinite(ref).sum()
     assert n > 500
+
+
+# ----------------------------------------------------------------- the demo files (data_demo/, simulated)
+
+_DEMO = __import__("pathlib").Path(__file__).resolve().parents[1] / "data_demo"
+
+
+@pytest.mark.parametrize("station", ["ALDR", "BRKW"])
+def test_demo_rinex3_slice(station):
+    """The committed demo observation files (RINEX 3.04, GPS + Galileo, gzip): first 40 minutes."""
+    path = next(_DEMO.glob(f"{station}*_MO.rnx.gz"))
+    ours = read_obs(path)
+    t0, t1 = datetime(2021, 1, 1, 0, 0), datetime(2021, 1, 1, 0, 40)
+    g = _gr_load(path, tlim=(t0, t1))
+    n = _assert_same(ours, g, t_slice=(np.datetime64(t0), np.datetime64(t1)))
+    assert n > 5_000
