@@ -82,6 +82,9 @@ class PairOptions:
     mad_k: float = 3.5
     min_common: int = 1
     measure: MeasureOptions = MeasureOptions()
+    #: configured inter-system biases {'A': {'E': ns}, 'B': {...}} (system minus GPS at that
+    #: station); systems not given are estimated from the day (ctt.commonview)
+    isb_ns: dict | None = None
 
     def __post_init__(self):
         if self.mode not in MODES:
@@ -239,7 +242,7 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
     _check_overlap(inputs, red_a, red_b)
     cv_mode = "all-in-view" if options.mode == "all-in-view" else "cv"
     cv = commonview.common_view(red_a, red_b, weights=options.weights, mad_k=options.mad_k,
-                                min_common=options.min_common, mode=cv_mode)
+                                min_common=options.min_common, mode=cv_mode, isb_ns=options.isb_ns)
     by_sys = cv.offset_df
     main_sys = commonview.main_system(by_sys["system"]) or sorted(set(by_sys["system"]))[0]
     offset = by_sys[by_sys["system"] == main_sys].reset_index(drop=True)

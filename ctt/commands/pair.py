@@ -43,6 +43,10 @@ def register(sub) -> None:
     proc.add_argument("--mad-k", type=float, default=None, help="outlier rejection at k x MAD (default 3.5)")
     proc.add_argument("--min-common", type=int, default=None,
                       help="fewest common satellites for a point to be flagged ok (default 1)")
+    proc.add_argument("--isb-a", action="append", default=[], metavar="SYS=NS",
+                      help="configured inter-system bias of station A, e.g. E=12.5 (Galileo minus GPS, ns); "
+                           "repeatable; systems not given are estimated from the day")
+    proc.add_argument("--isb-b", action="append", default=[], metavar="SYS=NS", help="the same for station B")
     add_model_arguments(p)
     p.add_argument("--out", required=True, help="output folder")
     p.set_defaults(func=run)
@@ -65,6 +69,16 @@ def options_from_args(args, base=None):
         kw["mad_k"] = args.mad_k
     if args.min_common is not None:
         kw["min_common"] = args.min_common
+    isb = {}
+    for who, items in (("A", args.isb_a), ("B", args.isb_b)):
+        for item in items:
+            sys_letter, _, value = item.partition("=")
+            try:
+                isb.setdefault(who, {})[sys_letter.strip().upper()] = float(value)
+            except ValueError:
+                raise UsageError(f"--isb-{who.lower()} {item!r}: expected SYS=NS, e.g. E=12.5") from None
+    if isb:
+        kw["isb_ns"] = isb
     return dataclasses.replace(base, **kw)
 
 
