@@ -180,7 +180,8 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     solid_tide = true
 
     [output]
-    gzip = true
+    gzip = true                         # gzip the obs and nav files (.gz)
+    hatanaka = false                    # obs as Hatanaka compact RINEX (.crx)
     rinex2 = false                      # also write RINEX 2.11 (GPS) obs files
     met_interval_s = 300.0
 
@@ -588,8 +589,9 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
         "solid_tide": r.flag(prop, "solid_tide", "propagation", True),
     }
     out = data.get("output", {})
-    r.keys(out, {"gzip", "rinex2", "met_interval_s"}, "output")
-    out_out = {"gzip": r.flag(out, "gzip", "output", True), "rinex2": r.flag(out, "rinex2", "output", False),
+    r.keys(out, {"gzip", "hatanaka", "rinex2", "met_interval_s"}, "output")
+    out_out = {"gzip": r.flag(out, "gzip", "output", True), "hatanaka": r.flag(out, "hatanaka", "output", False),
+               "rinex2": r.flag(out, "rinex2", "output", False),
                "met_interval_s": r.num(out, "met_interval_s", "output", 300.0, lo=1.0)}
 
     st_list = data.get("stations")
@@ -1285,12 +1287,14 @@ def _period_code(duration_s: float) -> str:
     return f"{int(round(duration_s / 60)):02d}M"
 
 
-def obs_file_name(sid: str, start_gps_ns: int, duration_s: float, interval_s: float, gz: bool) -> str:
-    """RINEX 3 long name ``LABA00XXX_R_YYYYDDDHHMM_01D_30S_MO.rnx`` (country code XXX: user-assigned)."""
+def obs_file_name(sid: str, start_gps_ns: int, duration_s: float, interval_s: float, gz: bool,
+                  crx: bool = False) -> str:
+    """RINEX 3 long name ``LABA00XXX_R_YYYYDDDHHMM_01D_30S_MO.rnx`` (country code XXX: user-assigned);
+    ``.crx`` for Hatanaka compact RINEX, ``.gz`` appended when gzipped."""
     y, _, _, h, mi, _, _ = (int(v) for v in ts.ns_to_civil(np.int64(start_gps_ns)))
     doy = int(ts.day_of_year(np.int64(start_gps_ns)))
     name = (f"{sid[:4].upper()}00XXX_R_{y:04d}{doy:03d}{h:02d}{mi:02d}_{_period_code(duration_s)}_"
-            f"{int(round(interval_s)):02d}S_MO.rnx")
+            f"{int(round(interval_s)):02d}S_MO." + ("crx" if crx else "rnx"))
     return name + (".gz" if gz else "")
 
 
@@ -1360,7 +1364,8 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
             sub_ssi = {k: v[seg] for k, v in r.ssi.items()}
             if not any(np.isfinite(v).any() for v in sub.values()):
                 continue
-            p = write_obs3(out / obs_file_name(sid, ts0, seg_s, scn.interval_s, gz), marker=sid,
+            p = write_obs3(out / obs_file_name(sid, ts0, seg_s, scn.interval_s, gz, scn.output["hatanaka"]),
+                           marker=sid,
                            time_ns=t[seg], sats=r.sats, obs=sub, types=obs_types, lli=sub_lli, ssi=sub_ssi,
                            interval_s=scn.interval_s, approx_xyz_m=spec.marker_m,
                            antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
@@ -1424,7 +1429,8 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
         files["station"].append(sp)
     period = "*" if split else _period_code(duration_s)
     obs_pattern = (f"{{STATION}}00XXX_R_{{yyyy}}{{doy:03d}}{'*' if split else '0000'}_{period}_"
-                   f"{int(round(scn.interval_s)):02d}S_MO.rnx" + (".gz" if gz else ""))
+                   f"{int(round(scn.interval_s)):02d}S_MO." + ("crx" if scn.output["hatanaka"] else "rnx")
+                   + (".gz" if gz else ""))
     nav_pattern = nav_name
     if res.nav_records:
         nav_pattern = (f"BRDC00XXX_R_{{yyyy}}{{doy:03d}}{'*' if split else '0000'}_{period}_MN.rnx"

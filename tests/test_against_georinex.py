@@ -270,8 +270,8 @@ _DEMO = __import__("pathlib").Path(__file__).resolve().parents[1] / "data_demo"
 
 @pytest.mark.parametrize("station", ["ALDR", "BRKW"])
 def test_demo_rinex3_slice(station):
-    """The committed demo observation files (RINEX 3.04, GPS + Galileo, gzip): first 40 minutes."""
-    path = next(_DEMO.glob(f"{station}*_MO.rnx.gz"))
+    """The committed demo observation files (RINEX 3.04 as Hatanaka compact RINEX, GPS + Galileo): first 40 minutes."""
+    path = next(_DEMO.glob(f"{station}*_MO.crx"))
     ours = read_obs(path)
     t0, t1 = datetime(2021, 1, 1, 0, 0), datetime(2021, 1, 1, 0, 40)
     g = _gr_load(path, tlim=(t0, t1))

@@ -22,9 +22,9 @@ DEMO = pathlib.Path(__file__).resolve().parents[1] / "data_demo"
 
 @pytest.mark.slow
 def test_pair_from_a_track_file_matches_pair_from_observations(tmp_path):
-    obs_a = str(next(DEMO.glob("ALDR*_MO.rnx.gz")))
-    obs_b = str(next(DEMO.glob("BRKW*_MO.rnx.gz")))
-    nav = str(next(DEMO.glob("BRDC*.rnx.gz")))
+    obs_a = str(next(DEMO.glob("ALDR*_MO.crx")))
+    obs_b = str(next(DEMO.glob("BRKW*_MO.crx")))
+    nav = str(next(DEMO.glob("BRDC*_MN.rnx")))
     sta, stb = load_station(DEMO / "aldr.toml"), load_station(DEMO / "brkw.toml")
     m = MeasureOptions(systems=("G", "E"))
     opts = PairOptions(mode="tracks", measure=m)

@@ -81,7 +81,7 @@ def test_a_missing_or_corrupt_day_is_recorded_and_others_are_kept(demo, capsys):
         n1 = con.execute("SELECT COUNT(*) FROM offsets WHERE date='2021-01-01'").fetchone()[0]
     assert status == {"2021-01-01": "ok", "2021-01-02": "failed"}
     # corrupt day 1's observation file: the re-run fails with the reason, the old results stay
-    obs = next(work.glob("ALDR*_MO.rnx.gz"))
+    obs = next(work.glob("ALDR*_MO.crx"))
     obs.write_bytes(obs.read_bytes()[:5000])
     rc = main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"])
     assert rc in (1, 3)

@@ -186,7 +186,7 @@ class SP3Header:
     n_epochs: int                # as announced in line 1
     data_used: str
     coord_system: str            # e.g. 'IGb14'
-    orbit_type: str              # e.g. 'HLM', 'FIT', 'BCT'
+    orbit_type: str              # e.g. 'HLM', 'FIT' (SP3 header orbit type)
     agency: str
     gps_week: int
     seconds_of_week: float

@@ -13,7 +13,9 @@
 * :func:`write_met2` — RINEX 2.11 meteorological file (PR, TD, HR; table A9).
 
 Every writer takes plain numpy arrays, writes text and, when the target name
-ends in ``.gz``, gzips it. Values are written with the formats' fixed
+ends in ``.gz``, gzips it; an observation file named ``.crx`` (or ``.crx.gz``)
+is written as Hatanaka compact RINEX through the ``hatanaka`` package (text,
+about a third of the size, and what many archives distribute). Values are written with the formats' fixed
 resolution (0.001 for observations, 0.1 for met values, 12 decimal mantissa
 digits for navigation fields); :func:`nav_field` returns the value a reader
 will get back from a navigation field, so a simulator can take its truth from
@@ -46,6 +48,8 @@ def header_line(content: str, label: str) -> str:
 def _finish(path, buf: io.StringIO) -> pathlib.Path:
     path = pathlib.Path(path)
     data = buf.getvalue().encode("ascii")
+    if path.name.endswith((".crx", ".crx.gz")):
+        data = _compact(data)
     if path.name.endswith(".gz"):
         # mtime=0: the same content gives the same bytes (reproducible demo files)
         with open(path, "wb") as fh, gzip.GzipFile(filename="", mode="wb", fileobj=fh, mtime=0) as gz:
@@ -53,6 +57,28 @@ def _finish(path, buf: io.StringIO) -> pathlib.Path:
     else:
         path.write_bytes(data)
     return path
+
+
+def _compact(rinex: bytes) -> bytes:
+    """Hatanaka compact RINEX of an observation file (the ``hatanaka`` package), with the
+    CRINEX PROG / DATE line dated like the RINEX header's PGM / RUN BY / DATE instead of
+    the wall clock, so the same content gives the same bytes (reproducible demo files)."""
+    import datetime as _dt
+
+    import hatanaka
+
+    crx = hatanaka.rnx2crx(rinex).split(b"\n")
+    stamp = None
+    for line in rinex[:8000].split(b"\n"):
+        if line[60:].startswith(b"PGM / RUN BY / DATE"):
+            try:
+                stamp = _dt.datetime.strptime(line[40:55].decode(), "%Y%m%d %H%M%S")
+            except ValueError:
+                stamp = None
+            break
+    if stamp is not None and len(crx) > 1 and crx[1][60:].startswith(b"CRINEX PROG / DATE"):
+        crx[1] = crx[1][:40] + stamp.strftime("%d-%b-%y %H:%M").encode().ljust(20) + crx[1][60:]
+    return b"\n".join(crx)
 
 
 def _civil(ns):
