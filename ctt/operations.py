@@ -145,6 +145,7 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
             return out
         inputs, sta, stb, options = pair_day_from_config(pc, date)
         result = run_pair(inputs, sta, stb, options)
+        _check_day(result, inputs, date)
         folder = run_folder(pc, date)
         result.summary["config_hash"] = ch
         result.summary["inputs_hash"] = ih
@@ -161,6 +162,19 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         log.debug("day %s failed:\n%s", date, traceback.format_exc())
     out.finished = _now()
     return out
+
+
+def _check_day(result, inputs, date) -> None:
+    """The files a pattern found must hold the requested day (a misnamed file is refused)."""
+    from .errors import ProcessingError
+
+    t = ts.convert(result.offset["time"].to_numpy(np.int64), "GPS", "UTC")
+    day0 = ts.date_to_ns(date)
+    inside = (t >= day0 - 3600 * ts.NS_PER_S) & (t < day0 + ts.NS_PER_DAY + 3600 * ts.NS_PER_S)
+    if inside.mean() < 0.5:
+        first = str(ts.to_iso(int(np.median(t))))[:10]
+        raise ProcessingError(f"{inputs.obs_a} / {inputs.obs_b}: the files found for {date} hold data of "
+                              f"{first}; check the file-name patterns")
 
 
 def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:

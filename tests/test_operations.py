@@ -150,3 +150,13 @@ def test_backfill_on_a_dask_cluster(demo, capsys):
     with sqlite3.connect(db) as con:
         status = dict(con.execute("SELECT date, latest_status FROM days").fetchall())
     assert status == {"2021-01-01": "ok", "2021-01-02": "failed"}
+
+
+@pytest.mark.slow
+def test_a_file_of_another_day_under_the_requested_name_is_refused(demo, capsys):
+    work, pair = demo
+    for f in list(work.glob("*20210010000*")):
+        f.rename(f.with_name(f.name.replace("20210010000", "20210020000")))
+    rc = main(["daily", "--config", str(pair), "--date", "2021-01-02", "--no-report"])
+    assert rc == 1
+    assert "hold data of 2021-01-01" in capsys.readouterr().err
