@@ -90,7 +90,7 @@ def run_backfill(args) -> int:
         raise UsageError("--jobs must be at least 1")
     with _open(pc, args.lock_timeout) as arc:
         todo = {d: "forced" for d in dates} if args.force else needs_reprocessing(pc, arc, dates)
-        changed = {d: r for d, r in todo.items() if r != "not processed yet"}
+        changed = {} if args.force else {d: r for d, r in todo.items() if r != "not processed yet"}
         if changed:
             print(f"{len(changed)} archived day(s) need reprocessing:")
             for d, r in changed.items():
