@@ -337,16 +337,7 @@ def glonass_propagate(pos_m, vel_mps, acc_mps2, dt_s, max_step_s=60.0):
     nsteps = max(1, int(math.ceil(np.max(np.abs(dt)) / max_step_s - 1e-12)))
     h = (dt / nsteps)[:, None]
     for _ in range(nsteps):
-        k1v = _glo_accel(r, v, acc)
-        k1r = v
-        k2r = v + 0.5 * h * k1v
-        k2v = _glo_accel(r + 0.5 * h * k1r, k2r, acc)
-        k3r = v + 0.5 * h * k2v
-        k3v = _glo_accel(r + 0.5 * h * k2r, k3r, acc)
-        k4r = v + h * k3v
-        k4v = _glo_accel(r + h * k3r, k4r, acc)
-        r = r + h / 6.0 * (k1r + 2 * k2r + 2 * k3r + k4r)
-        v = v + h / 6.0 * (k1v + 2 * k2v + 2 * k3v + k4v)
+        r, v = _rk4_step(r, v, acc, h)
     return r, v
 
 

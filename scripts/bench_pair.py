@@ -9,25 +9,16 @@ ZIMM-CN00 of ../shared/data/real-2021-001 (GPS). Prints median of 3 runs.
 from __future__ import annotations
 
 import pathlib
-import statistics
 import sys
 import tempfile
-import time
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "scripts"))
 
+from bench_measure import timed  # noqa: E402  (same folder)
 from ctt.config import load_station  # noqa: E402
 from ctt.pipeline import PairInputs, PairOptions, pair_day_from_config, run_pair, write_pair_outputs  # noqa: E402
-
-
-def timed(fn, n=3):
-    ts = []
-    for _ in range(n):
-        t0 = time.perf_counter()
-        out = fn()
-        ts.append(time.perf_counter() - t0)
-    return statistics.median(ts), out
 
 
 def main() -> None:

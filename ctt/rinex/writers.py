@@ -81,6 +81,19 @@ def _compact(rinex: bytes) -> bytes:
     return b"\n".join(crx)
 
 
+def _station_lines(w, observer, agency, receiver_number, receiver_type, receiver_version, antenna_number,
+                   antenna_type, approx_xyz_m, antenna_delta_hen_m) -> None:
+    """The observer, receiver, antenna and position header records (same in RINEX 2.11 and 3.04)."""
+    w(header_line(f"{observer[:20]:<20}{agency[:40]:<40}", "OBSERVER / AGENCY"))
+    w(header_line(f"{receiver_number[:20]:<20}{receiver_type[:20]:<20}{receiver_version[:20]:<20}",
+                  "REC # / TYPE / VERS"))
+    w(header_line(f"{antenna_number[:20]:<20}{antenna_type[:20]:<20}", "ANT # / TYPE"))
+    x, y, z = (float(v) for v in approx_xyz_m)
+    w(header_line(f"{x:14.4f}{y:14.4f}{z:14.4f}", "APPROX POSITION XYZ"))
+    dh, de, dn = (float(v) for v in antenna_delta_hen_m)
+    w(header_line(f"{dh:14.4f}{de:14.4f}{dn:14.4f}", "ANTENNA: DELTA H/E/N"))
+
+
 def _civil(ns):
     y, mo, d, h, mi, s, nano = (int(v) for v in ns_to_civil(np.int64(ns)))
     return y, mo, d, h, mi, s, nano
@@ -139,14 +152,8 @@ def write_obs3(path, *, marker: str, time_ns, sats, obs: dict, types: dict, lli:
     if marker_number:
         w(header_line(marker_number[:20], "MARKER NUMBER"))
     w(header_line("GEODETIC", "MARKER TYPE"))
-    w(header_line(f"{observer[:20]:<20}{agency[:40]:<40}", "OBSERVER / AGENCY"))
-    w(header_line(f"{receiver_number[:20]:<20}{receiver_type[:20]:<20}{receiver_version[:20]:<20}",
-                  "REC # / TYPE / VERS"))
-    w(header_line(f"{antenna_number[:20]:<20}{antenna_type[:20]:<20}", "ANT # / TYPE"))
-    x, y, z = (float(v) for v in approx_xyz_m)
-    w(header_line(f"{x:14.4f}{y:14.4f}{z:14.4f}", "APPROX POSITION XYZ"))
-    dh, de, dn = (float(v) for v in antenna_delta_hen_m)
-    w(header_line(f"{dh:14.4f}{de:14.4f}{dn:14.4f}", "ANTENNA: DELTA H/E/N"))
+    _station_lines(w, observer, agency, receiver_number, receiver_type, receiver_version, antenna_number,
+                   antenna_type, approx_xyz_m, antenna_delta_hen_m)
     for s in systems:
         codes = list(types[s])
         for k in range(0, max(len(codes), 1), 13):
@@ -235,14 +242,8 @@ def write_obs2(path, *, marker: str, time_ns, sats, obs: dict, codes: list, lli:
     w(header_line(f"{PROGRAM:<20}{'ctt':<20}{_run_date(run_ns if run_ns is not None else time_ns[0]):<20}",
                   "PGM / RUN BY / DATE"))
     w(header_line(marker[:60], "MARKER NAME"))
-    w(header_line(f"{observer[:20]:<20}{agency[:40]:<40}", "OBSERVER / AGENCY"))
-    w(header_line(f"{receiver_number[:20]:<20}{receiver_type[:20]:<20}{receiver_version[:20]:<20}",
-                  "REC # / TYPE / VERS"))
-    w(header_line(f"{antenna_number[:20]:<20}{antenna_type[:20]:<20}", "ANT # / TYPE"))
-    x, y, z = (float(v) for v in approx_xyz_m)
-    w(header_line(f"{x:14.4f}{y:14.4f}{z:14.4f}", "APPROX POSITION XYZ"))
-    dh, de, dn = (float(v) for v in antenna_delta_hen_m)
-    w(header_line(f"{dh:14.4f}{de:14.4f}{dn:14.4f}", "ANTENNA: DELTA H/E/N"))
+    _station_lines(w, observer, agency, receiver_number, receiver_type, receiver_version, antenna_number,
+                   antenna_type, approx_xyz_m, antenna_delta_hen_m)
     w(header_line(f"{1:6d}{1:6d}", "WAVELENGTH FACT L1/2"))
     for k in range(0, len(v2), 9):
         head = f"{len(v2):6d}" if k == 0 else " " * 6
