@@ -439,12 +439,12 @@ def options_from_processing(proc) -> PairOptions:
         elevation_mask_deg=proc.elevation_mask_deg,
         troposphere=not proc.no_troposphere, ionosphere=not proc.no_ionosphere, tide=not proc.no_tide,
         sagnac=not proc.no_sagnac, relativity=not proc.no_relativity,
-        smoothing_s=float(getattr(proc, "smoothing_s", 0.0) or 0.0),
+        smoothing_s=float(proc.smoothing_s),
         mad_k=float(proc.mad_k))
     bin_s = proc.bin_s if proc.mode != "tracks" else None
     return PairOptions(mode=proc.mode, bin_s=bin_s, orbits=proc.orbits, mad_k=float(proc.mad_k),
                        min_common=int(proc.min_common_sats), measure=m,
-                       weights=getattr(proc, "weights", "sin2el"))
+                       weights=proc.weights)
 
 
 def pair_day_from_config(config, date):
