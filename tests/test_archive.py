@@ -305,7 +305,7 @@ def _store_forever(path, w, versions):
         k += 1
 
 
-def _kill_trials(tmp_path, trials, seed):
+def _kill_trials(tmp_path, trials, random_state):
     path = tmp_path / "k.sqlite"
     days = {v: make_day(v, n=KILL_N) for v in (0, 1, 2)}
     sums = {_checksum(days[v][0]): v for v in days}
@@ -317,7 +317,7 @@ def _kill_trials(tmp_path, trials, seed):
             a.store_day(PAIR, DAY, off0, sat0, {})
             store_s = min(store_s, time.monotonic() - t)
     current = 0                                   # version the archive holds
-    rng = random.Random(seed)
+    rng = random.Random(random_state)
     ctx = mp.get_context("fork")
     killed_mid_store = 0
     for trial in range(trials):
@@ -361,11 +361,11 @@ def _kill_trials(tmp_path, trials, seed):
 
 
 def test_sigkill_during_store_day(tmp_path):
-    mid = _kill_trials(tmp_path, trials=20, seed=1)
+    mid = _kill_trials(tmp_path, trials=20, random_state=1)
     assert mid >= 5          # most kills land inside a store (stores fill the child's time)
 
 
 @pytest.mark.slow
 def test_sigkill_during_store_day_many(tmp_path):
-    mid = _kill_trials(tmp_path, trials=50, seed=2)
+    mid = _kill_trials(tmp_path, trials=50, random_state=2)
     assert mid >= 15
