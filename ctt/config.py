@@ -100,7 +100,7 @@ Paths are relative to the pair file's folder unless absolute.
     bin_s = 30.0                     # epoch bin (epochs / all-in-view modes)
     elevation_mask_deg = 10.0        # optional; default: the larger station mask
     min_common_sats = 2
-    mad_k = 4.0                      # outlier rejection at k x MAD (scaled)
+    mad_k = 3.5                      # outlier rejection at k x MAD (scaled)
     weights = "sin2el"               # sin2el | equal | sigma
     smoothing_s = 0.0                # code smoothing time constant (0 = none)
     no_troposphere = false
@@ -763,7 +763,7 @@ class Processing:
     bin_s: float = 30.0
     elevation_mask_deg: float | None = None
     min_common_sats: int = 2
-    mad_k: float = 4.0
+    mad_k: float = 3.5
     weights: str = "sin2el"
     smoothing_s: float = 0.0
     no_troposphere: bool = False
@@ -984,9 +984,9 @@ def load_pair(path) -> PairConfig:
     kw["elevation_mask_deg"] = r.number(proc, "elevation_mask_deg", "processing.elevation_mask_deg",
                                         "an angle in degrees", required=False, default=None, lo=0.0, hi=90.0)
     kw["min_common_sats"] = r.integer(proc, "min_common_sats", "processing.min_common_sats",
-                                      "a number of satellites", default=2, lo=1)
+                                      "a number of satellites", default=Processing.min_common_sats, lo=1)
     kw["mad_k"] = r.number(proc, "mad_k", "processing.mad_k", "a rejection threshold in MADs", required=False,
-                           default=4.0, lo=0.0, lo_open=True)
+                           default=Processing.mad_k, lo=0.0, lo_open=True)
     kw["weights"] = r.choice(proc, "weights", "processing.weights", WEIGHTS, "sin2el")
     kw["smoothing_s"] = r.number(proc, "smoothing_s", "processing.smoothing_s", "a smoothing time in seconds",
                                  required=False, default=0.0, lo=0.0)

@@ -80,7 +80,7 @@ class PairOptions:
     orbits: str = "auto"                 #: auto | broadcast | precise
     weights: str = "sin2el"
     mad_k: float = 3.5
-    min_common: int = 1
+    min_common: int = 2            #: fewer common satellites: the point is flagged few_satellites
     measure: MeasureOptions = MeasureOptions()
     #: configured inter-system biases {'A': {'E': ns}, 'B': {...}} (system minus GPS at that
     #: station); systems not given are estimated from the day (ctt.commonview)

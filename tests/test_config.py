@@ -209,7 +209,7 @@ def test_pair_values(pair_dir):
     assert p.name == "laba-labb"
     assert p.station_a.id == "LABA" and p.station_b.id == "LABB"
     assert p.processing.mode == "tracks" and p.processing.min_common_sats == 3
-    assert p.processing.mad_k == 4.0 and not p.processing.no_troposphere
+    assert p.processing.mad_k == 3.5 and not p.processing.no_troposphere
     assert p.max_gap_s == 1800.0
     assert p.elevation_mask_deg() == 10.0
     assert p.archive_path == pair_dir / "out" / "ctt.sqlite"
@@ -224,7 +224,7 @@ def test_config_hash_stable_and_sensitive(pair_dir):
     assert C.load_pair(pair_dir / "pair.toml").config_hash == h0     # formatting only
     txt2 = (pair_dir / "pair.toml").read_text()
     (pair_dir / "pair.toml").write_text(txt2.replace('dir = "out"', 'dir = "elsewhere"')
-                                        .replace("min_common_sats = 3", "min_common_sats = 3\nmad_k = 4.0"))
+                                        .replace("min_common_sats = 3", "min_common_sats = 3\nmad_k = 3.5"))
     assert C.load_pair(pair_dir / "pair.toml").config_hash == h0     # output place, explicit default
     (pair_dir / "pair.toml").write_text(txt2.replace("min_common_sats = 3", "min_common_sats = 4"))
     assert C.load_pair(pair_dir / "pair.toml").config_hash != h0     # a processing option

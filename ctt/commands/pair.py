@@ -42,7 +42,7 @@ def register(sub) -> None:
     proc.add_argument("--weights", choices=("sin2el", "equal", "sigma"), default="sin2el")
     proc.add_argument("--mad-k", type=float, default=None, help="outlier rejection at k x MAD (default 3.5)")
     proc.add_argument("--min-common", type=int, default=None,
-                      help="fewest common satellites for a point to be flagged ok (default 1)")
+                      help="fewest common satellites for a point to be flagged ok (default 2)")
     proc.add_argument("--isb-a", action="append", default=[], metavar="SYS=NS",
                       help="configured inter-system bias of station A, e.g. E=12.5 (Galileo minus GPS, ns); "
                            "repeatable; systems not given are estimated from the day")
