@@ -729,7 +729,7 @@ def _bilinear(grid, lat_grid, lon_grid, lat_deg, lon_deg):
     return np.where(outside, np.nan, val)
 
 
-def ionex_vtec_tecu(maps: IonexMaps, t_ns, lat_rad, lon_rad, *, rotate=True, rms=False):
+def ionex_vtec_tecu(maps: IonexMaps, t_ns, lat_rad, lon_rad, *, rotate=True, rms=False, strict=False):
     """Vertical TEC (TECU) at epochs and places, interpolated in space and time.
 
     Space: bilinear between the four surrounding grid points (IONEX 1.0,
@@ -738,8 +738,12 @@ def ionex_vtec_tecu(maps: IonexMaps, t_ns, lat_rad, lon_rad, *, rotate=True, rms
     first rotated about the polar axis by the Earth-Sun angle elapsed since
     its epoch, ``λ' = λ + (t − T_i) · 360°/day``, so that the Sun-fixed
     ionosphere pattern is interpolated instead of blurred; ``rotate=False``
-    gives plain linear interpolation in time. Epochs outside the maps' span
-    raise :class:`~ctt.errors.OutOfSpanError`. Latitudes beyond the last grid
+    gives plain linear interpolation in time. Epochs up to one map interval
+    before the first or after the last map take that end map (IONEX epochs
+    are UT while daily observation files run on GPS time, 18 s earlier; a
+    daily IONEX file usually ends with the 24:00 map); epochs farther out
+    give NaN (the caller flags them), or raise :class:`~ctt.errors.OutOfSpanError`
+    with ``strict=True``. Latitudes beyond the last grid
     band take that band's values; longitudes outside a regional grid give NaN.
     ``rms=True`` interpolates the RMS maps instead.
     """
@@ -751,14 +755,17 @@ def ionex_vtec_tecu(maps: IonexMaps, t_ns, lat_rad, lon_rad, *, rotate=True, rms
     lon = np.degrees(np.asarray(lon_rad, dtype=float))
     t, lat, lon = np.broadcast_arrays(t, lat, lon)
     ep = maps.epochs_ns
-    if np.any(t < ep[0]) or np.any(t > ep[-1]):
-        bad = t[(t < ep[0]) | (t > ep[-1])].ravel()[0]
+    step = int(np.min(np.diff(ep))) if ep.size > 1 else 0
+    outside = (t < ep[0] - step) | (t > ep[-1] + step)
+    if np.any(outside) and strict:
+        bad = t[outside].ravel()[0]
         from . import timescales as ts
 
         raise OutOfSpanError(f"{maps.path}: epoch {ts.to_iso(bad)} GPS outside the maps' span "
                              f"{ts.to_iso(ep[0])}..{ts.to_iso(ep[-1])}")
+    t = np.clip(t, ep[0], ep[-1])
     if ep.size == 1:
-        return _bilinear(grids[0], maps.lat_deg, maps.lon_deg, lat, lon)
+        return np.where(outside, np.nan, _bilinear(grids[0], maps.lat_deg, maps.lon_deg, lat, lon))
     i = np.clip(np.searchsorted(ep, t, side="right") - 1, 0, ep.size - 2)
     t0 = ep[i]
     t1 = ep[i + 1]
@@ -775,6 +782,7 @@ def ionex_vtec_tecu(maps: IonexMaps, t_ns, lat_rad, lon_rad, *, rotate=True, rms
         e0 = _bilinear(grids[k], maps.lat_deg, maps.lon_deg, lat[sel], lam0)
         e1 = _bilinear(grids[k + 1], maps.lat_deg, maps.lon_deg, lat[sel], lam1)
         out[sel] = (1.0 - w[sel]) * e0 + w[sel] * e1
+    out[outside] = np.nan
     return out
 
 

@@ -189,7 +189,8 @@ def _status_flags(states, orbits):
     """Lower-case flag text for each orbit status (OK -> 'ok'), from the source's own table."""
     import sys
 
-    names = getattr(sys.modules[type(orbits).__module__], "STATUS_NAMES", {0: "OK"})
+    names = getattr(orbits, "STATUS_NAMES", None) or getattr(sys.modules[type(orbits).__module__],
+                                                             "STATUS_NAMES", {0: "OK"})
     st = np.asarray(states.status)
     out = np.empty(st.shape, dtype=object)
     for code in np.unique(st):
@@ -197,16 +198,32 @@ def _status_flags(states, orbits):
     return out
 
 
+#: Small-sample consistency factors b_n of the MAD for n = 0..9 (Croux & Rousseeuw 1992,
+#: from memory; 0-1 unused).
+_MAD_SMALL_N = np.array([1.0, 1.0, 1.196, 1.495, 1.363, 1.206, 1.200, 1.140, 1.129, 1.107])
+#: The rejection scale is at least this fraction of the epoch's median a-priori σ. Measured on
+#: normal samples with the right σ (3-8 satellites): 0 -> 4-7 % of good values rejected, 0.5 ->
+#: 1-2 %, 1.0 -> 0.05 %. 0.5 is our choice: it keeps the test useful when the a-priori noise model
+#: (σ0 = 0.3 m, a timing-receiver figure) is pessimistic for a receiver, and still removes spikes.
+FLOOR_FACTOR = 0.5
+
+
 def robust_epoch_mean(values, weights, mad_k=3.5, min_sats=1, sigma=None):
     """Per-row robust weighted mean of a 2-D array (n_epoch, n_sat), NaN = absent.
 
-    Iterates: median of the row and the deviations ``e = |v − med| / s`` with
-    ``s`` each value's a-priori σ relative to the row's median σ (so a low
-    satellite, noisier by 1/sin el, is judged against its own noise; all 1 when
-    ``sigma`` is None); reject ``e > k·1.4826·MAD(e)`` (MAD floored at 0.1 ns so
-    identical values are not all rejected); then the weighted mean of what is
-    left. No rejection in rows with fewer than 3 values. Returns (mean, scatter
-    (weighted RMS of the kept residuals), n_used, rejected mask).
+    Median of the row and the deviations ``e = |v − med| / s`` with ``s`` each
+    value's a-priori σ relative to the row's median σ (so a low satellite, noisier
+    by 1/sin el, is judged against its own noise; all 1 when ``sigma`` is None).
+    The scale is ``b_n·1.4826·MAD(e)`` of *all* the row's values, once: b_n is the
+    small-sample consistency factor of the MAD (Croux & Rousseeuw 1992; b_n =
+    n/(n − 0.8) for n > 9, tabulated below that; from memory), because the MAD of
+    the 3-10 satellites of one epoch underestimates σ and an uncorrected, re-shrunk
+    scale rejects several per cent of a normal sample; the scale is also at least
+    ``FLOOR_FACTOR`` × the row's median a-priori σ (and 0.1 ns). Values with
+    ``e > k·scale`` are rejected; the median is then recomputed from what
+    is kept and the test repeated with the same scale until nothing changes. No
+    rejection in rows with fewer than 3 values. Returns (weighted mean of what is
+    kept, scatter (weighted RMS of the kept residuals), n_used, rejected mask).
     """
     import warnings
 
@@ -221,20 +238,31 @@ def robust_epoch_mean(values, weights, mad_k=3.5, min_sats=1, sigma=None):
             rel = sg / np.nanmedian(sg, axis=1)[:, None]
         rel = np.where(np.isfinite(rel) & (rel > 0), rel, 1.0)
     keep = np.isfinite(v)
-    few = np.sum(keep, axis=1) < 3
-    for _ in range(5):
-        vk = np.where(keep, v, np.nan)
+    n = np.sum(keep, axis=1)
+    few = n < 3
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        med = np.nanmedian(v, axis=1)
+        e = np.abs(v - med[:, None]) / rel
+        mad = np.nanmedian(e, axis=1)
+    b_n = np.where(n > 9, n / np.maximum(n - 0.8, 1.0), _MAD_SMALL_N[np.clip(n, 0, 9)])
+    floor = np.full(v.shape[0], 0.1)
+    if sigma is not None and FLOOR_FACTOR > 0:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", RuntimeWarning)
-            med = np.nanmedian(vk, axis=1)
-            e = np.abs(v - med[:, None]) / rel
-            mad = np.nanmedian(np.where(keep, e, np.nan), axis=1)
-        lim = mad_k * 1.4826 * np.maximum(mad, 0.1)
+            f = FLOOR_FACTOR * np.nanmedian(sg, axis=1)
+        floor = np.where(np.isfinite(f), np.maximum(f, 0.1), 0.1)
+    lim = mad_k * np.maximum(1.4826 * b_n * mad, floor)
+    for _ in range(5):
         new_keep = np.isfinite(v) & (e <= lim[:, None])
         new_keep[few] = np.isfinite(v[few])
         if np.array_equal(new_keep, keep):
             break
         keep = new_keep
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            med = np.nanmedian(np.where(keep, v, np.nan), axis=1)
+            e = np.abs(v - med[:, None]) / rel
     wk = np.where(keep, w, 0.0)
     sw = wk.sum(axis=1)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -275,13 +303,12 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     if not use_sys.any():
         raise NoDataError(f"{obs.path}: no satellites of the systems {','.join(opt.systems)}")
 
-    # --- signals per satellite
-    sel = select_signals(obs, sats_all, opt)
+    # --- signals per satellite (only the systems asked for)
+    sel = select_signals(obs, sats_all, opt, glonass_k=_glonass_channels(obs, orbits))
     if "E" in opt.systems and hasattr(orbits, "galileo_source"):
-        need = galileo_source_for(sel)
-        if orbits.galileo_source != need:
-            # the broadcast records must be those whose clocks refer to the signals used
-            orbits = type(orbits)(orbits.nav, galileo_source=need, allow_future=orbits.allow_future)
+        # the broadcast records of each Galileo satellite must be those whose clocks refer to its
+        # signals: F/NAV for E1/E5a, I/NAV for E1/E5b and E1 alone (OS SIS ICD §5.1.5)
+        orbits = GalileoBySignal.wrap(orbits, fnav_sats(sel))
     P = sel.pseudorange_m              # (n_ep, n_sat): combination or single code, NaN where absent
     missing_second = sel.missing_second
     code_label = sel.label             # (n_sat,) e.g. 'C1C+C2W'
@@ -341,15 +368,16 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     if opt.troposphere:
         doy = ts.day_of_year(t_rx)
         if met is not None:
-            from .rinex.met import interpolate_met
-
-            mv = interpolate_met(met, t_tag)
-            p_hpa, t_c, rh = mv["PR"][ie], mv["TD"][ie], mv["HR"][ie]
+            p_ep, t_ep, rh_ep, n_std = _met_at_epochs(met, t_tag, h)
+            p_hpa, t_c, rh = p_ep[ie], t_ep[ie], rh_ep[ie]
         else:
             p_hpa = t_c = rh = None
+            n_std = 0
         trop = atmosphere.slant_troposphere(el, lat, h, doy, p_hpa, t_c, rh)
         tropo_m = trop.slant_m
         met_source = trop.met_source
+        if n_std:
+            met_source += f" (standard atmosphere at {n_std} epochs the file does not cover)"
     else:
         tropo_m = np.zeros_like(el)
         met_source = "off"
@@ -397,6 +425,10 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     ok = flag == "ok"
     flag[ok & ~np.isfinite(gd_s)] = "no_group_delay"
     ok = flag == "ok"
+    flag[ok & ~np.isfinite(iono_m)] = "no_ionosphere_model"
+    ok = flag == "ok"
+    flag[ok & ~np.isfinite(hw_ep)] = "no_delay_set"
+    ok = flag == "ok"
     if sel.no_bias is not None and sel.no_bias.any():
         flag[ok & sel.no_bias[js]] = "no_code_bias"
     ok = flag == "ok"
@@ -415,8 +447,20 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     grid[ie[ok], js[ok]] = clock_ns[ok]
     wgrid[ie[ok], js[ok]] = sin_el[ok] ** 2
     sgrid[ie[ok], js[ok]] = sigma_ns[ok]
-    mean, scatter, n_used, rejected = robust_epoch_mean(grid, wgrid, opt.mad_k, sigma=sgrid)
-    residual = clock_ns - mean[ie]
+    # one solution per system: systems have their own time scales (GST, BDT, GLONASS time)
+    # and receivers their inter-system biases, so they are never mixed in one mean
+    sys_of_col = np.array([s[0] for s in sats_all])
+    mean_sys = {}
+    rejected = np.zeros(grid.shape, dtype=bool)
+    row_mean = np.full(len(ie), np.nan)
+    for letter in [s for s in opt.systems if np.any(sys_of_col == s)]:
+        cols = sys_of_col == letter
+        m_s, sc_s, n_s, rej_s = robust_epoch_mean(grid[:, cols], wgrid[:, cols], opt.mad_k, sigma=sgrid[:, cols])
+        mean_sys[letter] = (m_s, sc_s, n_s, rej_s.sum(axis=1))
+        rejected[:, cols] = rej_s
+        in_sys = cols[js]
+        row_mean[in_sys] = m_s[ie[in_sys]]
+    residual = clock_ns - row_mean
     out_rows = rejected[ie, js] & ok
     flag[out_rows] = "outlier"
     residual[~(ok | out_rows)] = np.nan
@@ -436,8 +480,14 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                                 else np.full(len(ie), np.nan))
     table.attrs["reference"] = reference
     table.attrs["station"] = station.id
-    epochs = pd.DataFrame({"time": t_tag, "clock_ns": mean, "scatter_ns": scatter,
-                           "n_sat": n_used, "n_rejected": rejected.sum(axis=1)})
+    ref_sys = next(iter(mean_sys), None)
+    ep_cols = {"time": t_tag}
+    for letter, (m_s, sc_s, n_s, nr_s) in mean_sys.items():
+        suffix = "" if letter == ref_sys else f"_{letter}"
+        ep_cols.update({f"clock_ns{suffix}": m_s, f"scatter_ns{suffix}": sc_s, f"n_sat{suffix}": n_s,
+                        f"n_rejected{suffix}": nr_s})
+    epochs = pd.DataFrame(ep_cols)
+    epochs.attrs["reference_system"] = ref_sys
     counts = table["flag"].value_counts().to_dict()
     info = {"codes": {str(s): str(code_label[k]) for k, s in enumerate(sats_all) if use_sys[k]},
             "signals": opt.signals, "troposphere": met_source if opt.troposphere else "off",
@@ -459,14 +509,83 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
 SECOND_BAND_FALLBACKS = {"E": ("E5a", "E5b"), "C": ("B3I", "B2I")}
 
 
-def galileo_source_for(sel) -> str:
-    """The Galileo navigation message whose clocks match the signals used: 'fnav' when any
-    Galileo satellite is processed with E5a (F/NAV clocks refer to E1/E5a), else 'inav'
-    (I/NAV clocks refer to E1/E5b, and serve E1 single-frequency users; Galileo OS SIS ICD §5.1.5)."""
-    for sat, codes in zip(sel.sats, sel.codes):
-        if sat.startswith("E") and any(c[1:2] == "5" for c in codes if c):
-            return "fnav"
-    return "inav"
+def fnav_sats(sel) -> set:
+    """Galileo satellites processed with E5a: their clocks and group delays come from F/NAV
+    records (F/NAV clocks refer to E1/E5a); all other Galileo satellites use I/NAV, whose clocks
+    refer to E1/E5b and serve E1 single-frequency users (Galileo OS SIS ICD §5.1.5)."""
+    return {str(sat) for sat, codes in zip(sel.sats, sel.codes)
+            if str(sat).startswith("E") and any(c[1:2] == "5" for c in codes if c)}
+
+
+class GalileoBySignal:
+    """A broadcast source that evaluates each Galileo satellite from the message matching its
+    signals (F/NAV for the satellites in ``fnav``, I/NAV otherwise), everything else unchanged.
+
+    Rows are split by satellite and each part goes to a :class:`ctt.orbits.BroadcastOrbits` built
+    with the right ``galileo_source`` (health bits and clock parameters of that message), then the
+    parts are put back in row order, so one light-time iteration serves a mixed receiver.
+    """
+
+    def __init__(self, inav, fnav, fnav_set):
+        self.inav, self.fnav, self.fnav_set = inav, fnav, frozenset(fnav_set)
+        self.nav = inav.nav
+        self.galileo_source = "mixed"
+        import sys
+
+        self.STATUS_NAMES = getattr(sys.modules[type(inav).__module__], "STATUS_NAMES", {0: "OK"})
+
+    @classmethod
+    def wrap(cls, orbits, fnav_set):
+        if isinstance(orbits, cls) or not hasattr(orbits, "galileo_source"):
+            return orbits
+        kw = {"allow_future": orbits.allow_future}
+        if hasattr(orbits, "available_from"):
+            kw["available_from"] = orbits.available_from
+        if not fnav_set:
+            return orbits if orbits.galileo_source == "inav" else type(orbits)(orbits.nav, galileo_source="inav", **kw)
+        other = "fnav" if orbits.galileo_source == "inav" else "inav"
+        rebuilt = type(orbits)(orbits.nav, galileo_source=other, **kw)
+        inav, fnav = (orbits, rebuilt) if other == "fnav" else (rebuilt, orbits)
+        return cls(inav, fnav, fnav_set)
+
+    def source_of(self, sats):
+        """'fnav' or 'inav' per row (the message each row's states come from)."""
+        sats = np.asarray(sats).astype(str)
+        return np.where(np.isin(sats, list(self.fnav_set)), "fnav", "inav")
+
+    def states(self, sats, t_ns, dt_s=0.0):
+        sats = np.asarray(sats).astype(str)
+        n = sats.size
+        t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), (n,))
+        dt_s = np.broadcast_to(np.asarray(dt_s, dtype=float), (n,))
+        f = np.isin(sats, list(self.fnav_set))
+        if not f.any():
+            return self.inav.states(sats, t_ns, dt_s)
+        if f.all():
+            return self.fnav.states(sats, t_ns, dt_s)
+        a = self.inav.states(sats[~f], t_ns[~f], dt_s[~f])
+        b = self.fnav.states(sats[f], t_ns[f], dt_s[f])
+        out = {}
+        for fld in dataclasses.fields(a):
+            va, vb = getattr(a, fld.name), getattr(b, fld.name)
+            if isinstance(va, np.ndarray) and va.shape[:1] == (int((~f).sum()),):
+                arr = np.empty((n,) + va.shape[1:], dtype=np.result_type(va, vb))
+                arr[~f], arr[f] = va, vb
+                out[fld.name] = arr
+            else:
+                out[fld.name] = va
+        return dataclasses.replace(a, **out)
+
+
+def _glonass_channels(obs, orbits):
+    """GLONASS frequency numbers k: the observation header's, completed from the navigation records."""
+    k = dict(getattr(obs.header, "glonass_slots", None) or {})
+    nav = getattr(orbits, "nav", None)
+    rec = getattr(nav, "records", {}).get("R") if nav is not None else None
+    if rec is not None and len(rec) and "freq_num" in rec.columns:
+        for sat, kk in rec.groupby("sat")["freq_num"].agg(lambda v: v.mode().iloc[0]).items():
+            k.setdefault(str(sat), int(kk))
+    return k or None
 
 
 @dataclasses.dataclass
@@ -509,9 +628,11 @@ def _code_biases_m(biases, sats, codes, obs):
     return np.where(found, np.asarray(val) * C_MPS, 0.0), found
 
 
-def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
-    """Choose codes per satellite (ctt.signals priorities, or ``opt.codes``) and form the
-    pseudorange (iono-free or single) with the matching carrier phase for smoothing."""
+def select_signals(obs, sats, opt: MeasureOptions, glonass_k=None) -> SignalSelection:
+    """Choose codes per satellite of the systems asked for (ctt.signals priorities, or
+    ``opt.codes`` for the systems whose header lists them) and form the pseudorange
+    (iono-free or single) with the matching carrier phase for smoothing. Satellites of other
+    systems, and GLONASS satellites whose frequency number is unknown, get no code."""
     mode = "dual" if opt.signals == "iono-free" else "single"
     priorities = None
     if opt.codes:
@@ -519,10 +640,17 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
         for code in opt.codes:
             for sys_letter, bands in signals.BAND_NAME.items():
                 band = bands.get(code[1:2])
-                if band:
+                if band and code in (obs.header.obs_types.get(sys_letter) or ()):
                     priorities.setdefault(sys_letter, {}).setdefault(band, ())
                     priorities[sys_letter][band] = priorities[sys_letter][band] + (code,)
+    sats = np.asarray(sats).astype(str)
+    wanted = np.isin(np.array([s[0] for s in sats]), list(opt.systems))
+    if "R" in opt.systems:
+        known = set((glonass_k or {}).keys())
+        wanted &= np.array([s[0] != "R" or s in known for s in sats])
     choice = signals.select_codes(obs.obs, sats, mode, priorities=priorities)
+    choice = dataclasses.replace(choice, code1=np.where(wanted, choice.code1, ""),
+                                 code2=np.where(wanted, choice.code2, ""))
     if mode == "dual":
         # Second-band fallbacks (Galileo E5a, else E5b; BeiDou B3I, else B2I): a receiver
         # tracking only the other band still gets its iono-free pair.
@@ -536,12 +664,12 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
                     break
                 bands = {sys_letter: (signals.DEFAULT_BANDS[sys_letter][0], band)}
                 alt = signals.select_codes(obs.obs, sats, mode, priorities=priorities, bands=bands)
-                take = missing & (alt.code2 != "")
+                take = missing & (alt.code2 != "") & wanted
                 if take.any():
                     choice = dataclasses.replace(
                         choice, band2=np.where(take, alt.band2, choice.band2),
                         code2=np.where(take, alt.code2, choice.code2))
-    glo_k = getattr(obs.header, "glonass_slots", None) or None
+    glo_k = glonass_k
     b1 = b2 = None
     no_bias = np.zeros(len(sats), dtype=bool)
     if opt.biases is not None:
@@ -612,6 +740,34 @@ def select_signals(obs, sats, opt: MeasureOptions) -> SignalSelection:
                            no_bias=no_bias)
 
 
+def _met_at_epochs(met, t_gps_ns, h_m):
+    """Pressure, temperature, humidity at each epoch from a met file; the standard atmosphere
+    (ctt.atmosphere) where the file does not cover an epoch (before/after it by more than one
+    sample, or inside a gap of more than four samples). Returns (p, t, rh, n_standard)."""
+    from .rinex.met import interpolate_met
+
+    t = np.asarray(t_gps_ns, dtype=np.int64)
+    p_std, t_std, rh_std = (np.broadcast_to(np.asarray(v, float), t.shape).copy()
+                            for v in atmosphere.standard_atmosphere(h_m))
+    iv = met.interval_s()
+    step = int((iv if np.isfinite(iv) else 0.0) * 1e9)
+    tt = met.time_ns
+    covered = np.zeros(t.shape, dtype=bool)
+    if tt.size:
+        covered = (t >= tt[0] - step) & (t <= tt[-1] + step)
+        if tt.size > 1:
+            k = np.clip(np.searchsorted(tt, t, side="right"), 1, tt.size - 1)
+            gap = (tt[k] - tt[k - 1]) > 4 * step
+            inside = (t > tt[0]) & (t < tt[-1])
+            covered &= ~(gap & inside)
+    out = [p_std, t_std, rh_std]
+    if covered.any():
+        mv = interpolate_met(met, t[covered])
+        for arr, key in zip(out, ("PR", "TD", "HR")):
+            arr[covered] = mv[key]
+    return out[0], out[1], out[2], int((~covered).sum())
+
+
 def _epoch_median(ie, values, n_ep):
     """Median of ``values`` per epoch index (vectorised by sorting)."""
     out = np.full(n_ep, np.nan)
@@ -672,13 +828,19 @@ def _subset(states, rows):
 def _hardware_ns(station, t_utc_ns, sel, ie, js):
     """Hardware delay (ns) per row and its largest standard uncertainty (ns).
 
-    The delay set valid at each epoch is applied (a set may end inside the day;
-    an epoch no set covers raises ConfigError naming the station file).
+    The delay set valid at each epoch is applied (a set may end inside the day).
+    Epochs no set covers get NaN (flagged ``no_delay_set`` by the caller; e.g. the
+    18 s of a GPS-time daily file before 00:00 UTC when a set starts then); when no
+    epoch at all is covered, ConfigError names the station file.
     """
     t_utc_ns = np.asarray(t_utc_ns, dtype=np.int64)
     out = np.full(len(ie), np.nan)
     u_out = 0.0
-    sets = station.delay_sets_between(int(t_utc_ns.min()), int(t_utc_ns.max()) + 1)
+    lo_t, hi_t = int(t_utc_ns.min()), int(t_utc_ns.max())
+    sets = [ds for ds in station.delay_sets
+            if ds.valid_from_ns <= hi_t and (ds.valid_until_ns is None or ds.valid_until_ns > lo_t)]
+    if not sets:
+        station.delays_at(lo_t)  # raises the ConfigError naming the file and the sets it has
     label = np.asarray(sel.label)[js]
     for ds in sets:
         lo = ds.valid_from_ns

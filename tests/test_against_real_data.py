@@ -106,8 +106,9 @@ def test_ionex_maps_are_used_for_single_frequency(real, test_data):
 
     ionex = read_ionex(test_data / "atmosphere" / "hand0010.21i")
     obs = real["obs"]["zimm"]
-    # the maps are on UTC epochs (00:00 UTC = 00:00:18 GPS): stay inside their span
-    keep = (obs.time_ns >= obs.time_ns[0] + 60 * 10**9) & (obs.time_ns < obs.time_ns[0] + 4 * 3600 * 10**9 - 60 * 10**9)
+    # the maps are on UTC epochs (00:00 UTC = 00:00:18 GPS): the first 18 s of the GPS day take
+    # the first map; after the last map (04:00 UT) by more than one map interval, rows are flagged
+    keep = obs.time_ns < obs.time_ns[0] + 6 * 3600 * 10**9
     sub = dataclasses.replace(obs, time_ns=obs.time_ns[keep], obs={k: v[keep] for k, v in obs.obs.items()},
                               lli={k: v[keep] for k, v in obs.lli.items()}, ssi={k: v[keep] for k, v in obs.ssi.items()},
                               epoch_flag=obs.epoch_flag[keep], clock_offset_s=obs.clock_offset_s[keep])
@@ -115,7 +116,13 @@ def test_ionex_maps_are_used_for_single_frequency(real, test_data):
     day = measure_station(sub, real["broadcast"], st, MeasureOptions(signals="single", iono_model="ionex"),
                           nav_header=real["nav"].header, ionex=ionex)
     assert day.info["ionosphere"] == "IONEX"
+    ep = ionex.epochs_ns
+    late = day.table["time"] > ep[-1] + np.min(np.diff(ep))
+    assert (day.table.loc[late & (day.table["elevation_deg"] > 10), "flag"] == "no_ionosphere_model").all()
+    # (inside the span, rows whose rotated pierce point leaves this regional grid are flagged too)
+    assert (day.table.loc[~late & (day.table["elevation_deg"] > 15), "flag"] == "ok").mean() > 0.8
     t = day.table[day.table["flag"] == "ok"]
+    assert t["time"].min() == obs.time_ns[0]  # the first epoch, 18 s before the first map, is used
     lat, lon, _ = ecef_to_geodetic(st.arp_m)
     direct = ionex_slant_delay_m(ionex, t["time"].to_numpy(), float(lat), float(lon),
                                  np.radians(t["azimuth_deg"].to_numpy()), np.radians(t["elevation_deg"].to_numpy()),
@@ -143,3 +150,24 @@ def test_measure_command_must_show(shared_data, test_data, tmp_path, capsys):
     ok = (t["flag"] == "ok") & (t["elevation_deg"] > 15)
     assert np.sqrt(np.mean(t.loc[ok, "residual_ns"] ** 2)) * C * 1e-9 <= 1.3  # issue bound (precise, iono-free)
     assert "clock reference: precise" in capsys.readouterr().out
+
+
+def test_a_gap_in_the_met_file_falls_back_to_the_standard_atmosphere(real):
+    # A met file with a 3-hour hole: the epochs it does not cover use the standard atmosphere
+    # (ctt.atmosphere) and the summary says how many; the day is not lost.
+    import dataclasses
+
+    met = real["met"]
+    t0 = met.time_ns[0]
+    keep = (met.time_ns < t0 + 6 * 3600 * 10**9) | (met.time_ns > t0 + 9 * 3600 * 10**9)
+    holed = dataclasses.replace(met, time_ns=met.time_ns[keep], values={k: v[keep] for k, v in met.values.items()})
+    day = measure_station(real["obs"]["zimm"], real["broadcast"], real["station"]["zimm"], MeasureOptions(),
+                          met=holed)
+    assert "standard atmosphere at" in day.info["troposphere"]
+    n_std = int(day.info["troposphere"].split("standard atmosphere at ")[1].split()[0])
+    # every epoch strictly inside the hole between the kept records (longer than 4 samples)
+    tk = holed.time_ns
+    k = np.flatnonzero(np.diff(tk) > 4 * 1800 * 10**9)[0]
+    t_obs = real["obs"]["zimm"].time_ns
+    assert n_std == int(np.count_nonzero((t_obs > tk[k]) & (t_obs < tk[k + 1])))
+    assert (day.table["flag"] == "ok").sum() > 20_000

@@ -220,9 +220,12 @@ def test_ionex_interpolation(test_data):
     assert plain == pytest.approx((1 - w) * tec[0, j40, j0] + w * tec[1, j40, j0], rel=1e-12)
     # RMS maps interpolate the same way
     assert atm.ionex_vtec_tecu(m, T0, np.radians(45.0), 0.0, rms=True) == pytest.approx(2.0)
-    # outside the maps' span: error naming the file
+    # within one map interval before the first map (UT maps, GPS-time day files start 18 s
+    # earlier): the first map holds; farther out NaN, or an error naming the file when strict
+    assert atm.ionex_vtec_tecu(m, T0 - 18 * 10**9, 0.8, 0.0) == pytest.approx(atm.ionex_vtec_tecu(m, T0, 0.8, 0.0))
+    assert np.isnan(atm.ionex_vtec_tecu(m, T0 - 3 * 3600 * 10**9, 0.8, 0.0))
     with pytest.raises(OutOfSpanError, match="hand0010.21i"):
-        atm.ionex_vtec_tecu(m, T0 - 10**9, 0.8, 0.0)
+        atm.ionex_vtec_tecu(m, T0 - 3 * 3600 * 10**9, 0.8, 0.0, strict=True)
     # outside a regional grid: NaN, not an extrapolated number
     assert np.isnan(atm.ionex_vtec_tecu(m, T1, np.radians(45.0), np.radians(60.0)))
     # vectorised over epochs × satellites

@@ -235,3 +235,75 @@ def test_bias_file_maps_c1c_onto_the_clock_reference(tmp_path):
     part = measure_station(obs, InertialOrbits(), st, MeasureOptions(biases=bs2, **OFF))
     g01 = part.table["sat"] == sorted(SATS)[0]
     assert (part.table.loc[g01 & (part.table["elevation_deg"] > 10), "flag"] == "no_code_bias").all()
+
+
+def test_each_galileo_satellite_uses_the_message_of_its_signals():
+    # Galileo OS SIS ICD §5.1.5: F/NAV clocks refer to E1/E5a, I/NAV clocks to E1/E5b. A receiver
+    # tracking E5a on one satellite and E5b on the others must not move the E5b satellites onto
+    # F/NAV clocks. Demo files (simulated); the F/NAV records are made to differ by 1 ns in af0
+    # and BGD(E1,E5a) so that using them for an E1/E5b satellite would show as a 1 ns shift.
+    import dataclasses
+    import pathlib
+
+    from ctt.orbits import BroadcastOrbits
+    from ctt.rinex.nav import read_nav
+    from ctt.rinex.obs import read_obs
+
+    demo = pathlib.Path(__file__).resolve().parents[1] / "data_demo"
+    nav = read_nav(next(demo.glob("BRDC*_MN.rnx")))
+    obs = read_obs(next(demo.glob("ALDR*_MO.crx")))
+    import tempfile
+
+    text = (demo / "aldr.toml").read_text().replace("C7Q = 26.7", "C7Q = 26.7, C5Q = 26.7")
+    with tempfile.TemporaryDirectory() as tmp:
+        p = pathlib.Path(tmp) / "aldr.toml"
+        p.write_text(text)
+        st = load_station(p)
+    e = nav.records["E"].copy()
+    f = e["source"] == "fnav"
+    e.loc[f, "bgd_e5a_s"] = e.loc[f, "bgd_e5b_s"] + 1e-9
+    e.loc[f, "af0_s"] = e.loc[f, "af0_s"] + 1e-9
+    nav = dataclasses.replace(nav, records={**nav.records, "E": e})
+    opt = MeasureOptions(systems=("E",), troposphere=False, tide=False)
+    before = measure_station(obs, BroadcastOrbits(nav), st, opt)
+    j = list(obs.sats).index("E01")
+    c5 = np.full_like(obs.obs["C1C"], np.nan)
+    c5[:, j] = obs.obs["C7Q"][:, j]  # any E5a code for E01 only
+    obs2 = dataclasses.replace(obs, obs={**obs.obs, "C5Q": c5})
+    after = measure_station(obs2, BroadcastOrbits(nav), st, opt)
+    assert after.info["codes"]["E01"] == "C1C+C5Q" and after.info["codes"]["E02"] == "C1C+C7Q"
+    m = before.table.merge(after.table, on=["time", "sat"], suffixes=("_b", "_a"))
+    m = m[(m["sat"] != "E01") & (m["flag_b"] == "ok") & (m["flag_a"] != "missing_signal")]
+    assert len(m) > 10_000
+    np.testing.assert_allclose(m["clock_ns_a"], m["clock_ns_b"], atol=1e-5)  # unchanged (ns)
+
+
+def test_epoch_rejection_keeps_a_normal_sample_and_removes_a_spike():
+    # A normal sample with the right a-priori sigma must keep (nearly) all its values: the
+    # documented false-rejection rate with FLOOR_FACTOR 0.5 is 1-2 % for 3-8 satellites
+    # (k = 3.5); a 10-sigma spike must go. Invented noise (simulation truth).
+    from ctt.measure import robust_epoch_mean
+
+    rng = np.random.default_rng(5)
+    for n in (3, 5, 8):
+        v = rng.normal(0.0, 3.0, (20000, n))
+        mean, scatter, n_used, rej = robust_epoch_mean(v, np.ones_like(v), 3.5, sigma=np.full_like(v, 3.0))
+        assert rej.mean() < 0.025
+        if n == 3:
+            continue  # with 3 values one spike inflates the MAD itself (breakdown; common practice)
+        v[:, 0] += 30.0
+        _, _, _, rej = robust_epoch_mean(v, np.ones_like(v), 3.5, sigma=np.full_like(v, 3.0))
+        assert rej[:, 0].mean() > 0.9
+
+
+def test_glonass_without_channel_numbers_does_not_stop_a_gps_day(tmp_path):
+    rx = _geodetic_xyz(46.0, 7.0, 500.0)
+    obs = _simulate(rx, lambda t: 1e-6 + 0 * t, 0.0, n_ep=20)
+    import dataclasses
+
+    j = 0
+    add = lambda d: {k: np.concatenate([v, v[:, j:j + 1]], axis=1) for k, v in d.items()}  # noqa: E731
+    obs2 = dataclasses.replace(obs, sats=np.append(obs.sats, "R05"), obs=add(obs.obs), lli=add(obs.lli),
+                               ssi=add(obs.ssi))
+    day = measure_station(obs2, InertialOrbits(), _station(tmp_path, rx), MeasureOptions(**OFF))
+    assert "R05" not in set(day.table["sat"]) and (day.table["flag"] == "ok").sum() > 50
