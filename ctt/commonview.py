@@ -627,6 +627,34 @@ def main_system(systems) -> str | None:
     return systems[0] if len(systems) == 1 else None
 
 
+def main_series(df: pd.DataFrame, strict: bool = False) -> pd.DataFrame:
+    """The rows of the main series of each day (see :func:`main_system`), for tables that
+    hold several systems' series over several days: a day processed with GPS only keeps its
+    'G' rows even when other days have 'ALL'. Days are the ``date`` column when present
+    (the archive's), else the UTC date of ``time_utc_ns`` / ``time_utc``. A day with several
+    systems and no combined series is ambiguous: ValueError with ``strict``, else its first
+    system in alphabetical order."""
+    if "system" not in df.columns or df["system"].nunique() <= 1:
+        return df
+    if "date" in df.columns:
+        day = df["date"].astype(str)
+    elif "time_utc_ns" in df.columns:
+        day = pd.Series(np.floor_divide(df["time_utc_ns"].to_numpy(np.int64), 86_400_000_000_000), index=df.index)
+    else:
+        day = df["time_utc"].astype(str).str[:10]
+    keep = np.zeros(len(df), dtype=bool)
+    sysv = df["system"].astype(str).to_numpy()
+    for _, idx in df.groupby(day.to_numpy()).indices.items():
+        s = main_system(sysv[idx])
+        if s is None:
+            if strict:
+                raise ValueError(f"the offsets hold systems {', '.join(sorted(set(sysv[idx])))} and no combined "
+                                 "series; choose one")
+            s = sorted(set(sysv[idx]))[0]
+        keep[idx[sysv[idx] == s]] = True
+    return df[keep]
+
+
 def _pick_system(offset_df, system):
     if system is None:
         system = main_system(offset_df["system"])

@@ -354,13 +354,14 @@ def _usable(offsets_df: pd.DataFrame, system: str | None):
     df = offsets_df
     if "system" in df.columns:
         if system is None:
-            from .commonview import main_system
+            from .commonview import main_series
 
-            system = main_system(df["system"])
-            if system is None:
-                raise UsageError(f"the offsets hold systems {', '.join(sorted(set(df['system'].astype(str))))}; "
-                                 "choose one")
-        df = df[df["system"].astype(str) == system]
+            try:
+                df = main_series(df, strict=True)  # each day's main series (ALL, or its only system)
+            except ValueError as exc:
+                raise UsageError(str(exc)) from None
+        else:
+            df = df[df["system"].astype(str) == system]
     if "time_utc_ns" in df.columns:
         t = df["time_utc_ns"].to_numpy(np.int64)
     else:

@@ -204,10 +204,9 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
     off = archive.load_offsets(pc.name)
     if off is None or not len(off):
         return None
-    if "system" in off.columns and off["system"].nunique() > 1:
-        from .commonview import main_system
+    from .commonview import main_series
 
-        off = off[off["system"] == (main_system(off["system"]) or off["system"].iloc[0])]
+    off = main_series(off)
     t = off["time_utc_ns"].to_numpy(np.int64) if "time_utc_ns" in off.columns else None
     t_from = int(t.max()) - days * ts.NS_PER_DAY if t is not None and len(t) else None
     changes = hardware_changes(pc)

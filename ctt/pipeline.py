@@ -322,13 +322,13 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
     for flag, n in offset["flag"].value_counts().to_dict().items():
         if flag != "ok":
             rejected[f"points {flag}"] = int(n)
-    t0 = int(offset["time"].min())
+    t_mid = int(np.median(offset["time"].to_numpy(np.int64)))
     return {
         "software": {"name": "ctt", "version": __version__},
         "version": __version__,
         "pair": f"{station_a.id}-{station_b.id}",
         "station_a": station_a.id, "station_b": station_b.id,
-        "date_utc": str(ts.to_iso(ts.convert(t0, "GPS", "UTC")))[:10],
+        "date_utc": str(ts.to_iso(ts.convert(t_mid, "GPS", "UTC")))[:10],
         "mode": options.mode, "signals": options.measure.signals, "reference": reference,
         "sign": "offset_ns = clock A - clock B",
         "inputs": files,
@@ -358,6 +358,17 @@ def offset_table(offset: pd.DataFrame) -> pd.DataFrame:
     out["time_gps_ns"] = out["time"].astype(np.int64)
     cols = [c for c in OFFSET_CSV_COLUMNS if c in out.columns]
     return out[cols]
+
+
+def _csv(df: pd.DataFrame):
+    """Writer of a table as CSV: 4 decimals (0.1 ps) for values, MJD with 10 (~10 µs)."""
+    def write(f):
+        d = df.copy()
+        for c in d.columns:
+            if c.startswith("mjd"):
+                d[c] = d[c].map(lambda v: f"{v:.10f}" if np.isfinite(v) else "")
+        d.to_csv(f, index=False, float_format="%.4f")
+    return write
 
 
 def _atomic_write(path: pathlib.Path, write):
@@ -411,18 +422,17 @@ def write_pair_outputs(result: PairResult, out_dir) -> dict:
     out = pathlib.Path(out_dir)
     paths = {}
     p = out / "offset.csv"
-    _atomic_write(p, lambda f: offset_table(result.offset).to_csv(f, index=False, float_format="%.4f"))
+    _atomic_write(p, _csv(offset_table(result.offset)))
     paths["offset"] = p
     if result.offset_by_system["system"].nunique() > 1:
         p = out / "offset_by_system.csv"
-        _atomic_write(p, lambda f: offset_table(result.offset_by_system).to_csv(f, index=False,
-                                                                                   float_format="%.4f"))
+        _atomic_write(p, _csv(offset_table(result.offset_by_system)))
         paths["offset_by_system"] = p
     sat = result.satellites.copy()
     if "time" in sat.columns:
         sat.insert(0, "time_utc", ts.to_iso(ts.convert(sat["time"].to_numpy(np.int64), "GPS", "UTC")))
     p = out / "satellites.csv"
-    _atomic_write(p, lambda f: sat.to_csv(f, index=False, float_format="%.4f"))
+    _atomic_write(p, _csv(sat))
     paths["satellites"] = p
     p = out / "summary.json"
     write_json(p, result.summary)
@@ -457,6 +467,10 @@ def pair_day_from_config(config, date):
                         nav=_s(found.get("nav")), sp3=_s(found.get("sp3")), clk=_s(found.get("clk")),
                         ionex=_s(found.get("ionex")), met_a=_s(found.get("met_a")), met_b=_s(found.get("met_b")))
     options = options_from_processing(pc.processing)
+    if options.measure.elevation_mask_deg is None:
+        # the pair file's documented default: the larger of the two stations' masks, at both
+        options = dataclasses.replace(options, measure=dataclasses.replace(
+            options.measure, elevation_mask_deg=pc.elevation_mask_deg()))
     return inputs, pc.station_a, pc.station_b, options
 
 

@@ -457,3 +457,17 @@ def test_budget_carries_isb_uncertainty_into_all():
                             isb_ns={"A": {"E": est + delta}, "B": {"E": 0.0}}, per_system=False)
         means.append(cv.uncertainty_budget(rr.offset_df)["mean_offset_ns"])
     assert (means[0] - means[1]) == pytest.approx(0.05 * share, rel=0.05)
+
+
+def test_main_series_is_chosen_per_day():
+    # A day processed with GPS and Galileo has 'G', 'E' and the combined 'ALL' series; a day
+    # with GPS only has 'G'. The main series keeps ALL of the first and G of the second
+    # (nothing of either day silently lost).
+    from ctt.commonview import main_series
+
+    df = pd.DataFrame({"date": ["2021-01-01"] * 3 + ["2021-01-02"],
+                       "system": ["G", "E", "ALL", "G"], "offset_ns": [1.0, 2.0, 1.5, 3.0]})
+    out = main_series(df)
+    assert list(zip(out["date"], out["system"])) == [("2021-01-01", "ALL"), ("2021-01-02", "G")]
+    with pytest.raises(ValueError, match="choose one"):
+        main_series(pd.DataFrame({"date": ["d", "d"], "system": ["G", "E"], "offset_ns": [1.0, 2.0]}), strict=True)

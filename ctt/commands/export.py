@@ -55,11 +55,10 @@ def run(args) -> int:
     with Archive(pair.archive_path) as arch:
         system = None if (args.system or "").lower() == "all" else args.system
         df = arch.load_offsets(pair.name, d0, d1, system=system, extras=False)
-    if args.system is None and "system" in df.columns and df["system"].nunique() > 1:
-        from ..commonview import main_system
+    if args.system is None:
+        from ..commonview import main_series
 
-        main = main_system(df["system"]) or sorted(df["system"].unique())[0]
-        df = df[df["system"] == main].reset_index(drop=True)
+        df = main_series(df).reset_index(drop=True)  # each day's main series, as its offset.csv
     if df.empty:
         raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
                           + (f" for system {args.system}" if args.system else ""))

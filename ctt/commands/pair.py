@@ -39,7 +39,8 @@ def register(sub) -> None:
                       help="epoch/all-in-view bin length (default: every epoch)")
     proc.add_argument("--orbits", choices=("auto", "broadcast", "precise"), default=None,
                       help="auto: precise when --sp3 is given")
-    proc.add_argument("--weights", choices=("sin2el", "equal", "sigma"), default="sin2el")
+    proc.add_argument("--weights", choices=("sin2el", "equal", "sigma"), default=None,
+                      help="weights of the satellite differences (default: the pair file's, else sin2el)")
     proc.add_argument("--mad-k", type=float, default=None, help="outlier rejection at k x MAD (default 3.5)")
     proc.add_argument("--min-common", type=int, default=None,
                       help="fewest common satellites for a point to be flagged ok (default 2)")
@@ -91,6 +92,11 @@ def run(args) -> int:
 
         if not args.date:
             raise UsageError("--config needs --date YYYY-MM-DD")
+        given = [n for n in ("obs_a", "obs_b", "tracks_a", "tracks_b", "nav", "sp3", "clk", "ionex", "antex",
+                             "met_a", "met_b", "station_a", "station_b") if getattr(args, n)]
+        if given:
+            raise UsageError("with --config the files come from the pair file; drop "
+                             + ", ".join("--" + g.replace("_", "-") for g in given))
         inputs, sta, stb, base = pair_day_from_config(args.config, args.date)
         options = options_from_args(args, base)
     else:
