@@ -777,7 +777,7 @@ def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.D
     mjd, sod = to_mjd(start)
     sod = np.rint(sod).astype(int)
     sttime = [f"{s // 3600:02d}{s % 3600 // 60:02d}{s % 60:02d}" for s in sod]
-    iode = t.groupby(["sat"])["iode"].agg(lambda v: int(v.iloc[len(v) // 2])) if "iode" in t else None
+    iode = _track_iode(t, schedule) if "iode" in t else None
     n_codes = ok["signal"].astype(str).str.count(r"\+") + 1
 
     def col(frame, name, scale=1.0):
@@ -788,20 +788,44 @@ def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.D
     out = pd.DataFrame({
         "sat": ok.index.get_level_values(1).astype(str),
         "cl": "FF", "mjd": mjd.astype(int), "sttime": sttime, "trkl_s": 780,
-        "elv_deg": ok["elevation_deg"].to_numpy(float), "azth_deg": ok["azimuth_deg"].to_numpy(float),
+        "elv_deg": ok["elevation_deg"].to_numpy(float),
+        # azimuth in [0, 360) at the field's 0.1° resolution (359.96° is 000.0, not 360.0)
+        "azth_deg": np.mod(np.round(ok["azimuth_deg"].to_numpy(float) * 10.0), 3600.0) / 10.0,
         "refsv_ns": col(refsv, "value_ns"), "srsv_ps_s": col(refsv, "slope_ps_s"),
         "refsys_ns": ok["value_ns"].to_numpy(float), "srsys_ps_s": ok["slope_ps_s"].to_numpy(float),
         "dsg_ns": ok["rms_ns"].to_numpy(float),
-        "ioe": ([int(iode.get(s, 0)) % 1000 for s in ok.index.get_level_values(1)] if iode is not None
-                else 0),
+        "ioe": (iode.reindex(ok.index).to_numpy(float) if iode is not None else np.nan),
         "mdtr_ns": col(mdtr, "value_ns"), "smdt_ps_s": col(mdtr, "slope_ps_s"),
         "mdio_ns": col(mdio, "value_ns"), "smdi_ps_s": col(mdio, "slope_ps_s"),
         "msio_ns": col(msio, "value_ns"), "smsi_ps_s": col(msio, "slope_ps_s"),
         "isg_ns": col(msio, "rms_ns"), "fr": 0, "hc": 0,
         "frc": [_FRC.get((s[0], int(n)), "L3P") for s, n in zip(ok.index.get_level_values(1), n_codes)],
     })
-    out["ioe"] = np.maximum(out["ioe"].to_numpy(), 0)
+    ioe = out["ioe"].to_numpy(float)
+    out["ioe"] = np.where((ioe >= 0) & (ioe < 999), ioe, np.nan)  # none (precise orbits) or too wide: 999
     return out.sort_values(["mjd", "sttime", "sat"], kind="stable").reset_index(drop=True)
+
+
+def _track_iode(t: pd.DataFrame, schedule=None) -> pd.Series:
+    """Issue of data of the ephemeris used at mid-track, per (track start UTC ns, sat): the value
+    of the usable row nearest the midpoint (an ephemeris change inside a track keeps the one in
+    force at the midpoint, the instant the track values refer to)."""
+    from . import tracks as trk
+    from .timescales import NS_PER_S, convert
+
+    tm = t["time"].to_numpy(np.int64)
+    starts = np.sort(np.asarray(schedule if schedule is not None else trk.schedule_for_times(tm), np.int64))
+    sg = convert(starts, "UTC", "GPS")
+    k = np.searchsorted(sg, tm, side="right") - 1
+    length = trk.TRACK_LENGTH_S * NS_PER_S
+    inside = (k >= 0) & (tm < sg[np.clip(k, 0, None)] + length) & (t["flag"].astype(str).to_numpy() == "ok")
+    d = pd.DataFrame({"start": starts[np.clip(k, 0, None)][inside], "sat": t["sat"].to_numpy()[inside],
+                      "dist": np.abs(tm[inside] - (sg[np.clip(k, 0, None)][inside] + length // 2)),
+                      "iode": t["iode"].to_numpy()[inside]})
+    if d.empty:
+        return pd.Series(dtype=float)
+    d = d.sort_values("dist", kind="stable").drop_duplicates(["start", "sat"])
+    return d.set_index(["start", "sat"])["iode"].astype(float)
 
 
 def cggtts_to_track_table(header: CggttsHeader, df: pd.DataFrame, *, sampling_s: float = 30.0) -> pd.DataFrame:

@@ -80,8 +80,10 @@ def yesterday_utc() -> str:
 
 def day_config_hash(pc, date) -> str:
     """Fingerprint of everything in the configuration that can change one day's result."""
-    t0 = ts.date_to_ns(date)
-    t1 = t0 + ts.NS_PER_DAY
+    # the daily file runs on GPS time, 18 s ahead of the UTC day (and receivers write a few
+    # epochs either side): a minute of margin so every delay set the day's data use is included
+    t0 = ts.date_to_ns(date) - 60 * ts.NS_PER_S
+    t1 = t0 + ts.NS_PER_DAY + 120 * ts.NS_PER_S
 
     def station(st):
         try:

@@ -256,11 +256,8 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
         if day is not None:
             type_b[f"delays {st.id}"] = day.info["u_hardware_ns"]
         else:
-            # a partner's track file: its own delays are applied; take their uncertainty
-            # from its station file (the largest code delay uncertainty, common practice)
-            ds = st.delays_at(int(ts.convert(int(red_a["mid_time"].min()), "GPS", "UTC")))
-            type_b[f"delays {st.id} (partner file)"] = max(
-                ds.u_hardware_ns(c) for c in ds.receiver_ns) if ds.receiver_ns else 0.0
+            red = red_a if st is station_a else red_b
+            type_b[f"delays {st.id} (partner file)"] = _partner_delay_u(st, red)
     budget = commonview.uncertainty_budget(
         by_sys, type_b_items=type_b, result=cv, system=main_sys,
         coordinate_sigma_m={"A": _sigma_enu(station_a), "B": _sigma_enu(station_b)})
@@ -271,6 +268,30 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
     summary = _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference)
     return PairResult(offset=offset, offset_by_system=by_sys, satellites=cv.sat_df, summary=summary,
                       station_a=day_a, station_b=day_b, cv=cv, budget=budget)
+
+
+def _partner_delay_u(station, tracks: pd.DataFrame) -> float:
+    """Delay uncertainty (ns) of a partner whose track file already has its delays applied.
+
+    The combination follows the file's frequency code: iono-free ('L3...') combines the
+    station file's L1 and L2 receiver-delay uncertainties like the codes (2.546 and −1.546
+    for GPS, ctt.signals), single frequency takes the L1 code's; cable and reference pass
+    through (DelaySet.u_hardware_combined_ns)."""
+    mid = int(np.median(tracks["mid_time"].to_numpy(np.int64)))
+    ds = station.delays_at(int(ts.convert(mid, "GPS", "UTC")))
+    l1 = next((c for c in ("C1W", "C1C", "C1P", "C1X") if c in ds.receiver_ns), None)
+    l2 = next((c for c in ("C2W", "C2L", "C2X", "C2P", "C5Q", "C5X", "C7Q") if c in ds.receiver_ns), None)
+    iono_free = tracks["signal"].astype(str).str.startswith("L3").mean() > 0.5
+    if l1 is None:
+        return max((ds.u_hardware_ns(c) for c in ds.receiver_ns), default=0.0)
+    if iono_free and l2 is not None:
+        from .signals import frequency_hz, iono_free_coefficients
+
+        f1 = frequency_hz(np.array(["G01"]), l1)[0]
+        f2 = frequency_hz(np.array(["G01"]), l2)[0]
+        a1, a2 = iono_free_coefficients(f1, f2)
+        return ds.u_hardware_combined_ns({l1: float(a1), l2: float(a2)})
+    return ds.u_hardware_ns(l1)
 
 
 def read_track_file(path) -> pd.DataFrame:

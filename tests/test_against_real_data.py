@@ -171,3 +171,21 @@ def test_a_gap_in_the_met_file_falls_back_to_the_standard_atmosphere(real):
     t_obs = real["obs"]["zimm"].time_ns
     assert n_std == int(np.count_nonzero((t_obs > tk[k]) & (t_obs < tk[k + 1])))
     assert (day.table["flag"] == "ok").sum() > 20_000
+
+
+def test_tracks_command_with_precise_orbits(shared_data, test_data, tmp_path):
+    # ctt tracks with IGS finals: no broadcast IODE exists, so IOE is the format's 'not available';
+    # with broadcast orbits IOE follows the ephemeris in force at each track's midpoint.
+    from ctt.cli import main
+    from ctt.exports import read_cggtts
+
+    args = [str(shared_data / "zimm0010.21o.gz"), "--nav", str(shared_data / "brdc0010.21n"),
+            "--station", str(test_data / "stations" / "zimm.toml")]
+    assert main(["tracks", *args, "--sp3", str(shared_data / "igs21385.sp3"), "--out", str(tmp_path / "p.cggtts")]) == 0
+    _, precise = read_cggtts(tmp_path / "p.cggtts")
+    assert len(precise) > 500 and precise["ioe"].isna().all()
+    assert main(["tracks", *args, "--out", str(tmp_path / "b.cggtts")]) == 0
+    _, brdc = read_cggtts(tmp_path / "b.cggtts")
+    per_sat = brdc.groupby("sat")["ioe"].nunique()
+    assert (per_sat > 1).sum() > 10  # broadcast ephemerides change every ~2 h: several IOE per satellite
+    assert (brdc["azth_deg"] < 360.0).all()

@@ -99,7 +99,9 @@ def run(args) -> int:
     type_b = args.type_b_ns
     if args.from_dir:
         run_dir = pathlib.Path(args.from_dir)
-        offsets = read_offsets_csv(run_dir / "offset.csv")
+        by_sys = run_dir / "offset_by_system.csv"
+        # offset.csv holds the main series only; another system's is in offset_by_system.csv
+        offsets = read_offsets_csv(by_sys if args.system and by_sys.is_file() else run_dir / "offset.csv")
         if type_b is None:
             type_b = _type_b_from_summary(run_dir)
     else:

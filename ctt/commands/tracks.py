@@ -5,6 +5,8 @@ from __future__ import annotations
 import logging
 import pathlib
 
+import numpy as np
+
 from ._common import add_model_arguments, add_station_day_arguments, measure_station_day
 
 log = logging.getLogger("ctt")
@@ -30,8 +32,8 @@ def run(args) -> int:
     station, day, opts = measure_station_day(args)
     reference = day.reference
     tracks = station_tracks_to_cggtts(day.table)
-    t0 = int(day.table["time"].min())
-    ds = station.delays_at(int(ts.convert(t0, "GPS", "UTC")))
+    t_mid = int(np.median(day.table["time"].to_numpy(np.int64)))
+    ds = station.delays_at(int(ts.convert(t_mid, "GPS", "UTC")))  # the set in force mid-day
     names = {"G": "GPS", "E": "GAL", "C": "BDS", "R": "GLO", "J": "QZS"}
     codes = sorted({(names.get(sat[0], sat[0]), c) for sat, lab in day.info["codes"].items()
                     for c in lab.split("+") if c})
