@@ -45,7 +45,6 @@ from __future__ import annotations
 
 import dataclasses
 import logging
-import math
 
 import numpy as np
 import pandas as pd

@@ -9,9 +9,7 @@ precise orbits). Reading the files is timed separately. Median of 3 runs.
 from __future__ import annotations
 
 import pathlib
-import statistics
 import sys
-import time
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
@@ -23,16 +21,13 @@ from ctt.pipeline import pair_day_from_config  # noqa: E402
 from ctt.rinex import products  # noqa: E402
 from ctt.rinex.nav import read_nav  # noqa: E402
 from ctt.rinex.obs import read_obs  # noqa: E402
+from benchtools import timed as _timed  # noqa: E402  (this folder)
 
 
 def timed(fn, n=3):
-    ts = []
-    out = None
-    for _ in range(n):
-        t0 = time.perf_counter()
-        out = fn()
-        ts.append(time.perf_counter() - t0)
-    return statistics.median(ts), out
+    """(median seconds, last result) of ``n`` runs (scripts/benchtools.py)."""
+    t = _timed(fn, n)
+    return t.median, t.result
 
 
 def main() -> None:

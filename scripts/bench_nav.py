@@ -20,16 +20,15 @@ from __future__ import annotations
 
 import argparse
 import pathlib
-import statistics
 import sys
 import tempfile
-import time
 import warnings
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from ctt.rinex.nav import read_nav  # noqa: E402
+from benchtools import timed  # noqa: E402  (this folder)
 
 TEMPLATE = ROOT / "tests" / "data" / "nav" / "mixed_v304.rnx"
 REAL = ROOT.parent / "shared" / "data" / "real-2021-001" / "brdc0010.21n"
@@ -81,12 +80,8 @@ def synthetic_file(path: pathlib.Path) -> int:
 
 
 def _time(fn, runs):
-    out = []
-    for _ in range(runs):
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return statistics.median(out), min(out)
+    t = timed(fn, runs)
+    return t.median, t.best
 
 
 def main(argv=None):

@@ -19,9 +19,7 @@ from __future__ import annotations
 
 import argparse
 import pathlib
-import statistics
 import sys
-import time
 
 import numpy as np
 
@@ -31,17 +29,14 @@ sys.path.insert(0, str(ROOT))
 from ctt.orbits import STATUS_NAMES, BroadcastOrbits, glonass_propagate, glonass_states_from_records  # noqa: E402,E501
 from ctt.rinex.nav import read_nav  # noqa: E402
 from ctt.timescales import civil_to_ns  # noqa: E402
+from benchtools import timed  # noqa: E402  (this folder)
 
 DEFAULT_NAV = ROOT.parent / "shared" / "data" / "real-2021-001" / "brdc0010.21n"
 
 
 def _time(fn, runs):
-    out = []
-    for _ in range(runs):
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return statistics.median(out), min(out)
+    t = timed(fn, runs)
+    return t.median, t.best
 
 
 def main(argv=None):

@@ -29,6 +29,7 @@ import numpy as np
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[1]))
 
 from ctt.rinex.obs import read_obs  # noqa: E402
+from benchtools import timed  # noqa: E402  (this folder)
 
 GPS_TYPES = "C1C L1C D1C S1C C2W L2W D2W S2W".split()
 GAL_TYPES = "C1C L1C D1C S1C C5Q L5Q D5Q S5Q".split()
@@ -98,15 +99,6 @@ def write_rinex3(path: pathlib.Path, *, stream: int = 1, hours: float = 24.0, in
     path.write_text("".join(out) + "".join(lines))
 
 
-def _time(fn, runs: int) -> list[float]:
-    out = []
-    for _ in range(runs):
-        t0 = time.perf_counter()
-        fn()
-        out.append(time.perf_counter() - t0)
-    return out
-
-
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=5)
@@ -126,11 +118,11 @@ def main(argv=None) -> int:
 
     d = read_obs(day)
     print(f"ctt day file: {len(d.time_ns)} epochs x {len(d.sats)} satellites, {len(d.obs)} codes")
-    t_day = _time(lambda: read_obs(day), args.runs)
+    t_day = timed(lambda: read_obs(day), args.runs).times
     med_day = statistics.median(t_day)
     print(f"ctt read_obs, day file : median {med_day:.3f} s of {args.runs} "
           f"(min {min(t_day):.3f}, max {max(t_day):.3f}); target <= 0.5 s")
-    t_part = _time(lambda: read_obs(part), args.runs)
+    t_part = timed(lambda: read_obs(part), args.runs).times
     med_part = statistics.median(t_part)
     print(f"ctt read_obs, 3 h slice: median {med_part:.4f} s of {args.runs}")
     if not args.no_georinex:

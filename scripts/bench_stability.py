@@ -13,14 +13,13 @@ is printed, with the median beside it.
 from __future__ import annotations
 
 import argparse
-import statistics
-import time
 
 import allantools
 import numpy as np
 from allantools.noise_kasdin import Noise
 
 from ctt import stability
+from benchtools import timed  # this folder
 
 
 def make_series(n: int, tau0: float = 30.0, draw: int = 2024) -> np.ndarray:
@@ -33,16 +32,6 @@ def make_series(n: int, tau0: float = 30.0, draw: int = 2024) -> np.ndarray:
     x = wfm.time_series[:n] + ffm.time_series[:n]
     x += np.random.default_rng(draw).normal(scale=0.3e-9, size=n)   # white PM, 0.3 ns
     return x
-
-
-def timed(fn, repeat):
-    ts = []
-    out = None
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        out = fn()
-        ts.append(time.perf_counter() - t0)
-    return min(ts), statistics.median(ts), out
 
 
 def main() -> None:
@@ -66,9 +55,12 @@ def main() -> None:
         allantools.mdev(x, rate, "phase", taus)
         allantools.tdev(x, rate, "phase", taus)
 
-    t_ours, m_ours, res = timed(ours, args.repeat)
-    t_bare, m_bare, _ = timed(bare, args.repeat)
-    t_nid, m_nid, _ = timed(lambda: stability._noise_ids(x, stability._ms(taus, rate, n), 2), args.repeat)
+    r = timed(ours, args.repeat)
+    t_ours, m_ours, res = r.best, r.median, r.result
+    r = timed(bare, args.repeat)
+    t_bare, m_bare = r.best, r.median
+    r = timed(lambda: stability._noise_ids(x, stability._ms(taus, rate, n), 2), args.repeat)
+    t_nid, m_nid = r.best, r.median
     print(f"ctt.stability ADEV+MDEV+TDEV with CIs and noise type: best {t_ours:.3f} s (median {m_ours:.3f} s)")
     print(f"  of which noise identification at all taus:          best {t_nid:.3f} s (median {m_nid:.3f} s)")
     print(f"allantools alone oadev+mdev+tdev (no CIs, no noise id): best {t_bare:.3f} s (median {m_bare:.3f} s)")

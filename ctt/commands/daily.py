@@ -79,7 +79,7 @@ def run_backfill(args) -> int:
     from tqdm import tqdm
 
     from ..config import load_pair
-    from ..operations import compute_day, dates_between, needs_reprocessing, refresh_report, store_outcome
+    from ..operations import dates_between, needs_reprocessing, refresh_report, store_outcome
 
     pc = load_pair(args.config)
     try:
