@@ -1334,7 +1334,6 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
         segments = [np.arange(t.size)]
     split = len(segments) > 1
     met_step = max(1, int(round(scn.output["met_interval_s"] / scn.interval_s)))
-    nav_names = []
     for seg in segments:
         ts0, ts1 = int(t[seg[0]]), int(t[seg[-1]])
         seg_s = seg.size * scn.interval_s

@@ -242,7 +242,6 @@ def test_each_galileo_satellite_uses_the_message_of_its_signals():
     # tracking E5a on one satellite and E5b on the others must not move the E5b satellites onto
     # F/NAV clocks. Demo files (simulated); the F/NAV records are made to differ by 1 ns in af0
     # and BGD(E1,E5a) so that using them for an E1/E5b satellite would show as a 1 ns shift.
-    import dataclasses
     import pathlib
 
     from ctt.orbits import BroadcastOrbits
@@ -299,8 +298,6 @@ def test_epoch_rejection_keeps_a_normal_sample_and_removes_a_spike():
 def test_glonass_without_channel_numbers_does_not_stop_a_gps_day(tmp_path):
     rx = _geodetic_xyz(46.0, 7.0, 500.0)
     obs = _simulate(rx, lambda t: 1e-6 + 0 * t, 0.0, n_ep=20)
-    import dataclasses
-
     j = 0
     add = lambda d: {k: np.concatenate([v, v[:, j:j + 1]], axis=1) for k, v in d.items()}  # noqa: E731
     obs2 = dataclasses.replace(obs, sats=np.append(obs.sats, "R05"), obs=add(obs.obs), lli=add(obs.lli),

@@ -188,7 +188,6 @@ def test_few_points_and_high_rms_flagged_not_dropped():
     rng = np.random.default_rng(7)
     df = station_table(lambda ts: np.zeros_like(ts), sats=tuple(f"G{i:02d}" for i in range(1, 9)),
                        noise=0.5, rng=rng)
-    ts = (df["time"] - df["time"].min()) / 1e9
     tr0 = tracks.fit_tracks(df)
     target = tr0[(tr0["n_points"] == 26)].iloc[40]
     start = convert(int(target["track_start_utc_ns"]), "UTC", "GPS")

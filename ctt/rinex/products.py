@@ -88,7 +88,7 @@ from typing import Sequence
 import numpy as np
 
 from ..errors import OutOfSpanError, ProductFormatError
-from ..timescales import NS_PER_S, civil_to_ns, convert, normalise_scale
+from ..timescales import civil_to_ns, convert, normalise_scale
 from ..orbits import SatStates
 from .compression import read_bytes
 
