@@ -311,27 +311,27 @@ def processing_pseudorange(obs, choice: CodeChoice, glonass_k=None, bias_m1=None
     (e.g. ``C_MPS * code_bias_s(...)`` from a Bias-SINEX file).
     """
     sats = choice.sats
-    p1 = gather(obs, choice.code1)
-    f1 = np.full(sats.size, np.nan)
-    has1 = choice.code1 != ""
-    if has1.any():
-        f1[has1] = frequency_hz(sats[has1], choice.code1[has1], _subset_k(glonass_k, has1, sats))
-    if bias_m1 is not None:
-        p1 = p1 - np.asarray(bias_m1, dtype=float)[None, :]
+    p1, f1 = _code_and_frequency(obs, sats, choice.code1, glonass_k, bias_m1)
     if choice.mode == "single":
         return Pseudorange(p1, "single", choice.code1, choice.code2, f1, np.full(sats.size, np.nan),
                            np.ones(sats.size))
-    p2 = gather(obs, choice.code2)
-    f2 = np.full(sats.size, np.nan)
-    has2 = choice.code2 != ""
-    if has2.any():
-        f2[has2] = frequency_hz(sats[has2], choice.code2[has2], _subset_k(glonass_k, has2, sats))
-    if bias_m2 is not None:
-        p2 = p2 - np.asarray(bias_m2, dtype=float)[None, :]
+    p2, f2 = _code_and_frequency(obs, sats, choice.code2, glonass_k, bias_m2)
     with np.errstate(invalid="ignore", divide="ignore"):
         value = iono_free(p1, p2, f1[None, :], f2[None, :])
         noise = iono_free_noise_factor(f1, f2)
     return Pseudorange(value, "dual", choice.code1, choice.code2, f1, f2, noise)
+
+
+def _code_and_frequency(obs, sats, codes, glonass_k, bias_m):
+    """Per-satellite code values (bias subtracted) and the carrier frequency of each code."""
+    p = gather(obs, codes)
+    f = np.full(sats.size, np.nan)
+    has = codes != ""
+    if has.any():
+        f[has] = frequency_hz(sats[has], codes[has], _subset_k(glonass_k, has, sats))
+    if bias_m is not None:
+        p = p - np.asarray(bias_m, dtype=float)[None, :]
+    return p, f
 
 
 def _subset_k(glonass_k, mask, sats):
