@@ -54,7 +54,7 @@ import pandas as pd
 from .errors import ConfigError, FileFormatError, LockTimeoutError, ProcessingError
 from .timescales import parse_iso_array, to_iso, to_mjd_float
 
-__all__ = ["Archive", "file_sha256", "inputs_record", "OFFSET_COLUMNS", "offsets_checksum"]
+__all__ = ["Archive", "file_sha256", "inputs_record", "inputs_hash", "OFFSET_COLUMNS", "offsets_checksum"]
 
 SCHEMA_VERSION = 1
 OFFSET_COLUMNS = ("time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag")
@@ -132,6 +132,11 @@ def inputs_record(paths: dict) -> dict:
     for name, p in sorted(paths.items()):
         out[name] = None if p is None else {"path": str(p), "sha256": file_sha256(p)}
     return out
+
+
+def inputs_hash(inputs: dict) -> str:
+    """One SHA-256 over the inputs' own hashes (names and contents, not paths)."""
+    return _inputs_hash(inputs)
 
 
 def _inputs_hash(inputs: dict) -> str:

@@ -105,22 +105,12 @@ def day_config_hash(pc, date) -> str:
     return hashlib.sha256(text.encode()).hexdigest()
 
 
-def _inputs_record(found: dict) -> dict:
-    from .pipeline import sha256_file
-
-    return {k: {"path": str(v), "sha256": sha256_file(v)} for k, v in found.items() if v is not None}
-
-
-def _inputs_hash(rec: dict) -> str:
-    text = json.dumps({k: v["sha256"] for k, v in sorted(rec.items())}, sort_keys=True)
-    return hashlib.sha256(text.encode()).hexdigest()
-
-
 def day_fingerprints(pc, date) -> tuple[dict, str, str]:
     """(inputs record, inputs hash, day configuration hash); MissingInputError if files are missing."""
-    found = pc.resolve_inputs(date)
-    rec = _inputs_record(found)
-    return rec, _inputs_hash(rec), day_config_hash(pc, date)
+    from .archive import inputs_hash, inputs_record
+
+    rec = {k: v for k, v in inputs_record(pc.resolve_inputs(date)).items() if v is not None}
+    return rec, inputs_hash(rec), day_config_hash(pc, date)
 
 
 def run_folder(pc, date) -> pathlib.Path:

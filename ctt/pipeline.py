@@ -29,7 +29,6 @@ Output files
 from __future__ import annotations
 
 import dataclasses
-import hashlib
 import json
 import logging
 import os
@@ -42,6 +41,7 @@ import pandas as pd
 
 from . import __version__
 from . import commonview, tracks
+from .archive import file_sha256
 from . import timescales as ts
 from .errors import MissingInputError, NoDataError
 from .measure import MeasureOptions, StationDay, measure_station
@@ -132,14 +132,6 @@ class PairResult:
 
 
 # ------------------------------------------------------------------ inputs
-
-def sha256_file(path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as f:
-        for block in iter(lambda: f.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
-
 
 def _need(path, what):
     if path is None:
@@ -326,7 +318,7 @@ def _check_overlap(inputs, red_a, red_b):
 def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference) -> dict:
     files = {}
     for k, v in inputs.files().items():
-        files[k] = {"path": str(v), "sha256": sha256_file(v)}
+        files[k] = {"path": str(v), "sha256": file_sha256(v)}
     for label, st in (("station_a", station_a), ("station_b", station_b)):
         if getattr(st, "path", None):
             files[label] = {"path": str(st.path), "sha256": st.sha256}
