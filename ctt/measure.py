@@ -280,11 +280,11 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                     nav_header=None, met=None, ionex=None, reference=None) -> StationDay:
     """Per-satellite local clock minus system time for one station-day (see module docstring).
 
-    ``obs``: :class:`ctt.rinex.obs.ObsData`; ``orbits``: a satellite source
+    ``obs``: :class:`ctt.formats.rinex_obs.ObsData`; ``orbits``: a satellite source
     with ``states(sats, t_ns, dt_s)`` (broadcast or precise); ``station``:
     :class:`ctt.config.StationConfig`; ``nav_header``: the navigation header
     for the Klobuchar coefficients; ``met``: a meteorological data object
-    (``ctt.rinex.met``) or None for the standard atmosphere; ``ionex``: IONEX
+    (``ctt.formats.rinex_met``) or None for the standard atmosphere; ``ionex``: IONEX
     maps for ``iono_model='ionex'``. ``reference`` ('broadcast'/'precise')
     defaults to what the orbit source says.
     """
@@ -743,7 +743,7 @@ def _met_at_epochs(met, t_gps_ns, h_m):
     """Pressure, temperature, humidity at each epoch from a met file; the standard atmosphere
     (ctt.atmosphere) where the file does not cover an epoch (before/after it by more than one
     sample, or inside a gap of more than four samples). Returns (p, t, rh, n_standard)."""
-    from .rinex.met import interpolate_met
+    from .formats.rinex_met import interpolate_met
 
     t = np.asarray(t_gps_ns, dtype=np.int64)
     p_std, t_std, rh_std = (np.broadcast_to(np.asarray(v, float), t.shape).copy()

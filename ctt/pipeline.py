@@ -144,17 +144,20 @@ def _need(path, what):
 def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = "inav"):
     """The satellite source for a day: (orbits, nav header or None, 'broadcast'|'precise')."""
     from .orbits import BroadcastOrbits
-    from .rinex.nav import read_nav
+    from .formats.rinex_nav import read_nav
 
     nav = read_nav(_need(inputs.nav, "navigation file")) if inputs.nav else None
     use_precise = choice == "precise" or (choice == "auto" and inputs.sp3 is not None)
     if use_precise:
-        from .rinex import products
+        from .formats.antex import read_antex
+        from .formats.rinex_clock import read_clock
+        from .formats.sp3 import read_sp3
+        from .orbits import PreciseOrbits
 
-        sp3 = products.read_sp3(_need(inputs.sp3, "SP3 orbit file"))
-        clk = products.read_clk(_need(inputs.clk, "RINEX clock file")) if inputs.clk else None
-        antex = products.read_antex(_need(inputs.antex, "ANTEX file")) if inputs.antex else None
-        orbits = products.PreciseOrbits(sp3, clk=clk, antex=antex)
+        sp3 = read_sp3(_need(inputs.sp3, "SP3 orbit file"))
+        clk = read_clock(_need(inputs.clk, "RINEX clock file")) if inputs.clk else None
+        antex = read_antex(_need(inputs.antex, "ANTEX file")) if inputs.antex else None
+        orbits = PreciseOrbits(sp3, clk=clk, antex=antex)
         return orbits, (nav.header if nav is not None else None), "precise", nav
     if nav is None:
         raise MissingInputError("broadcast orbits need a navigation file (--nav)")
@@ -164,7 +167,7 @@ def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = 
 def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions, *, met_path=None,
                  ionex=None, reference=None, obs=None) -> StationDay:
     """Read one observation file (unless ``obs`` is given) and run the measurement model."""
-    from .rinex.obs import read_obs
+    from .formats.rinex_obs import read_obs
 
     if obs is None:
         obs = read_obs(_need(obs_path, "observation file"), on_error="skip")
@@ -173,7 +176,7 @@ def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions,
                         obs.dropped[0][0], obs.dropped[0][1])
     met = None
     if met_path:
-        from .rinex import met as metmod
+        from .formats import rinex_met as metmod
 
         met = metmod.read_met(_need(met_path, "meteorological file"))
     return measure_station(obs, orbits, station, options, nav_header=nav_header, met=met,
@@ -213,9 +216,9 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
         raise MissingInputError("all-in-view needs precise orbits and clocks (--sp3, optionally --clk)")
     ionex = None
     if inputs.ionex:
-        from . import atmosphere
+        from .formats.ionex import read_ionex
 
-        ionex = atmosphere.read_ionex(_need(inputs.ionex, "IONEX file"))
+        ionex = read_ionex(_need(inputs.ionex, "IONEX file"))
     days, reduced = [], []
     for obs_path, trk_path, met_path, station in ((inputs.obs_a, inputs.tracks_a, inputs.met_a, station_a),
                                                    (inputs.obs_b, inputs.tracks_b, inputs.met_b, station_b)):
@@ -288,7 +291,8 @@ def _partner_delay_u(station, tracks: pd.DataFrame) -> float:
 
 def read_track_file(path) -> pd.DataFrame:
     """A partner's CGGTTS 2E file as a track table for :func:`ctt.commonview.common_view`."""
-    from .exports import cggtts_to_track_table, read_cggtts
+    from .exports import cggtts_to_track_table
+    from .formats.cggtts import read_cggtts
 
     header, df = read_cggtts(_need(path, "CGGTTS track file"))
     return cggtts_to_track_table(header, df)

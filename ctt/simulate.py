@@ -771,7 +771,7 @@ _EPH_FIELDS = ("af0_s", "af1_sps", "af2_sps2", "crs_m", "delta_n_radps", "m0_rad
 
 def synthetic_constellation(start_gps_ns: int, end_gps_ns: int, systems, rng: np.random.Generator, *,
                             gps_count: int = 31, galileo_count: int = 24, record_spacing_s: int = 7200):
-    """Ephemeris records (list of dicts for :func:`ctt.rinex.writers.write_nav3`) of an invented constellation.
+    """Ephemeris records (list of dicts for :func:`ctt.formats.rinex_writers.write_nav3`) of an invented constellation.
 
     GPS: 6 planes 60° apart in right ascension, inclination 55°, mean motion of
     two revolutions per sidereal day (a ≈ 26 560 km), 4-6 slots per plane,
@@ -858,7 +858,7 @@ class KeplerEphemerides:
     """Truth satellite model from ephemeris records: IS-GPS-200 Table 20-IV.
 
     Takes the records *as a reader gets them back from the file* (every field
-    rounded to the D19.12 format by :func:`ctt.rinex.writers.nav_field`) and
+    rounded to the D19.12 format by :func:`ctt.formats.rinex_writers.nav_field`) and
     uses, for each instant, the record of that satellite whose t_oe is
     nearest. ``states(sats, t_ns, dt_s)`` returns an object with ``pos_m``
     (Earth-fixed at the instant), ``clock_s`` (polynomial), ``relativity_s``
@@ -867,7 +867,7 @@ class KeplerEphemerides:
     """
 
     def __init__(self, records: list):
-        from .rinex.writers import nav_field
+        from .formats.rinex_writers import nav_field
 
         self.sats = sorted({r["sat"] for r in records})
         self._index = {s: i for i, s in enumerate(self.sats)}
@@ -1056,7 +1056,7 @@ def _satellite_model(scn: Scenario, rng):
                                        gps_count=scn.satellites["gps_count"],
                                        galileo_count=scn.satellites["galileo_count"])
         model = KeplerEphemerides(recs)
-        from .rinex.writers import nav_field
+        from .formats.rinex_writers import nav_field
 
         alpha = nav_field(np.array(scn.satellites["klobuchar_alpha"]))
         beta = nav_field(np.array(scn.satellites["klobuchar_beta"]))
@@ -1064,7 +1064,7 @@ def _satellite_model(scn: Scenario, rng):
         beta = np.array([float(f"{v:.4E}") for v in beta])
         return model, list(model.sats), recs, alpha, beta, None
     from .orbits import BroadcastOrbits
-    from .rinex.nav import read_nav
+    from .formats.rinex_nav import read_nav
 
     nav_path = scn.satellites["nav_file"]
     if not nav_path.is_file():
@@ -1314,7 +1314,7 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
     """Write every file of the scenario into ``out_dir``; returns ``{kind: [paths]}``."""
     from .config import Antenna, DelaySet, HardwareChange, StationConfig, dump_station
     from .geodesy import ecef_to_geodetic
-    from .rinex.writers import write_met2, write_nav3, write_obs2, write_obs3
+    from .formats.rinex_writers import write_met2, write_nav3, write_obs2, write_obs3
 
     scn = res.scenario
     out = pathlib.Path(out_dir)

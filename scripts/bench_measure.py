@@ -18,9 +18,10 @@ from ctt.config import load_station  # noqa: E402
 from ctt.measure import MeasureOptions, measure_station  # noqa: E402
 from ctt.orbits import BroadcastOrbits  # noqa: E402
 from ctt.pipeline import pair_day_from_config  # noqa: E402
-from ctt.rinex import products  # noqa: E402
-from ctt.rinex.nav import read_nav  # noqa: E402
-from ctt.rinex.obs import read_obs  # noqa: E402
+from ctt.formats.sp3 import read_sp3  # noqa: E402
+from ctt.orbits import PreciseOrbits  # noqa: E402
+from ctt.formats.rinex_nav import read_nav  # noqa: E402
+from ctt.formats.rinex_obs import read_obs  # noqa: E402
 from benchtools import timed as _timed  # noqa: E402  (this folder)
 
 
@@ -46,7 +47,7 @@ def main() -> None:
     obs = read_obs(real / "zimm0010.21o.gz")
     nav = read_nav(real / "brdc0010.21n")
     bo = BroadcastOrbits(nav)
-    po = products.PreciseOrbits(products.read_sp3(real / "igs21385.sp3"))
+    po = PreciseOrbits(read_sp3(real / "igs21385.sp3"))
     for label, orbits, mo in (("broadcast, iono-free", bo, MeasureOptions()),
                               ("broadcast, single + Klobuchar", bo, MeasureOptions(signals="single")),
                               ("IGS final, iono-free", po, MeasureOptions()),

@@ -27,7 +27,7 @@ import warnings
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from ctt.rinex.nav import read_nav  # noqa: E402
+from ctt.formats.rinex_nav import read_nav  # noqa: E402
 from benchtools import timed  # noqa: E402  (this folder)
 
 TEMPLATE = ROOT / "tests" / "data" / "nav" / "mixed_v304.rnx"

@@ -27,7 +27,7 @@ ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from ctt.orbits import STATUS_NAMES, BroadcastOrbits, glonass_propagate, glonass_states_from_records  # noqa: E402,E501
-from ctt.rinex.nav import read_nav  # noqa: E402
+from ctt.formats.rinex_nav import read_nav  # noqa: E402
 from ctt.timescales import civil_to_ns  # noqa: E402
 from benchtools import timed  # noqa: E402  (this folder)
 

@@ -4,7 +4,7 @@ Writes a synthetic 24 h, 30 s, RINEX 3.04 file with 22 satellites (12 GPS,
 10 Galileo) x 8 observation types (about 8 MB) into a temporary folder,
 then times
 
-* ``ctt.rinex.obs.read_obs`` on the whole day (median of 5 runs),
+* ``ctt.formats.rinex_obs.read_obs`` on the whole day (median of 5 runs),
 * a 3-hour slice of the same file read by ctt and by ``georinex.load``
   (the reference reader), and their ratio.
 
@@ -28,7 +28,7 @@ import numpy as np
 
 sys.path.insert(0, str(pathlib.Path(__file__).resolve().parents[1]))
 
-from ctt.rinex.obs import read_obs  # noqa: E402
+from ctt.formats.rinex_obs import read_obs  # noqa: E402
 from benchtools import timed  # noqa: E402  (this folder)
 
 GPS_TYPES = "C1C L1C D1C S1C C2W L2W D2W S2W".split()

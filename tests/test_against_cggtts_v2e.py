@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from ctt import exports as X
+from ctt.formats import cggtts as CG
 from ctt.errors import FileFormatError
 
 
@@ -76,7 +76,7 @@ def _file_text(lines=None, header=HEADER):
 def test_reads_a_file_built_from_the_layout(tmp_path):
     p = tmp_path / "GZLA0159.215"
     p.write_text(_file_text())
-    hdr, df = X.read_cggtts(p)
+    hdr, df = CG.read_cggtts(p)
     assert hdr.lab == "LABA" and hdr.ch == 20 and hdr.delay_kind == "INT"
     assert hdr.delays == [(25.3, "GPS C1"), (27.0, "GPS C2")] and hdr.cal_id == "NA"
     assert (hdr.cab_dly_ns, hdr.ref_dly_ns, hdr.ref) == (152.4, 11.8, "LABA-CS1")
@@ -99,9 +99,9 @@ def test_reads_a_file_built_from_the_layout(tmp_path):
 def test_writer_output_matches_the_layout_and_checksums(tmp_path):
     p = tmp_path / "in.cggtts"
     p.write_text(_file_text())
-    hdr, df = X.read_cggtts(p)
+    hdr, df = CG.read_cggtts(p)
     out = tmp_path / "out.cggtts"
-    X.write_cggtts(out, df, hdr)
+    CG.write_cggtts(out, df, hdr)
     lines = out.read_text().splitlines()
     # header checksum: our independent sum over the written header lines
     i = next(k for k, ln in enumerate(lines) if ln.startswith("CKSUM = "))
@@ -129,18 +129,18 @@ def test_round_trip_to_the_format_resolution(tmp_path, kind):
         "msio_ns": rng.uniform(0, 99, n), "smsi_ps_s": rng.uniform(-99, 99, n), "isg_ns": rng.uniform(0, 9, n),
         "fr": 0, "hc": rng.integers(0, 20, n), "frc": "L3P"})
     df.loc[5, "mdio_ns"] = np.nan
-    hdr = X.CggttsHeader(lab="LABB", x_m=4495078.80, y_m=955458.49, z_m=4408115.93, delay_kind=kind,
+    hdr = CG.CggttsHeader(lab="LABB", x_m=4495078.80, y_m=955458.49, z_m=4408115.93, delay_kind=kind,
                          delays=[(190.2, "GPS C1")], ref_dly_ns=5.0, ref="LABB-H1")
     p = tmp_path / "rt.cggtts"
-    X.write_cggtts(p, df, hdr)
+    CG.write_cggtts(p, df, hdr)
     text = p.read_text()
     # SYS: no CAB DLY line; TOT: neither CAB DLY nor REF DLY (from memory of the three variants)
     assert "CAB DLY" not in text and (("REF DLY = 5.0 ns" in text) == (kind == "SYS"))
-    hdr2, back = X.read_cggtts(p)
+    hdr2, back = CG.read_cggtts(p)
     assert hdr2.delay_kind == kind and hdr2.cab_dly_ns is None
     assert hdr2.ref_dly_ns == (5.0 if kind == "SYS" else None)
     assert hdr2.lab == "LABB" and hdr2.delays == [(190.2, "GPS C1")]
-    for c in X.TRACK_COLUMNS:
+    for c in CG.TRACK_COLUMNS:
         a, b = df[c].to_numpy(), back[c].to_numpy()
         if df[c].dtype.kind == "f":
             # resolution 0.1 of the unit: the read value is the value rounded to 0.1
@@ -158,12 +158,12 @@ def test_corrupted_character_is_detected(tmp_path):
     p = tmp_path / "bad.cggtts"
     p.write_text("\n".join(lines))
     with pytest.raises(FileFormatError) as ei:
-        X.read_cggtts(p)
+        CG.read_cggtts(p)
     assert ei.value.line == k + 1 and "checksum" in str(ei.value)
     # a changed header character breaks CKSUM
     p.write_text(text.replace("CAB DLY = 152.4 ns", "CAB DLY = 152.5 ns"))
     with pytest.raises(FileFormatError) as ei:
-        X.read_cggtts(p)
+        CG.read_cggtts(p)
     assert ei.value.line == 16 and "header checksum" in str(ei.value)
 
 
@@ -176,7 +176,7 @@ def test_file_without_measured_ionosphere(tmp_path):
     text = "\n".join(head + ["CKSUM = " + _ck("".join(head) + "CKSUM = "), "", labels, "units", line]) + "\n"
     p = tmp_path / "sf.cggtts"
     p.write_text(text)
-    _, df = X.read_cggtts(p)
+    _, df = CG.read_cggtts(p)
     assert df["frc"].iloc[0] == "L1C" and np.isnan(df["msio_ns"].iloc[0])
     assert df["mdio_ns"].iloc[0] == pytest.approx(8.7)
 
@@ -185,19 +185,19 @@ def test_bad_files_name_the_line(tmp_path):
     p = tmp_path / "x.cggtts"
     p.write_text("GGTTS GPS DATA FORMAT VERSION = 01\n")
     with pytest.raises(FileFormatError) as ei:
-        X.read_cggtts(p)
+        CG.read_cggtts(p)
     assert ei.value.line == 1 and "VERSION = 2E" in str(ei.value)
     p.write_text(_file_text().replace("CH = 20", "CH = twenty"))
     with pytest.raises(FileFormatError) as ei:
-        X.read_cggtts(p)
+        CG.read_cggtts(p)
     assert ei.value.line == 4
 
 
 def test_writer_refuses_values_that_do_not_fit(tmp_path):
     p = tmp_path / "in.cggtts"
     p.write_text(_file_text())
-    hdr, df = X.read_cggtts(p)
+    hdr, df = CG.read_cggtts(p)
     df.loc[0, "dsg_ns"] = 1000.0        # 10000 in 0.1 ns: 5 characters for a 4-character field
     with pytest.raises(ValueError, match="dsg_ns"):
-        X.write_cggtts(tmp_path / "o.cggtts", df, hdr)
+        CG.write_cggtts(tmp_path / "o.cggtts", df, hdr)
     assert not (tmp_path / "o.cggtts").exists()

@@ -1,4 +1,4 @@
-"""ctt.rinex.obs.read_obs against the reference reader georinex (georinex.load).
+"""ctt.formats.rinex_obs.read_obs against the reference reader georinex (georinex.load).
 
 Every value, every NaN position and every time tag must be identical
 (tolerance zero: both readers decode the same decimal text into the nearest
@@ -33,7 +33,7 @@ from datetime import datetime
 import numpy as np
 import pytest
 
-from ctt.rinex.obs import read_obs
+from ctt.formats.rinex_obs import read_obs
 from ctt.timescales import civil_to_ns, to_datetime64
 
 georinex = pytest.importorskip("georinex")

@@ -1,4 +1,4 @@
-"""ctt.rinex.nav.read_nav against georinex (an independent RINEX reader) as reference.
+"""ctt.formats.rinex_nav.read_nav against georinex (an independent RINEX reader) as reference.
 
 Each numeric field must be *equal* to georinex.load's value: both read the
 same printed decimal and convert it to the nearest float64, so any difference
@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from ctt.rinex.nav import read_nav
+from ctt.formats.rinex_nav import read_nav
 from ctt.timescales import from_datetime64
 
 gr = pytest.importorskip("georinex")

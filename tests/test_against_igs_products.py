@@ -22,7 +22,8 @@ import math
 import numpy as np
 import pytest
 
-from ctt.rinex import products as P
+from ctt import orbits as P
+from ctt.formats import antex as ATX, rinex_clock as CLK, sp3 as SP3
 from ctt.timescales import NS_PER_S, civil_to_ns
 
 GM = 3.986005e14           # IS-GPS-200
@@ -31,7 +32,7 @@ OMEGA_E = 7.2921151467e-5  # IS-GPS-200
 
 @pytest.fixture(scope="module")
 def sp3(shared_data):
-    return P.read_sp3(shared_data / "igs21385.sp3")
+    return SP3.read_sp3(shared_data / "igs21385.sp3")
 
 
 # ------------------------------------------------------------------ SP3 reader on the real file
@@ -105,7 +106,7 @@ def test_leave_one_out_interpolation_error_on_igs_final(sp3):
 
 @pytest.fixture(scope="module")
 def comparison(shared_data):
-    pytest.importorskip("ctt.rinex.nav")
+    pytest.importorskip("ctt.formats.rinex_nav")
     from ctt.commands.compare_products import run_comparison
 
     return run_comparison(shared_data / "brdc0010.21n", [shared_data / "igs21385.sp3"])
@@ -141,9 +142,9 @@ def test_broadcast_clocks_against_igs_final(comparison):
 
 
 def test_relativistic_terms_agree(shared_data, sp3):
-    pytest.importorskip("ctt.rinex.nav")
+    pytest.importorskip("ctt.formats.rinex_nav")
     from ctt.orbits import BroadcastOrbits
-    from ctt.rinex.nav import read_nav
+    from ctt.formats.rinex_nav import read_nav
 
     bo = BroadcastOrbits(read_nav(shared_data / "brdc0010.21n"))
     po = P.PreciseOrbits(sp3)
@@ -158,7 +159,7 @@ def test_relativistic_terms_agree(shared_data, sp3):
 
 
 def test_compare_products_cli_json(shared_data, capsys):
-    pytest.importorskip("ctt.rinex.nav")
+    pytest.importorskip("ctt.formats.rinex_nav")
     from ctt.cli import main
 
     code = main(["compare-products", "--nav", str(shared_data / "brdc0010.21n"),

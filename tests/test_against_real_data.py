@@ -17,10 +17,11 @@ import pytest
 from ctt.config import load_station
 from ctt.measure import MeasureOptions, measure_station
 from ctt.orbits import BroadcastOrbits
-from ctt.rinex import products
-from ctt.rinex.met import read_met
-from ctt.rinex.nav import read_nav
-from ctt.rinex.obs import read_obs
+from ctt.formats.sp3 import read_sp3
+from ctt.orbits import PreciseOrbits
+from ctt.formats.rinex_met import read_met
+from ctt.formats.rinex_nav import read_nav
+from ctt.formats.rinex_obs import read_obs
 
 C = 299_792_458.0
 
@@ -28,11 +29,11 @@ C = 299_792_458.0
 @pytest.fixture(scope="module")
 def real(shared_data, test_data):
     nav = read_nav(shared_data / "brdc0010.21n")
-    sp3 = products.read_sp3(shared_data / "igs21385.sp3")
+    sp3 = read_sp3(shared_data / "igs21385.sp3")
     return {
         "nav": nav,
         "broadcast": BroadcastOrbits(nav),
-        "precise": products.PreciseOrbits(sp3),
+        "precise": PreciseOrbits(sp3),
         "obs": {s: read_obs(shared_data / f"{s}0010.21o.gz") for s in ("zimm", "cn00")},
         "station": {s: load_station(test_data / "stations" / f"{s}.toml") for s in ("zimm", "cn00")},
         "met": read_met(shared_data / "zimm0010.21m"),
@@ -101,7 +102,8 @@ def test_ionex_maps_are_used_for_single_frequency(real, test_data):
     # single-frequency ionosphere column is the map's slant delay at each row.
     import dataclasses
 
-    from ctt.atmosphere import ionex_slant_delay_m, read_ionex
+    from ctt.atmosphere import ionex_slant_delay_m
+    from ctt.formats.ionex import read_ionex
     from ctt.geodesy import ecef_to_geodetic
 
     ionex = read_ionex(test_data / "atmosphere" / "hand0010.21i")
@@ -177,7 +179,7 @@ def test_tracks_command_with_precise_orbits(shared_data, test_data, tmp_path):
     # ctt tracks with IGS finals: no broadcast IODE exists, so IOE is the format's 'not available';
     # with broadcast orbits IOE follows the ephemeris in force at each track's midpoint.
     from ctt.cli import main
-    from ctt.exports import read_cggtts
+    from ctt.formats.cggtts import read_cggtts
 
     args = [str(shared_data / "zimm0010.21o.gz"), "--nav", str(shared_data / "brdc0010.21n"),
             "--station", str(test_data / "stations" / "zimm.toml")]

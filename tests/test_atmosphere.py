@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from ctt import atmosphere as atm
+from ctt.formats.ionex import read_ionex
 
 
 def test_saastamoinen_zhd_sea_level_45deg():
@@ -179,7 +180,7 @@ def test_single_layer_mapping_geometry():
 
 
 def test_read_hand_written_ionex(test_data):
-    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    m = read_ionex(test_data / "atmosphere" / "hand0010.21i")
     assert m.tec_tecu.shape == (3, 4, 17) and m.rms_tecu.shape == (3, 4, 17)
     assert m.height_m == 450e3 and m.base_radius_m == 6371e3 and m.mapping_function == "COSZ"
     # file epochs are UT (IONEX 1.0), stored on GPS time: + 18 s in 2021 (IERS Bulletin C)
@@ -197,7 +198,7 @@ def test_read_hand_written_ionex(test_data):
 
 
 def test_ionex_interpolation(test_data):
-    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    m = read_ionex(test_data / "atmosphere" / "hand0010.21i")
     T0, T1 = m.epochs_ns[0], m.epochs_ns[1]
     # bilinear at a map epoch, off the grid: exact for the file's linear field (IONEX 1.0 eq. 2)
     v = atm.ionex_vtec_tecu(m, T1, np.radians(47.3), np.radians(3.7))
@@ -235,7 +236,7 @@ def test_ionex_interpolation(test_data):
 
 
 def test_ionex_global_grid_wraps_in_longitude(test_data):
-    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    m = read_ionex(test_data / "atmosphere" / "hand0010.21i")
     for lon_grid in (np.arange(-180.0, 180.1, 5.0), np.arange(0.0, 356.0, 5.0)):
         # a field periodic in longitude: 10 + cos(lon); bilinear across the ±180° seam
         tec = np.broadcast_to(10 + np.cos(np.radians(lon_grid))[None, None, :], (3, 4, lon_grid.size)).copy()
@@ -247,7 +248,7 @@ def test_ionex_global_grid_wraps_in_longitude(test_data):
 
 
 def test_ionex_slant_delay(test_data):
-    m = atm.read_ionex(test_data / "atmosphere" / "hand0010.21i")
+    m = read_ionex(test_data / "atmosphere" / "hand0010.21i")
     t = m.epochs_ns[1]
     lat, lon = np.radians(45.0), np.radians(2.0)
     d, stec = atm.ionex_slant_delay_m(m, t, lat, lon, 0.0, np.pi / 2, 1575.42e6)
@@ -268,15 +269,15 @@ def test_ionex_format_errors(tmp_path, test_data):
     p = tmp_path / "bad.21i"
     p.write_text(text.replace("  180  185  190", "  180  18x  190", 1))
     with pytest.raises(ProductFormatError, match=r"bad.21i:22: expected integer values"):
-        atm.read_ionex(p)
+        read_ionex(p)
     p.write_text(text.replace("     3                                                      # OF MAPS",
                               "     4                                                      # OF MAPS"))
     with pytest.raises(ProductFormatError, match="4 TEC maps"):
-        atm.read_ionex(p)
+        read_ionex(p)
     p.write_text(text.replace("     2                                                      MAP DIMENSION",
                               "     3                                                      MAP DIMENSION"))
     with pytest.raises(ProductFormatError, match="MAP DIMENSION 2"):
-        atm.read_ionex(p)
+        read_ionex(p)
     p.write_text(text.replace("    50.0 -40.0", "    55.0 -40.0", 1))
     with pytest.raises(ProductFormatError, match="latitude of the grid"):
-        atm.read_ionex(p)
+        read_ionex(p)

@@ -13,7 +13,8 @@ import numpy as np
 import pytest
 
 from ctt.config import load_station
-from ctt.exports import CggttsHeader, read_cggtts, station_tracks_to_cggtts, write_cggtts
+from ctt.exports import station_tracks_to_cggtts
+from ctt.formats.cggtts import CggttsHeader, read_cggtts, write_cggtts
 from ctt.measure import MeasureOptions
 from ctt.pipeline import PairInputs, PairOptions, load_orbits, measure_file, run_pair
 

@@ -16,7 +16,7 @@ from ctt.config import load_station
 from ctt.measure import (C_MPS, OMEGA_E, MeasureOptions, light_time, measure_station,
                          sagnac_closed_form_m)
 from ctt.orbits import SatStates
-from ctt.rinex.obs import ObsData, ObsHeader
+from ctt.formats.rinex_obs import ObsData, ObsHeader
 
 T0 = ts.civil_to_ns(2021, 1, 1)  # GPS
 R_ORBIT = 26_560e3               # GPS semi-major axis, common practice
@@ -245,8 +245,8 @@ def test_each_galileo_satellite_uses_the_message_of_its_signals():
     import pathlib
 
     from ctt.orbits import BroadcastOrbits
-    from ctt.rinex.nav import read_nav
-    from ctt.rinex.obs import read_obs
+    from ctt.formats.rinex_nav import read_nav
+    from ctt.formats.rinex_obs import read_obs
 
     demo = pathlib.Path(__file__).resolve().parents[1] / "data_demo"
     nav = read_nav(next(demo.glob("BRDC*_MN.rnx")))

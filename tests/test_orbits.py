@@ -15,7 +15,7 @@ from scipy.optimize import brentq
 
 from ctt import orbits
 from ctt.orbits import BroadcastOrbits, solve_kepler
-from ctt.rinex.nav import read_nav
+from ctt.formats.rinex_nav import read_nav
 from ctt.timescales import civil_to_ns
 
 

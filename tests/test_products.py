@@ -1,4 +1,4 @@
-"""Behaviour of ctt.rinex.products: SP3, RINEX clock and ANTEX readers, interpolation, Sun.
+"""Behaviour of the SP3, RINEX clock and ANTEX readers (ctt.formats) and of precise interpolation and the Sun (ctt.orbits).
 
 The small files in tests/data/products were written by hand following the
 published layouts (SP3-d format document; RINEX clock 3.00 and 3.04 format
@@ -15,7 +15,8 @@ import numpy as np
 import pytest
 
 from ctt.errors import OutOfSpanError, ProductFormatError
-from ctt.rinex import products as P
+from ctt import orbits as P
+from ctt.formats import antex as ATX, rinex_clock as CLK, sp3 as SP3
 from ctt.timescales import NS_PER_S, civil_to_ns
 
 
@@ -30,7 +31,7 @@ T0 = int(civil_to_ns(2021, 1, 1))
 # ------------------------------------------------------------------ SP3-d reader
 
 def test_sp3d_header_fields(pdir):
-    d = P.read_sp3(pdir / "mixed_sp3d.sp3")
+    d = SP3.read_sp3(pdir / "mixed_sp3d.sp3")
     h = d.header
     # SP3-d line 1/2 layout (format document): version col 2, P/V flag col 3,
     # epochs cols 33-39, coordinate system cols 47-51, orbit type 53-55, agency 57-60.
@@ -47,7 +48,7 @@ def test_sp3d_header_fields(pdir):
 
 
 def test_sp3d_values_units_and_bad_values(pdir):
-    d = P.read_sp3(pdir / "mixed_sp3d.sp3")
+    d = SP3.read_sp3(pdir / "mixed_sp3d.sp3")
     g, e, r = 0, 1, 2
     # positions km -> m, clocks microseconds -> s (SP3 layout, columns 5-60)
     assert np.allclose(d.pos_m[0, g], [13000e3, -22000e3, -5000e3], rtol=0, atol=1e-6)
@@ -70,7 +71,7 @@ def test_sp3d_values_units_and_bad_values(pdir):
 
 
 def test_sp3d_flags(pdir):
-    d = P.read_sp3(pdir / "mixed_sp3d.sp3")
+    d = SP3.read_sp3(pdir / "mixed_sp3d.sp3")
     # flag columns of the SP3-c/d P record: 75 'E' clock event, 76 'P' clock
     # prediction, 79 'M' manoeuvre, 80 'P' orbit prediction
     assert d.clock_event[1, 0] and d.clock_predicted[1, 0] and d.manoeuvre[1, 0]
@@ -83,7 +84,7 @@ def test_sp3_compressed_gives_same_data(pdir, tmp_path):
     raw = (pdir / "mixed_sp3d.sp3").read_bytes()
     gz = tmp_path / "mixed.sp3.gz"
     gz.write_bytes(gzip.compress(raw))
-    a, b = P.read_sp3(pdir / "mixed_sp3d.sp3"), P.read_sp3(gz)
+    a, b = SP3.read_sp3(pdir / "mixed_sp3d.sp3"), SP3.read_sp3(gz)
     assert np.array_equal(a.pos_m, b.pos_m, equal_nan=True)
     assert np.array_equal(a.time_ns, b.time_ns)
 
@@ -92,7 +93,7 @@ def test_sp3_time_system_converted_to_gps(pdir, tmp_path):
     text = (pdir / "mixed_sp3d.sp3").read_text().replace("%c M  cc GPS", "%c M  cc UTC", 1)
     f = tmp_path / "utc.sp3"
     f.write_text(text)
-    d = P.read_sp3(f)
+    d = SP3.read_sp3(f)
     # GPS - UTC = 18 s in 2021 (IERS Bulletin C)
     assert d.header.time_system == "UTC"
     assert d.time_ns[0] - d.time_file_ns[0] == 18 * NS_PER_S
@@ -110,7 +111,7 @@ def test_sp3_bad_input_names_file_and_line(pdir, tmp_path, old, new, line, what)
     f = tmp_path / "bad.sp3"
     f.write_text(text.replace(old, new, 1))
     with pytest.raises(ProductFormatError) as exc:
-        P.read_sp3(f)
+        SP3.read_sp3(f)
     assert exc.value.line == line and what in exc.value.expected
     assert str(f) in str(exc.value)
 
@@ -144,9 +145,9 @@ def _synthetic_sp3(n_ep=96, step_s=900, clock=None):
     pos = x[:, None, :]
     clk = np.full((n_ep, 1), 1e-4) if clock is None else clock[:, None]
     z = np.zeros((n_ep, 1), dtype=bool)
-    hdr = P.SP3Header("d", "P", int(t[0]), n_ep, "", "", "", "", 0, 0.0, float(step_s), 0, 0.0, ["G01"],
+    hdr = SP3.SP3Header("d", "P", int(t[0]), n_ep, "", "", "", "", 0, 0.0, float(step_s), 0, 0.0, ["G01"],
                       {}, "G", "GPS", 0.0, 0.0, [])
-    return P.SP3Data("synthetic", hdr, t, t.copy(), np.array(["G01"]), pos, clk, None, None,
+    return SP3.SP3Data("synthetic", hdr, t, t.copy(), np.array(["G01"]), pos, clk, None, None,
                      np.full(pos.shape, np.nan), np.full(clk.shape, np.nan), z, z.copy(), z.copy(), z.copy(),
                      {}, [])
 
@@ -198,7 +199,7 @@ def test_out_of_span_gap_and_unknown_satellite():
     assert list(st.pos_status) == [P.STATUS_OUT_OF_SPAN, P.STATUS_OUT_OF_SPAN, P.STATUS_GAP,
                                    P.STATUS_OK, P.STATUS_NO_DATA]
     assert np.isnan(st.pos_m[[0, 1, 2, 4]]).all() and np.isfinite(st.pos_m[3]).all()
-    assert st.reason()[0] == P.STATUS_REASON[P.STATUS_OUT_OF_SPAN]
+    assert st.reason()[0] == P.PRECISE_STATUS_REASON[P.STATUS_OUT_OF_SPAN]
     with pytest.raises(OutOfSpanError, match="outside the span"):
         po.states(["G01"], [sp3.time_ns[-1] + 1], strict=True)
     with pytest.raises(OutOfSpanError, match="gap"):
@@ -206,7 +207,7 @@ def test_out_of_span_gap_and_unknown_satellite():
 
 
 def test_clock_linear_interpolation_gap_and_event(pdir):
-    d = P.read_sp3(pdir / "mixed_sp3d.sp3")
+    d = SP3.read_sp3(pdir / "mixed_sp3d.sp3")
     po = P.PreciseOrbits(d)
     t = T0 + np.array([150, 450, 450, 450, 150]) * NS_PER_S
     st = po.states(["E11", "E11", "G01", "R05", "G01"], t)
@@ -235,14 +236,14 @@ def test_leave_one_out_on_analytic_orbit_is_tiny():
 def test_merge_adjacent_files_extends_span():
     a = _synthetic_sp3(48)
     b = _synthetic_sp3(96)
-    b_part = P.SP3Data(**{**b.__dict__})
+    b_part = SP3.SP3Data(**{**b.__dict__})
     sel = slice(48, 96)
     for k in ("time_ns", "time_file_ns"):
         setattr(b_part, k, b.__dict__[k][sel])
     for k in ("pos_m", "clock_s", "pos_sdev_m", "clock_sdev_s", "clock_event", "clock_predicted",
               "manoeuvre", "orbit_predicted"):
         setattr(b_part, k, b.__dict__[k][sel])
-    m = P.merge_sp3([a, b_part])
+    m = SP3.merge_sp3([a, b_part])
     assert len(m.time_ns) == 96
     assert np.array_equal(m.pos_m, b.pos_m)
 
@@ -250,7 +251,7 @@ def test_merge_adjacent_files_extends_span():
 # ------------------------------------------------------------------ RINEX clock
 
 def test_clock_v300(pdir):
-    c = P.read_clock(pdir / "clock_v300.clk")
+    c = CLK.read_clock(pdir / "clock_v300.clk")
     assert c.version == 3.00 and c.time_system == "GPS"
     assert c.header["leap_seconds"] == 18 and c.header["analysis_center"] == "XYZ"
     assert c.header["satellites"] == ["G01", "G02"] and "STA1" in c.header["stations"]
@@ -269,7 +270,7 @@ def test_clock_v300(pdir):
 
 
 def test_clock_v304_nine_character_names(pdir):
-    c = P.read_clock(pdir / "clock_v304.clk")
+    c = CLK.read_clock(pdir / "clock_v304.clk")
     assert c.version == 3.04 and c.time_system == "GAL"
     assert list(c.stations.names) == ["STAT00XYZ"]
     assert list(c.satellites.names) == ["E11", "G01"]
@@ -277,17 +278,17 @@ def test_clock_v304_nine_character_names(pdir):
 
 
 def test_clock_series_interpolation_and_gap(pdir):
-    s = P.read_clock(pdir / "clock_v300.clk").satellites
+    s = CLK.read_clock(pdir / "clock_v300.clk").satellites
     t = T0 + np.array([15, 45, 120, 200]) * NS_PER_S
-    v, st = s.at(["G01", "G01", "G01", "G01"], t)
+    v, st = P.interpolate_clock_series(s, ["G01", "G01", "G01", "G01"], t)
     assert v[0] == pytest.approx(1.00015e-4, abs=1e-17) and v[1] == pytest.approx(1.00045e-4, abs=1e-17)
     # 00:01 -> 00:03 is four nominal 30 s intervals: a gap (> 1.5 x nominal)
     assert st[2] == P.STATUS_GAP and st[3] == P.STATUS_OUT_OF_SPAN
 
 
 def test_precise_orbits_take_clocks_from_clock_file(pdir):
-    d = P.read_sp3(pdir / "mixed_sp3d.sp3")
-    c = P.read_clock(pdir / "clock_v300.clk")
+    d = SP3.read_sp3(pdir / "mixed_sp3d.sp3")
+    c = CLK.read_clock(pdir / "clock_v300.clk")
     st = P.PreciseOrbits(d, clk=c).states(["G01"], [T0 + 15 * NS_PER_S])
     assert st.clock_s[0] == pytest.approx(1.00015e-4, abs=1e-17)
 
@@ -297,14 +298,14 @@ def test_clock_bad_record_names_line(pdir, tmp_path):
     f = tmp_path / "bad.clk"
     f.write_text(text)
     with pytest.raises(ProductFormatError) as exc:
-        P.read_clock(f)
+        CLK.read_clock(f)
     assert exc.value.line == 20
 
 
 # ------------------------------------------------------------------ ANTEX
 
 def test_antex_satellite_blocks(pdir):
-    a = P.read_antex(pdir / "satellites.atx")
+    a = ATX.read_antex(pdir / "satellites.atx")
     assert a.version == 1.4 and a.pcv_type == "A"
     assert [b["prn"] for b in a.satellites] == ["G01", "G01", "E11"]
     assert a.n_receiver_antennas == 1
@@ -317,7 +318,7 @@ def test_antex_satellite_blocks(pdir):
 
 
 def test_iono_free_offset_combination(pdir):
-    a = P.read_antex(pdir / "satellites.atx")
+    a = ATX.read_antex(pdir / "satellites.atx")
     pco = a.offset("E11", T0)["pco_m"]
     f1, f5 = 1575.42**2, 1176.45**2
     expect_z = (f1 * 0.95 - f5 * 0.80) / (f1 - f5)  # iono-free combination (common practice)
@@ -325,8 +326,8 @@ def test_iono_free_offset_combination(pdir):
 
 
 def test_antex_offset_applied_in_body_frame(pdir):
-    d = P.read_sp3(pdir / "mixed_sp3d.sp3")
-    a = P.read_antex(pdir / "satellites.atx")
+    d = SP3.read_sp3(pdir / "mixed_sp3d.sp3")
+    a = ATX.read_antex(pdir / "satellites.atx")
     com = P.PreciseOrbits(d)
     apc = P.PreciseOrbits(d, antex=a)
     assert not com.pco_applied and "centre of mass" in com.pco_note
@@ -349,7 +350,7 @@ def test_antex_bad_offset_line(pdir, tmp_path):
     f = tmp_path / "bad.atx"
     f.write_text(text)
     with pytest.raises(ProductFormatError, match="3F10.2"):
-        P.read_antex(f)
+        ATX.read_antex(f)
 
 
 # ------------------------------------------------------------------ Sun

@@ -8,7 +8,7 @@ import pytest
 
 from ctt import timescales as ts
 from ctt.errors import OutOfSpanError, RinexFormatError
-from ctt.rinex.met import interpolate_met, read_met
+from ctt.formats.rinex_met import interpolate_met, read_met
 
 
 def test_real_zimm_met_file(shared_data):

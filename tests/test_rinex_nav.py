@@ -1,4 +1,4 @@
-"""ctt.rinex.nav.read_nav behaviour: errors with file and line, dropped records, field layout.
+"""ctt.formats.rinex_nav.read_nav behaviour: errors with file and line, dropped records, field layout.
 
 The records used here are lines of the real IGS merged broadcast file layout
 (RINEX 2.11 / 3.04 standards, fixed 19-column D19.12 fields).
@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from ctt.errors import RinexFormatError
-from ctt.rinex.nav import read_nav
+from ctt.formats.rinex_nav import read_nav
 from ctt.timescales import civil_to_ns, week_sow_ns
 
 V2_HEADER = (

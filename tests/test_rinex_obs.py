@@ -1,4 +1,4 @@
-"""Behaviour of ctt.rinex.obs.read_obs and `ctt info`.
+"""Behaviour of ctt.formats.rinex_obs.read_obs and `ctt info`.
 
 Format facts are from the RINEX 2.11 and RINEX 3.05 format descriptions,
 cited beside each check. Small files are written here in
@@ -18,7 +18,7 @@ import pytest
 
 from ctt import cli
 from ctt.errors import RinexFormatError
-from ctt.rinex.obs import read_obs, read_obs_header
+from ctt.formats.rinex_obs import read_obs, read_obs_header
 from ctt.timescales import civil_to_ns
 
 
@@ -269,7 +269,7 @@ def _reference_field(text: str):
 
 @pytest.mark.parametrize("stream", [1, 2])
 def test_field_decoder_against_the_format_rule(stream):
-    from ctt.rinex.obs import _num_fields
+    from ctt.formats.rinex_obs import _num_fields
 
     rng = np.random.default_rng(stream)
     vals = np.concatenate([rng.uniform(-999999999.999, 9999999999.999, 3000),
@@ -472,7 +472,7 @@ def test_info_events_text(test_data, capsys):
 @pytest.mark.parametrize("name", ["edge_v305_mixed.rnx", "edge_v211_mixed.21o"])
 def test_bulk_walk_equals_epoch_by_epoch_walk(test_data, tmp_path, monkeypatch, name):
     """The bulk fast paths and the epoch-by-epoch walk must give the same result."""
-    import ctt.rinex.obs as obs_mod
+    import ctt.formats.rinex_obs as obs_mod
 
     path = test_data / "obs" / name
     lines = path.read_text().splitlines(keepends=True)
@@ -588,7 +588,7 @@ def test_header_only_rinex2_types(tmp_path):
 def test_block_decoding_equals_one_block(test_data, tmp_path, monkeypatch, name):
     """Large files are decoded in blocks of fields; small blocks must change nothing,
     and an error in a later block still names its own line."""
-    import ctt.rinex.obs as obs_mod
+    import ctt.formats.rinex_obs as obs_mod
 
     path = test_data / "obs" / name
     whole = obs_mod.read_obs(path)

@@ -103,7 +103,7 @@ def test_files_written(written):
 
 
 def test_project_reader_reads_back_exactly(written):
-    obs_mod = pytest.importorskip("ctt.rinex.obs")
+    obs_mod = pytest.importorskip("ctt.formats.rinex_obs")
     res, _ = written
     for sid, path in zip(res.stations, res.files["obs"]):
         r = res.stations[sid]
@@ -167,7 +167,7 @@ def test_georinex_reads_the_files(written):
 def test_nav_file_matches_the_truth_model(written):
     """ctt.orbits on the written nav file gives the simulator's satellites (both IS-GPS-200 Table 20-IV)."""
     orbits = pytest.importorskip("ctt.orbits")
-    nav_mod = pytest.importorskip("ctt.rinex.nav")
+    nav_mod = pytest.importorskip("ctt.formats.rinex_nav")
     res, _ = written
     nav = nav_mod.read_nav(res.files["nav"][0])
     bo = orbits.BroadcastOrbits(nav)
@@ -406,7 +406,7 @@ def test_resets_gaps_and_lli(written):
     assert np.all(r.lli["L1C"][mid][np.isfinite(r.obs["L1C"][mid])] <= 1)
     # RINEX epoch flag 1 ("power failure between previous and current epoch") on that epoch only
     assert r.epoch_flag[after] == 1 and r.epoch_flag.sum() == 1
-    obs_mod = pytest.importorskip("ctt.rinex.obs")
+    obs_mod = pytest.importorskip("ctt.formats.rinex_obs")
     o = obs_mod.read_obs(res.files["obs"][0])
     k = np.searchsorted(o.time_ns, r.time_ns[after])
     assert o.epoch_flag[k] == 1 and np.sum(o.epoch_flag == 1) == 1
@@ -510,7 +510,7 @@ def test_demo_regenerates_identically(tmp_path):
 
 
 def test_met_file_reads_back_with_the_project_reader(written):
-    met_mod = pytest.importorskip("ctt.rinex.met")
+    met_mod = pytest.importorskip("ctt.formats.rinex_met")
     res, _ = written
     r = res.stations["LABA"]
     m = met_mod.read_met(res.files["met"][0])
@@ -536,9 +536,9 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
     from ctt.config import load_station
     from ctt.measure import MeasureOptions, measure_station
     from ctt.orbits import BroadcastOrbits
-    from ctt.rinex.met import read_met
-    from ctt.rinex.nav import read_nav
-    from ctt.rinex.obs import read_obs
+    from ctt.formats.rinex_met import read_met
+    from ctt.formats.rinex_nav import read_nav
+    from ctt.formats.rinex_obs import read_obs
 
     data = _base(hours=1.0)
     data["stations"] = data["stations"][:1]
@@ -562,7 +562,7 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
 
 def test_multi_day_scenario_writes_daily_files(tmp_path):
     config = pytest.importorskip("ctt.config")
-    obs_mod = pytest.importorskip("ctt.rinex.obs")
+    obs_mod = pytest.importorskip("ctt.formats.rinex_obs")
     data = _base(hours=48.0)
     data["scenario"]["interval_s"] = 300.0  # keeps the test quick
     res = simulate(scenario_from_dict(data))

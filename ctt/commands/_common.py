@@ -53,7 +53,7 @@ def measure_options(args, base: MeasureOptions | None = None) -> MeasureOptions:
     if args.iono_model:
         kw["iono_model"] = args.iono_model
     if getattr(args, "bias", None):
-        from ..signals import read_bias_sinex
+        from ..formats.bias_sinex import read_bias_sinex
 
         kw["biases"] = read_bias_sinex(args.bias)
     for name in SWITCHES:
@@ -89,7 +89,7 @@ def measure_station_day(args):
     orbits, nav_header, reference, _ = load_orbits(inputs, "auto")
     ionex = None
     if args.ionex:
-        from ..atmosphere import read_ionex
+        from ..formats.ionex import read_ionex
 
         ionex = read_ionex(args.ionex)
     day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, ionex=ionex,

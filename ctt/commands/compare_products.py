@@ -182,8 +182,9 @@ def _nav_satellites(nav) -> set:
 def run_comparison(nav_path, sp3_paths, clk_path=None, antex_path=None):
     """Read the files and compare; returns ``(result, details, precise_orbits)``."""
     from ..orbits import BroadcastOrbits
-    from ..rinex.nav import read_nav
-    from ..rinex.products import PreciseOrbits, read_sp3
+    from ..formats.rinex_nav import read_nav
+    from ..formats.sp3 import read_sp3
+    from ..orbits import PreciseOrbits
 
     if isinstance(sp3_paths, (str, bytes)) or not hasattr(sp3_paths, "__iter__"):
         sp3_paths = [sp3_paths]

@@ -11,7 +11,7 @@ from __future__ import annotations
 import json
 import math
 
-from ..rinex.obs import SYSTEM_NAMES, read_obs
+from ..formats.rinex_obs import SYSTEM_NAMES, read_obs
 
 
 def register(subparsers) -> None:

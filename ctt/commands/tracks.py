@@ -27,7 +27,8 @@ def register(sub) -> None:
 
 def run(args) -> int:
     from .. import timescales as ts
-    from ..exports import CggttsHeader, station_tracks_to_cggtts, write_cggtts
+    from ..exports import station_tracks_to_cggtts
+    from ..formats.cggtts import CggttsHeader, write_cggtts
 
     station, day, opts = measure_station_day(args)
     reference = day.reference

@@ -330,7 +330,7 @@ def write_nav3(path, records: list, *, iono: dict | None = None, time_correction
 
     ``records``: list of dicts with ``sat`` ('G07', 'E11'), ``toc_ns`` (int64
     calendar count of the system's time: GPS or GST), ``af0_s``, ``af1_sps``,
-    ``af2_sps2`` and the orbit fields named as in :mod:`ctt.rinex.nav`
+    ``af2_sps2`` and the orbit fields named as in :mod:`ctt.formats.rinex_nav`
     (``iode``, ``crs_m``, ... ``tgd_s`` for GPS, ``bgd_e5a_s``/``bgd_e5b_s``
     and ``data_source`` for Galileo; ``fit_h`` the GPS fit interval in hours).
     ``iono``: ``{'GPSA': [4], 'GPSB': [4], 'GAL': [3]}``;

@@ -1,1 +1,0 @@
-"""Readers for the RINEX family of open formats (observation, navigation, meteorological, products)."""
