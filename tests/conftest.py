@@ -21,5 +21,16 @@ def shared_data() -> pathlib.Path:
 
 
 @pytest.fixture(scope="session")
+def shared_set():
+    """``shared_set("real-2011-283")``: that folder of ../shared/data; skips when absent."""
+    def get(name: str) -> pathlib.Path:
+        folder = SHARED_DATA / name
+        if not folder.is_dir():
+            pytest.skip(f"real open data not present at {folder} (../shared/data beside the project)")
+        return folder
+    return get
+
+
+@pytest.fixture(scope="session")
 def test_data() -> pathlib.Path:
     return TEST_DATA

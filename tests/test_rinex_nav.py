@@ -229,3 +229,15 @@ def test_blank_lines_in_body_are_ignored_with_true_line_numbers(tmp_path):
     with pytest.raises(RinexFormatError) as ei:
         read_nav(_write(tmp_path, bad, "bad.21n"))
     assert ei.value.line == 9 and bad.splitlines()[8].startswith("    5.9")
+
+
+def test_bare_integer_version_2_and_unknown_versions(tmp_path):
+    # "     2" (no decimals, written by some archive tools) is RINEX 2.00, whose GPS navigation
+    # record has the 2.11 layout used above; 2.50 never existed (RINEX 2.11 document's history,
+    # from memory) and is refused naming line 1.
+    nav = read_nav(_write(tmp_path, V2_HEADER.replace("     2.11   ", "     2      ", 1) + V2_REC))
+    assert nav.header.version == 2.0
+    assert len(nav.records["G"]) == 1
+    with pytest.raises(RinexFormatError) as exc:
+        read_nav(_write(tmp_path, V2_HEADER.replace("     2.11   ", "     2.50   ", 1) + V2_REC, "u.21n"))
+    assert exc.value.line == 1 and "u.21n" in str(exc.value)

@@ -163,6 +163,22 @@ def test_unknown_version(tmp_path):
     _raises(tmp_path, text, 1, "RINEX version")
 
 
+def test_version_that_never_existed_refused(tmp_path):
+    # RINEX 2 versions are 2.00-2.02, 2.10 and 2.11 (from memory of the RINEX 2.11 document's history)
+    text = small_v3().replace("     3.05     ", "     2.50     ", 1)
+    _raises(tmp_path, text, 1, "RINEX version")
+
+
+def test_bare_integer_version_2_is_read(shared_set):
+    # The archived CAGZ file writes its version as "     2" (no decimals); it is RINEX 2.00 and
+    # its own header says 2880 epochs at 30 s from 00:00:00 to 23:59:30 with P1/P2/C1 (data README).
+    d = read_obs(shared_set("real-2011-283") / "cagz2830.11d")
+    assert d.header.version == 2.0
+    assert d.header.marker_name.startswith("CAGZ")
+    assert len(d.time_ns) == 2880 and (np.diff(d.time_ns) == 30 * 10**9).all()
+    assert {"C1C", "C1W", "C2W", "L1C", "L2W"} <= set(d.obs)
+
+
 def test_missing_end_of_header(tmp_path):
     text = small_v3().replace(hl("", "END OF HEADER"), "")
     # the error points at the first epoch record, met where END OF HEADER was due

@@ -86,6 +86,7 @@ import pandas as pd
 from ..errors import RinexFormatError
 from ..timescales import NS_PER_S, NS_PER_WEEK, SYSTEM_SCALE, civil_to_ns, convert, unwrap_week, week_sow_ns
 from .compression import display_name, read_text
+from .rinex_obs import SUPPORTED_VERSIONS
 
 W = 19  # width of a D19.12 field
 
@@ -196,6 +197,10 @@ def _parse_header(lines, name):
         version = float(first[:9])
     except ValueError:
         raise RinexFormatError(name, 1, "the format version (F9.2) in columns 1-9", first) from None
+    if round(version, 2) not in SUPPORTED_VERSIONS:
+        raise RinexFormatError(name, 1, "RINEX version 2.00-2.02, 2.10-2.12, 3.00-3.05 or 4.00-4.02",
+                               first[:9].strip())
+    version = round(version, 2)
     ftype = first[20:21].upper()
     sysc = first[40:41].upper()
     iono, corr, leap, comments = {}, {}, None, []

@@ -1,4 +1,4 @@
-"""RINEX observation reader: versions 2.10/2.11, 3.00-3.05 and 4.00-4.02.
+"""RINEX observation reader: versions 2.00-2.11, 3.00-3.05 and 4.00-4.02.
 
 ``read_obs(path)`` returns an :class:`ObsData` with the header
 (:class:`ObsHeader`), epochs as int64 calendar-count nanoseconds of the file's
@@ -100,7 +100,14 @@ __all__ = ["ObsHeader", "ObsData", "read_obs", "read_obs_header", "V2_TO_V3", "S
 SYSTEMS = "GRECJSI"
 SYSTEM_NAMES = {"G": "GPS", "R": "GLONASS", "E": "Galileo", "C": "BeiDou", "J": "QZSS",
                 "S": "SBAS", "I": "IRNSS/NavIC", "M": "mixed"}
-SUPPORTED_VERSIONS = (2.10, 2.11, 3.00, 3.01, 3.02, 3.03, 3.04, 3.05, 4.00, 4.01, 4.02)
+#: Versions that exist and are read. RINEX 2.00-2.02 (from memory: 2.00 the
+#: original version 2, 2.01/2.02 adding GLONASS and GEO satellites) share the
+#: 2.10 record layout that is read here; the differences (2.10 added the S/D
+#: types' signal-strength convention and the receiver clock offset flag, 2.11
+#: the C2/L5 codes; 2.12, a draft adding Galileo, found in some archives) are in
+#: which observation types appear, and the RINEX 2 -> 3 code table covers them all. Some archive tools write the
+#: version as a bare integer ("     2", no decimals): that is version 2.00.
+SUPPORTED_VERSIONS = (2.00, 2.01, 2.02, 2.10, 2.11, 2.12, 3.00, 3.01, 3.02, 3.03, 3.04, 3.05, 4.00, 4.01, 4.02)
 
 # Default time system when TIME OF FIRST OBS leaves it blank (RINEX 3.05, TIME OF
 # FIRST OBS: "GPS for pure GPS files, GLO for pure GLONASS files, GAL for pure
@@ -587,7 +594,7 @@ def _parse_header(src: _Source) -> ObsHeader:
     except ValueError:
         raise src.error(0, "a version number (F9.2) in columns 1-9") from None
     if round(version, 2) not in SUPPORTED_VERSIONS:
-        raise src.error(0, "RINEX version 2.10, 2.11, 3.00-3.05 or 4.00-4.02", first[:9].strip())
+        raise src.error(0, "RINEX version 2.00-2.02, 2.10-2.12, 3.00-3.05 or 4.00-4.02", first[:9].strip())
     version = round(version, 2)
     ftype = first[20:21].upper()
     if ftype != "O":
