@@ -80,6 +80,33 @@ def test_sp3d_flags(pdir):
     assert d.clock_event.sum() == 2 and d.manoeuvre.sum() == 1
 
 
+def _sp3_error(tmp_path, data: bytes) -> ProductFormatError:
+    p = tmp_path / "bad.sp3"
+    p.write_bytes(data)
+    with pytest.raises(ProductFormatError) as exc:
+        SP3.read_sp3(p)
+    assert str(p) in str(exc.value)
+    return exc.value
+
+
+def test_sp3_non_ascii_satellite_ids_name_the_line(pdir, tmp_path):
+    # SP3-d layout: '+' lines hold 3-character ids from column 10, 'P' records from column 2.
+    lines = (pdir / "mixed_sp3d.sp3").read_bytes().split(b"\n")
+    bad = list(lines)
+    bad[2] = bad[2][:9] + b"\xe9" + bad[2][10:]
+    assert _sp3_error(tmp_path, b"\n".join(bad)).line == 3
+    first_p = next(i for i, ln in enumerate(lines) if ln.startswith(b"P"))
+    bad = list(lines)
+    bad[first_p] = b"P\xe9" + bad[first_p][2:]
+    assert _sp3_error(tmp_path, b"\n".join(bad)).line == first_p + 1
+
+
+def test_sp3_header_with_zero_satellites_refused(pdir, tmp_path):
+    lines = (pdir / "mixed_sp3d.sp3").read_bytes().split(b"\n")
+    lines[2] = b"+    0" + lines[2][6:]
+    assert _sp3_error(tmp_path, b"\n".join(lines)).line == 3
+
+
 def test_sp3_compressed_gives_same_data(pdir, tmp_path):
     raw = (pdir / "mixed_sp3d.sp3").read_bytes()
     gz = tmp_path / "mixed.sp3.gz"

@@ -241,3 +241,35 @@ def test_bare_integer_version_2_and_unknown_versions(tmp_path):
     with pytest.raises(RinexFormatError) as exc:
         read_nav(_write(tmp_path, V2_HEADER.replace("     2.11   ", "     2.50   ", 1) + V2_REC, "u.21n"))
     assert exc.value.line == 1 and "u.21n" in str(exc.value)
+
+
+@pytest.mark.parametrize("line_in_record, col, text", [
+    (1, 3, "NaN"), (1, 3, "inf"),          # IODE (RINEX 2.11 broadcast orbit 1, first field)
+    (5, 41, "NaN"), (5, 41, "1.0D+300"),   # GPS week (broadcast orbit 5, third field)
+    (6, 22, "-inf"),                       # SV health (broadcast orbit 6, second field)
+    (6, 60, "NaN"),                        # IODC (broadcast orbit 6, fourth field)
+    (7, 22, "1.0D+09"),                    # fit interval in hours (broadcast orbit 7)
+    (3, 60, "1.0D+300"),                   # sqrt(A)
+])
+def test_non_finite_or_impossible_fields_name_file_and_line(tmp_path, line_in_record, col, text):
+    # Field positions of the RINEX 2.11 GPS navigation record (4X,4D19.12 continuation lines).
+    lines = V2_REC.splitlines(keepends=True)
+    ln = lines[line_in_record]
+    lines[line_in_record] = ln[:col] + text.rjust(19) + ln[col + 19:]
+    p = _write(tmp_path, V2_HEADER + "".join(lines))
+    with pytest.raises(RinexFormatError) as exc:
+        read_nav(p)
+    assert str(p) in str(exc.value)
+    assert exc.value.line in (7, 7 + line_in_record)   # the record's first line or the field's line
+
+
+def test_time_system_correction_with_impossible_week_refused(tmp_path, test_data):
+    text = (test_data / "nav" / "mixed_v304.rnx").read_text()
+    i = text.index("TIME SYSTEM CORR")
+    line_start = text.rindex("\n", 0, i) + 1
+    line = text[line_start:i]
+    bad = line[:45] + "99999" + line[50:]
+    p = _write(tmp_path, text[:line_start] + bad + text[i:], "w.rnx")
+    with pytest.raises(RinexFormatError) as exc:
+        read_nav(p)
+    assert exc.value.line == text[:line_start].count("\n") + 1

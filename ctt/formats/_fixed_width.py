@@ -58,4 +58,6 @@ def _sat_ids(raw: np.ndarray) -> np.ndarray:
     mat = raw.view(np.uint8).reshape(-1, 3).copy()
     mat[:, 0] = np.where(mat[:, 0] == 32, ord("G"), mat[:, 0])
     mat[:, 1:] = np.where(mat[:, 1:] == 32, ord("0"), mat[:, 1:])
-    return mat.view("S3").ravel().astype(str)
+    # latin-1 maps every byte to one character, so a stray non-ASCII byte gives an id
+    # that matches nothing (and is reported with its line) instead of a decode error
+    return np.char.decode(mat.view("S3").ravel(), "latin-1").astype("<U3")

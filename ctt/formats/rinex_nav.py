@@ -177,7 +177,10 @@ class NavData:
 # ------------------------------------------------------------------ header
 
 def _num(text: str) -> float:
-    return float(text.strip().replace("D", "E").replace("d", "e"))
+    v = float(text.strip().replace("D", "E").replace("d", "e"))
+    if not np.isfinite(v):
+        raise ValueError(f"not a finite number: {text!r}")
+    return v
 
 
 def _split_d(text: str, width: int, count: int):
@@ -233,6 +236,10 @@ def _parse_header(lines, name):
                     a0_s=_num(line[5:22]), a1_sps=_num(line[22:38]),
                     t_ref_s=int(rest[0]) if rest else 0, week=int(rest[1]) if len(rest) > 1 else 0,
                     source=" ".join(rest[2:]))
+                c = corr[line[:4].strip()]
+                if not (0 <= c["week"] <= 9999 and 0 <= c["t_ref_s"] <= 604800
+                        and np.isfinite(c["a0_s"]) and np.isfinite(c["a1_sps"])):
+                    raise ValueError("out of range")
             elif label == "LEAP SECONDS":
                 leap = int(line[:6])
         except (ValueError, IndexError):
@@ -363,7 +370,54 @@ def _bulk_floats(lines, recs, nlines, first_off, cont_off, fields, optional, nam
                         f"a number (D19.12) for {names[f]} in columns {c + 1}-{c + W}",
                         lines[recs[r] + k]) from None
         raise
+    # 'nan', 'inf' and overflowing exponents parse as floats but are no D19.12 value
+    bad = ~np.isfinite(vals) & ~blank
+    if bad.any():
+        r, f = np.argwhere(bad)[0]
+        k, c = where[f]
+        raise RinexFormatError(name, _lno(lines, recs[r] + k),
+                               f"a finite number (D19.12) for {names[f]} in columns {c + 1}-{c + W}",
+                               lines[recs[r] + k])
     return vals, names
+
+
+#: Plausible ranges of the fields that are integers in the navigation message (ICD
+#: field widths: IODE 8-10 bits, IODC 10 bits, health 6 bits or GLONASS/Galileo/BeiDou
+#: flags, weeks continuous counts < 10000 for any date this reader supports; BeiDou
+#: AODE up to 5 bits, Galileo IODnav 10 bits). Values outside are a broken file.
+_INT_RANGE = {"iode": (0, 1023), "iodc": (0, 1023), "week": (0, 9999), "health": (0, 2**31 - 1),
+              "freq_num": (-20, 20)}
+
+
+def _check_integer_fields(s, df, name):
+    """Refuse integer fields that are not whole numbers in range (file and record line named)."""
+    for col, (lo, hi) in _INT_RANGE.items():
+        if col not in df:
+            continue
+        v = df[col].to_numpy(dtype=float)
+        bad = ~np.isfinite(v) | (v < lo) | (v > hi) | (v != np.floor(v))
+        if bad.any():
+            r = int(np.argmax(bad))
+            raise RinexFormatError(name, int(df["line"].iloc[r]),
+                                   f"a whole number {lo}..{hi} for {col} in the record starting here",
+                                   str(df[col].iloc[r]))
+    # No field of any navigation message reaches 1e10 in its RINEX unit (times of week
+    # < 604800 s or the 0.9999E9 'unknown' mark, GLONASS positions in km, sqrt(A) about
+    # 5e3 m^1/2), and sqrt(A) of a GNSS orbit lies between 1e3 and 1e4 m^1/2.
+    for col in df.columns:
+        if col in ("line", "sat", "message", "toc_ns"):
+            continue
+        v = df[col].to_numpy(dtype=float)
+        bad = np.isfinite(v) & (np.abs(v) >= 1e10)
+        if col == "sqrt_a_sqrtm":
+            bad |= np.isfinite(v) & ((v < 1e3) | (v > 1e4))
+        if col == "fit_raw":   # hours (GPS/QZSS: a flag or 4..98 h; IS-GPS-200 Table 20-XII)
+            bad |= np.isfinite(v) & ((v < 0) | (v > 1000))
+        if bad.any():
+            r = int(np.argmax(bad))
+            raise RinexFormatError(name, int(df["line"].iloc[r]),
+                                   f"a value of {col} within the navigation message's range "
+                                   "in the record starting here", str(df[col].iloc[r]))
 
 
 def _parse_epochs(lines, recs, v3, name):
@@ -440,6 +494,7 @@ def _parse_system(s, lines, entries, hdr, name, dropped):
 
 
 def _finish(s, df, name):
+    _check_integer_fields(s, df, name)
     scale = SYSTEM_SCALE[s] if s != "R" else "UTC"
     df["toc_gps_ns"] = convert(df["toc_ns"].to_numpy(), scale, "GPS")
     if s == "R":

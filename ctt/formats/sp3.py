@@ -194,7 +194,14 @@ def read_sp3(path) -> SP3Data:
     if len(hdr_sats_raw) != n_sat:
         raise ProductFormatError(path_s, 3, f"{n_sat} satellite ids in the '+' lines",
                                  f"{len(hdr_sats_raw)} ids")
-    hdr_sats = list(_sat_ids(np.array([s.encode() for s in hdr_sats_raw], dtype="S3")))
+    if n_sat <= 0:
+        raise ProductFormatError(path_s, 3, "a positive number of satellites in columns 2-6 of the first '+' line",
+                                 str(n_sat))
+    hdr_sats = list(_sat_ids(np.array([s.encode("latin-1") for s in hdr_sats_raw], dtype="S3")))
+    bad_id = [k for k, s in enumerate(hdr_sats) if not (s[0] in "GRECJSIL" and s[1:].isdigit() and s.isascii())]
+    if bad_id:
+        raise ProductFormatError(path_s, 3, "satellite ids (system letter and two digits) in the '+' lines",
+                                 hdr_sats[bad_id[0]])
     acc = {}
     for s, a in zip(hdr_sats, acc_fields[:n_sat]):
         try:
