@@ -15,6 +15,7 @@ Station file
     id = "LABA"                 # 4-9 letters/digits
     name = "Invented Lab A, roof antenna"
     elevation_mask_deg = 10.0   # optional, default 10
+    marker_names = ["LABA-16"]  # optional: other names its RINEX/CGGTTS files use (MARKER NAME, LAB)
     [station.position]          # antenna reference point or marker, ECEF metres
     x_m = 4000000.0
     y_m = 500000.0
@@ -152,7 +153,7 @@ from .timescales import civil_to_ns, date_to_ns, gps_week_sow, parse_iso, to_iso
 __all__ = [
     "Antenna", "DelaySet", "HardwareChange", "StationConfig", "PairConfig", "Processing",
     "load_station", "dump_station", "load_pair", "format_pattern", "pattern_fields",
-    "R_MIN_M", "R_MAX_M",
+    "R_MIN_M", "R_MAX_M", "check_station_data", "check_distinct_stations", "names_match",
 ]
 
 #: Sanity bounds of the geocentric radius of a station (common practice: ellipsoid +- a few km).
@@ -419,6 +420,7 @@ class StationConfig:
     path: pathlib.Path | None
     sha256: str                     # SHA-256 of the file's bytes
     content_sha256: str = ""        # SHA-256 of dump_station(self): the normalised content
+    marker_names: tuple[str, ...] = ()  # other names the station's data files use for it
 
     @property
     def arp_m(self) -> np.ndarray:
@@ -455,6 +457,79 @@ class StationConfig:
 
     def changes_between(self, t0_ns: int, t1_ns: int) -> tuple[HardwareChange, ...]:
         return tuple(c for c in self.changes if t0_ns <= c.time_utc_ns < t1_ns)
+
+
+# ---------------------------------------------------------------- data files against station files
+
+#: A data file's approximate position farther than this from its station file's is refused (m) ...
+INPUT_POSITION_REFUSE_M = 1000.0
+#: ... and farther than this draws a warning (m): RINEX headers are approximate.
+INPUT_POSITION_WARN_M = 100.0
+
+
+def names_match(station: StationConfig, name: str) -> bool:
+    """A data file's station name belongs to the station: its first four characters are the
+    id's (case-insensitive; RINEX 2 names files and markers by four characters, common
+    practice), or it is one of the station file's ``marker_names``."""
+    n = (name or "").strip().upper()
+    if not n:
+        return False
+    return n[:4] == station.id[:4].upper() or n in {m.strip().upper() for m in station.marker_names}
+
+
+def check_station_data(station: StationConfig, data_file, name: str, position_m, *,
+                       what: str = "MARKER NAME", force: bool = False) -> list[str]:
+    """Check that a data file belongs to a station file: name and approximate position.
+
+    ``name`` is the file's station name (RINEX ``MARKER NAME``, CGGTTS ``LAB``) and
+    ``position_m`` its approximate ECEF position (RINEX ``APPROX POSITION XYZ``,
+    CGGTTS ``X/Y/Z``; NaN or zero when the file has none). The name must satisfy
+    :func:`names_match`; the position must lie within ``INPUT_POSITION_REFUSE_M`` of
+    the station file's (a warning above ``INPUT_POSITION_WARN_M``). A mismatch raises
+    :class:`ctt.errors.UsageError` naming both files and the two names or the
+    distance, unless ``force`` (then it is returned as a warning). Returns the
+    warnings (the caller logs and records them)."""
+    from .errors import UsageError
+
+    warnings_out, problems = [], []
+    shown = (name or "").strip()
+    if not shown:
+        warnings_out.append(f"{data_file}: no {what}; cannot check that it belongs to {station.id} ({station.path})")
+    elif not names_match(station, shown):
+        also = f" or any of its marker_names {list(station.marker_names)}" if station.marker_names else ""
+        problems.append(f"{data_file}: {what} {shown!r} does not match station {station.id!r} of {station.path}"
+                        f"{also}")
+    pos = np.asarray(position_m, dtype=float) if position_m is not None else np.full(3, np.nan)
+    if pos.shape != (3,) or not np.all(np.isfinite(pos)) or float(np.linalg.norm(pos)) < 1.0:
+        warnings_out.append(f"{data_file}: no approximate position; its distance from {station.id} "
+                            f"({station.path}) is not checked")
+    else:
+        d = float(np.linalg.norm(pos - np.asarray(station.position_m, dtype=float)))
+        if d > INPUT_POSITION_REFUSE_M:
+            problems.append(f"{data_file}: approximate position is {d / 1000:.1f} km from the position of "
+                            f"{station.id} in {station.path} (more than {INPUT_POSITION_REFUSE_M / 1000:g} km)")
+        elif d > INPUT_POSITION_WARN_M:
+            warnings_out.append(f"{data_file}: approximate position is {d:.0f} m from the position of "
+                                f"{station.id} in {station.path} (more than {INPUT_POSITION_WARN_M:g} m; headers "
+                                "are approximate, but check the coordinates)")
+    if problems:
+        if not force:
+            raise UsageError("; ".join(problems) + " (the files do not belong together; "
+                             "--force-inputs processes them anyway)")
+        warnings_out.extend(p + " (processed anyway: --force-inputs)" for p in problems)
+    return warnings_out
+
+
+def check_distinct_stations(station_a: StationConfig, station_b: StationConfig) -> None:
+    """Refuse the same station as A and B (same id, or the same coordinates within 1 mm)."""
+    from .errors import UsageError
+
+    if station_a.id.upper() == station_b.id.upper():
+        raise UsageError(f"station A ({station_a.path}) and station B ({station_b.path}) are the same station "
+                         f"{station_a.id!r}; a pair needs two stations")
+    if float(np.linalg.norm(np.asarray(station_a.position_m) - np.asarray(station_b.position_m))) < 1e-3:
+        raise UsageError(f"station A {station_a.id} ({station_a.path}) and station B {station_b.id} "
+                         f"({station_b.path}) have the same coordinates; a pair needs two stations")
 
 
 # ---------------------------------------------------------------- patterns
@@ -515,7 +590,7 @@ def _as_date(date) -> _dt.date:
 
 # ---------------------------------------------------------------- station files
 
-_STATION_KEYS = {"id", "name", "elevation_mask_deg", "position", "antenna", "met"}
+_STATION_KEYS = {"id", "name", "elevation_mask_deg", "position", "antenna", "met", "marker_names"}
 _POSITION_KEYS = {"x_m", "y_m", "z_m", "sigma_m", "sigma_x_m", "sigma_y_m", "sigma_z_m", "frame",
                   "epoch", "is_marker"}
 _ANTENNA_KEYS = {"type", "delta_h_m", "delta_e_m", "delta_n_m"}
@@ -539,6 +614,10 @@ def load_station(path) -> StationConfig:
     name = r.text(st, "name", "station.name", "a descriptive name", required=False, default="")
     mask = r.number(st, "elevation_mask_deg", "station.elevation_mask_deg", "an angle in degrees",
                     required=False, default=10.0, lo=0.0, hi=90.0)
+    marker_names = st.get("marker_names", [])
+    if not isinstance(marker_names, list) or any(not isinstance(m, str) or not m.strip() for m in marker_names):
+        r.fail("station.marker_names", f"expected a list of names, e.g. [\"DELFT-16\"], found {marker_names!r}")
+        marker_names = []
 
     pos = r.table(st, "position", "station.position") or {}
     r.unknown(pos, _POSITION_KEYS, "station.position")
@@ -589,7 +668,8 @@ def load_station(path) -> StationConfig:
     cfg = StationConfig(
         id=sid, name=name, position_m=position, position_sigma_m=sigma, frame=frame, epoch=epoch,
         is_marker=is_marker, antenna=antenna, elevation_mask_deg=mask, met_pattern=met_pattern,
-        delay_sets=delay_sets, changes=changes, path=path, sha256=hashlib.sha256(raw).hexdigest())
+        delay_sets=delay_sets, changes=changes, path=path, sha256=hashlib.sha256(raw).hexdigest(),
+        marker_names=tuple(m.strip() for m in marker_names))
     # normalised content = the canonical text this module writes (formatting, comments,
     # defaults written or not, date vs midnight datetime: none of them change it)
     return dataclasses.replace(cfg, content_sha256=hashlib.sha256(dump_station(cfg).encode()).hexdigest())
@@ -710,8 +790,10 @@ def _toml_code_table(d: Mapping[str, float]) -> str:
 def dump_station(cfg: StationConfig) -> str:
     """TOML text of a station file that :func:`load_station` reads back to the same values."""
     lines = ["[station]", f"id = {_toml_str(cfg.id)}", f"name = {_toml_str(cfg.name)}",
-             f"elevation_mask_deg = {_toml_float(cfg.elevation_mask_deg)}", "",
-             "[station.position]"]
+             f"elevation_mask_deg = {_toml_float(cfg.elevation_mask_deg)}"]
+    if cfg.marker_names:
+        lines.append("marker_names = [" + ", ".join(_toml_str(m) for m in cfg.marker_names) + "]")
+    lines += ["", "[station.position]"]
     for k, v in zip(("x_m", "y_m", "z_m"), cfg.position_m):
         lines.append(f"{k} = {_toml_float(v)}")
     sig = np.asarray(cfg.position_sigma_m, dtype=float)

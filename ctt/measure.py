@@ -274,6 +274,100 @@ def robust_epoch_mean(values, weights, mad_k=3.5, min_sats=1, sigma=None):
     return mean, scatter, n_used, rejected
 
 
+# ------------------------------------------------------------------ position check
+
+#: Antenna position check (ctt.pipeline reports it): warn above this 3-D difference (m) ...
+POSITION_WARN_M = 2.0
+#: ... and flag the day above this one (m).
+POSITION_FLAG_M = 10.0
+
+
+def estimate_position(sat_m, pc_m, group, weights, x0_m, *, iterations=6, reject_k=5.0):
+    """Least-squares antenna position from corrected code ranges, one clock per group.
+
+    ``pc_m`` (N,) are code ranges with every modelled term removed except the
+    geometric range and the receiver clock: ``pc = |sat − x| + c·dt[group]``;
+    ``sat_m`` (N,3) the satellite positions in the Earth-fixed frame of the
+    receive instant, ``group`` (N,) int the clock each row shares (epoch × system:
+    systems have their own time scales), ``weights`` (N,) the row weights, ``x0_m``
+    the start. Gauss-Newton: the clocks are eliminated per group (each row minus
+    its group's weighted mean, the reduced normal equations of the full problem),
+    the 3 × 3 system is solved and the step applied; rows whose residual exceeds
+    ``reject_k`` × the robust scale (1.4826·MAD, at least 0.3 m) are left out from
+    the second iteration on. numpy's lstsq does not eliminate thousands of
+    nuisance clocks without building the full design matrix, hence this.
+
+    Returns a dict: ``position_m`` (3,), ``sigma_m`` (3,) formal (σ0² (AᵀWA)⁻¹,
+    optimistic: errors correlated in time are taken as white), ``rms_m`` of the
+    residuals, ``n_used``, ``n_groups``, ``iterations``; None when fewer than
+    4 satellites' worth of rows.
+    """
+    sat = np.asarray(sat_m, dtype=float)
+    y0 = np.asarray(pc_m, dtype=float)
+    g = np.asarray(group, dtype=np.int64)
+    w = np.asarray(weights, dtype=float)
+    use = np.isfinite(y0) & np.all(np.isfinite(sat), axis=1) & np.isfinite(w) & (w > 0)
+    if use.sum() < 8:
+        return None
+    sat, y0, w = sat[use], y0[use], w[use]
+    _, g = np.unique(g[use], return_inverse=True)
+    n_g = int(g.max()) + 1
+    keep = np.ones(len(y0), dtype=bool)
+    x = np.asarray(x0_m, dtype=float).copy()
+    cov = np.full((3, 3), np.nan)
+    rms, it = np.nan, 0
+    for it in range(1, iterations + 1):
+        d = sat - x
+        rho = np.linalg.norm(d, axis=1)
+        a = -d / rho[:, None]                 # ∂ρ/∂x
+        y = y0 - rho
+        wk = np.where(keep, w, 0.0)
+        sw = np.bincount(g, wk, minlength=n_g)
+        ok_g = sw > 0
+        inv = np.where(ok_g, 1.0 / np.where(ok_g, sw, 1.0), 0.0)
+        yr = y - (np.bincount(g, wk * y, minlength=n_g) * inv)[g]
+        ar = a - np.stack([np.bincount(g, wk * a[:, k], minlength=n_g) * inv for k in range(3)], axis=1)[g]
+        nmat = (ar * wk[:, None]).T @ ar
+        if np.linalg.cond(nmat) > 1e12:
+            return None
+        dx = np.linalg.solve(nmat, (ar * wk[:, None]).T @ yr)
+        x = x + dx
+        res = yr - ar @ dx
+        n_used = int(keep.sum())
+        n_groups = int(np.count_nonzero(np.bincount(g[keep], minlength=n_g) > 0))
+        dof = max(n_used - n_groups - 3, 1)
+        s0 = float(np.sum(wk * res**2) / dof)
+        cov = s0 * np.linalg.inv(nmat)
+        rms = float(np.sqrt(np.mean(res[keep] ** 2)))
+        scale = max(1.4826 * float(np.median(np.abs(res[keep]))), 0.3)
+        new_keep = np.abs(res) <= reject_k * scale
+        if np.linalg.norm(dx) < 1e-4 and (it > 1 and np.array_equal(new_keep, keep)):
+            break
+        if it >= 1 and np.linalg.norm(dx) < 100.0:
+            keep = new_keep
+    return {"position_m": x, "sigma_m": np.sqrt(np.diag(cov)), "rms_m": rms,
+            "n_used": int(keep.sum()), "n_groups": n_groups, "iterations": it}
+
+
+def position_check(estimate, station_xyz_m) -> dict | None:
+    """The estimate against the station file's position: E/N/U difference (estimate minus file), m."""
+    if estimate is None:
+        return None
+    ref = np.asarray(station_xyz_m, dtype=float)
+    lat, lon, _ = geodesy.ecef_to_geodetic(ref)
+    r = geodesy.enu_matrix(float(lat), float(lon))
+    d = r @ (estimate["position_m"] - ref)
+    s = np.sqrt(np.diag(r @ np.diag(estimate["sigma_m"] ** 2) @ r.T))
+    dist = float(np.linalg.norm(d))
+    status = "flagged" if dist > POSITION_FLAG_M else "warning" if dist > POSITION_WARN_M else "ok"
+    return {"estimate_m": [float(v) for v in estimate["position_m"]],
+            "station_file_m": [float(v) for v in ref],
+            "d_east_m": float(d[0]), "d_north_m": float(d[1]), "d_up_m": float(d[2]),
+            "distance_m": dist, "sigma_enu_m": [float(v) for v in s], "rms_m": estimate["rms_m"],
+            "n_used": estimate["n_used"], "n_epochs": estimate["n_groups"], "status": status,
+            "thresholds_m": {"warn": POSITION_WARN_M, "flag": POSITION_FLAG_M}}
+
+
 # ------------------------------------------------------------------ main
 
 def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptions(), *,
@@ -460,6 +554,11 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
         in_sys = cols[js]
         row_mean[in_sys] = m_s[ie[in_sys]]
     residual = clock_ns - row_mean
+    # --- the antenna position from the day's own code data (a check of the station file)
+    sys_idx = np.searchsorted(np.array(sorted(set(opt.systems))), np.array([s[0] for s in sats]))
+    est = estimate_position(sat_rot[ok], clock_ns[ok] * 1e-9 * C_MPS + (geometry_m + sagnac_m)[ok],
+                            ie[ok] * (len(opt.systems) + 1) + sys_idx[ok], sin_el[ok] ** 2, rx)
+    pos_check = position_check(est, rx)
     out_rows = rejected[ie, js] & ok
     flag[out_rows] = "outlier"
     residual[~(ok | out_rows)] = np.nan
@@ -499,7 +598,7 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
             "elevation_mask_deg": mask_deg,
             "code_biases": ("bias file: codes mapped onto " + "/".join(sorted(set(CLOCK_REFERENCE_CODES.values())))
                             if opt.biases is not None else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
-            "position_m": [float(v) for v in rx]}
+            "position_m": [float(v) for v in rx], "position_check": pos_check}
     return StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
                       counts={str(k): int(v) for k, v in counts.items()}, info=info)
 

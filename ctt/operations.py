@@ -58,6 +58,7 @@ class DayOutcome:
     inputs_hash: str = ""
     config_hash: str = ""
     out_dir: str = ""
+    exit_code: int = 0                #: the error's exit code when failed (ctt.errors)
     started: str = ""
     finished: str = ""
 
@@ -117,11 +118,14 @@ def run_folder(pc, date) -> pathlib.Path:
     return pathlib.Path(pc.output_dir) / pc.name / str(date)
 
 
-def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bool = False) -> DayOutcome:
+def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bool = False,
+                force_inputs: bool = False) -> DayOutcome:
     """Process one day of a pair file; never raises for bad data (status 'failed' with the reason).
 
     ``known`` is the (inputs hash, config hash) already archived for the day;
-    when both match and ``force`` is false the day is skipped.
+    when both match and ``force`` is false the day is skipped. ``force_inputs``
+    processes observation files that do not match their station files
+    (:func:`ctt.pipeline.check_obs_file`) with a warning instead of failing the day.
     """
     from .config import load_pair
     from .pipeline import offset_table, pair_day_from_config, run_pair, write_pair_outputs
@@ -136,7 +140,7 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
             out.status, out.reason = "skipped", "already done with the same inputs and configuration"
             return out
         inputs, sta, stb, options = pair_day_from_config(pc, date)
-        result = run_pair(inputs, sta, stb, options)
+        result = run_pair(inputs, sta, stb, options, force_inputs=force_inputs)
         _check_day(result, inputs, date)
         folder = run_folder(pc, date)
         result.summary["config_hash"] = ch
@@ -149,6 +153,7 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         out.status = "ok"
     except CttError as exc:
         out.reason = str(exc)
+        out.exit_code = exc.exit_code
     except Exception as exc:  # a bug must not stop a backfill: record it with the traceback's last line
         out.reason = f"internal error: {type(exc).__name__}: {exc}"
         log.debug("day %s failed:\n%s", date, traceback.format_exc())
@@ -178,7 +183,9 @@ def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
         sat = outcome.satellites
         if sat is not None and "time" in sat.columns and "time_utc_ns" not in sat.columns:
             sat = sat.assign(time_utc_ns=ts.convert(sat["time"].to_numpy(np.int64), "GPS", "UTC"))
-        info["messages"] = []
+        # the day's warnings and flags (inputs forced, coordinates off) stay with its results
+        info["messages"] = [*(outcome.summary or {}).get("warnings", []),
+                            *(f"DAY FLAGGED: {f}" for f in (outcome.summary or {}).get("day_flags", []))]
         archive.store_day(pair_name, outcome.date, outcome.offsets, sat, info)
     elif outcome.status == "failed":
         info["messages"] = [outcome.reason]

@@ -127,6 +127,15 @@ class PairResult:
                          f"median satellites per point {o.loc[ok, 'n_sat'].median():.0f}")
         for k, v in s["rejected"].items():
             lines.append(f"  rejected {k}: {v}")
+        for who, c in (s.get("coordinates") or {}).items():
+            if c:
+                lines.append(f"  antenna position from the day's code data, {c['station']} ({who}): "
+                             f"E {c['d_east_m']:+.2f} m, N {c['d_north_m']:+.2f} m, U {c['d_up_m']:+.2f} m "
+                             f"from the station file ({c['status']})")
+        for w in s.get("warnings", []):
+            lines.append(f"  warning: {w}")
+        for f in s.get("day_flags", []):
+            lines.append(f"  DAY FLAGGED: {f}")
         lines.append(commonview.format_budget(self.budget))
         return lines
 
@@ -165,8 +174,11 @@ def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = 
 
 
 def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions, *, met_path=None,
-                 ionex=None, reference=None, obs=None) -> StationDay:
-    """Read one observation file (unless ``obs`` is given) and run the measurement model."""
+                 ionex=None, reference=None, obs=None, force_inputs: bool = False,
+                 check_inputs: bool = True) -> StationDay:
+    """Read one observation file (unless ``obs`` is given), check that it belongs to the
+    station file (:func:`check_obs_file`) and run the measurement model. The check's
+    warnings are in ``info['input_warnings']``."""
     from .formats.rinex_obs import read_obs
 
     if obs is None:
@@ -174,13 +186,43 @@ def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions,
         if obs.dropped:
             log.warning("%s: %d bad epochs skipped (first: line %s, %s)", obs_path, len(obs.dropped),
                         obs.dropped[0][0], obs.dropped[0][1])
+    input_warnings = check_obs_file(obs, station, obs_path, force_inputs=force_inputs) if check_inputs else []
     met = None
     if met_path:
         from .formats import rinex_met as metmod
 
         met = metmod.read_met(_need(met_path, "meteorological file"))
-    return measure_station(obs, orbits, station, options, nav_header=nav_header, met=met,
-                           ionex=ionex, reference=reference)
+    day = measure_station(obs, orbits, station, options, nav_header=nav_header, met=met,
+                          ionex=ionex, reference=reference)
+    day.info["input_warnings"] = input_warnings
+    return day
+
+
+def check_obs_file(obs, station, path=None, *, force_inputs: bool = False) -> list[str]:
+    """An observation file against its station file: RINEX MARKER NAME and APPROX POSITION
+    (:func:`ctt.config.check_station_data`); a mismatch is a UsageError (exit 2) unless
+    ``force_inputs``. Logs and returns the warnings. For every command that measures a
+    station (measure, tracks, pair, daily, and the carrier-phase one)."""
+    from .config import check_station_data
+
+    h = getattr(obs, "header", obs)  # ObsData or ObsHeader
+    warns = check_station_data(station, path or getattr(obs, "path", "observation file"), h.marker_name,
+                               h.approx_position_m, what="MARKER NAME", force=force_inputs)
+    for w in warns:
+        log.warning("%s", w)
+    return warns
+
+
+def check_track_file(header, station, path, *, force_inputs: bool = False) -> list[str]:
+    """A partner's CGGTTS file against the partner's station file: LAB and X/Y/Z (as
+    :func:`check_obs_file`)."""
+    from .config import check_station_data
+
+    warns = check_station_data(station, path, header.lab, (header.x_m, header.y_m, header.z_m), what="LAB",
+                               force=force_inputs)
+    for w in warns:
+        log.warning("%s", w)
+    return warns
 
 
 def _reduce(day: StationDay, options: PairOptions) -> pd.DataFrame:
@@ -205,8 +247,15 @@ def _sigma_enu(station):
 
 
 def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = PairOptions(), *,
-             orbits_bundle=None) -> PairResult:
-    """Process one pair-day (see the module docstring). A is the first station."""
+             orbits_bundle=None, force_inputs: bool = False) -> PairResult:
+    """Process one pair-day (see the module docstring). A is the first station.
+
+    The same station as A and B is refused; each input file must belong to its station
+    file (:func:`check_obs_file`, :func:`check_track_file`; ``force_inputs`` turns a
+    mismatch into a warning recorded in ``summary['warnings']``)."""
+    from .config import check_distinct_stations
+
+    check_distinct_stations(station_a, station_b)
     mopt = options.measure
     galileo_source = "fnav" if "E" in mopt.systems and mopt.signals == "iono-free" else "inav"
     if orbits_bundle is None:
@@ -219,6 +268,7 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
         from .formats.ionex import read_ionex
 
         ionex = read_ionex(_need(inputs.ionex, "IONEX file"))
+    input_warnings = _check_inputs(inputs, station_a, station_b, force_inputs)
     days, reduced = [], []
     for obs_path, trk_path, met_path, station in ((inputs.obs_a, inputs.tracks_a, inputs.met_a, station_a),
                                                    (inputs.obs_b, inputs.tracks_b, inputs.met_b, station_b)):
@@ -226,10 +276,15 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
             if options.mode != "tracks":
                 raise MissingInputError("a CGGTTS track file can only be used in tracks mode (--mode tracks)")
             days.append(None)
-            reduced.append(read_track_file(trk_path))
+            from .exports import cggtts_to_track_table
+            from .formats.cggtts import read_cggtts
+
+            header, trk = read_cggtts(_need(trk_path, "CGGTTS track file"))
+            reduced.append(cggtts_to_track_table(header, trk))
             continue
         day = measure_file(obs_path, station, orbits, nav_header, mopt, met_path=met_path, ionex=ionex,
-                           reference=reference)
+                           reference=reference, check_inputs=False)
+        day.info["input_warnings"] = [w for w in input_warnings if w.startswith(str(obs_path))]
         days.append(day)
         reduced.append(_reduce(day, options))
     day_a, day_b = days
@@ -261,8 +316,69 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
                        for k, v in budget["items"].items()}
 
     summary = _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference)
+    summary["warnings"] = list(input_warnings)
+    _coordinate_checks(summary, ((station_a, day_a), (station_b, day_b)))
     return PairResult(offset=offset, offset_by_system=by_sys, satellites=cv.sat_df, summary=summary,
                       station_a=day_a, station_b=day_b, cv=cv, budget=budget)
+
+
+def _check_inputs(inputs: PairInputs, station_a, station_b, force_inputs: bool) -> list[str]:
+    """Both sides' files against their station files before any processing, so one
+    message names every mismatch (a UsageError, exit 2); the warnings otherwise."""
+    from .errors import UsageError
+    from .formats.cggtts import read_cggtts
+    from .formats.rinex_obs import read_obs_header
+
+    warns, problems = [], []
+    for obs_path, trk_path, station in ((inputs.obs_a, inputs.tracks_a, station_a),
+                                        (inputs.obs_b, inputs.tracks_b, station_b)):
+        try:
+            if trk_path:
+                header, _ = read_cggtts(_need(trk_path, "CGGTTS track file"))
+                warns += check_track_file(header, station, trk_path, force_inputs=force_inputs)
+            elif obs_path:
+                header = read_obs_header(_need(obs_path, "observation file"))
+                warns += check_obs_file(header, station, obs_path, force_inputs=force_inputs)
+        except UsageError as exc:
+            problems.append(str(exc).removesuffix(_FORCE_HINT))
+    if problems:
+        raise UsageError("; ".join(problems) + _FORCE_HINT)
+    return warns
+
+
+_FORCE_HINT = " (the files do not belong together; --force-inputs processes them anyway)"
+
+
+def _coordinate_checks(summary: dict, stations) -> None:
+    """The antenna position each station's code data give (ctt.measure.position_check) against
+    its station file: ``summary['coordinates']`` per station (E/N/U, m), a warning above
+    ``POSITION_WARN_M``, the day flagged above ``POSITION_FLAG_M`` with the reason
+    (``summary['day_flags']``): wrong coordinates bias every satellite's value by up to
+    the error's projection on its line of sight, so the common-view differences disagree
+    and the points are rejected or biased."""
+    from .measure import POSITION_FLAG_M, POSITION_WARN_M
+
+    coords = {}
+    for who, (st, day) in zip("AB", stations):
+        c = (day.info.get("position_check") if day is not None else None)
+        if not c:
+            continue
+        c = dict(c, station=st.id, station_file=str(st.path) if st.path else None)
+        coords[who] = c
+        text = (f"{st.id}: the day's code data put the antenna {c['distance_m']:.1f} m from the position in "
+                f"{st.path or 'the station file'} (E {c['d_east_m']:+.2f}, N {c['d_north_m']:+.2f}, "
+                f"U {c['d_up_m']:+.2f} m)")
+        if c["distance_m"] > POSITION_FLAG_M:
+            summary.setdefault("day_flags", []).append(
+                text + f": more than {POSITION_FLAG_M:g} m, the station coordinates are wrong and every "
+                       "point of the day is biased or rejected; correct the station file and reprocess")
+            log.warning("%s", summary["day_flags"][-1])
+        elif c["distance_m"] > POSITION_WARN_M:
+            summary.setdefault("warnings", []).append(
+                text + f": more than {POSITION_WARN_M:g} m (a code solution is good to about a metre); "
+                       "check the station coordinates")
+            log.warning("%s", summary["warnings"][-1])
+    summary["coordinates"] = coords
 
 
 def _partner_delay_u(station, tracks: pd.DataFrame) -> float:

@@ -71,6 +71,8 @@ def add_station_day_arguments(p) -> None:
     p.add_argument("obs", help="RINEX observation file (any compression)")
     p.add_argument("--station", required=True, help="station TOML file")
     p.add_argument("--met", help="RINEX meteorological file of the station")
+    p.add_argument("--force-inputs", action="store_true",
+                   help="process files whose marker name or position does not match their station file (a warning instead of exit 2)")
     add_product_arguments(p)
 
 
@@ -93,5 +95,5 @@ def measure_station_day(args):
 
         ionex = read_ionex(args.ionex)
     day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, ionex=ionex,
-                       reference=reference)
+                       reference=reference, force_inputs=getattr(args, "force_inputs", False))
     return station, day, opts

@@ -21,6 +21,8 @@ def register(sub) -> None:
     p.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS",
                    help="how long to wait for another run holding the archive (default 600)")
     p.add_argument("--no-report", action="store_true", help="do not refresh the HTML report")
+    p.add_argument("--force-inputs", action="store_true",
+                   help="process files whose marker name or position does not match their station file (a warning instead of a refusal)")
     p.set_defaults(func=run_daily)
 
     b = sub.add_parser("backfill", help="process a range of days (resumable, parallel)",
@@ -38,6 +40,8 @@ def register(sub) -> None:
                    help="only list the days that need (re)processing and why; change nothing")
     b.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS")
     b.add_argument("--no-report", action="store_true")
+    b.add_argument("--force-inputs", action="store_true",
+                   help="process files whose marker name or position does not match their station file (a warning instead of a refusal)")
     b.set_defaults(func=run_backfill)
 
 
@@ -55,7 +59,7 @@ def run_daily(args) -> int:
     date = args.date or yesterday_utc()
     with _open(pc, args.lock_timeout) as arc, arc.run_lock():
         known = arc.days_done(pc.name).get(date)
-        outcome = compute_day(str(pc.path), date, known, force=args.force)
+        outcome = compute_day(str(pc.path), date, known, force=args.force, force_inputs=args.force_inputs)
         store_outcome(arc, pc.name, outcome)
         if outcome.status == "ok" and not args.no_report:
             rep = refresh_report(pc, arc, summary=outcome.summary, satellites=outcome.satellites)
@@ -66,6 +70,8 @@ def run_daily(args) -> int:
         return EXIT_OK
     if outcome.status == "failed":
         print(f"ctt: error: {pc.name} {date}: {outcome.reason}", file=sys.stderr)
+        if outcome.exit_code:
+            return outcome.exit_code
         missing = "not found" in outcome.reason or "no " in outcome.reason[:40]
         return EXIT_MISSING_INPUT if missing else EXIT_PROCESSING
     s = outcome.summary
@@ -128,17 +134,17 @@ def _outcomes(pair_path, dates, args):
         from dask.distributed import Client, as_completed
 
         with Client(args.scheduler) as client:
-            futures = [client.submit(compute_day, pair_path, d, None, True, pure=False) for d in dates]
+            futures = [client.submit(compute_day, pair_path, d, None, True, args.force_inputs, pure=False) for d in dates]
             for fut in as_completed(futures):
                 yield fut.result()
         return
     if args.jobs == 1:
         for d in dates:
-            yield compute_day(pair_path, d, None, True)
+            yield compute_day(pair_path, d, None, True, args.force_inputs)
         return
     from concurrent.futures import ProcessPoolExecutor, as_completed as done
 
     with ProcessPoolExecutor(max_workers=args.jobs) as pool:
-        futs = [pool.submit(compute_day, pair_path, d, None, True) for d in dates]
+        futs = [pool.submit(compute_day, pair_path, d, None, True, args.force_inputs) for d in dates]
         for f in done(futs):
             yield f.result()

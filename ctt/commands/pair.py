@@ -49,6 +49,8 @@ def register(sub) -> None:
                            "repeatable; systems not given are estimated from the day")
     proc.add_argument("--isb-b", action="append", default=[], metavar="SYS=NS", help="the same for station B")
     add_model_arguments(p)
+    p.add_argument("--force-inputs", action="store_true",
+                   help="process files whose marker name or position does not match their station file (a warning instead of exit 2)")
     p.add_argument("--out", required=True, help="output folder")
     p.set_defaults(func=run)
 
@@ -113,7 +115,7 @@ def run(args) -> int:
                             tracks_a=args.tracks_a, tracks_b=args.tracks_b)
         sta, stb = load_station(args.station_a), load_station(args.station_b)
         options = options_from_args(args)
-    result = run_pair(inputs, sta, stb, options)
+    result = run_pair(inputs, sta, stb, options, force_inputs=args.force_inputs)
     paths = write_pair_outputs(result, pathlib.Path(args.out))
     print("\n".join(result.summary_lines()))
     print("wrote " + ", ".join(str(p) for p in paths.values()))
