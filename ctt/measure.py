@@ -293,8 +293,8 @@ def estimate_position(sat_m, pc_m, group, weights, x0_m, *, iterations=6, reject
     the start. Gauss-Newton: the clocks are eliminated per group (each row minus
     its group's weighted mean, the reduced normal equations of the full problem),
     the 3 × 3 system is solved and the step applied; rows whose residual exceeds
-    ``reject_k`` × the robust scale (1.4826·MAD, at least 0.3 m) are left out from
-    the second iteration on. numpy's lstsq does not eliminate thousands of
+    ``reject_k`` × the robust scale (1.4826·MAD, at least 0.3 m) about their group's
+    median are left out once the step is below 100 m. numpy's lstsq does not eliminate thousands of
     nuisance clocks without building the full design matrix, hence this.
 
     Returns a dict: ``position_m`` (3,), ``sigma_m`` (3,) formal (σ0² (AᵀWA)⁻¹,
@@ -340,7 +340,11 @@ def estimate_position(sat_m, pc_m, group, weights, x0_m, *, iterations=6, reject
         cov = s0 * np.linalg.inv(nmat)
         rms = float(np.sqrt(np.mean(res[keep] ** 2)))
         scale = max(1.4826 * float(np.median(np.abs(res[keep]))), 0.3)
-        new_keep = np.abs(res) <= reject_k * scale
+        # rejection on residuals about each group's median clock (one bad row must not drag
+        # its group's other rows out with it, as about a mean it would)
+        r_raw = y - a @ dx
+        r_med = r_raw - pd.Series(r_raw).groupby(g).transform("median").to_numpy()
+        new_keep = np.abs(r_med) <= reject_k * scale
         if np.linalg.norm(dx) < 1e-4 and (it > 1 and np.array_equal(new_keep, keep)):
             break
         if it >= 1 and np.linalg.norm(dx) < 100.0:

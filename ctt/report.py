@@ -390,6 +390,11 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
         "provenance": {k: summ.get(k) for k in ("inputs", "config", "version", "counts", "rejected", "days")
                        if k in summ},
         "before_after": [],
+        # the antenna positions the day's code data give against the station files, and the
+        # day's warnings and flags (ctt.pipeline): the latest day's when from an archive
+        "coordinates": summ.get("coordinates"),
+        "warnings": summ.get("warnings", []),
+        "day_flags": summ.get("day_flags", []),
     }
 
     with tempfile.TemporaryDirectory(prefix="ctt-report-") as tmp:
@@ -594,6 +599,7 @@ Uncertainties are standard (1σ). ADEV, MDEV and HDEV are dimensionless fraction
 <h2>Summary</h2>
 <table>{summary_tab}</table>
 {budget_html}
+{_coordinates_html(r)}
 <p class=note>Formal uncertainties of the drift fit come from the weights scaled by χ²/ν and assume white
 residuals; the lag-1 figure inflates them by √((1+r1)/(1−r1)) for correlated residuals, which still
 understates flicker and random-walk noise.</p>
@@ -608,6 +614,29 @@ understates flicker and random-walk noise.</p>
 {prov_html}
 </body></html>
 """
+
+
+def _coordinates_html(r) -> str:
+    """Station positions checked against the day's code data, and the day's warnings/flags."""
+    coords = r.get("coordinates") or {}
+    out = []
+    for f in r.get("day_flags") or []:
+        out.append(f"<p class=flag><b>Day flagged:</b> {_e(f)}</p>")
+    for w in r.get("warnings") or []:
+        out.append(f"<p class=note><b>Warning:</b> {_e(w)}</p>")
+    if coords:
+        rows = "".join(
+            "<tr>" + "".join(f"<td>{v}</td>" for v in (
+                _e(f"{c.get('station')} ({who})"), _fmt(c.get("d_east_m"), 3), _fmt(c.get("d_north_m"), 3),
+                _fmt(c.get("d_up_m"), 3), _fmt(c.get("distance_m"), 3), _e(c.get("status")))) + "</tr>"
+            for who, c in coords.items() if c)
+        out.append("<h3>Antenna positions from the day's code data</h3>"
+                   "<table><tr><th>station</th><th>ΔE / m</th><th>ΔN / m</th><th>ΔU / m</th><th>distance / m</th>"
+                   "<th>status</th></tr>" + rows + "</table>"
+                   "<p class=note>Iono-free code least squares of the whole day (a receiver clock per epoch) "
+                   "minus the station file's antenna position; a warning above 2 m, the day flagged above "
+                   "10 m.</p>")
+    return "\n".join(out)
 
 
 def _before_after_html(r):
