@@ -15,7 +15,9 @@ Station file
     id = "LABA"                 # 4-9 letters/digits
     name = "Invented Lab A, roof antenna"
     elevation_mask_deg = 10.0   # optional, default 10
-    marker_names = ["LABA-16"]  # optional: other names its RINEX/CGGTTS files use (MARKER NAME, LAB)
+    # optional: names the station's files use besides its id's first four characters
+    # (RINEX MARKER NAME, CGGTTS LAB); see check_station_data
+    marker_names = ["LABA-16"]
     [station.position]          # antenna reference point or marker, ECEF metres
     x_m = 4000000.0
     y_m = 500000.0
