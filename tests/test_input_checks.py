@@ -48,7 +48,7 @@ def test_marker_names_key_is_read_and_written(tmp_path):
 
 def test_real_headers_against_station_files(tmp_path, shared_data):
     """Real headers: DELF's file calls it 'DELFT-16' (EUREF/IGS file, real-2021-001)."""
-    from ctt.rinex.obs import read_obs_header
+    from ctt.formats.rinex_obs import read_obs_header
 
     h = read_obs_header(shared_data / "delf0010.21d")
     assert h.marker_name.strip() == "DELFT-16"
@@ -132,7 +132,7 @@ def test_measure_with_another_stations_file_is_refused(tmp_path, capsys):
 
 
 def test_partner_track_file_lab_and_position(tmp_path):
-    from ctt.exports import CggttsHeader
+    from ctt.formats.cggtts import CggttsHeader
     from ctt.pipeline import check_track_file
 
     brkw = C.load_station(DEMO / "brkw.toml")
