@@ -127,10 +127,17 @@ def file_sha256(path, chunk: int = 1 << 20) -> str:
 
 
 def inputs_record(paths: dict) -> dict:
-    """{name: path or None} -> {name: {"path": str, "sha256": hex}} (None entries kept as None)."""
+    """{name: path or None} -> {name: {"path": str, "sha256": hex}} (None entries kept as None).
+
+    A name with several files (a tuple or list of paths, e.g. SP3 files of the
+    neighbouring days) gets a list of such dicts, in the order given.
+    """
     out = {}
     for name, p in sorted(paths.items()):
-        out[name] = None if p is None else {"path": str(p), "sha256": file_sha256(p)}
+        if isinstance(p, (tuple, list)):
+            out[name] = [{"path": str(q), "sha256": file_sha256(q)} for q in p]
+        else:
+            out[name] = None if p is None else {"path": str(p), "sha256": file_sha256(p)}
     return out
 
 
@@ -140,7 +147,12 @@ def inputs_hash(inputs: dict) -> str:
 
 
 def _inputs_hash(inputs: dict) -> str:
-    items = sorted((k, (v or {}).get("sha256") if isinstance(v, dict) else v) for k, v in inputs.items())
+    def content(v):
+        if isinstance(v, list):   # several files: their hashes in order, paths left out
+            return [content(x) for x in v]
+        return (v or {}).get("sha256") if isinstance(v, dict) else v
+
+    items = sorted((k, content(v)) for k, v in inputs.items())
     return hashlib.sha256(json.dumps(items, separators=(",", ":")).encode()).hexdigest()
 
 

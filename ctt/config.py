@@ -129,6 +129,23 @@ written / upper case, ``{yyyy}`` ``{yy}`` ``{mm}`` ``{dd}`` ``{doy}`` (ints),
 result contains ``*`` or ``?`` is matched as a glob inside its folder and the
 first match in sorted order is taken. Every resolved path is checked to stay
 inside ``data_root`` after ``..`` and symbolic links are resolved.
+
+Neighbouring days (``sp3`` and ``clk`` only): a date placeholder may carry a
+day offset of 1 to 9 days, ``{doy-1}``, ``{gpsweek+1}``, ``{yy-1:02d}``. The
+offset moves the *date*, and the field is read from that date: on 2011-01-01,
+``{yyyy-1}{doy-1:03d}`` gives ``2010365`` and on a Sunday
+``{gpsweek-1}{gpsdow-1}`` the previous week's Saturday. All date placeholders
+of one pattern carry the same offset (one pattern names one day's file).
+Patterns of the same offset are alternatives as usual; patterns of different
+offsets name different files, and every one found is used (merged into one
+product, so interpolation is valid across midnight)::
+
+    sp3 = ["prod/igs{gpsweek-1}{gpsdow-1}.sp3", "prod/igs{gpsweek}{gpsdow}.sp3",
+           "prod/igs{gpsweek+1}{gpsdow+1}.sp3"]
+
+The day's own file (no offset) is required as before; a missing neighbour
+is logged and the product then ends at that day edge, where rows are flagged
+out of span.
 """
 
 from __future__ import annotations
@@ -138,6 +155,7 @@ import datetime as _dt
 import glob as _glob
 import hashlib
 import json
+import logging
 import math
 import pathlib
 import re
@@ -151,6 +169,8 @@ import numpy as np
 
 from .errors import ConfigError, MissingInputError
 from .timescales import civil_to_ns, date_to_ns, gps_week_sow, parse_iso, to_iso
+
+log = logging.getLogger(__name__)
 
 __all__ = [
     "Antenna", "DelaySet", "HardwareChange", "StationConfig", "PairConfig", "Processing",
@@ -538,6 +558,7 @@ def check_distinct_stations(station_a: StationConfig, station_b: StationConfig) 
 
 _PATTERN_FIELDS = ("station", "station_lower", "STATION", "id", "ID", "yyyy", "yy", "mm", "dd",
                    "doy", "ddd", "gpsweek", "gpsdow", "session")
+_DATE_FIELDS = ("yyyy", "yy", "mm", "dd", "doy", "ddd", "gpsweek", "gpsdow")
 
 
 def pattern_fields(station_id: str, date) -> dict:
@@ -555,8 +576,37 @@ def pattern_fields(station_id: str, date) -> dict:
     }
 
 
+#: A placeholder with a day offset: ``{doy-1}``, ``{gpsweek+1}`` (1 to 9 days; see the module docstring).
+_DAY_OFFSET_RE = re.compile(r"^(\w+?)([+-][1-9])$")
+#: Input kinds whose patterns may carry a day offset (several files merged into one product).
+DAY_OFFSET_KINDS = ("sp3", "clk")
+
+
+def _split_offset(name: str) -> tuple[str, int]:
+    m = _DAY_OFFSET_RE.match(name)
+    return (m.group(1), int(m.group(2))) if m else (name, 0)
+
+
+def pattern_day_offset(pattern: str) -> int:
+    """The day offset of a pattern (0 without one); ValueError if its placeholders disagree."""
+    fields = [_split_offset(f) for _, f, _, _ in string.Formatter().parse(pattern) if f is not None]
+    offs = {off for base, off in fields if base in _DATE_FIELDS}
+    if len(offs) > 1:
+        raise ValueError(f"its date placeholders carry different day offsets ({sorted(offs)}); "
+                         "one pattern names one day's file")
+    return offs.pop() if offs else 0
+
+
 def format_pattern(pattern: str, station_id: str, date) -> str:
-    return pattern.format(**pattern_fields(station_id, date))
+    """The file name of ``pattern`` for a station and a UTC date (day offsets applied)."""
+    fields = pattern_fields(station_id, date)
+    for _, f, _, _ in string.Formatter().parse(pattern):
+        if f is None:
+            continue
+        base, off = _split_offset(f)
+        if off and base in fields:
+            fields[f] = pattern_fields(station_id, _as_date(date) + _dt.timedelta(days=off))[base]
+    return pattern.format(**fields)
 
 
 def _check_pattern(reader: _Reader, pattern, key) -> bool:
@@ -569,11 +619,20 @@ def _check_pattern(reader: _Reader, pattern, key) -> bool:
         reader.fail(key, f"expected a valid pattern ({exc}), found {pattern!r}")
         return False
     for n in names:
-        base = re.split(r"[.\[]", n, maxsplit=1)[0]
+        base, off = _split_offset(re.split(r"[.\[]", n, maxsplit=1)[0])
+        if off and base not in _DATE_FIELDS:
+            reader.fail(key, f"placeholder {{{n}}}: a day offset applies to date placeholders only "
+                        f"({', '.join('{' + p + '}' for p in _DATE_FIELDS)})")
+            return False
         if base not in _PATTERN_FIELDS:
             reader.fail(key, f"unknown placeholder {{{n}}}; expected one of "
                         f"{', '.join('{' + p + '}' for p in _PATTERN_FIELDS)}")
             return False
+    try:
+        pattern_day_offset(pattern)
+    except ValueError as exc:
+        reader.fail(key, f"{exc}, found {pattern!r}")
+        return False
     try:
         format_pattern(pattern, "LABA", "2021-01-01")
     except (ValueError, KeyError, IndexError) as exc:
@@ -914,9 +973,15 @@ class PairConfig:
             raise ConfigError(self.path, key, f"expected a path inside data_root {root}, found {p} -> {real}")
         return real
 
-    def resolve_one(self, kind: str, date, which: str | None = None) -> tuple[pathlib.Path | None, list]:
-        """First existing file among the patterns of ``kind``; (path or None, list of tried paths)."""
+    def resolve_one(self, kind: str, date, which: str | None = None,
+                    day_offset: int | None = None) -> tuple[pathlib.Path | None, list]:
+        """First existing file among the patterns of ``kind``; (path or None, list of tried paths).
+
+        ``day_offset`` (sp3, clk): only the patterns of that day offset (0 = the day's own file).
+        """
         pats = self.patterns_for(kind, which)
+        if day_offset is not None:
+            pats = tuple(p for p in pats if pattern_day_offset(p) == day_offset)
         st = None if which is None else (self.station_a if which == "a" else self.station_b)
         sid = st.id if st is not None else self.station_a.id
         key = f"inputs.{which}.{kind}" if which and self.station_patterns.get(which, {}).get(kind) else f"inputs.{kind}"
@@ -956,11 +1021,26 @@ class PairConfig:
                     raise ConfigError(self.path, f"inputs.{kind}", "missing; expected a file-name pattern")
                 out[name] = None
                 continue
-            found, tried = self.resolve_one(kind, date, which)
+            found, tried = self.resolve_one(kind, date, which, day_offset=0)
             if found is None and kind not in self.optional:
                 detail = "; ".join(f"pattern {p!r} -> {c}" for p, c in tried)
                 raise MissingInputError(f"{self.path}: no {name} file for {_as_date(date)}: tried {detail}")
             out[name] = found
+            offsets = sorted({pattern_day_offset(p) for p in pats} - {0})
+            if found is not None and offsets:
+                # neighbouring days' files: used when present; without one the product ends at
+                # the day's edge and rows beyond it are flagged out of span (never extrapolated)
+                files = {0: found}
+                for off in offsets:
+                    f_off, tried = self.resolve_one(kind, date, which, day_offset=off)
+                    if f_off is None:
+                        log.warning("%s: no %s file for day %+d of %s (tried %s): the product ends at "
+                                    "that day edge", self.path, kind, off, _as_date(date),
+                                    "; ".join(c for _, c in tried))
+                    else:
+                        files[off] = f_off
+                if len(files) > 1:
+                    out[name] = tuple(files[k] for k in sorted(files))
         return out
 
 
@@ -977,9 +1057,17 @@ def _pattern_list(r: _Reader, v, key) -> tuple[str, ...]:
         r.fail(key, f"expected a pattern or a list of alternative patterns, found {v!r}")
         return ()
     ok = []
+    kind = key.rsplit(".", 1)[-1]
     for j, p in enumerate(items, start=1):
-        if _check_pattern(r, p, key if isinstance(v, str) else f"{key}[{j}]"):
+        k = key if isinstance(v, str) else f"{key}[{j}]"
+        if _check_pattern(r, p, k):
+            if kind not in DAY_OFFSET_KINDS and pattern_day_offset(p):
+                r.fail(k, f"day offsets such as {{doy-1}} are for the products that merge several days "
+                       f"({', '.join(DAY_OFFSET_KINDS)}), found {p!r}")
+                continue
             ok.append(p)
+    if ok and kind in DAY_OFFSET_KINDS and all(pattern_day_offset(p) for p in ok):
+        r.fail(key, "expected a pattern for the day itself besides those with day offsets")
     return tuple(ok)
 
 

@@ -53,13 +53,19 @@ MODES = ("tracks", "epochs", "all-in-view")
 
 @dataclasses.dataclass(frozen=True)
 class PairInputs:
-    """Input files of one pair-day (paths; None where not given)."""
+    """Input files of one pair-day (paths; None where not given).
+
+    ``sp3`` and ``clk`` may name several files (a tuple, e.g. the days before
+    and after): they are merged into one product so interpolation is valid
+    across midnight (:class:`ctt.orbits.PreciseOrbits`). A list is stored as a
+    tuple, a one-element list as its path.
+    """
 
     obs_a: str | None
     obs_b: str | None
     nav: str | None = None
-    sp3: str | None = None
-    clk: str | None = None
+    sp3: str | tuple[str, ...] | None = None
+    clk: str | tuple[str, ...] | None = None
     ionex: str | None = None
     met_a: str | None = None
     met_b: str | None = None
@@ -67,8 +73,27 @@ class PairInputs:
     tracks_a: str | None = None   #: a partner's CGGTTS track file in place of obs_a
     tracks_b: str | None = None   #: ... in place of obs_b
 
+    def __post_init__(self):
+        for name in ("sp3", "clk"):
+            v = getattr(self, name)
+            if v is not None and not isinstance(v, (str, pathlib.PurePath)):
+                v = tuple(str(p) for p in v)
+                object.__setattr__(self, name, None if not v else v[0] if len(v) == 1 else v)
+
     def files(self) -> dict:
+        """{name: path or tuple of paths} of the files given."""
         return {k: v for k, v in dataclasses.asdict(self).items() if v is not None}
+
+
+def files_record(files: dict) -> dict:
+    """{name: {"path", "sha256"}} of :meth:`PairInputs.files`; several files -> a list of such dicts."""
+    out = {}
+    for k, v in files.items():
+        if isinstance(v, (tuple, list)):
+            out[k] = [{"path": str(p), "sha256": file_sha256(p)} for p in v]
+        else:
+            out[k] = {"path": str(v), "sha256": file_sha256(v)}
+    return out
 
 
 @dataclasses.dataclass(frozen=True)
@@ -150,6 +175,15 @@ def _need(path, what):
     return str(path)
 
 
+def _several(v) -> list:
+    """A path, a sequence of paths or None -> list of paths."""
+    if v is None:
+        return []
+    if isinstance(v, (str, pathlib.PurePath)):
+        return [v]
+    return list(v)
+
+
 def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = "inav"):
     """The satellite source for a day: (orbits, nav header or None, 'broadcast'|'precise')."""
     from .orbits import BroadcastOrbits
@@ -163,8 +197,10 @@ def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = 
         from .formats.sp3 import read_sp3
         from .orbits import PreciseOrbits
 
-        sp3 = read_sp3(_need(inputs.sp3, "SP3 orbit file"))
-        clk = read_clock(_need(inputs.clk, "RINEX clock file")) if inputs.clk else None
+        sp3 = [read_sp3(_need(p, "SP3 orbit file")) for p in _several(inputs.sp3)]
+        clk = [read_clock(_need(p, "RINEX clock file")) for p in _several(inputs.clk)] or None
+        if len(sp3) == 1:
+            sp3 = sp3[0]
         antex = read_antex(_need(inputs.antex, "ANTEX file")) if inputs.antex else None
         orbits = PreciseOrbits(sp3, clk=clk, antex=antex)
         return orbits, (nav.header if nav is not None else None), "precise", nav
@@ -436,9 +472,7 @@ def _check_overlap(inputs, red_a, red_b):
 
 
 def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference) -> dict:
-    files = {}
-    for k, v in inputs.files().items():
-        files[k] = {"path": str(v), "sha256": file_sha256(v)}
+    files = files_record(inputs.files())
     for label, st in (("station_a", station_a), ("station_b", station_b)):
         if getattr(st, "path", None):
             files[label] = {"path": str(st.path), "sha256": st.sha256}
@@ -608,4 +642,8 @@ def pair_day_from_config(config, date):
 
 
 def _s(p):
-    return None if p is None else str(p)
+    if p is None:
+        return None
+    if isinstance(p, (tuple, list)):
+        return tuple(str(x) for x in p)
+    return str(p)

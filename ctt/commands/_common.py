@@ -10,8 +10,11 @@ SWITCHES = ("troposphere", "ionosphere", "tide", "sagnac", "relativity")
 def add_product_arguments(g) -> None:
     """Orbit, clock and ionosphere product files (shared by measure and pair)."""
     g.add_argument("--nav", help="broadcast navigation file")
-    g.add_argument("--sp3", help="precise orbits (SP3); with it the precise product is the clock reference")
-    g.add_argument("--clk", help="precise satellite clocks (RINEX clock)")
+    g.add_argument("--sp3", action="append", metavar="SP3",
+                   help="precise orbits (SP3); with it the precise product is the clock reference; repeat "
+                        "for the neighbouring days' files (merged, so interpolation is valid across midnight)")
+    g.add_argument("--clk", action="append", metavar="CLK",
+                   help="precise satellite clocks (RINEX clock); repeatable like --sp3")
     g.add_argument("--antex", help="ANTEX file for the satellite antenna offsets of SP3 orbits")
     g.add_argument("--ionex", help="IONEX ionosphere maps")
 

@@ -69,8 +69,11 @@ def register(subparsers) -> None:
         "and clocks (after removing the per-epoch mean over satellites), on the SP3 epochs.",
     )
     p.add_argument("--nav", required=True, help="broadcast navigation file (RINEX 2/3/4)")
-    p.add_argument("--sp3", required=True, nargs="+", help="SP3 file(s); adjacent files are joined")
-    p.add_argument("--clk", help="RINEX clock file whose satellite clocks replace the SP3 clocks")
+    p.add_argument("--sp3", required=True, nargs="+", action="extend",
+                   help="SP3 file(s); adjacent files are joined (repeatable)")
+    p.add_argument("--clk", nargs="+", action="extend",
+                   help="RINEX clock file(s) whose satellite clocks replace the SP3 clocks; adjacent files "
+                        "are joined (repeatable)")
     p.add_argument("--antex", help="ANTEX file: move the precise positions to the antenna phase centre")
     p.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
     p.set_defaults(func=run)

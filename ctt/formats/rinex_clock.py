@@ -205,5 +205,58 @@ def read_clock(path) -> ClockData:  # noqa: C901 - one pass over a flat header
 
 
 
+def merge_clock(parts) -> ClockData:
+    """Join RINEX clock data of consecutive files (e.g. the days before and after) into one.
+
+    Names are the union; the epochs are the union of every file's epochs. An
+    epoch that several files hold (the shared midnight epoch of two daily
+    files) keeps the value of the first file in the order given that has a
+    value for that clock; each such duplicate is counted in
+    ``header['duplicate_epochs']`` and the largest difference between the
+    files there in ``header['duplicate_max_diff_s']`` (a day-boundary
+    discontinuity of the product shows there). Nothing is filled between
+    files: an epoch that no file holds stays absent, so interpolation across
+    it is a gap (:func:`ctt.orbits.interpolate_clock_series`). The header is
+    the first file's with the paths joined by ';'.
+    """
+    parts = list(parts)
+    if not parts:
+        raise ValueError("merge_clock needs at least one ClockData")
+    if len(parts) == 1:
+        return parts[0]
+    dup = {"n": 0, "max": 0.0}
+
+    def join(kind):
+        series = [getattr(p, kind) for p in parts]
+        names = np.array(sorted(set().union(*[set(map(str, s.names)) for s in series])), dtype=str)
+        times = np.unique(np.concatenate([s.time_ns for s in series])) if series else np.zeros(0, np.int64)
+        b = np.full((len(times), len(names)), np.nan)
+        sg = np.full_like(b, np.nan)
+        for s in series:
+            if not len(s.names) or not len(s.time_ns):
+                continue
+            ti = np.searchsorted(times, s.time_ns)
+            ci = np.searchsorted(names, s.names.astype(str))
+            old = b[np.ix_(ti, ci)]
+            new = s.bias_s
+            both = ~np.isnan(old) & ~np.isnan(new)
+            if both.any():
+                dup["n"] += int(both.sum())
+                dup["max"] = max(dup["max"], float(np.max(np.abs(old[both] - new[both]))))
+            take = np.isnan(old) & ~np.isnan(new)
+            b[np.ix_(ti, ci)] = np.where(take, new, old)
+            sg[np.ix_(ti, ci)] = np.where(take, s.sigma_s, sg[np.ix_(ti, ci)])
+        return ClockSeries(names, times.astype(np.int64), b, sg)
+
+    sats, stas = join("satellites"), join("stations")
+    first = parts[0]
+    header = dict(first.header)
+    header["duplicate_epochs"] = dup["n"]
+    header["duplicate_max_diff_s"] = dup["max"]
+    skipped = {k: sum(p.skipped.get(k, 0) for p in parts) for k in first.skipped}
+    return ClockData(";".join(p.path for p in parts), first.version, first.time_system, header, sats, stas,
+                     skipped)
+
+
 #: Short alias.
 read_clk = read_clock
