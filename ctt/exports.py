@@ -445,20 +445,29 @@ def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.D
     satellite clock terms (local clock − satellite time), MDTR/SMDT and MDIO/SMDI
     from the modelled delays, MSIO/SMSI from the measured (P2 − P1) ionosphere
     when the processing was dual-frequency; DSG is the residual RMS of the REFSYS
-    fit and ISG that of MSIO. Only tracks flagged ``ok`` are written (the format
-    has no flag column).
+    fit and ISG that of MSIO. The station clock's millisecond resets are removed
+    from the REFSYS and REFSV fits (:func:`ctt.tracks.clock_steps_ns`). Only
+    tracks flagged ``ok`` are written (the format has no flag column). A slope,
+    DSG, ISG or delay too large for its field (a free-running receiver clock
+    drifting by µs/s has slopes of 10⁶ ps/s against a 6-character field of
+    0.1 ps/s) is written as not available (all 9s); the count per column is in
+    ``attrs['unavailable']``. REFSV/REFSYS that do not fit raise ``ValueError``
+    in the writer: without them the track is useless.
     """
     from . import tracks as trk
+    from .formats.cggtts import representable
 
     t = meas_table
-    base = trk.fit_tracks(t, schedule)
+    steps = trk.clock_steps_ns(t)
+    base = trk.fit_tracks(t, schedule, steps_ns=steps)
 
-    def fit(values):
+    def fit(values, with_steps=False):
         tt = t.assign(clock_ns=values)
-        return trk.fit_tracks(tt, schedule).set_index(["track_start_utc_ns", "sat"])
+        return trk.fit_tracks(tt, schedule, steps_ns=steps if with_steps else False).set_index(
+            ["track_start_utc_ns", "sat"])
 
     key = ["track_start_utc_ns", "sat"]
-    refsv = fit(t["clock_ns"] - t["sat_clock_ns"] - t["relativity_ns"] - t["group_delay_ns"])
+    refsv = fit(t["clock_ns"] - t["sat_clock_ns"] - t["relativity_ns"] - t["group_delay_ns"], True)
     mdtr = fit(t["troposphere_m"] / C_MPS * 1e9)
     mdio = fit(t["ionosphere_m"] / C_MPS * 1e9)
     has_meas = "iono_measured_m" in t and np.isfinite(t["iono_measured_m"]).any()
@@ -498,7 +507,17 @@ def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.D
     })
     ioe = out["ioe"].to_numpy(float)
     out["ioe"] = np.where((ioe >= 0) & (ioe < 999), ioe, np.nan)  # none (precise orbits) or too wide: 999
-    return out.sort_values(["mjd", "sttime", "sat"], kind="stable").reset_index(drop=True)
+    unavailable = {}
+    for c in ("srsv_ps_s", "srsys_ps_s", "dsg_ns", "mdtr_ns", "smdt_ps_s", "mdio_ns", "smdi_ps_s",
+              "msio_ns", "smsi_ps_s", "isg_ns"):
+        v = out[c].to_numpy(float)
+        bad = np.isfinite(v) & ~representable(c, v)
+        if bad.any():
+            out.loc[bad, c] = np.nan
+            unavailable[c] = int(bad.sum())
+    out = out.sort_values(["mjd", "sttime", "sat"], kind="stable").reset_index(drop=True)
+    out.attrs["unavailable"] = unavailable
+    return out
 
 
 def _track_iode(t: pd.DataFrame, schedule=None) -> pd.Series:
@@ -528,10 +547,30 @@ def cggtts_to_track_table(header: CggttsHeader, df: pd.DataFrame, *, sampling_s:
 
     ``value_ns`` is REFSYS (the partner's local clock − system time, its own delays
     applied as its header states); the track midpoint is the start (MJD, STTIME,
-    UTC) plus TRKL/2, in GPS time. ``u_ns`` = DSG/√(TRKL/``sampling_s``): the
-    standard error of the mid-track value for white residuals (the file gives
-    the residual RMS, not the point count).
+    UTC) plus TRKL/2, in GPS time.
+
+    Uncertainty: the same rule as for our own tracks (:func:`ctt.tracks.fit_tracks`),
+    so that a pair of files and the RINEX files they came from are judged alike.
+    The file gives DSG (the residual RMS) and ELV at mid-track, not the points,
+    so with n = TRKL/``sampling_s`` points (26 for 780 s at 30 s):
+
+    * a-priori ``u_apriori_ns = σ(ELV)/√n``, σ the code-noise model ctt applies to
+      its own receivers (:class:`ctt.measure.MeasureOptions` ``sigma0_m`` / sin el,
+      times √(a₁² + a₂²) for an iono-free FRC 'L3…'); 1/n is the sum of the
+      squared midpoint coefficients of a full, evenly sampled track;
+    * from the residuals ``u_fit_ns = DSG/√n``;
+    * ``u_ns`` is the a-priori value when (n − 2)·DSG²/σ² is below the 99 %
+      quantile of χ²(n − 2), else ``u_fit_ns``; plus, in quadrature, the
+      rounding of REFSYS to 0.1 ns (0.1/√12 ns, uniform).
+
+    Before this rule, DSG/√n alone made partner tracks look 2-3 times more precise
+    than the same tracks computed from RINEX (the within-track scatter misses the
+    satellite-to-satellite errors the code-noise model covers), and the χ² test of
+    common view flagged half the points ``high_scatter``. A track whose DSG is not
+    available (all 9s) is flagged ``dsg_unavailable`` and not used.
     """
+    from .measure import MeasureOptions
+    from .signals import iono_free_coefficients
     from .timescales import NS_PER_S, convert, from_mjd
 
     if df.empty:
@@ -542,17 +581,69 @@ def cggtts_to_track_table(header: CggttsHeader, df: pd.DataFrame, *, sampling_s:
     start_utc = from_mjd(df["mjd"].to_numpy(int), hh * 3600.0 + mm * 60.0 + ss)
     trkl = df["trkl_s"].to_numpy(float)
     mid = convert(start_utc, "UTC", "GPS") + np.rint(trkl / 2 * NS_PER_S).astype(np.int64)
-    n = np.maximum(trkl / sampling_s, 1.0)
+    n = np.maximum(np.floor(trkl / sampling_s + 1e-9), 1.0)
     dsg = df["dsg_ns"].to_numpy(float)
+    el = df["elv_deg"].to_numpy(float)
+    frc = df["frc"].astype(str).str.strip().to_numpy()
+    # noise factor of the combination: iono-free L1/L2 (GPS, 'L3P') or E1/E5a (Galileo, 'L3E')
+    f_gps = iono_free_coefficients(1575.42e6, 1227.60e6)       # IS-GPS-200 frequencies
+    f_gal = iono_free_coefficients(1575.42e6, 1176.45e6)       # Galileo OS SIS ICD
+    amp = np.where(np.char.startswith(frc.astype(str), "L3"),
+                   np.where(df["sat"].astype(str).str[0].to_numpy() == "E",
+                            math.hypot(*f_gal), math.hypot(*f_gps)), 1.0)
+    sigma0_ns = MeasureOptions().sigma0_m / C_MPS * 1e9
+    sig = sigma0_ns * amp / np.clip(np.sin(np.deg2rad(el)), 0.05, 1.0)
+    u_prior = sig / np.sqrt(n)
+    u_fit = dsg / np.sqrt(n)
+    dof = np.maximum(n - 2, 1)
+    from scipy import stats
+
+    compatible = (dof * dsg ** 2 / sig ** 2) <= stats.chi2.ppf(0.99, dof)
+    u = np.hypot(np.where(compatible, u_prior, u_fit), 0.1 / math.sqrt(12.0))
+    flag = np.where(np.isfinite(dsg), "ok", "dsg_unavailable").astype(object)
     out = pd.DataFrame({
         "track_start_utc_ns": start_utc, "mid_time": mid, "sat": df["sat"].astype(str).to_numpy(),
         "system": df["sat"].astype(str).str[0].to_numpy(), "signal": df["frc"].astype(str).to_numpy(),
         "n_points": n.astype(int), "n_flagged": 0, "value_ns": df["refsys_ns"].to_numpy(float),
-        "u_ns": dsg / np.sqrt(n), "u_fit_ns": dsg / np.sqrt(n), "u_apriori_ns": np.nan,
+        "u_ns": u, "u_fit_ns": u_fit, "u_apriori_ns": u_prior,
         "slope_ps_s": df["srsys_ps_s"].to_numpy(float), "rms_ns": dsg,
-        "elevation_deg": df["elv_deg"].to_numpy(float), "azimuth_deg": df["azth_deg"].to_numpy(float),
+        "elevation_deg": el, "azimuth_deg": df["azth_deg"].to_numpy(float),
         "troposphere_m": df["mdtr_ns"].to_numpy(float) * C_MPS * 1e-9,
-        "ionosphere_m": df["mdio_ns"].to_numpy(float) * C_MPS * 1e-9, "flag": "ok",
+        "ionosphere_m": df["mdio_ns"].to_numpy(float) * C_MPS * 1e-9, "flag": flag,
+        "ioe": df["ioe"].to_numpy(float),
     })
     out.attrs.update(reference="broadcast", mode="track", window_s=780.0, station=header.lab)
     return out.sort_values(["mid_time", "sat"], kind="stable").reset_index(drop=True)
+
+
+def station_revision_date(station, time_utc_ns: int) -> str:
+    """REV DATE of a station's track file: the date (YYYY-MM-DD, UTC) of the station file's last
+    change in force at ``time_utc_ns``: the start of the delay set in force or the latest
+    hardware change logged at or before that instant, whichever is later."""
+    from .timescales import to_iso
+
+    t = int(time_utc_ns)
+    candidates = [ds.valid_from_ns for ds in station.delay_sets if ds.valid_from_ns <= t]
+    candidates += [c.time_utc_ns for c in station.changes if c.time_utc_ns <= t]
+    if not candidates:
+        candidates = [min(ds.valid_from_ns for ds in station.delay_sets)] if station.delay_sets else [t]
+    return str(to_iso(int(max(candidates))))[:10]
+
+
+def receiver_line(obs_header, station, time_utc_ns: int) -> str:
+    """RCVR line text: maker and model, serial number and firmware from the RINEX header
+    (``REC # / TYPE / VERS``); when the header has no receiver type, the latest hardware change
+    of the station file that names a receiver (at or before ``time_utc_ns``); else 'UNKNOWN'."""
+    typ = " ".join(str(getattr(obs_header, "receiver_type", "") or "").split())
+    serial = " ".join(str(getattr(obs_header, "receiver_serial", "") or "").split())
+    fw = " ".join(str(getattr(obs_header, "receiver_version", "") or "").split())
+    if not typ:
+        logged = [c for c in station.changes if c.time_utc_ns <= int(time_utc_ns) and "receiver" in c.what.lower()]
+        if logged:
+            typ = max(logged, key=lambda c: c.time_utc_ns).what
+    parts = [typ or "UNKNOWN"]
+    if serial:
+        parts.append(f"SN {serial}")
+    if fw:
+        parts.append(f"FW {fw}")
+    return " ".join(parts).encode("ascii", "replace").decode()

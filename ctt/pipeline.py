@@ -294,6 +294,9 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
     check_distinct_stations(station_a, station_b)
     mopt = options.measure
     galileo_source = "fnav" if "E" in mopt.systems and mopt.signals == "iono-free" else "inav"
+    if orbits_bundle is None and inputs.tracks_a and inputs.tracks_b:
+        # two track files carry their own satellite clocks and models: no orbit product needed
+        orbits_bundle = (None, None, "broadcast", None)
     if orbits_bundle is None:
         orbits_bundle = load_orbits(inputs, options.orbits, galileo_source)
     orbits, nav_header, reference, _nav = orbits_bundle

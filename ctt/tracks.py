@@ -180,11 +180,62 @@ def _empty(attrs):
     return df
 
 
+def clock_steps_ns(meas_df: pd.DataFrame, *, step_ns: float = 1e6, tolerance_ns: float = 1e4) -> np.ndarray:
+    """Cumulative whole-millisecond resets of the station clock, per row (ns; 0 when there are none).
+
+    Many receivers keep their internal clock within ±0.5 ms of system time by
+    resetting it in steps of exactly 1 ms (common practice; real-2021-001's DELF
+    drifts by −0.735 µs/s and steps by +1 ms every 22.5 min). A track or bin
+    fitted across such a step is meaningless, so the fits remove the steps and
+    add back the one in force at the window's midpoint (that of the last sample
+    at or before it: a reset between that sample and the midpoint cannot be
+    placed), so the reported value is still the clock at that instant. Detection, on the epoch medians of the
+    usable ``clock_ns`` over satellites: the change between consecutive epochs
+    minus the day's median rate times the interval, when within ``tolerance_ns``
+    (10 µs: far above the ns-level changes of a drift, far below half a step)
+    of a non-zero multiple of ``step_ns``. Epochs without a usable value inherit
+    the preceding epoch's count.
+    """
+    t = meas_df["time"].to_numpy(np.int64)
+    if t.size == 0 or "clock_ns" not in meas_df.columns:
+        return np.zeros(t.size)
+    y = _col(meas_df, "clock_ns")
+    ok = (meas_df["flag"].astype(str).to_numpy(dtype=object) == "ok") & np.isfinite(y)
+    if ok.sum() < 2:
+        return np.zeros(t.size)
+    ep = pd.Series(y[ok]).groupby(t[ok]).median()
+    te, ce = ep.index.to_numpy(np.int64), ep.to_numpy(float)
+    if te.size < 2:
+        return np.zeros(t.size)
+    dt = np.diff(te) / 1e9
+    d = np.diff(ce)
+    rate = np.median(d / dt)
+    resid = d - rate * dt
+    k = np.rint(resid / step_ns)
+    jump = (k != 0) & (np.abs(resid - k * step_ns) < tolerance_ns)
+    if not jump.any():
+        return np.zeros(t.size)
+    cum = np.concatenate(([0.0], np.cumsum(np.where(jump, k * step_ns, 0.0))))
+    j = np.clip(np.searchsorted(te, t, side="right") - 1, 0, te.size - 1)
+    return cum[j]
+
+
+def _steps_at(meas_df, steps, instants):
+    """The cumulative step (ns) in force at each GPS instant: that of the last row at or before it."""
+    t = meas_df["time"].to_numpy(np.int64)
+    order = np.argsort(t, kind="stable")
+    ts, ss = t[order], np.asarray(steps, dtype=float)[order]
+    j = np.searchsorted(ts, np.asarray(instants, dtype=np.int64), side="right") - 1
+    return np.where(j >= 0, ss[np.clip(j, 0, None)], ss[0] if ss.size else 0.0)
+
+
 def _reduce(meas_df, win, start_utc, mid_gps, *, linear, min_points, rms_factor, rms_limit_ns, attrs,
-            min_rms_ns=0.01):
+            min_rms_ns=0.01, steps=None):
     """Per (window, satellite, signal) closed-form least squares with np.bincount sums.
 
-    ``win`` is the window index of each row (−1 outside every window).
+    ``win`` is the window index of each row (−1 outside every window); ``steps``
+    (ns per row, see :func:`clock_steps_ns`) are removed from ``clock_ns`` before
+    the fit and the step in force at each window's midpoint is added back.
     """
     sel = np.flatnonzero(win >= 0)
     if sel.size == 0:
@@ -203,6 +254,10 @@ def _reduce(meas_df, win, start_utc, mid_gps, *, linear, min_points, rms_factor,
     first = order[np.searchsorted(gid[order], np.arange(ng))]  # first row of each group
 
     y = _col(df, "clock_ns")[sel]
+    step_mid = None
+    if steps is not None and np.any(np.asarray(steps) != 0):
+        y = y - np.asarray(steps, dtype=float)[sel]
+        step_mid = _steps_at(df, steps, mid_gps)
     ok = (df["flag"].astype(str).to_numpy(dtype=object)[sel] == "ok") & np.isfinite(y)
     o = ok.astype(np.float64)
     n = np.bincount(gid, o, ng)
@@ -262,6 +317,8 @@ def _reduce(meas_df, win, start_utc, mid_gps, *, linear, min_points, rms_factor,
         ion, *_ = fit(_col(df, "ionosphere_m")[sel], linear)
 
     win_g = (guniq // len(key_uniq)).astype(np.int64)
+    if step_mid is not None:
+        a = a + step_mid[win_g]
     out = pd.DataFrame({
         "track_start_utc_ns": start_utc[win_g],
         "mid_time": mid_gps[win_g],
@@ -307,8 +364,14 @@ def _reduce(meas_df, win, start_utc, mid_gps, *, linear, min_points, rms_factor,
 
 def fit_tracks(meas_df: pd.DataFrame, schedule=None, *, length_s: float = TRACK_LENGTH_S,
                min_points: int | None = None, min_fraction: float = MIN_FRACTION,
-               rms_factor: float | None = 3.0, rms_limit_ns: float | None = None) -> pd.DataFrame:
+               rms_factor: float | None = 3.0, rms_limit_ns: float | None = None,
+               steps_ns=None) -> pd.DataFrame:
     """Fit every satellite's values inside each standard track; one row per track × satellite.
+
+    ``steps_ns``: the station clock's millisecond resets per row (None: detected
+    from ``clock_ns`` with :func:`clock_steps_ns`; 0 or False: none); a track
+    across a reset is fitted without it and reported with the step in force at
+    its midpoint.
 
     ``schedule``: track starts as UTC int64 ns (default: :func:`schedule_for_times`
     of the data). The points with ``start ≤ time < start + length_s`` (GPS time
@@ -352,13 +415,15 @@ def fit_tracks(meas_df: pd.DataFrame, schedule=None, *, length_s: float = TRACK_
         step = sampling_interval_s(t)
         nominal = length_s / step if np.isfinite(step) and step > 0 else 1.0
         min_points = int(math.ceil(min_fraction * math.floor(nominal + 1e-9) - 1e-9))
+    steps = clock_steps_ns(meas_df) if steps_ns is None else (
+        None if steps_ns is False else np.broadcast_to(np.asarray(steps_ns, dtype=float), t.shape))
     return _reduce(meas_df, win, start_utc, mid_gps, linear=True, min_points=min_points,
-                   rms_factor=rms_factor, rms_limit_ns=rms_limit_ns, attrs=attrs)
+                   rms_factor=rms_factor, rms_limit_ns=rms_limit_ns, attrs=attrs, steps=steps)
 
 
 def bin_epochs(meas_df: pd.DataFrame, bin_s: float | None = None, *, min_points: int | None = None,
                min_fraction: float = MIN_FRACTION, rms_factor: float | None = None,
-               rms_limit_ns: float | None = None) -> pd.DataFrame:
+               rms_limit_ns: float | None = None, steps_ns=None) -> pd.DataFrame:
     """Epoch mode: every epoch as it is (``bin_s=None``), or per-satellite means over bins.
 
     Single epochs: ``value_ns = clock_ns``, ``u_ns = sigma_ns``, the input flag
@@ -369,7 +434,8 @@ def bin_epochs(meas_df: pd.DataFrame, bin_s: float | None = None, *, min_points:
     if the points are unevenly spread); uncertainties ``s/√n`` (s with n−1 dof)
     and ``√(Σσᵢ²)/n``; ``few_points`` below ``min_points`` (default 2/3 of the
     nominal count, at least 1); ``high_rms`` only if ``rms_factor`` or
-    ``rms_limit_ns`` is given.
+    ``rms_limit_ns`` is given. Millisecond clock resets (``steps_ns``) are
+    handled in bins as in :func:`fit_tracks`.
     """
     _check(meas_df)
     t = meas_df["time"].to_numpy(np.int64)
@@ -423,12 +489,14 @@ def bin_epochs(meas_df: pd.DataFrame, bin_s: float | None = None, *, min_points:
         step = sampling_interval_s(t)
         nominal = bin_s / step if np.isfinite(step) and step > 0 else 1.0
         min_points = max(1, int(math.ceil(min_fraction * math.floor(nominal + 1e-9) - 1e-9)))
+    steps = clock_steps_ns(meas_df) if steps_ns is None else (
+        None if steps_ns is False else np.broadcast_to(np.asarray(steps_ns, dtype=float), t.shape))
     return _reduce(meas_df, win, start_utc, mid_gps, linear=False, min_points=min_points,
-                   rms_factor=rms_factor, rms_limit_ns=rms_limit_ns, attrs=attrs)
+                   rms_factor=rms_factor, rms_limit_ns=rms_limit_ns, attrs=attrs, steps=steps)
 
 
 __all__ = [
     "TRACK_LENGTH_S", "TRACK_SPACING_S", "REFERENCE_MJD", "REFERENCE_FIRST_START_S", "DAILY_SHIFT_S",
     "MIN_FRACTION", "OUTPUT_COLUMNS", "first_track_start_s", "track_schedule", "schedule_for_times",
-    "sampling_interval_s", "fit_tracks", "bin_epochs",
+    "sampling_interval_s", "fit_tracks", "bin_epochs", "clock_steps_ns",
 ]

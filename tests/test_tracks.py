@@ -255,3 +255,42 @@ def test_empty_and_missing_columns():
     assert len(tracks.fit_tracks(df.iloc[0:0])) == 0
     with pytest.raises(Exception, match="clock_ns"):
         tracks.fit_tracks(df.drop(columns=["clock_ns"]))
+
+
+def _sawtooth_clock(ts):
+    """Invented free-running receiver clock: −0.735 µs/s drift kept within ±0.5 ms by +1 ms resets
+    (the behaviour of real-2021-001's DELF; simulation truth, not its data)."""
+    raw = 4.2e5 - 735.0 * ts                      # ns
+    return raw + 1e6 * np.floor((5e5 - raw) / 1e6), raw
+
+
+def test_millisecond_resets_are_removed_inside_tracks_and_bins():
+    # Simulation truth: the clock above; a track or bin across a reset must still give the clock
+    # at its midpoint (the reset in force there) and the drift as slope, exactly.
+    clock = lambda ts: _sawtooth_clock(ts)[0]   # noqa: E731
+    df = station_table(clock)
+    steps = tracks.clock_steps_ns(df)
+    ts = (df["time"].to_numpy() - df["time"].min()) / 1e9
+    true_steps = clock(ts) - _sawtooth_clock(ts)[1]
+    np.testing.assert_allclose(steps - steps[0], true_steps - true_steps[0], atol=0)
+    assert np.unique(steps).size > 50               # ~63 resets in the day
+    tr = tracks.fit_tracks(df)
+    full = tr[tr["n_points"] == 26]
+    mid_s = (full["mid_time"].to_numpy() - df["time"].min()) / 1e9
+    np.testing.assert_allclose(full["value_ns"], clock(mid_s), atol=1e-6)
+    np.testing.assert_allclose(full["slope_ps_s"], -735_000.0, atol=1e-3)
+    np.testing.assert_allclose(full["rms_ns"], 0.0, atol=1e-6)
+    assert (full["flag"] == "ok").all()
+    b = tracks.bin_epochs(df, 960)
+    mid_b = (b["mid_time"].to_numpy() - df["time"].min()) / 1e9
+    # a bin mean of a line is the line at the mean time of its points; the reset added back is the
+    # one in force at the last sample at or before the midpoint (a reset between that sample and
+    # the midpoint cannot be placed: the midpoint's clock is known modulo 1 ms only there)
+    t_mean = pd.Series(ts).groupby(df["time"].to_numpy() // (960 * NS_PER_S)).mean()
+    t_mean = t_mean.reindex(b["mid_time"].to_numpy() // (960 * NS_PER_S)).to_numpy()
+    s_last = 30.0 * np.floor(mid_b / 30.0)
+    lin = _sawtooth_clock(t_mean)[1] + (clock(s_last) - _sawtooth_clock(s_last)[1])
+    np.testing.assert_allclose(b["value_ns"], lin, atol=1e-6)
+    # without resets nothing changes: no steps detected on a smooth clock
+    smooth = station_table(lambda t: 40.0 + 2e-3 * t)
+    assert not np.any(tracks.clock_steps_ns(smooth))

@@ -27,19 +27,22 @@ def register(sub) -> None:
 
 def run(args) -> int:
     from .. import timescales as ts
-    from ..exports import station_tracks_to_cggtts
+    from ..exports import receiver_line, station_revision_date, station_tracks_to_cggtts
     from ..formats.cggtts import CggttsHeader, write_cggtts
+    from ..formats.rinex_obs import read_obs_header
 
     station, day, opts = measure_station_day(args)
     reference = day.reference
     tracks = station_tracks_to_cggtts(day.table)
     t_mid = int(np.median(day.table["time"].to_numpy(np.int64)))
-    ds = station.delays_at(int(ts.convert(t_mid, "GPS", "UTC")))  # the set in force mid-day
+    t_mid_utc = int(ts.convert(t_mid, "GPS", "UTC"))
+    ds = station.delays_at(t_mid_utc)  # the set in force mid-day
     names = {"G": "GPS", "E": "GAL", "C": "BDS", "R": "GLO", "J": "QZS"}
     codes = sorted({(names.get(sat[0], sat[0]), c) for sat, lab in day.info["codes"].items()
                     for c in lab.split("+") if c})
     header = CggttsHeader(
-        rev_date="2023-01-01", rcvr=f"ctt measurement of {station.id}", ch=0, ims="99999",
+        rev_date=station_revision_date(station, t_mid_utc),
+        rcvr=receiver_line(read_obs_header(args.obs), station, t_mid_utc), ch=0, ims="99999",
         lab=args.lab or station.id, x_m=float(station.arp_m[0]), y_m=float(station.arp_m[1]),
         z_m=float(station.arp_m[2]), frame=station.frame,
         comments=f"ctt; clock reference {reference}; {opts.signals}",
@@ -51,4 +54,7 @@ def run(args) -> int:
     write_cggtts(out, tracks, header)
     print(f"{station.id}: {len(tracks)} tracks written to {out} (REFSYS = local clock - system time, "
           f"delays applied)")
+    for col, n in tracks.attrs.get("unavailable", {}).items():
+        log.warning("%s: %d tracks have %s too large for its field; written as not available (9s)",
+                    out, n, col)
     return 0

@@ -144,6 +144,24 @@ class CggttsHeader:
         return out
 
 
+def representable(col: str, values) -> np.ndarray:
+    """True where a numeric column's values fit their field (rounded to the file unit, not all 9s).
+
+    NaN counts as representable (it is written as the all-9 'not available' code).
+    """
+    spec = {c: (w, kind) for c, _, w, kind in _FIELDS}
+    if col not in spec or not isinstance(spec[col][1], int):
+        raise ValueError(f"{col!r} is not a numeric CGGTTS column")
+    w, kind = spec[col]
+    v = np.asarray(values, dtype=float)
+    with np.errstate(invalid="ignore"):
+        iv = np.rint(v * kind)
+        hi = 10.0 ** w - 1          # w digits
+        lo = -(10.0 ** (w - 1) - 1)  # a sign and w-1 digits
+        fits = (iv >= lo) & (iv < hi)  # hi itself is all 9s: the 'not available' code
+    return fits | ~np.isfinite(v)
+
+
 def _fmt_field(v, w, kind, col, row):
     if kind == "sat":
         s = str(v)
