@@ -111,6 +111,7 @@ Paths are relative to the pair file's folder unless absolute.
     no_tide = false
     no_sagnac = false
     no_relativity = false
+    # bias = "estimate"              # optional: satellite code biases fitted on each day's residuals
 
     [output]
     dir = "out"                      # run folders go below it
@@ -914,6 +915,7 @@ class Processing:
     no_tide: bool = False
     no_sagnac: bool = False
     no_relativity: bool = False
+    bias: str | None = None      #: 'estimate': satellite code biases fitted on each day's residuals
 
 
 _SWITCHES = ("no_troposphere", "no_ionosphere", "no_tide", "no_sagnac", "no_relativity")
@@ -1048,7 +1050,7 @@ _PAIR_TOP = {"pair", "inputs", "processing", "output", "events"}
 _PAIR_KEYS = {"name", "station_a", "station_b", "data_root"}
 WEIGHTS = ("sin2el", "equal", "sigma")
 _PROC_KEYS = {"mode", "signals", "systems", "codes", "orbits", "bin_s", "elevation_mask_deg",
-              "min_common_sats", "mad_k", "weights", "smoothing_s", *_SWITCHES}
+              "min_common_sats", "mad_k", "weights", "smoothing_s", "bias", *_SWITCHES}
 
 
 def _pattern_list(r: _Reader, v, key) -> tuple[str, ...]:
@@ -1164,6 +1166,10 @@ def load_pair(path) -> PairConfig:
                                  required=False, default=0.0, lo=0.0)
     for s in _SWITCHES:
         kw[s] = r.boolean(proc, s, f"processing.{s}", default=False)
+    bias = proc.get("bias")
+    if bias is not None and bias != "estimate":
+        r.fail("processing.bias", f"expected \"estimate\" (satellite code biases fitted on the day), found {bias!r}")
+    kw["bias"] = "estimate" if bias == "estimate" else None
     defaults = Processing()
     kw = {k: (getattr(defaults, k) if v is None and k != "elevation_mask_deg" else v) for k, v in kw.items()}
     processing = Processing(**kw)

@@ -87,8 +87,11 @@ class MeasureOptions:
     mad_k: float = 3.5                  #: epoch outlier rejection at k × 1.4826 × MAD
     sigma0_m: float = 0.3               #: a-priori code noise at zenith (σ = σ0 / sin el)
     biases: object = None               #: ctt.signals.BiasSet (Bias-SINEX) mapping codes onto the clock's
+    #: or 'estimate': each satellite's constant bias fitted on the day (apply_code_bias_estimates)
 
     def __post_init__(self):
+        if isinstance(self.biases, str) and self.biases != "estimate":
+            raise ValueError(f"biases must be a bias set, None or 'estimate', not {self.biases!r}")
         if self.signals not in ("iono-free", "single"):
             raise ValueError(f"signals must be 'iono-free' or 'single', not {self.signals!r}")
         if self.iono_model not in ("klobuchar", "ionex"):
@@ -132,6 +135,14 @@ class StationDay:
             if len(off):
                 lines.append("  satellites with a mean residual over 3 ns (code biases, orbit or clock errors): "
                              + ", ".join(f"{k} {v:+.1f}" for k, v in off.items()))
+        est = self.info.get("code_bias_estimates")
+        if est:
+            b = np.array([e["bias_ns"] for e in est], dtype=float)
+            u = np.array([e["u_ns"] for e in est], dtype=float)
+            lines.append(f"  code biases estimated for {len(b)} satellites (zero mean; their common part stays "
+                         f"in the station clock): RMS {np.sqrt(np.mean(b ** 2)):.2f} ns, "
+                         f"median u {np.nanmedian(u) if np.isfinite(u).any() else float('nan'):.2f} ns; "
+                         + ", ".join(f"{e['sat']} {e['bias_ns']:+.2f}({e['u_ns']:.2f})" for e in est))
         by_label = {}
         for sat, lab in (self.info.get("codes") or {}).items():
             by_label.setdefault(lab, []).append(sat)
@@ -601,10 +612,14 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                                "apply a bias file)" if opt.signals == "single" else "")), "smoothing_s": opt.smoothing_s,
             "elevation_mask_deg": mask_deg,
             "code_biases": ("bias file: codes mapped onto " + "/".join(sorted(set(CLOCK_REFERENCE_CODES.values())))
-                            if opt.biases is not None else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
+                            if opt.biases is not None and not isinstance(opt.biases, str)
+                            else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
             "position_m": [float(v) for v in rx], "position_check": pos_check}
-    return StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
-                      counts={str(k): int(v) for k, v in counts.items()}, info=info)
+    day = StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
+                     counts={str(k): int(v) for k, v in counts.items()}, info=info)
+    if isinstance(opt.biases, str) and opt.biases == "estimate":
+        day = apply_code_bias_estimates(day)
+    return day
 
 
 #: Second bands tried, in order, when the default one has no code for a satellite.
@@ -774,7 +789,7 @@ def select_signals(obs, sats, opt: MeasureOptions, glonass_k=None) -> SignalSele
     glo_k = glonass_k
     b1 = b2 = None
     no_bias = np.zeros(len(sats), dtype=bool)
-    if opt.biases is not None:
+    if opt.biases is not None and not isinstance(opt.biases, str):  # 'estimate': after the fit
         b1, f1_found = _code_biases_m(opt.biases, sats, choice.code1, obs)
         b2, f2_found = (_code_biases_m(opt.biases, sats, choice.code2, obs) if mode == "dual"
                         else (None, np.ones(len(sats), bool)))
@@ -1012,3 +1027,108 @@ def _hatch_smooth(obs, sel, t_gps_ns, window_s, *, gf_jump_m=0.15, gap_factor=1.
     out[raw_only] = P[raw_only]
     resets |= raw_only
     return out, resets
+
+
+# ---------------------------------------------------------------- satellite code biases from the day
+
+#: Block length (s) of the batch means behind a bias estimate's uncertainty (the standard
+#: CV track spacing: code multipath and noise decorrelate within minutes, common practice).
+BIAS_BLOCK_S = 960.0
+
+
+def estimate_code_biases(table: pd.DataFrame, *, max_iter: int = 20, tol_ns: float = 1e-4,
+                         block_s: float = BIAS_BLOCK_S) -> pd.DataFrame:
+    """Each satellite's constant code bias over the day, fitted on one station's own residuals.
+
+    Model, on the usable rows (flag 'ok'): ``clock_ns = e(t, system) + b(sat) + noise`` with
+    weights 1/σ² (``sigma_ns``), ``e`` one clock per epoch and system, ``b`` one constant per
+    satellite. Only differences between satellites are observable: a part common to every
+    satellite of a system cannot be told from the station clock (it enters each epoch's value
+    alike, like a receiver delay), so the biases are constrained to zero mean over the
+    system's satellites and that common part stays in the station clock. Solved by alternating
+    weighted least squares (epoch clocks given the biases, biases given the clocks, then the
+    constraint) until the biases change by less than ``tol_ns``.
+
+    Uncertainty (``u_ns``): batch means. The residuals ``clock − e`` of a satellite are averaged
+    in blocks of ``block_s`` (960 s) and ``u = SD(block means)/√n_blocks``: code multipath is
+    correlated over minutes, so the formal σ/√n of 30-s points would be far too small. NaN
+    with fewer than 2 blocks. Returns one row per satellite: ``sat``, ``system``,
+    ``bias_ns``, ``u_ns``, ``n_points``, ``n_blocks``, ``rms_ns`` (residual RMS after the fit).
+    """
+    cols = ["sat", "system", "bias_ns", "u_ns", "n_points", "n_blocks", "rms_ns"]
+    y_all = table["clock_ns"].to_numpy(float)
+    sg = table["sigma_ns"].to_numpy(float) if "sigma_ns" in table else np.ones(len(table))
+    ok = (table["flag"].astype(str).to_numpy(dtype=object) == "ok") & np.isfinite(y_all) & np.isfinite(sg) & (sg > 0)
+    if not ok.any():
+        return pd.DataFrame(columns=cols)
+    t = table["time"].to_numpy(np.int64)[ok]
+    sat = table["sat"].astype(str).to_numpy()[ok]
+    system = (table["system"].astype(str).to_numpy() if "system" in table else np.array([s[0] for s in sat]))[ok]
+    y, w = y_all[ok], 1.0 / sg[ok] ** 2
+    scode, suniq = pd.factorize(sat, sort=True)
+    gcode, guniq = pd.factorize(pd.Series(t).astype(str) + "|" + system, sort=False)
+    ns, ng = len(suniq), len(guniq)
+    sat_sys = np.array([s[0] for s in suniq]) if "system" not in table else \
+        pd.Series(system).groupby(scode).first().reindex(range(ns)).to_numpy()
+    sys_code, sys_uniq = pd.factorize(sat_sys)
+    wg = np.bincount(gcode, w, ng)
+    ws = np.bincount(scode, w, ns)
+    b = np.zeros(ns)
+    for _ in range(max_iter):
+        e = np.bincount(gcode, w * (y - b[scode]), ng) / wg
+        b_new = np.bincount(scode, w * (y - e[gcode]), ns) / ws
+        mean_sys = np.bincount(sys_code, b_new, len(sys_uniq)) / np.bincount(sys_code, minlength=len(sys_uniq))
+        b_new = b_new - mean_sys[sys_code]
+        done = np.max(np.abs(b_new - b)) < tol_ns
+        b = b_new
+        if done:
+            break
+    e = np.bincount(gcode, w * (y - b[scode]), ng) / wg
+    r = y - e[gcode]                     # residual before the bias: what the bias explains
+    res = r - b[scode]
+    n = np.bincount(scode, minlength=ns)
+    rms = np.sqrt(np.bincount(scode, res * res, ns) / np.maximum(n, 1))
+    blk = np.floor_divide(t, int(round(block_s * 1e9)))
+    bkey, _ = pd.factorize(pd.Series(scode).astype(str) + "|" + pd.Series(blk).astype(str), sort=False)
+    nb_all = bkey.max() + 1
+    bmean = np.bincount(bkey, r, nb_all) / np.bincount(bkey, minlength=nb_all)
+    bsat = np.zeros(nb_all, dtype=np.int64)
+    bsat[bkey] = scode
+    nblk = np.bincount(bsat, minlength=ns)
+    m1 = np.bincount(bsat, bmean, ns) / np.maximum(nblk, 1)
+    var = np.bincount(bsat, (bmean - m1[bsat]) ** 2, ns) / np.maximum(nblk - 1, 1)
+    u = np.where(nblk >= 2, np.sqrt(var / np.maximum(nblk, 1)), np.nan)
+    # a-posteriori variance factor at the block scale: block means of the residuals after the fit
+    # against their a-priori σ (√Σσ²/n), pooled over all satellites and blocks
+    nb = np.bincount(bkey, minlength=nb_all)
+    bres = np.bincount(bkey, res, nb_all) / nb
+    bvar0 = np.bincount(bkey, sg[ok] ** 2, nb_all) / nb ** 2
+    use = nb >= 2
+    factor = float(np.mean(bres[use] ** 2 / bvar0[use])) if use.any() else float("nan")
+    out = pd.DataFrame({"sat": np.asarray(suniq, dtype=object), "system": sat_sys, "bias_ns": b, "u_ns": u,
+                        "n_points": n.astype(np.int64), "n_blocks": nblk.astype(np.int64), "rms_ns": rms})
+    out.attrs["block_variance_factor"] = factor
+    return out
+
+
+def apply_code_bias_estimates(day: StationDay, **kw) -> StationDay:
+    """``day`` with each satellite's estimated code bias (:func:`estimate_code_biases`) removed from
+    ``clock_ns`` (column ``code_bias_ns`` added) and the estimates in ``info['code_bias_estimates']``.
+
+    The epoch solution ``day.epochs`` is left as measured (the zero-mean constraint keeps the
+    epoch clocks' level; their scatter, not their value, is what the biases change)."""
+    est = estimate_code_biases(day.table, **kw)
+    t = day.table.copy()
+    b = pd.Series(est["bias_ns"].to_numpy(float), index=est["sat"].astype(str)) if len(est) else pd.Series(dtype=float)
+    t["code_bias_ns"] = t["sat"].astype(str).map(b).fillna(0.0).to_numpy(float)
+    t["clock_ns"] = t["clock_ns"] - t["code_bias_ns"]
+    factor = est.attrs.get("block_variance_factor", float("nan"))
+    if np.isfinite(factor) and factor > 1.0:
+        t["sigma_ns"] = t["sigma_ns"] * np.sqrt(factor)
+    t.attrs.update(day.table.attrs)
+    info = dict(day.info)
+    info["code_biases"] = ("estimated from the day's residuals: one constant per satellite, zero mean over "
+                           "each system's satellites (their common part cannot be told from the station clock)")
+    info["code_bias_estimates"] = [{k: (v if not isinstance(v, (np.floating, np.integer)) else v.item())
+                                    for k, v in r.items()} for r in est.to_dict(orient="records")]
+    return dataclasses.replace(day, table=t, info=info)

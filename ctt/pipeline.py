@@ -120,7 +120,7 @@ class PairOptions:
     def to_dict(self) -> dict:
         biases = self.measure.biases
         d = dataclasses.asdict(dataclasses.replace(self, measure=dataclasses.replace(self.measure, biases=None)))
-        d["measure"]["biases"] = getattr(biases, "path", None)
+        d["measure"]["biases"] = biases if isinstance(biases, str) else getattr(biases, "path", None)
         d["measure"]["systems"] = list(self.measure.systems)
         d["measure"]["codes"] = list(self.measure.codes)
         return d
@@ -152,6 +152,15 @@ class PairResult:
                          f"median satellites per point {o.loc[ok, 'n_sat'].median():.0f}")
         for k, v in s["rejected"].items():
             lines.append(f"  rejected {k}: {v}")
+        for day in (self.station_a, self.station_b):
+            est = day.info.get("code_bias_estimates") if day is not None else None
+            if est:
+                b = np.array([e["bias_ns"] for e in est], dtype=float)
+                u = np.array([e["u_ns"] for e in est], dtype=float)
+                lines.append(f"  code biases estimated at {day.station_id}: {len(b)} satellites, RMS "
+                             f"{np.sqrt(np.mean(b ** 2)):.2f} ns, median u {np.nanmedian(u):.2f} ns (zero mean "
+                             f"over the satellites: their common part is in the station clock; per satellite "
+                             f"in summary.json)")
         for who, c in (s.get("coordinates") or {}).items():
             if c:
                 lines.append(f"  antenna position from the day's code data, {c['station']} ({who}): "
@@ -620,7 +629,7 @@ def options_from_processing(proc) -> PairOptions:
         troposphere=not proc.no_troposphere, ionosphere=not proc.no_ionosphere, tide=not proc.no_tide,
         sagnac=not proc.no_sagnac, relativity=not proc.no_relativity,
         smoothing_s=float(proc.smoothing_s),
-        mad_k=float(proc.mad_k))
+        mad_k=float(proc.mad_k), biases="estimate" if getattr(proc, "bias", None) == "estimate" else None)
     bin_s = proc.bin_s if proc.mode != "tracks" else None
     return PairOptions(mode=proc.mode, bin_s=bin_s, orbits=proc.orbits, mad_k=float(proc.mad_k),
                        min_common=int(proc.min_common_sats), measure=m,

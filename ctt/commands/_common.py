@@ -30,9 +30,11 @@ def add_model_arguments(p) -> None:
                    help="elevation mask in degrees (default: the station file's)")
     g.add_argument("--smoothing", type=float, default=None, metavar="SECONDS",
                    help="carrier-phase smoothing window of the code (Hatch filter), e.g. 600; 0 = off")
-    g.add_argument("--bias", metavar="BSX",
+    g.add_argument("--bias", metavar="BSX|estimate",
                    help="Bias-SINEX code-bias file: maps the codes used (e.g. C1C) onto the codes the GPS "
-                        "clocks refer to (C1W/C2W)")
+                        "clocks refer to (C1W/C2W); or 'estimate': fit each satellite's constant code bias "
+                        "on the day's own residuals (zero mean over the satellites; reported with its "
+                        "uncertainty)")
     g.add_argument("--iono-model", choices=("klobuchar", "ionex"), default=None,
                    help="ionosphere for single-frequency processing (default klobuchar; ionex needs --ionex)")
     for name in SWITCHES:
@@ -55,7 +57,9 @@ def measure_options(args, base: MeasureOptions | None = None) -> MeasureOptions:
         kw["smoothing_s"] = args.smoothing
     if args.iono_model:
         kw["iono_model"] = args.iono_model
-    if getattr(args, "bias", None):
+    if getattr(args, "bias", None) == "estimate":
+        kw["biases"] = "estimate"
+    elif getattr(args, "bias", None):
         from ..formats.bias_sinex import read_bias_sinex
 
         kw["biases"] = read_bias_sinex(args.bias)
