@@ -1031,13 +1031,32 @@ def _hatch_smooth(obs, sel, t_gps_ns, window_s, *, gf_jump_m=0.15, gap_factor=1.
 
 # ---------------------------------------------------------------- satellite code biases from the day
 
-#: Block length (s) of the batch means behind a bias estimate's uncertainty (the standard
-#: CV track spacing: code multipath and noise decorrelate within minutes, common practice).
-BIAS_BLOCK_S = 960.0
+#: Block length (s) of the batch means behind a bias estimate's uncertainty: code multipath is
+#: correlated over tens of minutes (common practice); on ZIMM and CN00 (real-2021-001) the
+#: batch-means SD grows with the block length up to about an hour (0.34 ns at 960 s, 0.59 ns at
+#: 3600 s, 0.72 ns at 7200 s for ZIMM's median satellite), so an hour is the shortest block that
+#: is nearly decorrelated while leaving ~8 blocks per satellite.
+BIAS_BLOCK_S = 3600.0
+#: Block length (s) of the a-posteriori variance factor applied to ``sigma_ns``: the standard track
+#: spacing, the scale of the track and bin means that use these values.
+FACTOR_BLOCK_S = 960.0
+
+
+def _block_means(t, scode, ns, values, block_s, extra=None):
+    """Per (satellite, block) means of ``values`` (and of ``extra``) -> (key sat, means, counts, extra sums)."""
+    blk = np.floor_divide(t, int(round(block_s * 1e9)))
+    bkey, _ = pd.factorize(pd.Series(scode).astype(str) + "|" + pd.Series(blk).astype(str), sort=False)
+    nb = int(bkey.max()) + 1
+    cnt = np.bincount(bkey, minlength=nb)
+    mean = np.bincount(bkey, values, nb) / cnt
+    bsat = np.zeros(nb, dtype=np.int64)
+    bsat[bkey] = scode
+    ext = np.bincount(bkey, extra, nb) if extra is not None else None
+    return bsat, mean, cnt, ext
 
 
 def estimate_code_biases(table: pd.DataFrame, *, max_iter: int = 20, tol_ns: float = 1e-4,
-                         block_s: float = BIAS_BLOCK_S) -> pd.DataFrame:
+                         block_s: float = BIAS_BLOCK_S, factor_block_s: float = FACTOR_BLOCK_S) -> pd.DataFrame:
     """Each satellite's constant code bias over the day, fitted on one station's own residuals.
 
     Model, on the usable rows (flag 'ok'): ``clock_ns = e(t, system) + b(sat) + noise`` with
@@ -1047,13 +1066,19 @@ def estimate_code_biases(table: pd.DataFrame, *, max_iter: int = 20, tol_ns: flo
     alike, like a receiver delay), so the biases are constrained to zero mean over the
     system's satellites and that common part stays in the station clock. Solved by alternating
     weighted least squares (epoch clocks given the biases, biases given the clocks, then the
-    constraint) until the biases change by less than ``tol_ns``.
+    constraint) until the biases change by less than ``tol_ns``. What is estimated is the
+    satellite's code bias plus whatever else is constant for that satellite over the day at
+    this station (e.g. the pass-averaged multipath): the uncertainty below covers the latter
+    only as far as it varies between blocks.
 
     Uncertainty (``u_ns``): batch means. The residuals ``clock − e`` of a satellite are averaged
-    in blocks of ``block_s`` (960 s) and ``u = SD(block means)/√n_blocks``: code multipath is
-    correlated over minutes, so the formal σ/√n of 30-s points would be far too small. NaN
-    with fewer than 2 blocks. Returns one row per satellite: ``sat``, ``system``,
-    ``bias_ns``, ``u_ns``, ``n_points``, ``n_blocks``, ``rms_ns`` (residual RMS after the fit).
+    in blocks of ``block_s`` (an hour, see :data:`BIAS_BLOCK_S`) and ``u = SD(block means)/√n_blocks``:
+    code multipath is correlated over tens of minutes, so the formal σ/√n of 30-s points would
+    be far too small. NaN with fewer than 2 blocks. Returns one row per satellite: ``sat``,
+    ``system``, ``bias_ns``, ``u_ns``, ``n_points``, ``n_blocks``, ``rms_ns`` (residual RMS after
+    the fit); ``attrs['block_variance_factor']``: the mean over satellites and blocks of
+    ``factor_block_s`` (960 s) of (block mean of the fitted residuals)² / (its a-priori variance
+    Σσ²/n²), the a-posteriori variance factor at the scale of tracks and bins.
     """
     cols = ["sat", "system", "bias_ns", "u_ns", "n_points", "n_blocks", "rms_ns"]
     y_all = table["clock_ns"].to_numpy(float)
@@ -1063,22 +1088,22 @@ def estimate_code_biases(table: pd.DataFrame, *, max_iter: int = 20, tol_ns: flo
         return pd.DataFrame(columns=cols)
     t = table["time"].to_numpy(np.int64)[ok]
     sat = table["sat"].astype(str).to_numpy()[ok]
-    system = (table["system"].astype(str).to_numpy() if "system" in table else np.array([s[0] for s in sat]))[ok]
+    system = (table["system"].astype(str).to_numpy()[ok] if "system" in table
+              else np.array([s[0] for s in sat], dtype=object))
     y, w = y_all[ok], 1.0 / sg[ok] ** 2
     scode, suniq = pd.factorize(sat, sort=True)
-    gcode, guniq = pd.factorize(pd.Series(t).astype(str) + "|" + system, sort=False)
+    gcode, guniq = pd.factorize(pd.Series(t).astype(str) + "|" + pd.Series(system).astype(str), sort=False)
     ns, ng = len(suniq), len(guniq)
-    sat_sys = np.array([s[0] for s in suniq]) if "system" not in table else \
-        pd.Series(system).groupby(scode).first().reindex(range(ns)).to_numpy()
+    sat_sys = pd.Series(system).groupby(scode).first().reindex(range(ns)).to_numpy()
     sys_code, sys_uniq = pd.factorize(sat_sys)
+    n_sys_sats = np.bincount(sys_code, minlength=len(sys_uniq))
     wg = np.bincount(gcode, w, ng)
     ws = np.bincount(scode, w, ns)
     b = np.zeros(ns)
     for _ in range(max_iter):
         e = np.bincount(gcode, w * (y - b[scode]), ng) / wg
         b_new = np.bincount(scode, w * (y - e[gcode]), ns) / ws
-        mean_sys = np.bincount(sys_code, b_new, len(sys_uniq)) / np.bincount(sys_code, minlength=len(sys_uniq))
-        b_new = b_new - mean_sys[sys_code]
+        b_new = b_new - (np.bincount(sys_code, b_new, len(sys_uniq)) / n_sys_sats)[sys_code]
         done = np.max(np.abs(b_new - b)) < tol_ns
         b = b_new
         if done:
@@ -1088,23 +1113,14 @@ def estimate_code_biases(table: pd.DataFrame, *, max_iter: int = 20, tol_ns: flo
     res = r - b[scode]
     n = np.bincount(scode, minlength=ns)
     rms = np.sqrt(np.bincount(scode, res * res, ns) / np.maximum(n, 1))
-    blk = np.floor_divide(t, int(round(block_s * 1e9)))
-    bkey, _ = pd.factorize(pd.Series(scode).astype(str) + "|" + pd.Series(blk).astype(str), sort=False)
-    nb_all = bkey.max() + 1
-    bmean = np.bincount(bkey, r, nb_all) / np.bincount(bkey, minlength=nb_all)
-    bsat = np.zeros(nb_all, dtype=np.int64)
-    bsat[bkey] = scode
+    bsat, bmean, _, _ = _block_means(t, scode, ns, r, block_s)
     nblk = np.bincount(bsat, minlength=ns)
     m1 = np.bincount(bsat, bmean, ns) / np.maximum(nblk, 1)
     var = np.bincount(bsat, (bmean - m1[bsat]) ** 2, ns) / np.maximum(nblk - 1, 1)
     u = np.where(nblk >= 2, np.sqrt(var / np.maximum(nblk, 1)), np.nan)
-    # a-posteriori variance factor at the block scale: block means of the residuals after the fit
-    # against their a-priori σ (√Σσ²/n), pooled over all satellites and blocks
-    nb = np.bincount(bkey, minlength=nb_all)
-    bres = np.bincount(bkey, res, nb_all) / nb
-    bvar0 = np.bincount(bkey, sg[ok] ** 2, nb_all) / nb ** 2
-    use = nb >= 2
-    factor = float(np.mean(bres[use] ** 2 / bvar0[use])) if use.any() else float("nan")
+    _, fmean, fcnt, fvar = _block_means(t, scode, ns, res, factor_block_s, extra=sg[ok] ** 2)
+    use = fcnt >= 2
+    factor = float(np.mean(fmean[use] ** 2 / (fvar[use] / fcnt[use] ** 2))) if use.any() else float("nan")
     out = pd.DataFrame({"sat": np.asarray(suniq, dtype=object), "system": sat_sys, "bias_ns": b, "u_ns": u,
                         "n_points": n.astype(np.int64), "n_blocks": nblk.astype(np.int64), "rms_ns": rms})
     out.attrs["block_variance_factor"] = factor
