@@ -2,7 +2,13 @@
 
 Sub-commands live in :mod:`ctt.commands`; each module there has a
 ``register(subparsers)`` function. Logs go to stderr; results go to files or
-stdout. Exit codes are those of :mod:`ctt.errors`.
+stdout. Exit codes are those of :mod:`ctt.errors` (``exit_code_for``).
+
+Start-up stays fast (``ctt --version``, ``ctt --help``): the command modules
+import only the standard library and :mod:`ctt.errors` at module level, and
+import numpy, pandas, matplotlib and the processing modules inside the
+functions that run a command (a test checks this; ``scripts/bench_startup.py``
+measures it).
 """
 
 from __future__ import annotations
@@ -10,14 +16,20 @@ from __future__ import annotations
 import argparse
 import importlib
 import logging
-import pkgutil
+import os
 import sys
 
 from . import __version__
 from . import commands as _commands
-from .errors import EXIT_OK, EXIT_PROCESSING, EXIT_USAGE, CttError
+from .errors import EXIT_OK, EXIT_USAGE, describe, exit_code_for, is_user_error
 
 log = logging.getLogger("ctt")
+
+
+def command_modules() -> list[str]:
+    """Names of the modules in ctt/commands that define commands (not starting with '_')."""
+    folder = os.path.dirname(_commands.__file__)
+    return sorted(f[:-3] for f in os.listdir(folder) if f.endswith(".py") and not f.startswith("_"))
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -35,10 +47,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--debug", action="store_true", help="show tracebacks and debug logs")
     parser.add_argument("-q", "--quiet", action="store_true", help="only warnings and errors on stderr")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for info in sorted(pkgutil.iter_modules(_commands.__path__), key=lambda m: m.name):
-        if info.name.startswith("_"):
-            continue
-        module = importlib.import_module(f"{_commands.__name__}.{info.name}")
+    for name in command_modules():
+        module = importlib.import_module(f"{_commands.__name__}.{name}")
         register = getattr(module, "register", None)
         if register is not None:
             register(sub)
@@ -56,6 +66,9 @@ def _setup_logging(debug: bool, quiet: bool) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    if (sys.argv[1:] if argv is None else list(argv)) == ["--version"]:
+        print(f"ctt {__version__}")   # the cron/packaging probe: answer without building every parser
+        return EXIT_OK
     parser = build_parser()
     args = parser.parse_args(argv)
     _setup_logging(args.debug, args.quiet)
@@ -65,22 +78,21 @@ def main(argv: list[str] | None = None) -> int:
     try:
         code = args.func(args)
         return EXIT_OK if code is None else int(code)
-    except CttError as exc:
-        if args.debug:
-            log.exception("failed")
-        print(f"ctt: error: {exc}", file=sys.stderr)
-        return exc.exit_code
     except KeyboardInterrupt:
         print("ctt: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
         return EXIT_OK
-    except Exception as exc:  # a bug: still one line unless --debug
-        if args.debug:
+    except Exception as exc:
+        if is_user_error(exc):   # a ctt error, or an OS error about a path given by the user
+            if args.debug:
+                log.exception("failed")
+            print(f"ctt: error: {describe(exc)}", file=sys.stderr)
+            return exit_code_for(exc)
+        if args.debug:           # a bug: still one line unless --debug
             raise
-        print(f"ctt: internal error: {type(exc).__name__}: {exc} (run with --debug for the traceback)",
-              file=sys.stderr)
-        return EXIT_PROCESSING
+        print(f"ctt: {describe(exc)} (run with --debug for the traceback)", file=sys.stderr)
+        return exit_code_for(exc)
 
 
 if __name__ == "__main__":  # pragma: no cover

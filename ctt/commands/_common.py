@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-from ..measure import MeasureOptions
-
 SWITCHES = ("troposphere", "ionosphere", "tide", "sagnac", "relativity")
 
 
@@ -41,8 +39,10 @@ def add_model_arguments(p) -> None:
         g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {name} correction off (diagnostics)")
 
 
-def measure_options(args, base: MeasureOptions | None = None) -> MeasureOptions:
+def measure_options(args, base=None):
     """MeasureOptions from parsed arguments over ``base`` (e.g. a pair file's processing)."""
+    from ..measure import MeasureOptions
+
     base = base or MeasureOptions()
     kw = {}
     if args.signals:

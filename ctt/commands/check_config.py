@@ -15,9 +15,7 @@ import datetime as _dt
 import os
 import sys
 
-from ..config import load_pair
 from ..errors import EXIT_OK, EXIT_USAGE, ConfigError, MissingInputError, UsageError
-from ..timescales import NS_PER_DAY, date_to_ns
 
 
 def register(subparsers) -> None:
@@ -65,6 +63,9 @@ def latest_available(pair, today=None, days_back: int = 400):
 
 def check(pair_path, dates=None, today=None) -> tuple[list[str], list[str]]:
     """Return (problems, ok_lines) for a pair file; never raises for a config problem."""
+    from ..config import load_pair
+    from ..timescales import NS_PER_DAY, date_to_ns
+
     problems: list[str] = []
     oks: list[str] = []
     try:

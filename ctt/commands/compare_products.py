@@ -54,8 +54,6 @@ from __future__ import annotations
 import json
 import math
 
-import numpy as np
-
 from ..errors import NoDataError
 
 OMEGA_E = 7.2921151467e-5  # rad/s, IS-GPS-200 (Earth rotation rate of WGS 84)
@@ -80,6 +78,8 @@ def register(subparsers) -> None:
 
 
 def _rms(x, axis=None):
+    import numpy as np
+
     with np.errstate(invalid="ignore"):
         n = np.sum(np.isfinite(x), axis=axis)
         s = np.nansum(np.square(x), axis=axis)
@@ -99,6 +99,8 @@ def compare_states(broadcast, precise, sats, t_ns):
     radial difference, and the per-epoch clock residuals (ns, satellites ×
     epochs) for plots.
     """
+    import numpy as np
+
     sats = np.asarray(sats, dtype=str)
     t_ns = np.asarray(t_ns, dtype=np.int64)
     ns, ne = len(sats), len(t_ns)
@@ -184,6 +186,8 @@ def _nav_satellites(nav) -> set:
 
 def run_comparison(nav_path, sp3_paths, clk_path=None, antex_path=None):
     """Read the files and compare; returns ``(result, details, precise_orbits)``."""
+    import numpy as np
+
     from ..orbits import BroadcastOrbits
     from ..formats.rinex_nav import read_nav
     from ..formats.sp3 import read_sp3

@@ -21,13 +21,7 @@ import json
 import logging
 import pathlib
 
-import numpy as np
-
-from ..archive import Archive
-from ..config import load_pair
 from ..errors import FileFormatError, MissingInputError, NoDataError, UsageError
-from ..exports import C_MPS, correct_events, read_events, read_offsets_csv
-from ..timescales import NS_PER_DAY, to_iso
 
 log = logging.getLogger("ctt.events")
 
@@ -52,6 +46,9 @@ def register(subparsers) -> None:
 
 
 def baseline_text(pair) -> str:
+    import numpy as np
+    from ..exports import C_MPS
+
     a, b = pair.station_a, pair.station_b
     pa, pb = a.arp_m, b.arp_m
     try:
@@ -86,6 +83,12 @@ def _type_b_from_summary(run_dir: pathlib.Path):
 
 
 def run(args) -> int:
+    import numpy as np
+    from ..archive import Archive
+    from ..config import load_pair
+    from ..exports import correct_events, read_events, read_offsets_csv
+    from ..timescales import NS_PER_DAY, to_iso
+
     pair = load_pair(args.config)
     if args.baseline:
         print(baseline_text(pair))

@@ -15,7 +15,6 @@ import pathlib
 import shutil
 import time
 
-import numpy as np
 
 log = logging.getLogger("ctt")
 
@@ -35,6 +34,8 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    import numpy as np
+
     from .. import operations
     from ..archive import Archive
     from ..config import load_pair

@@ -14,12 +14,13 @@ from __future__ import annotations
 import datetime as _dt
 import logging
 
-from ..archive import Archive
-from ..config import load_pair
 from ..errors import MissingInputError, NoDataError, UsageError
-from ..exports import OUT_FORMATS, write_offsets
 
 log = logging.getLogger("ctt.export")
+
+#: the formats of ctt.exports.OUT_FORMATS, written out so that `ctt --help` needs no pandas
+#: (tests/test_cli.py checks they agree)
+FORMATS = ("csv", "parquet", "json")
 
 
 def register(subparsers) -> None:
@@ -31,7 +32,7 @@ def register(subparsers) -> None:
     p.add_argument("--config", required=True, help="pair TOML file (its [output] archive is read)")
     p.add_argument("--from", dest="date_from", required=True, help="first UTC date YYYY-MM-DD")
     p.add_argument("--to", dest="date_to", required=True, help="last UTC date YYYY-MM-DD (inclusive)")
-    p.add_argument("--format", choices=OUT_FORMATS, default="csv", help="output format (default csv)")
+    p.add_argument("--format", choices=FORMATS, default="csv", help="output format (default csv)")
     p.add_argument("--system", help="G, E, ALL ... or 'all' for every stored series "
                                     "(default: the main series, as in offset.csv)")
     p.add_argument("--out", help="output file (default: stdout)")
@@ -46,6 +47,9 @@ def _date(text, what):
 
 
 def run(args) -> int:
+    from ..archive import Archive
+    from ..config import load_pair
+
     d0, d1 = _date(args.date_from, "--from"), _date(args.date_to, "--to")
     if d1 < d0:
         raise UsageError("--to is before --from")
@@ -62,6 +66,8 @@ def run(args) -> int:
     if df.empty:
         raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
                           + (f" for system {args.system}" if args.system else ""))
+    from ..exports import write_offsets
+
     write_offsets(df, args.out, args.format)
     if args.out:
         log.info("wrote %d rows to %s", len(df), args.out)

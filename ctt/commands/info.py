@@ -11,8 +11,6 @@ from __future__ import annotations
 import json
 import math
 
-from ..formats.rinex_obs import SYSTEM_NAMES, read_obs
-
 
 def register(subparsers) -> None:
     p = subparsers.add_parser(
@@ -36,6 +34,8 @@ def _fmt_pos(pos) -> str:
 
 def format_summary(s: dict) -> str:
     """Readable text of :meth:`ObsData.summary`."""
+    from ..formats.rinex_obs import SYSTEM_NAMES
+
     out = []
     add = out.append
     add(f"file           {s['path']}")
@@ -89,6 +89,8 @@ def format_summary(s: dict) -> str:
 
 
 def run(args) -> int:
+    from ..formats.rinex_obs import read_obs
+
     data = read_obs(args.file, on_error="skip" if args.skip_bad else "raise")
     s = data.summary()
     if args.json:

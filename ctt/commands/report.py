@@ -14,7 +14,6 @@ import pathlib
 import json
 
 from ..errors import NoDataError, UsageError
-from ..report import build_report, day_range_ns, read_run_dir
 from .stability import load_change_log
 
 
@@ -62,6 +61,8 @@ def _archive_provenance(runs, dates) -> dict:
 
 
 def run(args) -> int:
+    from ..report import build_report, day_range_ns, read_run_dir
+
     src = pathlib.Path(args.source)
     try:
         lo, hi = day_range_ns(args.time_from, args.time_to)

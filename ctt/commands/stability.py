@@ -23,12 +23,7 @@ import json
 import pathlib
 import sys
 
-import numpy as np
-
-from .. import plots, stability
 from ..errors import UsageError
-from ..report import analyse_series, day_range_ns, read_series
-from ..timescales import to_iso
 
 
 def register(subparsers) -> None:
@@ -81,10 +76,15 @@ def load_change_log(log_a=None, log_b=None) -> list[dict]:
 
 
 def _dump(obj) -> str:
+    import numpy as np
+
     return json.dumps(obj, indent=1, default=lambda o: o.item() if isinstance(o, np.generic) else str(o))
 
 
 def run_stability(args) -> int:
+    from .. import plots
+    from ..report import analyse_series, read_series
+
     s = read_series(args.series, column=args.column)
     log = load_change_log(getattr(args, "log_a", None), getattr(args, "log_b", None))
     res, devs, fit, ch, g = analyse_series(s.time_ns, s.value, s.u_ns, log, remove_steps=args.remove_steps,
@@ -134,6 +134,8 @@ def _text(res) -> str:
 
 
 def _range(text, name):
+    from ..report import day_range_ns
+
     if ".." not in text:
         raise UsageError(f"--{name} expects FROM..TO (ISO dates or date-times), got {text!r}")
     a, b = text.split("..", 1)
@@ -147,6 +149,10 @@ def _range(text, name):
 
 
 def run_compare(args) -> int:
+    from .. import plots, stability
+    from ..report import read_series
+    from ..timescales import to_iso
+
     s = read_series(args.series, column=args.column)
     before = _range(args.before, "before")
     after = _range(args.after, "after")
@@ -191,6 +197,8 @@ def run_compare(args) -> int:
 
 
 def _period(p):
+    from ..timescales import to_iso
+
     return {"start": to_iso(p.start_ns), "end": to_iso(p.end_ns), "n": p.n,
             "mean_ns": {"value": p.mean_ns, "u": p.u_mean_ns},
             "adev": p.adev.records(), "tdev": p.tdev.records(1e9)}

@@ -5,8 +5,6 @@ from __future__ import annotations
 import logging
 import pathlib
 
-import numpy as np
-
 from ._common import add_model_arguments, add_station_day_arguments, measure_station_day
 
 log = logging.getLogger("ctt")
@@ -26,6 +24,8 @@ def register(sub) -> None:
 
 
 def run(args) -> int:
+    import numpy as np
+
     from .. import timescales as ts
     from ..exports import receiver_line, station_revision_date, station_tracks_to_cggtts
     from ..formats.cggtts import CggttsHeader, write_cggtts
