@@ -177,6 +177,7 @@ __all__ = [
     "Antenna", "DelaySet", "HardwareChange", "StationConfig", "PairConfig", "Processing",
     "load_station", "dump_station", "load_pair", "format_pattern", "pattern_fields",
     "R_MIN_M", "R_MAX_M", "check_station_data", "check_distinct_stations", "names_match",
+    "PROCESSING_FIELDS", "check_processing_value",
 ]
 
 #: Sanity bounds of the geocentric radius of a station (common practice: ellipsoid +- a few km).
@@ -274,6 +275,15 @@ class _Reader:
         if not isinstance(v, bool):
             return self.fail(key, f"expected true or false, found {v!r}")
         return v
+
+    def processing(self, d, name):
+        """A [processing] value through the validation the command line shares (None if absent/bad)."""
+        if name not in d:
+            return None
+        try:
+            return check_processing_value(name, d[name])
+        except ValueError as exc:
+            return self.fail(f"processing.{name}", str(exc))
 
     def choice(self, d, name, key, choices, default):
         v = d.get(name, default)
@@ -610,34 +620,55 @@ def format_pattern(pattern: str, station_id: str, date) -> str:
     return pattern.format(**fields)
 
 
-def _check_pattern(reader: _Reader, pattern, key) -> bool:
+#: What may follow a placeholder's ':' in a pattern: an optional '0' fill, a width of at most
+#: two digits and an optional 'd' (``{doy:03d}``, ``{yy:02d}``, ``{ddd:3}``); a bounded width
+#: keeps a pattern from asking for gigabytes of padding.
+_SPEC_RE = re.compile(r"^0?[1-9]?[0-9]?d?$")
+
+
+def pattern_problem(pattern) -> str | None:
+    """Why ``pattern`` is not a valid file-name pattern, or None.
+
+    Only the documented placeholders, by their bare names: no attribute or index
+    access (``{station.__class__}``, ``{id[0]}``), no conversion (``{id!r}``), a
+    format spec of at most a '0' fill, a two-digit width and 'd'.
+    """
     if not isinstance(pattern, str) or not pattern:
-        reader.fail(key, f"expected a file-name pattern (a non-empty string), found {pattern!r}")
-        return False
+        return f"expected a file-name pattern (a non-empty string), found {pattern!r}"
     try:
-        names = [f for _, f, _, _ in string.Formatter().parse(pattern) if f is not None]
+        fields = [(f, spec, conv) for _, f, spec, conv in string.Formatter().parse(pattern) if f is not None]
     except ValueError as exc:
-        reader.fail(key, f"expected a valid pattern ({exc}), found {pattern!r}")
-        return False
-    for n in names:
-        base, off = _split_offset(re.split(r"[.\[]", n, maxsplit=1)[0])
-        if off and base not in _DATE_FIELDS:
-            reader.fail(key, f"placeholder {{{n}}}: a day offset applies to date placeholders only "
-                        f"({', '.join('{' + p + '}' for p in _DATE_FIELDS)})")
-            return False
-        if base not in _PATTERN_FIELDS:
-            reader.fail(key, f"unknown placeholder {{{n}}}; expected one of "
-                        f"{', '.join('{' + p + '}' for p in _PATTERN_FIELDS)}")
-            return False
+        return f"expected a valid pattern ({exc}), found {pattern!r}"
+    allowed = ", ".join("{" + p + "}" for p in _PATTERN_FIELDS)
+    for f, spec, conv in fields:
+        base, off = _split_offset(f)
+        if off and base in _DATE_FIELDS:
+            f = base
+        elif off:
+            return (f"placeholder {{{f}}}: a day offset applies to date placeholders only "
+                    f"({', '.join('{' + p + '}' for p in _DATE_FIELDS)})")
+        if f not in _PATTERN_FIELDS:
+            return f"unknown placeholder {{{f}}} (only the bare names are allowed); expected one of {allowed}"
+        if conv:
+            return f"placeholder {{{f}!{conv}}}: conversions are not allowed, found {pattern!r}"
+        if not _SPEC_RE.match(spec or ""):
+            return (f"placeholder {{{f}:{spec}}}: expected a format such as :03d (a '0', a width up to 99, "
+                    f"a 'd'), found {pattern!r}")
     try:
         pattern_day_offset(pattern)
     except ValueError as exc:
-        reader.fail(key, f"{exc}, found {pattern!r}")
-        return False
+        return f"{exc}, found {pattern!r}"
     try:
         format_pattern(pattern, "LABA", "2021-01-01")
     except (ValueError, KeyError, IndexError) as exc:
-        reader.fail(key, f"pattern cannot be formatted ({exc}), found {pattern!r}")
+        return f"pattern cannot be formatted ({exc}), found {pattern!r}"
+    return None
+
+
+def _check_pattern(reader: _Reader, pattern, key) -> bool:
+    problem = pattern_problem(pattern)
+    if problem:
+        reader.fail(key, problem)
         return False
     return True
 
@@ -942,6 +973,7 @@ class PairConfig:
     output_dir: pathlib.Path
     archive_path: pathlib.Path
     report_path: pathlib.Path
+    output_root: pathlib.Path   #: every output lies inside it: [output] root, else the pair file's folder
     max_gap_s: float
     config_hash: str   # SHA-256 of the normalised processing options and both stations' content
     sha256: str        # SHA-256 of the pair file's bytes
@@ -1053,6 +1085,47 @@ _PROC_KEYS = {"mode", "signals", "systems", "codes", "orbits", "bin_s", "elevati
               "min_common_sats", "mad_k", "weights", "smoothing_s", "bias", *_SWITCHES}
 
 
+#: The processing options a pair file's [processing] table and the command line share: one
+#: validation per field (:func:`check_processing_value`), so the two routes cannot disagree.
+#: key -> (what is expected, kind, bounds); the command line's names are in ctt.commands.
+PROCESSING_FIELDS = {
+    "systems": ("a list of RINEX system letters (G, R, E, C, J, I, S)", "systems", {}),
+    "codes": ("a list of RINEX 3 codes such as C1W", "codes", {}),
+    "bin_s": ("a bin length in seconds", "number", {"lo": 0.0, "lo_open": True}),
+    "elevation_mask_deg": ("an elevation mask in degrees", "number", {"lo": 0.0, "hi": 90.0}),
+    "min_common_sats": ("a number of satellites", "integer", {"lo": 1}),
+    "mad_k": ("a rejection threshold in MADs", "number", {"lo": 0.0, "lo_open": True}),
+    "smoothing_s": ("a smoothing time in seconds", "number", {"lo": 0.0}),
+}
+
+
+def check_processing_value(key: str, v):
+    """The value of a processing option if valid (numbers as float/int, lists as tuples), else
+    ValueError saying what was expected and what was found."""
+    what, kind, b = PROCESSING_FIELDS[key]
+    if kind == "systems":
+        if (not isinstance(v, (list, tuple)) or not v
+                or any(not isinstance(x, str) or len(x) != 1 or x not in "GRECJIS" for x in v)):
+            raise ValueError(f"expected {what}, found {v!r}")
+        return tuple(v)
+    if kind == "codes":
+        if not isinstance(v, (list, tuple)) or any(not isinstance(c, str) or not _CODE_RE.match(c) for c in v):
+            raise ValueError(f"expected {what}, found {v!r}")
+        return tuple(v)
+    if isinstance(v, bool) or not isinstance(v, (int, float)) or (kind == "integer" and not isinstance(v, int)):
+        raise ValueError(f"expected {what}{' (an integer)' if kind == 'integer' else ''}, found {v!r}")
+    if kind == "number":
+        v = float(v)
+        if not math.isfinite(v):
+            raise ValueError(f"expected a finite {what}, found {v!r}")
+    lo, hi = b.get("lo"), b.get("hi")
+    if lo is not None and (v < lo or (b.get("lo_open") and v == lo)):
+        raise ValueError(f"expected {what} {'>' if b.get('lo_open') else '>='} {lo:g}, found {v!r}")
+    if hi is not None and (v > hi or (b.get("hi_open") and v == hi)):
+        raise ValueError(f"expected {what} {'<' if b.get('hi_open') else '<='} {hi:g}, found {v!r}")
+    return v
+
+
 def _pattern_list(r: _Reader, v, key) -> tuple[str, ...]:
     items = [v] if isinstance(v, str) else v
     if not isinstance(items, list) or not items:
@@ -1071,6 +1144,63 @@ def _pattern_list(r: _Reader, v, key) -> tuple[str, ...]:
     if ok and kind in DAY_OFFSET_KINDS and all(pattern_day_offset(p) for p in ok):
         r.fail(key, "expected a pattern for the day itself besides those with day offsets")
     return tuple(ok)
+
+
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+_OUTPUT_KEYS = {"root", "dir", "archive", "report"}
+
+
+def _output_paths(r: _Reader, out: dict, base: pathlib.Path):
+    """(root, dir, archive, report) of the [output] table, each confined to the output root.
+
+    The rule (README, "Where outputs go"): the output root is ``[output] root`` when given
+    (relative to the pair file's folder, or absolute: a folder the administrator chose),
+    else the pair file's folder; ``dir``, ``archive`` and ``report`` are relative to the
+    root and must stay inside it after ``..`` and symbolic links are resolved. A file where
+    a folder is expected, or the reverse, is refused here rather than when the first day
+    is written.
+    """
+    r.unknown(out, _OUTPUT_KEYS, "output")
+    root_text = r.text(out, "root", "output.root", "a folder", required=False)
+    root = (base / root_text) if root_text else base
+    if root_text is not None:
+        if not root_text:
+            r.fail("output.root", "expected a folder, found an empty string")
+        elif root.exists() and not root.is_dir():
+            r.fail("output.root", f"expected a folder, found a file: {root_text!r} -> {root}")
+        elif root.resolve() == pathlib.Path(root.resolve().anchor):
+            log.warning("%s: [output.root] is the whole file system: outputs are confined to nothing",
+                        r.path)
+    real_root = root.resolve()
+
+    def one(key, default, want_dir):
+        text = r.text(out, key, f"output.{key}", f"a path relative to the output root {real_root}",
+                      required=False, default=default)
+        if text is None:
+            return None
+        if not text.strip():
+            return r.fail(f"output.{key}", "expected a path, found an empty string")
+        p = root / text
+        real = p.resolve()
+        if (real == real_root and not want_dir) or not real.is_relative_to(real_root):
+            return r.fail(f"output.{key}", f"expected a path inside the output root {real_root} (the pair "
+                          f"file's folder, or [output] root), found {text!r} -> {real}")
+        if want_dir and real.exists() and not real.is_dir():
+            return r.fail(f"output.{key}", f"expected a folder, found a file: {text!r} -> {real}")
+        if not want_dir and real.is_dir():
+            return r.fail(f"output.{key}", f"expected a file path, found a folder: {text!r} -> {real}")
+        for parent in real.parents:   # a file in the way of a folder to create
+            if parent == real_root or not parent.is_relative_to(real_root):
+                break
+            if parent.exists() and not parent.is_dir():
+                return r.fail(f"output.{key}", f"expected {parent} to be a folder, found a file")
+        return p
+
+    out_dir = one("dir", "out", True)
+    dir_text = out.get("dir", "out") if isinstance(out.get("dir", "out"), str) else "out"
+    archive = one("archive", str(pathlib.PurePath(dir_text) / "ctt.sqlite"), False)
+    report = one("report", str(pathlib.PurePath(dir_text) / "report.html"), False)
+    return root, out_dir, archive, report
 
 
 def load_pair(path) -> PairConfig:
@@ -1143,27 +1273,9 @@ def load_pair(path) -> PairConfig:
     kw["mode"] = r.choice(proc, "mode", "processing.mode", MODES, "tracks")
     kw["signals"] = r.choice(proc, "signals", "processing.signals", SIGNALS, "iono-free")
     kw["orbits"] = r.choice(proc, "orbits", "processing.orbits", ORBITS, "auto")
-    systems = proc.get("systems", ["G"])
-    if not isinstance(systems, list) or not systems or any(s not in "GRECJIS" or len(s) != 1 for s in systems):
-        r.fail("processing.systems", f"expected a list of RINEX system letters (G, R, E, C, J, I, S), found {systems!r}")
-        systems = ["G"]
-    kw["systems"] = tuple(systems)
-    codes = proc.get("codes", [])
-    if not isinstance(codes, list) or any(not isinstance(c, str) or not _CODE_RE.match(c) for c in codes):
-        r.fail("processing.codes", f"expected a list of RINEX 3 codes such as C1W, found {codes!r}")
-        codes = []
-    kw["codes"] = tuple(codes)
-    kw["bin_s"] = r.number(proc, "bin_s", "processing.bin_s", "a bin length in seconds", required=False,
-                           default=30.0, lo=0.0, lo_open=True)
-    kw["elevation_mask_deg"] = r.number(proc, "elevation_mask_deg", "processing.elevation_mask_deg",
-                                        "an angle in degrees", required=False, default=None, lo=0.0, hi=90.0)
-    kw["min_common_sats"] = r.integer(proc, "min_common_sats", "processing.min_common_sats",
-                                      "a number of satellites", default=Processing.min_common_sats, lo=1)
-    kw["mad_k"] = r.number(proc, "mad_k", "processing.mad_k", "a rejection threshold in MADs", required=False,
-                           default=Processing.mad_k, lo=0.0, lo_open=True)
+    for key in PROCESSING_FIELDS:
+        kw[key] = r.processing(proc, key)
     kw["weights"] = r.choice(proc, "weights", "processing.weights", WEIGHTS, "sin2el")
-    kw["smoothing_s"] = r.number(proc, "smoothing_s", "processing.smoothing_s", "a smoothing time in seconds",
-                                 required=False, default=0.0, lo=0.0)
     for s in _SWITCHES:
         kw[s] = r.boolean(proc, s, f"processing.{s}", default=False)
     bias = proc.get("bias")
@@ -1172,15 +1284,14 @@ def load_pair(path) -> PairConfig:
     kw["bias"] = "estimate" if bias == "estimate" else None
     defaults = Processing()
     kw = {k: (getattr(defaults, k) if v is None and k != "elevation_mask_deg" else v) for k, v in kw.items()}
+    kw["systems"], kw["codes"] = tuple(kw["systems"]), tuple(kw["codes"])
     processing = Processing(**kw)
+    if processing.mode == "all-in-view" and "sp3" not in patterns:
+        r.fail("processing.mode", "all-in-view needs precise orbits and clocks; expected an [inputs] sp3 "
+               "pattern (and clk) beside it")
 
     out = r.table(data, "output", "output", required=False) or {}
-    r.unknown(out, {"dir", "archive", "report"}, "output")
-    out_dir = base / r.text(out, "dir", "output.dir", "a folder", required=False, default="out")
-    archive = base / r.text(out, "archive", "output.archive", "a file path", required=False,
-                            default=str(pathlib.Path(out.get("dir", "out")) / "ctt.sqlite"))
-    report = base / r.text(out, "report", "output.report", "a file path", required=False,
-                           default=str(pathlib.Path(out.get("dir", "out")) / "report.html"))
+    out_root, out_dir, archive, report = _output_paths(r, out, base)
     ev = r.table(data, "events", "events", required=False) or {}
     r.unknown(ev, {"max_gap_s"}, "events")
     max_gap = r.number(ev, "max_gap_s", "events.max_gap_s", "a gap length in seconds", required=False,
@@ -1189,8 +1300,13 @@ def load_pair(path) -> PairConfig:
 
     sa, sb = stations["a"], stations["b"]
     name = pr.get("name") or f"{sa.id.lower()}-{sb.id.lower()}"
-    if not isinstance(name, str) or not re.match(r"^[A-Za-z0-9_.-]+$", name):
-        raise ConfigError(path, "pair.name", f"expected letters, digits, '-', '_' or '.', found {name!r}")
+    if not isinstance(name, str) or not _NAME_RE.match(name):
+        # the name is a folder of the output tree: no '..', no '/', no hidden names
+        raise ConfigError(path, "pair.name", "expected letters, digits, '-', '_' or '.' beginning with a "
+                          f"letter or digit (at most 64), found {name!r}")
+    if data_root is not None and data_root == pathlib.Path(data_root.anchor):
+        log.warning("%s: [pair.data_root] is the whole file system (%s): inputs are confined to nothing; "
+                    "name the folder that holds the data", path, data_root)
     # config hash: what determines the results, normalised through the dataclasses, so
     # comments, formatting, defaults written out or not, output locations, the data
     # root and file patterns (the input files' own hashes cover which files were
@@ -1203,5 +1319,5 @@ def load_pair(path) -> PairConfig:
         path=path, name=name, station_a=sa, station_b=sb, data_root=data_root,
         patterns=types.MappingProxyType(patterns), station_patterns=types.MappingProxyType(st_pats),
         optional=frozenset(opt), processing=processing, output_dir=out_dir, archive_path=archive,
-        report_path=report, max_gap_s=max_gap, config_hash=h.hexdigest(),
+        report_path=report, output_root=out_root, max_gap_s=max_gap, config_hash=h.hexdigest(),
         sha256=hashlib.sha256(raw).hexdigest())

@@ -138,6 +138,20 @@ EXIT_MEANING = {
 }
 
 
+#: How bad a failed day is, worst first, for a run over many days (``backfill``): a
+#: configuration error spoils every day, a processing error is a fault to look at, a
+#: missing input is often a gap in the data that will be filled later.
+SEVERITY = (EXIT_LOCKED, EXIT_USAGE, EXIT_PROCESSING, EXIT_MISSING_INPUT)
+
+
+def worst_exit_code(codes) -> int:
+    """The worst of some exit codes in the SEVERITY order; EXIT_OK when all are 0 (or none)."""
+    bad = [c for c in codes if c != EXIT_OK]
+    if not bad:
+        return EXIT_OK
+    return min(bad, key=lambda c: SEVERITY.index(c) if c in SEVERITY else len(SEVERITY))
+
+
 def exit_code_for(exc: BaseException) -> int:
     """The documented exit code of an error (EXIT_BY_CLASS; anything else is a processing error)."""
     for cls, code in EXIT_BY_CLASS:

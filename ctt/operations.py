@@ -39,7 +39,7 @@ import numpy as np
 
 from . import __version__
 from . import timescales as ts
-from .errors import CttError
+from .errors import CttError, describe, exit_code_for, is_user_error
 
 log = logging.getLogger(__name__)
 
@@ -51,6 +51,7 @@ class DayOutcome:
     date: str
     status: str                       #: 'ok', 'failed' or 'skipped'
     reason: str = ""
+    exit_code: int = 0                #: a failure's documented exit code (ctt.errors.exit_code_for)
     offsets: object = None            #: DataFrame (offset.csv rows) when ok
     satellites: object = None
     summary: dict | None = None
@@ -58,7 +59,6 @@ class DayOutcome:
     inputs_hash: str = ""
     config_hash: str = ""
     out_dir: str = ""
-    exit_code: int = 0                #: the error's exit code when failed (ctt.errors)
     started: str = ""
     finished: str = ""
 
@@ -151,12 +151,11 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         out.summary = result.summary
         out.out_dir = str(folder)
         out.status = "ok"
-    except CttError as exc:
-        out.reason = str(exc)
-        out.exit_code = exc.exit_code
-    except Exception as exc:  # a bug must not stop a backfill: record it with the traceback's last line
-        out.reason = f"internal error: {type(exc).__name__}: {exc}"
-        log.debug("day %s failed:\n%s", date, traceback.format_exc())
+    except Exception as exc:  # a bad day, or even a bug, must not stop a backfill: record it
+        out.reason = describe(exc)
+        out.exit_code = exit_code_for(exc)
+        if not is_user_error(exc):
+            log.debug("day %s failed:\n%s", date, traceback.format_exc())
     out.finished = _now()
     return out
 

@@ -1,8 +1,24 @@
-"""Argument groups shared by the processing sub-commands (measure, pair)."""
+"""Argument groups shared by the processing sub-commands (measure, pair), and argument types.
+
+Only the standard library at module level: ``ctt --help`` must not import numpy.
+"""
 
 from __future__ import annotations
 
+import argparse
+import datetime as _dt
+
 SWITCHES = ("troposphere", "ionosphere", "tide", "sagnac", "relativity")
+
+
+def date_arg(text: str) -> str:
+    """argparse type of a UTC date: 'YYYY-MM-DD' that exists on the calendar (exit 2 otherwise)."""
+    try:
+        if len(text) != 10:
+            raise ValueError("not in the form YYYY-MM-DD")
+        return _dt.date.fromisoformat(text).isoformat()
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"expected a UTC date YYYY-MM-DD, found {text!r} ({exc})") from None
 
 
 def add_product_arguments(g) -> None:
@@ -39,6 +55,23 @@ def add_model_arguments(p) -> None:
         g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {name} correction off (diagnostics)")
 
 
+#: command-line option -> the [processing] field whose validation it shares (ctt.config)
+OPTION_FIELDS = {"--systems": "systems", "--codes": "codes", "--elevation-mask": "elevation_mask_deg",
+                 "--smoothing": "smoothing_s", "--bin": "bin_s", "--mad-k": "mad_k",
+                 "--min-common": "min_common_sats"}
+
+
+def checked(option: str, value):
+    """An option's value through the pair file's validation of the same field (UsageError if bad)."""
+    from ..config import check_processing_value
+    from ..errors import UsageError
+
+    try:
+        return check_processing_value(OPTION_FIELDS[option], value)
+    except ValueError as exc:
+        raise UsageError(f"{option}: {exc}") from None
+
+
 def measure_options(args, base=None):
     """MeasureOptions from parsed arguments over ``base`` (e.g. a pair file's processing)."""
     from ..measure import MeasureOptions
@@ -48,13 +81,13 @@ def measure_options(args, base=None):
     if args.signals:
         kw["signals"] = args.signals
     if args.systems:
-        kw["systems"] = tuple(args.systems.replace(",", "").upper())
-    if args.codes:
-        kw["codes"] = tuple(c.strip() for c in args.codes.split(",") if c.strip())
+        kw["systems"] = checked("--systems", tuple(args.systems.replace(",", "").replace(" ", "").upper()))
+    if args.codes is not None:
+        kw["codes"] = checked("--codes", tuple(c.strip() for c in args.codes.split(",") if c.strip()))
     if args.elevation_mask is not None:
-        kw["elevation_mask_deg"] = args.elevation_mask
+        kw["elevation_mask_deg"] = checked("--elevation-mask", args.elevation_mask)
     if args.smoothing is not None:
-        kw["smoothing_s"] = args.smoothing
+        kw["smoothing_s"] = checked("--smoothing", args.smoothing)
     if args.iono_model:
         kw["iono_model"] = args.iono_model
     if getattr(args, "bias", None) == "estimate":

@@ -5,7 +5,8 @@ from __future__ import annotations
 import logging
 import sys
 
-from ..errors import EXIT_MISSING_INPUT, EXIT_OK, EXIT_PROCESSING, UsageError
+from ..errors import EXIT_OK, UsageError, worst_exit_code
+from ._common import date_arg
 
 log = logging.getLogger("ctt")
 
@@ -16,7 +17,7 @@ def register(sub) -> None:
                                    "folder, store the day in the archive and refresh the report. Safe to "
                                    "re-run; a second run waits for the first.")
     p.add_argument("--config", required=True, help="pair TOML file")
-    p.add_argument("--date", help="UTC date YYYY-MM-DD (default: yesterday, UTC)")
+    p.add_argument("--date", type=date_arg, help="UTC date YYYY-MM-DD (default: yesterday, UTC)")
     p.add_argument("--force", action="store_true", help="reprocess even if done with the same inputs")
     p.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS",
                    help="how long to wait for another run holding the archive (default 600)")
@@ -30,8 +31,8 @@ def register(sub) -> None:
                                    "files and the same configuration for that date are skipped; days whose "
                                    "calibration or coordinates changed are reprocessed and listed.")
     b.add_argument("--config", required=True, help="pair TOML file")
-    b.add_argument("--from", dest="date_from", required=True, help="first UTC date YYYY-MM-DD")
-    b.add_argument("--to", dest="date_to", required=True, help="last UTC date YYYY-MM-DD")
+    b.add_argument("--from", dest="date_from", type=date_arg, required=True, help="first UTC date YYYY-MM-DD")
+    b.add_argument("--to", dest="date_to", type=date_arg, required=True, help="last UTC date YYYY-MM-DD")
     b.add_argument("--force", action="store_true", help="reprocess every day")
     b.add_argument("--jobs", type=int, default=1, help="local worker processes (default 1)")
     b.add_argument("--scheduler", metavar="ADDRESS",
@@ -70,10 +71,7 @@ def run_daily(args) -> int:
         return EXIT_OK
     if outcome.status == "failed":
         print(f"ctt: error: {pc.name} {date}: {outcome.reason}", file=sys.stderr)
-        if outcome.exit_code:
-            return outcome.exit_code
-        missing = "not found" in outcome.reason or "no " in outcome.reason[:40]
-        return EXIT_MISSING_INPUT if missing else EXIT_PROCESSING
+        return outcome.exit_code
     s = outcome.summary
     b = s["budget"]
     print(f"{pc.name} {date}: {s['counts']['points_ok']} points, mean A - B {b['mean_offset_ns']:.3f} ns "
@@ -116,14 +114,18 @@ def run_backfill(args) -> int:
                 store_outcome(arc, pc.name, outcome)
                 counts[outcome.status] = counts.get(outcome.status, 0) + 1
                 if outcome.status == "failed":
-                    failures.append((outcome.date, outcome.reason))
+                    failures.append(outcome)
             if counts["ok"] and not args.no_report:
                 refresh_report(pc, arc)
-    for d, r in failures:
-        print(f"  failed {d}: {r}", file=sys.stderr)
     print(f"{pc.name}: {counts['ok']} day(s) processed, {counts['failed']} failed, "
           f"{counts['skipped']} already done")
-    return EXIT_PROCESSING if counts["failed"] and not counts["ok"] else EXIT_OK
+    code = worst_exit_code(o.exit_code for o in failures)
+    if failures:
+        # at the end, where a cron log's reader looks: every failed day with its reason and class
+        print(f"ctt: error: {len(failures)} day(s) failed (exit {code}, the worst day's):", file=sys.stderr)
+        for o in sorted(failures, key=lambda o: o.date):
+            print(f"  {o.date} [exit {o.exit_code}]: {o.reason}", file=sys.stderr)
+    return code
 
 
 def _outcomes(pair_path, dates, args):

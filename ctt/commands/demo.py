@@ -135,7 +135,7 @@ def _point_outputs_to(pair_file: pathlib.Path, out: pathlib.Path) -> None:
             skip = ln.strip() == "[output]"
         if not skip:
             keep.append(ln)
-    keep += ["", "[output]", f'dir = "{(out / "runs").as_posix()}"',
-             f'archive = "{(out / "archive.sqlite").as_posix()}"', f'report = "{(out / "report.html").as_posix()}"']
+    keep += ["", "[output]", f'root = "{out.as_posix()}"', 'dir = "runs"', 'archive = "archive.sqlite"',
+             'report = "report.html"']
     del data
     pair_file.write_text("\n".join(keep) + "\n")

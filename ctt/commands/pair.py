@@ -7,7 +7,7 @@ import logging
 import pathlib
 
 from ..errors import UsageError
-from ._common import add_model_arguments, add_product_arguments, measure_options
+from ._common import add_model_arguments, add_product_arguments, checked, date_arg, measure_options
 
 log = logging.getLogger("ctt")
 
@@ -30,7 +30,7 @@ def register(sub) -> None:
     src.add_argument("--station-b", help="station TOML file of B")
     cfg = p.add_argument_group("inputs (pair file)")
     cfg.add_argument("--config", help="pair TOML file (instead of the file arguments)")
-    cfg.add_argument("--date", help="UTC date YYYY-MM-DD to process with --config")
+    cfg.add_argument("--date", type=date_arg, help="UTC date YYYY-MM-DD to process with --config")
     proc = p.add_argument_group("processing")
     proc.add_argument("--mode", choices=("tracks", "epochs", "all-in-view"), default=None,
                       help="standard 13-minute tracks (default), every epoch/bin, or all-in-view "
@@ -63,15 +63,15 @@ def options_from_args(args, base=None):
     if args.mode:
         kw["mode"] = args.mode
     if args.bin is not None:
-        kw["bin_s"] = args.bin
+        kw["bin_s"] = checked("--bin", args.bin)
     if args.orbits:
         kw["orbits"] = args.orbits
     if args.weights:
         kw["weights"] = args.weights
     if args.mad_k is not None:
-        kw["mad_k"] = args.mad_k
+        kw["mad_k"] = checked("--mad-k", args.mad_k)
     if args.min_common is not None:
-        kw["min_common"] = args.min_common
+        kw["min_common"] = checked("--min-common", args.min_common)
     isb = {}
     for who, items in (("A", args.isb_a), ("B", args.isb_b)):
         for item in items:
@@ -101,6 +101,9 @@ def run(args) -> int:
                              + ", ".join("--" + g.replace("_", "-") for g in given))
         inputs, sta, stb, base = pair_day_from_config(args.config, args.date)
         options = options_from_args(args, base)
+        if options.mode == "all-in-view" and base.mode != "all-in-view" and inputs.sp3 is None:
+            raise UsageError(f"--mode all-in-view needs precise orbits and clocks: {args.config} has no "
+                             "[inputs] sp3 pattern for them")
     else:
         missing = [n for n in ("station_a", "station_b") if not getattr(args, n)]
         missing += [f"obs_{w} (or --tracks-{w})" for w in "ab"
@@ -110,6 +113,8 @@ def run(args) -> int:
                              + " (or --config PAIR.toml --date YYYY-MM-DD)")
         if not args.nav and not args.sp3 and not (args.tracks_a and args.tracks_b):
             raise UsageError("give --nav (broadcast) and/or --sp3 (precise orbits)")
+        if args.mode == "all-in-view" and not args.sp3:
+            raise UsageError("--mode all-in-view needs precise orbits and clocks: give --sp3 (and --clk)")
         inputs = PairInputs(obs_a=args.obs_a, obs_b=args.obs_b, nav=args.nav, sp3=args.sp3, clk=args.clk,
                             ionex=args.ionex, met_a=args.met_a, met_b=args.met_b, antex=args.antex,
                             tracks_a=args.tracks_a, tracks_b=args.tracks_b)
