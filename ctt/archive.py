@@ -27,6 +27,14 @@ Semantics
 * :meth:`Archive.record_failure` keeps the previous good results and marks the
   latest attempt of the day failed (``days.latest_status = 'failed'``); a day
   that never succeeded gets a ``days`` row with no results.
+* A damaged archive (SQLite reports a malformed image or not a database) raises
+  :class:`ctt.errors.ArchiveError` naming the file and how to recover: restore a
+  backup, or move the file aside and rebuild it from the run folders
+  (``ctt rebuild-archive``, :func:`ctt.operations.rebuild_archive`). An archive that
+  cannot be written (read-only file or folder) is a :class:`ctt.errors.ConfigError`.
+  A 0-byte archive file (a truncated copy, a full disk) is never silently replaced: it
+  is renamed ``<name>.empty-<UTC time>`` with a warning in the log, and a new
+  archive is started.
 * Writers are serialised by ``BEGIN IMMEDIATE`` with SQLite's busy timeout: a
   second writer waits up to ``timeout_s`` and then raises
   :class:`ctt.errors.LockTimeoutError` (exit code 4). Readers are never blocked
@@ -38,8 +46,10 @@ Semantics
 from __future__ import annotations
 
 import contextlib
+import functools
 import hashlib
 import json
+import logging
 import math
 import os
 import pathlib
@@ -51,10 +61,12 @@ import datetime as _dt
 import numpy as np
 import pandas as pd
 
-from .errors import ConfigError, FileFormatError, LockTimeoutError, ProcessingError
+from .errors import ArchiveError, ConfigError, LockTimeoutError, ProcessingError
 from .timescales import parse_iso_array, to_iso, to_mjd_float
 
 __all__ = ["Archive", "file_sha256", "inputs_record", "inputs_hash", "OFFSET_COLUMNS", "offsets_checksum"]
+
+log = logging.getLogger(__name__)
 
 SCHEMA_VERSION = 1
 OFFSET_COLUMNS = ("time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag")
@@ -233,13 +245,73 @@ def offsets_checksum(rows) -> str:
     return h.hexdigest()
 
 
+def _database_error(path, exc: sqlite3.DatabaseError) -> Exception:
+    """A ctt error for an SQLite error on the archive ``path``: what happened and how to recover."""
+    text = str(exc)
+    if "locked" in text or "busy" in text:
+        return LockTimeoutError(f"{path}: another run is using the archive ({text}); try again later")
+    if "readonly" in text or "read-only" in text or "unable to open" in text or "disk I/O" in text:
+        return ConfigError(path, None, f"cannot write the archive ({text}); make the file and its folder "
+                                       "writable by this user, or point [output] archive elsewhere")
+    return ArchiveError(path, f"a damaged file (SQLite: {text})",
+                        "Recover: restore it from a backup, or move it aside and rebuild it from the run "
+                        "folders with `ctt rebuild-archive --config PAIR.toml` (every day whose run folder "
+                        "is kept comes back; failed attempts are not in run folders)")
+
+
+def _guarded(method):
+    """Archive method whose SQLite errors become ctt errors naming the file (see _database_error)."""
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except sqlite3.DatabaseError as exc:
+            raise _database_error(self.path, exc) from None
+    return wrapper
+
+
+def _set_aside_if_empty(path: pathlib.Path) -> pathlib.Path | None:
+    """Rename a 0-byte archive (and its empty WAL files) out of the way; returns the new name.
+
+    A non-empty WAL beside an empty main file may still hold committed days: then
+    the file is left for SQLite to recover."""
+    try:
+        if not path.is_file() or path.stat().st_size != 0:
+            return None
+    except OSError:
+        return None
+    wal = path.with_name(path.name + "-wal")
+    if wal.is_file() and wal.stat().st_size > 0:
+        return None
+    stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    aside = path.with_name(f"{path.name}.empty-{stamp}")
+    k = 1
+    while aside.exists():
+        aside = path.with_name(f"{path.name}.empty-{stamp}-{k}")
+        k += 1
+    os.replace(path, aside)
+    for suffix in ("-wal", "-shm"):
+        side = path.with_name(path.name + suffix)
+        if side.is_file():
+            os.replace(side, aside.with_name(aside.name + suffix))
+    return aside
+
+
 class Archive:
     """One SQLite archive file. Use as a context manager or call :meth:`close`."""
 
     def __init__(self, path, timeout_s: float = 60.0):
         self.path = pathlib.Path(path)
         self.timeout_s = float(timeout_s)
+        self._con = None
+        if self.path.is_dir():
+            raise ConfigError(self.path, None, "expected the archive file, found a folder")
         self.path.parent.mkdir(parents=True, exist_ok=True)
+        aside = _set_aside_if_empty(self.path)
+        if aside is not None:
+            log.warning("%s: the archive file was empty (0 bytes: truncated copy or full disk?); kept it as "
+                        "%s and started a new archive. If days were stored before, restore a backup or run "
+                        "`ctt rebuild-archive`", self.path, aside.name)
         try:
             self._con = sqlite3.connect(str(self.path), timeout=self.timeout_s, isolation_level=None)
         except sqlite3.Error as exc:
@@ -249,10 +321,13 @@ class Archive:
             self._con.execute("PRAGMA synchronous = FULL")  # a committed day survives power loss too
             self._with_lock("open", self._init_schema)
         except sqlite3.DatabaseError as exc:
-            if isinstance(exc, sqlite3.OperationalError) and "locked" in str(exc):
-                raise
             self._con.close()
-            raise FileFormatError(self.path, None, "an SQLite archive written by ctt", str(exc)) from None
+            self._con = None
+            raise _database_error(self.path, exc) from None
+        except BaseException:
+            self._con.close()
+            self._con = None
+            raise
 
     # ------------------------------------------------------------ plumbing
 
@@ -299,7 +374,8 @@ class Archive:
         try:
             yield self._con
         except BaseException:
-            self._con.execute("ROLLBACK")
+            with contextlib.suppress(sqlite3.Error):   # a damaged file may refuse the rollback too
+                self._con.execute("ROLLBACK")
             raise
         self._con.execute("COMMIT")
 
@@ -314,6 +390,7 @@ class Archive:
     def __exit__(self, *exc):
         self.close()
 
+    @_guarded
     def integrity_check(self) -> str:
         """SQLite's own ``PRAGMA integrity_check`` result ('ok' when sound)."""
         return "; ".join(r[0] for r in self._con.execute("PRAGMA integrity_check").fetchall())
@@ -334,6 +411,7 @@ class Archive:
              run_info.get("started"), run_info.get("finished") or _now_iso()))
         return cur.lastrowid
 
+    @_guarded
     def store_day(self, pair: str, date, offsets_df: pd.DataFrame, satellites_df: pd.DataFrame | None,
                   run_info: dict | None = None) -> int:
         """Replace the day's results and record an ``ok`` run, all in one transaction; returns run_id.
@@ -373,6 +451,7 @@ class Archive:
                 (pair, date, run_id, run_id, len(orows), len(srows), checksum))
         return run_id
 
+    @_guarded
     def record_failure(self, pair: str, date, reason: str, run_info: dict | None = None) -> int:
         """Record a failed attempt; previous good results of the day are kept (see module doc)."""
         date = _date_text(date)
@@ -384,6 +463,7 @@ class Archive:
                 " latest_status='failed'", (pair, date, run_id))
         return run_id
 
+    @_guarded
     def mark_stale(self, pair: str, dates, reason: str) -> int:
         """Flag stored days for reprocessing (e.g. after a calibration change); returns how many."""
         ds = [_date_text(d) for d in dates]
@@ -396,6 +476,7 @@ class Archive:
 
     # ------------------------------------------------------------ reading
 
+    @_guarded
     def load_offsets(self, pair: str, date_from=None, date_to=None, system: str | None = None,
                      extras: bool = True) -> pd.DataFrame:
         """Stored per-bin offsets of ``pair`` for dates ``date_from..date_to`` inclusive, sorted by time.
@@ -431,11 +512,13 @@ class Archive:
             df = df.drop(columns="extra")
         return df
 
+    @_guarded
     def load_satellites(self, pair: str, date) -> pd.DataFrame:
         rows = self._con.execute("SELECT data FROM satellites WHERE pair=? AND date=? ORDER BY row",
                                  (pair, _date_text(date))).fetchall()
         return pd.DataFrame([json.loads(r[0]) for r in rows])
 
+    @_guarded
     def days_done(self, pair: str) -> dict:
         """{date: (inputs_hash, config_hash)} of days holding good, non-stale results (for backfill)."""
         rows = self._con.execute(
@@ -443,12 +526,14 @@ class Archive:
             " WHERE d.pair=? AND d.stale=0 ORDER BY d.date", (pair,)).fetchall()
         return {d: (ih, ch) for d, ih, ch in rows}
 
+    @_guarded
     def stale_days(self, pair: str) -> dict:
         """{date: reason} of days marked stale."""
         rows = self._con.execute("SELECT date, stale_reason FROM days WHERE pair=? AND stale=1 ORDER BY date",
                                  (pair,)).fetchall()
         return dict(rows)
 
+    @_guarded
     def day_info(self, pair: str, date) -> dict | None:
         row = self._con.execute(
             "SELECT run_id, latest_run_id, latest_status, n_offsets, n_satellites, checksum, stale, stale_reason"
@@ -459,6 +544,7 @@ class Archive:
                 "stale_reason")
         return dict(zip(keys, row))
 
+    @_guarded
     def runs(self, pair: str, date=None) -> pd.DataFrame:
         q = "SELECT * FROM runs WHERE pair=?"
         args: list = [pair]
@@ -468,6 +554,7 @@ class Archive:
         cur = self._con.execute(q + " ORDER BY run_id", args)
         return pd.DataFrame(cur.fetchall(), columns=[c[0] for c in cur.description])
 
+    @_guarded
     def verify_day(self, pair: str, date) -> bool:
         """Stored offsets match the day's recorded row count and checksum."""
         info = self.day_info(pair, date)

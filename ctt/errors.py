@@ -108,8 +108,13 @@ class LockTimeoutError(CttError):
 
 
 
-class ArchiveError(CttError):
-    """The archive file is damaged or cannot be written (names the file and how to recover)."""
+class ArchiveError(FileFormatError):
+    """The archive file is damaged: names the file, what SQLite found and how to recover."""
+
+    def __init__(self, path, found, recovery: str):
+        super().__init__(path, None, "an SQLite archive written by ctt", found)
+        self.recovery = recovery
+        self.args = (f"{self.args[0]}. {recovery}",)
 
 
 #: The one mapping of error classes onto the README's exit codes; the first class an error

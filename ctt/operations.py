@@ -191,6 +191,73 @@ def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
         archive.record_failure(pair_name, outcome.date, outcome.reason, info)
 
 
+def read_run_folder(folder, date: str) -> DayOutcome:
+    """A stored day rebuilt from its run folder (offset tables, satellites.csv, summary.json).
+
+    The run folder holds everything the archive keeps of a good day: the offsets
+    of every system (``offset_by_system.csv``, else ``offset.csv``), the
+    per-satellite rows, and in ``summary.json`` the inputs with their SHA-256, the
+    input and configuration fingerprints and the software version. Values come
+    back as the CSV files hold them (0.1 ps, far below any uncertainty).
+    """
+    import pandas as pd
+
+    from .errors import FileFormatError, MissingInputError
+
+    folder = pathlib.Path(folder)
+    summary_path = folder / "summary.json"
+    if not summary_path.is_file():
+        raise MissingInputError(f"{summary_path}: run folder without summary.json")
+    try:
+        summary = json.loads(summary_path.read_text())
+    except (ValueError, UnicodeDecodeError) as exc:
+        raise FileFormatError(summary_path, None, "a JSON summary written by ctt", str(exc)) from None
+    off_path = folder / "offset_by_system.csv"
+    if not off_path.is_file():
+        off_path = folder / "offset.csv"
+    try:
+        offsets = pd.read_csv(off_path, keep_default_na=False, na_values=[""])
+        sat_path = folder / "satellites.csv"
+        satellites = pd.read_csv(sat_path, keep_default_na=False, na_values=[""]) if sat_path.is_file() else None
+    except FileNotFoundError as exc:
+        raise MissingInputError(f"{exc.filename}: run folder file not found") from None
+    except (ValueError, pd.errors.ParserError) as exc:
+        raise FileFormatError(off_path, None, "a CSV table written by ctt", str(exc)) from None
+    if "system" in offsets.columns:
+        offsets["system"] = offsets["system"].fillna("").astype(str)
+    return DayOutcome(date=date, status="ok", offsets=offsets, satellites=satellites, summary=summary,
+                      inputs={k: v for k, v in (summary.get("inputs") or {}).items() if v is not None},
+                      inputs_hash=summary.get("inputs_hash", ""), config_hash=summary.get("config_hash", ""),
+                      out_dir=str(folder), started="", finished=_now())
+
+
+def rebuild_archive(pc, archive) -> tuple[list[str], list[str]]:
+    """Store every run folder of the pair (``<output dir>/<pair>/<YYYY-MM-DD>/``) into ``archive``.
+
+    Returns (dates stored, problems). A folder that is not a date, or whose files
+    cannot be read, is listed as a problem and skipped; the others are stored.
+    """
+    from .errors import CttError
+
+    base = pathlib.Path(pc.output_dir) / pc.name
+    stored, problems = [], []
+    folders = sorted(p for p in base.iterdir() if p.is_dir()) if base.is_dir() else []
+    for folder in folders:
+        try:
+            date = _dt.date.fromisoformat(folder.name).isoformat()
+        except ValueError:
+            problems.append(f"{folder}: not a day folder (YYYY-MM-DD); skipped")
+            continue
+        try:
+            outcome = read_run_folder(folder, date)
+            store_outcome(archive, pc.name, outcome)
+        except CttError as exc:
+            problems.append(f"{folder}: {exc}")
+            continue
+        stored.append(date)
+    return stored, problems
+
+
 def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, satellites=None):
     """Rebuild the pair's HTML report from the last ``days`` days of the archive.
 

@@ -43,7 +43,7 @@ from . import __version__
 from . import commonview, tracks
 from .archive import file_sha256
 from . import timescales as ts
-from .errors import MissingInputError, NoDataError
+from .errors import MissingInputError, NoDataError, require_file
 from .measure import MeasureOptions, StationDay, measure_station
 
 log = logging.getLogger(__name__)
@@ -179,9 +179,7 @@ class PairResult:
 def _need(path, what):
     if path is None:
         raise MissingInputError(f"no {what} given")
-    if not pathlib.Path(path).is_file():
-        raise MissingInputError(f"{path}: {what} not found")
-    return str(path)
+    return require_file(path, what)   # absent: exit 3; a folder or a device: exit 2
 
 
 def _several(v) -> list:

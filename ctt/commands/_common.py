@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import argparse
 import datetime as _dt
+import os
 
 SWITCHES = ("troposphere", "ionosphere", "tide", "sagnac", "relativity")
 
@@ -53,6 +54,43 @@ def add_model_arguments(p) -> None:
                    help="ionosphere for single-frequency processing (default klobuchar; ionex needs --ionex)")
     for name in SWITCHES:
         g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {name} correction off (diagnostics)")
+
+
+def _existing_ancestor_problem(path: str) -> str | None:
+    """The nearest existing ancestor of ``path`` must be a folder (``file.csv/x.csv`` is refused)."""
+    parent = os.path.dirname(os.path.abspath(path))
+    while parent and not os.path.exists(parent):
+        up = os.path.dirname(parent)
+        if up == parent:
+            break
+        parent = up
+    if os.path.exists(parent) and not os.path.isdir(parent):
+        return f"{parent} is a file, expected a folder"
+    return None
+
+
+def out_file(text: str) -> str:
+    """argparse type of an output file: not a folder, and not below a file (exit 2 otherwise)."""
+    if not text:
+        raise argparse.ArgumentTypeError("expected a file name, found an empty string")
+    if os.path.isdir(text):
+        raise argparse.ArgumentTypeError(f"{text!r} is a folder, expected a file name")
+    problem = _existing_ancestor_problem(text)
+    if problem:
+        raise argparse.ArgumentTypeError(f"{text!r}: {problem}")
+    return text
+
+
+def out_dir(text: str) -> str:
+    """argparse type of an output folder: not an existing file, not below a file (exit 2 otherwise)."""
+    if not text:
+        raise argparse.ArgumentTypeError("expected a folder, found an empty string")
+    if os.path.exists(text) and not os.path.isdir(text):
+        raise argparse.ArgumentTypeError(f"{text!r} is a file, expected a folder")
+    problem = _existing_ancestor_problem(text)
+    if problem:
+        raise argparse.ArgumentTypeError(f"{text!r}: {problem}")
+    return text
 
 
 #: command-line option -> the [processing] field whose validation it shares (ctt.config)

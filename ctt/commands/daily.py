@@ -45,6 +45,16 @@ def register(sub) -> None:
                    help="process files whose marker name or position does not match their station file (a warning instead of a refusal)")
     b.set_defaults(func=run_backfill)
 
+    r = sub.add_parser("rebuild-archive", help="rebuild a lost or damaged archive from the run folders",
+                       description="Store every run folder <output dir>/<pair>/<YYYY-MM-DD>/ of the pair file "
+                                   "into a new archive (the configured one, which must not exist: move a "
+                                   "damaged one aside first, or give --archive). Failed attempts are not in "
+                                   "run folders and do not come back.")
+    r.add_argument("--config", required=True, help="pair TOML file")
+    r.add_argument("--archive", metavar="FILE", help="write this new archive instead of the configured one")
+    r.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS")
+    r.set_defaults(func=run_rebuild)
+
 
 def _open(pc, timeout):
     from ..archive import Archive
@@ -126,6 +136,30 @@ def run_backfill(args) -> int:
         for o in sorted(failures, key=lambda o: o.date):
             print(f"  {o.date} [exit {o.exit_code}]: {o.reason}", file=sys.stderr)
     return code
+
+
+def run_rebuild(args) -> int:
+    import pathlib
+
+    from ..archive import Archive
+    from ..config import load_pair
+    from ..errors import NoDataError
+    from ..operations import rebuild_archive
+
+    pc = load_pair(args.config)
+    target = pathlib.Path(args.archive) if args.archive else pathlib.Path(pc.archive_path)
+    if target.exists() and target.stat().st_size > 0:
+        raise UsageError(f"{target}: exists; move it aside first (it is kept for inspection) or give "
+                         "--archive NEW.sqlite")
+    with Archive(target, timeout_s=args.lock_timeout) as arc, arc.run_lock():
+        stored, problems = rebuild_archive(pc, arc)
+    for line in problems:
+        print(f"ctt: warning: {line}", file=sys.stderr)
+    if not stored:
+        raise NoDataError(f"{pc.output_dir}/{pc.name}: no run folders to rebuild {target} from")
+    print(f"{pc.name}: {len(stored)} day(s) stored into {target} from the run folders "
+          f"({stored[0]} .. {stored[-1]}); {len(problems)} folder(s) skipped")
+    return EXIT_OK
 
 
 def _outcomes(pair_path, dates, args):

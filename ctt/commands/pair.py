@@ -7,7 +7,8 @@ import logging
 import pathlib
 
 from ..errors import UsageError
-from ._common import add_model_arguments, add_product_arguments, checked, date_arg, measure_options
+from ._common import (add_model_arguments, add_product_arguments, checked, date_arg, measure_options,
+                      out_dir)
 
 log = logging.getLogger("ctt")
 
@@ -51,7 +52,7 @@ def register(sub) -> None:
     add_model_arguments(p)
     p.add_argument("--force-inputs", action="store_true",
                    help="process files whose marker name or position does not match their station file (a warning instead of exit 2)")
-    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--out", type=out_dir, required=True, help="output folder")
     p.set_defaults(func=run)
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import logging
 import pathlib
 
-from ._common import add_model_arguments, add_station_day_arguments, measure_station_day
+from ._common import add_model_arguments, add_station_day_arguments, measure_station_day, out_file
 
 log = logging.getLogger("ctt")
 
@@ -18,7 +18,7 @@ def register(sub) -> None:
                                    "(ctt pair --tracks-b FILE).")
     add_station_day_arguments(p)
     p.add_argument("--lab", help="laboratory code for the LAB line (default: the station id)")
-    p.add_argument("--out", required=True, help="output file, e.g. LABA59215.cggtts")
+    p.add_argument("--out", type=out_file, required=True, help="output file, e.g. LABA59215.cggtts")
     add_model_arguments(p)
     p.set_defaults(func=run)
 

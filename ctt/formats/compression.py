@@ -18,7 +18,7 @@ import os
 import pathlib
 import zipfile
 
-from ..errors import FileFormatError, MissingInputError
+from ..errors import FileFormatError, require_file
 
 _GZIP = b"\x1f\x8b"
 _LZW = b"\x1f\x9d"
@@ -51,9 +51,7 @@ def _decompress_outer(path: pathlib.Path, raw: bytes) -> bytes:
 
 def read_bytes(path) -> bytes:
     """The file's content with any outer compression and Hatanaka encoding removed."""
-    path = pathlib.Path(path)
-    if not path.is_file():
-        raise MissingInputError(f"{path}: file not found")
+    path = pathlib.Path(require_file(path))   # absent: exit 3; a folder or a device: exit 2
     raw = path.read_bytes()
     data = _decompress_outer(path, raw)
     if data.startswith(_GZIP) or data.startswith(_LZW) or data.startswith(_BZ2):
