@@ -74,6 +74,7 @@ def main(argv: list[str] | None = None) -> int:
     _setup_logging(args.debug, args.quiet)
     if not getattr(args, "func", None):
         parser.print_help(sys.stderr)
+        print("ctt: error: give a command (listed above)", file=sys.stderr)
         return EXIT_USAGE
     try:
         code = args.func(args)

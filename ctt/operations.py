@@ -128,7 +128,6 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
     (:func:`ctt.pipeline.check_obs_file`) with a warning instead of failing the day.
     """
     from .config import load_pair
-    from .pipeline import offset_table, pair_day_from_config, run_pair, write_pair_outputs
 
     started = _now()
     out = DayOutcome(date=str(date), status="failed", started=started)
@@ -139,6 +138,8 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         if known is not None and tuple(known) == (ih, ch) and not force:
             out.status, out.reason = "skipped", "already done with the same inputs and configuration"
             return out
+        from .pipeline import offset_table, pair_day_from_config, run_pair, write_pair_outputs
+
         inputs, sta, stb, options = pair_day_from_config(pc, date)
         result = run_pair(inputs, sta, stb, options, force_inputs=force_inputs)
         _check_day(result, inputs, date)

@@ -110,6 +110,19 @@ def checked(option: str, value):
         raise UsageError(f"{option}: {exc}") from None
 
 
+def check_options(args) -> None:
+    """Every shared processing option given, through its field's validation (UsageError if bad)."""
+    for option in OPTION_FIELDS:
+        value = getattr(args, option[2:].replace("-", "_"), None)
+        if value is None:
+            continue
+        if option == "--systems":
+            value = tuple(value.replace(",", "").replace(" ", "").upper())
+        elif option == "--codes":
+            value = tuple(c.strip() for c in value.split(",") if c.strip())
+        checked(option, value)
+
+
 def measure_options(args, base=None):
     """MeasureOptions from parsed arguments over ``base`` (e.g. a pair file's processing)."""
     from ..measure import MeasureOptions
@@ -154,16 +167,29 @@ def add_station_day_arguments(p) -> None:
     add_product_arguments(p)
 
 
+def check_input_files(args, names) -> None:
+    """Every input file given on the command line exists and is a regular file, before any work
+    (absent: exit 3; a folder or a device: exit 2; ctt.errors.require_file)."""
+    from ..errors import require_file
+
+    for name in names:
+        value = getattr(args, name, None)
+        for item in ([value] if isinstance(value, str) else (value or [])):
+            require_file(item, f"--{name.replace('_', '-')}" if name != "obs" else "observation file")
+
+
 def measure_station_day(args):
     """Run the measurement model for ``add_station_day_arguments``; returns (station, StationDay, options)."""
     from ..config import load_station
     from ..errors import UsageError
-    from ..pipeline import PairInputs, load_orbits, measure_file
 
     if not args.nav and not args.sp3:
         raise UsageError("give --nav (broadcast) or --sp3 (precise orbits)")
     opts = measure_options(args)
+    check_input_files(args, ("obs", "nav", "sp3", "clk", "antex", "ionex", "met", "bias"))
     station = load_station(args.station)
+    from ..pipeline import PairInputs, load_orbits, measure_file
+
     inputs = PairInputs(obs_a=args.obs, obs_b=None, nav=args.nav, sp3=args.sp3, clk=args.clk,
                         ionex=args.ionex, met_a=args.met, antex=args.antex)
     orbits, nav_header, reference, _ = load_orbits(inputs, "auto")

@@ -147,6 +147,9 @@ def run_rebuild(args) -> int:
     from ..operations import rebuild_archive
 
     pc = load_pair(args.config)
+    runs = pathlib.Path(pc.output_dir) / pc.name
+    if not runs.is_dir():
+        raise NoDataError(f"{runs}: no run folders of {pc.name} to rebuild the archive from")
     target = pathlib.Path(args.archive) if args.archive else pathlib.Path(pc.archive_path)
     if target.exists() and target.stat().st_size > 0:
         raise UsageError(f"{target}: exists; move it aside first (it is kept for inspection) or give "

@@ -7,8 +7,8 @@ import logging
 import pathlib
 
 from ..errors import UsageError
-from ._common import (add_model_arguments, add_product_arguments, checked, date_arg, measure_options,
-                      out_dir)
+from ._common import (add_model_arguments, add_product_arguments, check_input_files, check_options, checked,
+                      date_arg, measure_options, out_dir)
 
 log = logging.getLogger("ctt")
 
@@ -87,12 +87,13 @@ def options_from_args(args, base=None):
 
 
 def run(args) -> int:
-    from ..config import load_station
-    from ..pipeline import PairInputs, run_pair, write_pair_outputs
+    from ..config import load_pair, load_station
 
+    # option values and input files first: a mistake is reported before the processing modules load
+    check_options(args)
+    check_input_files(args, ("obs_a", "obs_b", "tracks_a", "tracks_b", "nav", "sp3", "clk", "ionex", "antex",
+                             "met_a", "met_b", "bias"))
     if args.config:
-        from ..pipeline import pair_day_from_config
-
         if not args.date:
             raise UsageError("--config needs --date YYYY-MM-DD")
         given = [n for n in ("obs_a", "obs_b", "tracks_a", "tracks_b", "nav", "sp3", "clk", "ionex", "antex",
@@ -100,11 +101,14 @@ def run(args) -> int:
         if given:
             raise UsageError("with --config the files come from the pair file; drop "
                              + ", ".join("--" + g.replace("_", "-") for g in given))
-        inputs, sta, stb, base = pair_day_from_config(args.config, args.date)
-        options = options_from_args(args, base)
-        if options.mode == "all-in-view" and base.mode != "all-in-view" and inputs.sp3 is None:
+        pc = load_pair(args.config)
+        if args.mode == "all-in-view" and not pc.patterns.get("sp3"):
             raise UsageError(f"--mode all-in-view needs precise orbits and clocks: {args.config} has no "
                              "[inputs] sp3 pattern for them")
+        from ..pipeline import pair_day_from_config
+
+        inputs, sta, stb, base = pair_day_from_config(pc, args.date)
+        options = options_from_args(args, base)
     else:
         missing = [n for n in ("station_a", "station_b") if not getattr(args, n)]
         missing += [f"obs_{w} (or --tracks-{w})" for w in "ab"
@@ -116,11 +120,15 @@ def run(args) -> int:
             raise UsageError("give --nav (broadcast) and/or --sp3 (precise orbits)")
         if args.mode == "all-in-view" and not args.sp3:
             raise UsageError("--mode all-in-view needs precise orbits and clocks: give --sp3 (and --clk)")
+        from ..pipeline import PairInputs
+
         inputs = PairInputs(obs_a=args.obs_a, obs_b=args.obs_b, nav=args.nav, sp3=args.sp3, clk=args.clk,
                             ionex=args.ionex, met_a=args.met_a, met_b=args.met_b, antex=args.antex,
                             tracks_a=args.tracks_a, tracks_b=args.tracks_b)
         sta, stb = load_station(args.station_a), load_station(args.station_b)
         options = options_from_args(args)
+    from ..pipeline import run_pair, write_pair_outputs
+
     result = run_pair(inputs, sta, stb, options, force_inputs=args.force_inputs)
     paths = write_pair_outputs(result, pathlib.Path(args.out))
     print("\n".join(result.summary_lines()))
