@@ -259,12 +259,18 @@ def _database_error(path, exc: sqlite3.DatabaseError) -> Exception:
                         "is kept comes back; failed attempts are not in run folders)")
 
 
+_PROGRAMMING_ERRORS = (sqlite3.ProgrammingError, sqlite3.InterfaceError, sqlite3.IntegrityError,
+                       sqlite3.DataError, sqlite3.NotSupportedError)
+
+
 def _guarded(method):
     """Archive method whose SQLite errors become ctt errors naming the file (see _database_error)."""
     @functools.wraps(method)
     def wrapper(self, *args, **kwargs):
         try:
             return method(self, *args, **kwargs)
+        except _PROGRAMMING_ERRORS:
+            raise                       # a bug in the caller's data, not a problem of the file
         except sqlite3.DatabaseError as exc:
             raise _database_error(self.path, exc) from None
     return wrapper

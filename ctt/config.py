@@ -68,7 +68,10 @@ terrain; common practice).
 Pair file
 =========
 
-Paths are relative to the pair file's folder unless absolute.
+Paths are relative to the pair file's folder unless absolute. Outputs are
+confined to the output root (``[output] root``, else the pair file's folder):
+``dir``, ``archive`` and ``report`` resolving outside it, a pair name that is
+not a plain folder name, are configuration errors naming the key.
 
 .. code-block:: toml
 
@@ -114,6 +117,7 @@ Paths are relative to the pair file's folder unless absolute.
     # bias = "estimate"              # optional: satellite code biases fitted on each day's residuals
 
     [output]
+    root = "/srv/ctt/out"            # optional: the output root (default: the pair file's folder)
     dir = "out"                      # run folders go below it
     archive = "out/ctt.sqlite"
     report = "out/report.html"
@@ -126,7 +130,9 @@ Placeholders in patterns (Python format fields, so ``{doy:03d}`` works):
 ``{STATION}`` the same in upper case, ``{id}`` / ``{ID}`` the whole id as
 written / upper case, ``{yyyy}`` ``{yy}`` ``{mm}`` ``{dd}`` ``{doy}`` (ints),
 ``{ddd}`` (day of year as 3-digit text), ``{gpsweek}`` ``{gpsdow}`` (ints),
-``{session}`` (``"0"``, the daily-file session character). A pattern whose
+``{session}`` (``"0"``, the daily-file session character); only these bare
+names (no attribute or index access, no ``!r`` conversion) and a format of at
+most a ``0``, a two-digit width and ``d``. A pattern whose
 result contains ``*`` or ``?`` is matched as a glob inside its folder and the
 first match in sorted order is taken. Every resolved path is checked to stay
 inside ``data_root`` after ``..`` and symbolic links are resolved.

@@ -21,7 +21,7 @@ import pandas as pd
 import pytest
 
 from ctt.archive import Archive, inputs_record, offsets_checksum
-from ctt.errors import EXIT_LOCKED, FileFormatError, LockTimeoutError
+from ctt.errors import EXIT_LOCKED, ArchiveError, ConfigError, FileFormatError, LockTimeoutError, exit_code_for
 from ctt.timescales import parse_iso
 
 PAIR = "laba-labb"
@@ -369,3 +369,59 @@ def test_sigkill_during_store_day(tmp_path):
 def test_sigkill_during_store_day_many(tmp_path):
     mid = _kill_trials(tmp_path, trials=50, random_state=2)
     assert mid >= 15
+
+
+def test_empty_archive_is_kept_aside_with_a_warning(tmp_path, caplog):
+    """A 0-byte archive (truncated copy, full disk) is never silently replaced."""
+    p = tmp_path / "ctt.sqlite"
+    p.write_bytes(b"")
+    with caplog.at_level("WARNING", logger="ctt.archive"):
+        with Archive(p) as a:
+            off, sat = make_day(0, n=10, nsat=2)
+            a.store_day(PAIR, DAY, off, sat)
+    aside = sorted(tmp_path.glob("ctt.sqlite.empty-*"))
+    assert len(aside) == 1 and aside[0].stat().st_size == 0
+    assert aside[0].name in caplog.text and "0 bytes" in caplog.text
+    with Archive(p) as a:
+        assert len(a.load_offsets(PAIR)) == 10
+
+
+def test_damaged_pages_name_the_file_and_the_way_back(tmp_path):
+    p = tmp_path / "ctt.sqlite"
+    off, sat = make_day(0)
+    with Archive(p) as a:
+        a.store_day(PAIR, DAY, off, sat)
+    raw = bytearray(p.read_bytes())
+    raw[4096 * 2:] = b"\xa5" * (len(raw) - 4096 * 2)     # page 1 (schema) intact, data pages garbage
+    p.write_bytes(bytes(raw))
+    with pytest.raises(ArchiveError) as ei:
+        with Archive(p) as a:
+            a.load_offsets(PAIR)
+            a.days_done(PAIR)
+    msg = str(ei.value)
+    assert str(p) in msg and "rebuild-archive" in msg and "backup" in msg
+    assert exit_code_for(ei.value) == 1          # README: processing error
+    assert bytes(raw) == p.read_bytes()          # left as it was, for inspection
+
+
+def test_read_only_archive_is_a_configuration_error(tmp_path, monkeypatch):
+    """Opened read-only (as a file without write permission is, for a non-root user): exit 2."""
+    import sqlite3
+
+    import ctt.archive as arch
+
+    p = tmp_path / "ctt.sqlite"
+    off, sat = make_day(0, n=10, nsat=2)
+    with Archive(p) as a:
+        a.store_day(PAIR, DAY, off, sat)
+    real_connect = sqlite3.connect
+
+    def read_only(path, *args, **kwargs):
+        return real_connect(f"file:{path}?mode=ro", *args, uri=True, **kwargs)
+
+    monkeypatch.setattr(arch.sqlite3, "connect", read_only)
+    with pytest.raises(ConfigError) as ei:
+        with Archive(p) as a:
+            a.store_day(PAIR, DAY, off, sat)
+    assert str(p) in str(ei.value) and "writable" in str(ei.value)
+    assert exit_code_for(ei.value) == 2

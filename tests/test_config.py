@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import json
 import math
 import os
 import pathlib
+import re
 import shutil
 import tomllib
 
@@ -374,3 +376,94 @@ def test_check_config_missing_inputs_and_uncovered_dates(pair_dir, capsys):
     assert "no obs_b file for 2019-01-01" in out
     assert "laba.toml: [delays]: no delay set covers 2019-01-01T00:00:00.000" in out
     assert "needed for 2019-01-01" in out
+
+
+# ---------------------------------------------------------------- outputs confined, one validation per field
+
+def _with_output(pair_dir, output_table: str):
+    txt = (pair_dir / "pair.toml").read_text()
+    head, _, rest = txt.partition("[output]")
+    tail = rest[rest.find("\n["):] if "\n[" in rest else ""
+    (pair_dir / "pair.toml").write_text(head + output_table + "\n" + tail)
+
+
+def test_outputs_stay_inside_the_output_root(pair_dir, tmp_path_factory):
+    """README "Where outputs go": the pair file's folder, or [output] root; nothing escapes it."""
+    _with_output(pair_dir, '[output]\ndir = "runs"')
+    p = C.load_pair(pair_dir / "pair.toml")
+    assert p.output_root == pair_dir and p.archive_path == pair_dir / "runs" / "ctt.sqlite"
+    elsewhere = tmp_path_factory.mktemp("srv")
+    _with_output(pair_dir, f'[output]\nroot = "{elsewhere.as_posix()}"\ndir = "out"\narchive = "a/ctt.sqlite"')
+    p = C.load_pair(pair_dir / "pair.toml")
+    assert p.output_dir == elsewhere / "out" and p.archive_path == elsewhere / "a" / "ctt.sqlite"
+    assert p.report_path == elsewhere / "out" / "report.html"
+    for table, key in (('dir = "../escaped_out"', "output.dir"),
+                       (f'dir = "{elsewhere.as_posix()}"', "output.dir"),
+                       ('archive = "/tmp/ctt.sqlite"', "output.archive"),
+                       ('report = "out/../../report.html"', "output.report"),
+                       ('report = 5', "output.report"),
+                       ('archive = "out"', "output.archive")):   # a folder where a file is expected
+        (pair_dir / "out").mkdir(exist_ok=True)
+        _with_output(pair_dir, "[output]\n" + table)
+        with pytest.raises(ConfigError) as ei:
+            C.load_pair(pair_dir / "pair.toml")
+        assert key in [e.key for e in ei.value.problems], (table, str(ei.value))
+    # a symbolic link inside the root that points outside it is refused as well
+    os.symlink(elsewhere, pair_dir / "link")
+    _with_output(pair_dir, '[output]\ndir = "link/out"')
+    with pytest.raises(ConfigError, match="inside the output root"):
+        C.load_pair(pair_dir / "pair.toml")
+
+
+@pytest.mark.parametrize("name", ["..", ".", ".hidden", "a/b", "-x", "x" * 65])
+def test_pair_name_is_a_plain_folder_name(pair_dir, name):
+    txt = (pair_dir / "pair.toml").read_text()
+    (pair_dir / "pair.toml").write_text(txt.replace("[pair]\n", f'[pair]\nname = "{name}"\n', 1)
+                                        if "name =" not in txt.split("[inputs]")[0]
+                                        else re.sub(r'name = "[^"]*"', f'name = "{name}"', txt, count=1))
+    with pytest.raises(ConfigError) as ei:
+        C.load_pair(pair_dir / "pair.toml")
+    assert ei.value.key == "pair.name"
+
+
+@pytest.mark.parametrize("pattern,words", [
+    ("brdc{doy:999999999}", "width up to 99"),
+    ("brdc{station.__class__}", "unknown placeholder"),
+    ("brdc{id[0]}", "unknown placeholder"),
+    ("brdc{id!r}", "conversions"),
+    ("brdc{doy:>5}", "format such as"),
+])
+def test_patterns_allow_only_the_documented_placeholders(pattern, words):
+    assert words in C.pattern_problem(pattern)
+
+
+def test_documented_patterns_pass():
+    for p in ("{ID}_R_{yyyy}{doy:03d}0000_01D_30S_MO.crx.gz", "{station}{doy:03d}0.{yy:02d}d.Z",
+              "prod/igs{gpsweek}{gpsdow}.sp3.Z", "{station}{ddd}{session}.{yy:02d}o"):
+        assert C.pattern_problem(p) is None, p
+
+
+@pytest.mark.parametrize("key,bad,words", [
+    ("elevation_mask_deg", -5.0, ">= 0"), ("elevation_mask_deg", 100.0, "<= 90"),
+    ("smoothing_s", -600.0, ">= 0"), ("mad_k", -1.0, "> 0"), ("min_common_sats", 0, ">= 1"),
+    ("bin_s", 0.0, "> 0"), ("codes", ["FOO", "BAR"], "RINEX 3 codes"), ("systems", ["X"], "system letters"),
+])
+def test_pair_file_and_command_line_share_one_validation(pair_dir, key, bad, words):
+    """The same value is refused with the same words by the pair file and the command line."""
+    from ctt.commands._common import OPTION_FIELDS, checked
+    from ctt.errors import UsageError
+
+    with pytest.raises(ValueError, match=re.escape(words)):
+        C.check_processing_value(key, bad)
+    option = next(o for o, f in OPTION_FIELDS.items() if f == key)
+    with pytest.raises(UsageError) as cli:
+        checked(option, tuple(bad) if isinstance(bad, list) else bad)
+    txt = (pair_dir / "pair.toml").read_text()
+    value = json.dumps(bad)
+    (pair_dir / "pair.toml").write_text(txt.replace("[processing]\n", f"[processing]\n{key} = {value}\n", 1)
+                                        if f"\n{key} =" not in txt
+                                        else re.sub(rf"\n{key} = [^\n]*", f"\n{key} = {value}", txt, count=1))
+    with pytest.raises(ConfigError) as cfg:
+        C.load_pair(pair_dir / "pair.toml")
+    problem = next(e for e in cfg.value.problems if e.key == f"processing.{key}")
+    assert words in problem.problem and words in str(cli.value)

@@ -160,3 +160,37 @@ def test_a_file_of_another_day_under_the_requested_name_is_refused(demo, capsys)
     rc = main(["daily", "--config", str(pair), "--date", "2021-01-02", "--no-report"])
     assert rc == 1
     assert "hold data of 2021-01-01" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_rebuild_archive_from_run_folders_gives_back_the_days(demo, capsys):
+    """A lost archive comes back from the run folders: same rows, values to the CSV's 0.1 ps, and the
+    fingerprints, so the next daily run sees the day as done."""
+    import numpy as np
+
+    from ctt.archive import Archive
+
+    work, pair = demo
+    assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"]) == 0
+    db = next((work / "out").glob("*.sqlite"))
+    with Archive(db) as arc:
+        before = arc.load_offsets("aldr-brkw", extras=False)
+        done = arc.days_done("aldr-brkw")
+    db.rename(db.with_name("damaged.sqlite"))
+    capsys.readouterr()
+    assert main(["rebuild-archive", "--config", str(pair)]) == 0
+    assert "1 day(s) stored" in capsys.readouterr().out
+    with Archive(db) as arc:
+        after = arc.load_offsets("aldr-brkw", extras=False)
+        assert arc.days_done("aldr-brkw") == done
+        assert arc.verify_day("aldr-brkw", "2021-01-01")
+    assert len(after) == len(before) > 0
+    np.testing.assert_array_equal(after["time_utc_ns"], before["time_utc_ns"])
+    assert list(after["system"]) == list(before["system"]) and list(after["flag"]) == list(before["flag"])
+    # offset.csv writes 4 decimals: the rebuilt values are within half a unit of the last digit
+    np.testing.assert_allclose(after["offset_ns"], before["offset_ns"], rtol=0, atol=0.5e-4 + 1e-9)
+    np.testing.assert_allclose(after["u_ns"], before["u_ns"], rtol=0, atol=0.5e-4 + 1e-9)
+    # the rebuilt archive refuses to be overwritten, and the next daily run skips the day
+    assert main(["rebuild-archive", "--config", str(pair)]) == 2
+    assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"]) == 0
+    assert "already done" in capsys.readouterr().out
