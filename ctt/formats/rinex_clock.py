@@ -67,6 +67,13 @@ _CLK_TYPES = ("AS", "AR", "CR", "DR", "MS")
 _D_EXP = re.compile(rb"(\d)[Dd]([+-]?\d)")
 
 
+def _header_int(field, path_s, line, expected, text):
+    try:
+        return int(field)
+    except ValueError:
+        raise ProductFormatError(path_s, line, expected, text) from None
+
+
 def read_clock(path) -> ClockData:  # noqa: C901 - one pass over a flat header
     """Read a RINEX clock file, versions 3.00 to 3.04 (also 2.x layouts with A4 names).
 
@@ -124,9 +131,9 @@ def read_clock(path) -> ClockData:  # noqa: C901 - one pass over a flat header
             if tok:
                 header["stations"][tok[0]] = text[:lab0].strip()
         elif label == "# OF SOLN SATS":
-            header["n_satellites"] = int(text[:6])
+            header["n_satellites"] = _header_int(text[:6], path_s, i + 1, "number of satellites as I6", text)
         elif label == "# OF SOLN STA / TRF":
-            header["n_stations"] = int(text[:6])
+            header["n_stations"] = _header_int(text[:6], path_s, i + 1, "number of stations as I6", text)
             header["trf"] = text[10:lab0].strip()
         elif label == "PGM / RUN BY / DATE":
             header["program"] = text[:20].strip()
