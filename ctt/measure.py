@@ -383,6 +383,54 @@ def position_check(estimate, station_xyz_m) -> dict | None:
             "thresholds_m": {"warn": POSITION_WARN_M, "flag": POSITION_FLAG_M}}
 
 
+@dataclasses.dataclass
+class ReceiveGeometry:
+    """Per-row geometry at the receive instant (see :func:`receive_geometry`)."""
+
+    tau_s: np.ndarray            #: light time
+    states: object               #: satellite states at the transmission instant
+    sat_rotated_m: np.ndarray    #: satellite position in the Earth-fixed frame of the receive instant
+    geometry_m: np.ndarray       #: range from the unrotated satellite position
+    sagnac_m: np.ndarray         #: rotated minus unrotated range (0 with sagnac=False)
+    el_rad: np.ndarray
+    az_rad: np.ndarray
+    los: np.ndarray              #: unit vectors receiver -> satellite (N, 3)
+    rx_clock_s: np.ndarray       #: per row, the rough receiver clock used for the receive instant
+
+
+def receive_geometry(orbits, sats, t_rx, pr_m, ie, n_ep, rx, *, sagnac=True) -> ReceiveGeometry:
+    """Light time, satellite states and range of each (epoch, satellite) row.
+
+    ``t_rx`` are the receiver time tags (GPS ns) of the rows, ``pr_m`` their
+    pseudoranges (NaN where absent), ``ie`` the epoch index of each row. A first
+    pass from the pseudoranges gives a rough receiver clock per epoch (median over
+    the satellites); the receive instant is the time tag minus it, so a receiver
+    clock milliseconds off (free oscillators with millisecond resets) does not
+    shift the satellite positions (~800 m/s range rate x 1 ms = 0.8 m otherwise).
+    """
+    Pf = np.asarray(pr_m, dtype=float)
+    valid = np.isfinite(Pf)
+    p_for_tx = np.where(valid, Pf, 0.075 * C_MPS)
+    st0 = orbits.states(sats, t_rx, -p_for_tx / C_MPS)
+    dtsat0 = st0.clock_s + st0.relativity_s
+    dtsat0 = np.where(np.isfinite(dtsat0), dtsat0, 0.0)
+    st1 = orbits.states(sats, t_rx, -p_for_tx / C_MPS - dtsat0)
+    tau_a = np.linalg.norm(st1.pos_m - rx, axis=1) / C_MPS
+    rough = (Pf / C_MPS - tau_a + st1.clock_s)  # receiver clock, s (no delays; µs-level)
+    rough_ep = _epoch_median(ie, rough, n_ep)
+    rx_clock = np.where(np.isfinite(rough_ep[ie]), rough_ep[ie], 0.0)
+    tau, st, sat_rot = light_time(orbits, sats, t_rx, -rx_clock, rx, sagnac=sagnac,
+                                  tau0_s=np.where(np.isfinite(tau_a), tau_a, 0.075))
+    sat_norot = st.pos_m
+    rng_norot = np.linalg.norm(sat_norot - rx, axis=1)
+    rng_rot = np.linalg.norm(_rotate_z(sat_norot, OMEGA_E * tau) - rx, axis=1)
+    sagnac_m = (rng_rot - rng_norot) if sagnac else np.zeros_like(rng_norot)
+    az, el, _ = geodesy.azimuth_elevation(rx, sat_rot)
+    los = (sat_rot - rx) / np.linalg.norm(sat_rot - rx, axis=1)[:, None]
+    return ReceiveGeometry(tau_s=tau, states=st, sat_rotated_m=sat_rot, geometry_m=rng_norot,
+                           sagnac_m=sagnac_m, el_rad=el, az_rad=az, los=los, rx_clock_s=rx_clock)
+
+
 # ------------------------------------------------------------------ main
 
 def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptions(), *,
@@ -442,30 +490,11 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     lat, lon, h = geodesy.ecef_to_geodetic(rx)
     lat, lon, h = float(lat), float(lon), float(h)
 
-    # --- first pass: pseudorange-based transmission time -> rough receiver clock per epoch
-    p_for_tx = np.where(valid, Pf, 0.075 * C_MPS)
-    st0 = orbits.states(sats, t_rx, -p_for_tx / C_MPS)
-    dtsat0 = st0.clock_s + st0.relativity_s
-    dtsat0 = np.where(np.isfinite(dtsat0), dtsat0, 0.0)
-    st1 = orbits.states(sats, t_rx, -p_for_tx / C_MPS - dtsat0)
-    tau_a = np.linalg.norm(st1.pos_m - rx, axis=1) / C_MPS
-    rough = (Pf / C_MPS - tau_a + st1.clock_s)  # receiver clock, s (no delays; µs-level)
-    rough_ep = _epoch_median(ie, rough, n_ep)
-    dt_rx_est = -np.where(np.isfinite(rough_ep[ie]), rough_ep[ie], 0.0)
-
-    # --- light-time iteration from the receive instant
-    tau, st, sat_rot = light_time(orbits, sats, t_rx, dt_rx_est, rx, sagnac=opt.sagnac,
-                                  tau0_s=np.where(np.isfinite(tau_a), tau_a, 0.075))
-    sat_norot = st.pos_m
-    rng_norot = np.linalg.norm(sat_norot - rx, axis=1)
-    rng_rot = np.linalg.norm(_rotate_z(sat_norot, OMEGA_E * tau) - rx, axis=1)
-    geometry_m = rng_norot
-    sagnac_m = (rng_rot - rng_norot) if opt.sagnac else np.zeros_like(rng_norot)
-
-    az, el, _ = geodesy.azimuth_elevation(rx, sat_rot)
+    geo = receive_geometry(orbits, sats, t_rx, Pf, ie, n_ep, rx, sagnac=opt.sagnac)
+    tau, st, sat_rot = geo.tau_s, geo.states, geo.sat_rotated_m
+    geometry_m, sagnac_m, el, az, los = geo.geometry_m, geo.sagnac_m, geo.el_rad, geo.az_rad, geo.los
     elev_deg = np.degrees(el)
     azim_deg = np.degrees(az)
-    los = (sat_rot - rx) / np.linalg.norm(sat_rot - rx, axis=1)[:, None]
 
     # --- satellite clock, relativity, group delay
     sat_clock_s = st.clock_s
@@ -723,6 +752,10 @@ class SignalSelection:
     iono_measured_m: np.ndarray | None  #: first-order ionosphere on the first code from P2 − P1 (dual only)
     slip_flags: np.ndarray | None  #: LLI bit 0 on a phase used
     no_bias: np.ndarray | None = None  #: (n_sat,) a bias file was given but has no entry for a code used
+    code1_m: np.ndarray | None = None   #: (n_ep, n_sat) first code as observed (no bias applied)
+    code2_m: np.ndarray | None = None   #: second code (dual only)
+    phase1_m: np.ndarray | None = None  #: carrier phase of the first band, metres
+    phase2_m: np.ndarray | None = None  #: carrier phase of the second band, metres (dual only)
 
 
 #: Codes the broadcast (and IGS) GPS clocks refer to: a bias file maps the codes used onto these
@@ -849,12 +882,13 @@ def select_signals(obs, sats, opt: MeasureOptions, glonass_k=None) -> SignalSele
         slips = lli1 | lli2
     else:
         phase, gf, slips = l1, None, lli1
+        p2 = l2 = None
     return SignalSelection(sats=np.asarray(sats).astype(str), codes=codes, label=labels.astype(str), coefficients=coefficients,
                            pseudorange_m=pr.value_m, missing_second=missing_second,
                            f1_hz=pr.f1_hz, f2_hz=pr.f2_hz, noise_factor=np.asarray(pr.noise_factor, dtype=float),
                            phase_m=phase if np.isfinite(phase).any() else None,
                            geometry_free_m=gf, slip_flags=slips, iono_measured_m=iono_meas,
-                           no_bias=no_bias)
+                           no_bias=no_bias, code1_m=p1, code2_m=p2, phase1_m=l1, phase2_m=l2)
 
 
 def _met_at_epochs(met, t_gps_ns, h_m):

@@ -657,3 +657,77 @@ def _s(p):
     if isinstance(p, (tuple, list)):
         return tuple(str(x) for x in p)
     return str(p)
+
+
+
+# ------------------------------------------------------------------ PPP (one station)
+
+#: Columns of a PPP clock.csv, in order.
+PPP_CLOCK_COLUMNS = ["time_utc", "time_gps_ns", "clock_ns", "u_ns", "n_sat", "flag", "ztd_m"]
+
+
+def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None, options=None,
+              out_dir=None, force_inputs: bool = False):
+    """Read one station-day's files (the observation file checked against the station file as
+    for every command, :func:`check_obs_file`), run :func:`ctt.ppp.run_ppp`, write the
+    outputs when ``out_dir`` is given. ``sp3``/``clk`` may name several files (merged).
+    Returns (PPPResult, {name: path})."""
+    from .config import load_station
+    from .formats.rinex_obs import read_obs
+    from .ppp import PPPOptions, run_ppp
+
+    opts = options or PPPOptions()
+    st = station if hasattr(station, "arp_m") else load_station(_need(station, "station file"))
+    obs = read_obs(_need(obs_path, "observation file"), on_error="skip", systems=tuple(opts.systems))
+    if obs.dropped:
+        log.warning("%s: %d bad epochs skipped (first: line %s, %s)", obs_path, len(obs.dropped),
+                    obs.dropped[0][0], obs.dropped[0][1])
+    warns = check_obs_file(obs, st, obs_path, force_inputs=force_inputs)
+    if not _several(sp3):
+        raise MissingInputError("no SP3 orbit file given (--sp3)")
+    orbits = load_orbits(PairInputs(obs_a=None, obs_b=None, sp3=tuple(_several(sp3)),
+                                    clk=tuple(_several(clk)) or None, antex=antex), "precise")[0]
+    met_data = None
+    if met:
+        from .formats import rinex_met as metmod
+
+        met_data = metmod.read_met(_need(met, "meteorological file"))
+    biases = None
+    if bias:
+        from .formats.bias_sinex import read_bias_sinex
+
+        biases = read_bias_sinex(_need(bias, "code-bias file"))
+    result = run_ppp(obs, orbits, st, opts, met=met_data, biases=biases)
+    if warns:
+        result.summary["input_warnings"] = warns
+    paths = {}
+    if out_dir is not None:
+        from .archive import inputs_record
+
+        sp3_l, clk_l = _several(sp3), _several(clk)
+        named = {"obs": obs_path, "station": getattr(st, "path", None) or station, "antex": antex,
+                 "bias": bias, "met": met}
+        named.update({f"sp3_{k + 1}": p for k, p in enumerate(sp3_l)})
+        named.update({f"clk_{k + 1}": p for k, p in enumerate(clk_l)})
+        result.summary["inputs"] = inputs_record(named)
+        paths = write_ppp_outputs(result, out_dir)
+    return result, paths
+
+
+def write_ppp_outputs(result, out_dir) -> dict:
+    """Write clock.csv, residuals.csv and summary.json of a :class:`ctt.ppp.PPPResult`."""
+    out = pathlib.Path(out_dir)
+    clock = result.clock.copy()
+    clock.insert(0, "time_utc", ts.to_iso(ts.convert(clock["time_gps_ns"].to_numpy(np.int64), "GPS", "UTC"), 1))
+    paths = {"clock": out / "clock.csv", "residuals": out / "residuals.csv", "summary": out / "summary.json"}
+    _atomic_write(paths["clock"], _csv(clock[PPP_CLOCK_COLUMNS + [c for c in clock.columns
+                                                                  if c not in PPP_CLOCK_COLUMNS]]))
+    res = result.residuals.copy()
+    res.insert(0, "time_utc", ts.to_iso(ts.convert(res["time_gps_ns"].to_numpy(np.int64), "GPS", "UTC"), 1))
+    _atomic_write(paths["residuals"], _csv(res))
+    summary = dict(result.summary)
+    summary["options"] = dataclasses.asdict(result.options) if result.options is not None else {}
+    summary["software"] = {"name": "ctt", "version": __version__}
+    summary["version"] = __version__
+    write_json(paths["summary"], summary)
+    return paths

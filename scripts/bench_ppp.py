@@ -1,0 +1,82 @@
+"""Benchmark: ``ctt.ppp.run_ppp`` on one real station-day (30 s, GPS).
+
+Reads BRUS 2011-10-10 (real-2011-283, ../shared/data) with the IGS final orbits of three days
+and the day's 5-min clocks, then times the PPP itself (model, slips, batch estimation with
+screening) and the whole job including reading the files. Target (issue 11): one
+station-day <= 5 s on 2 cores. Prints the figures.
+"""
+
+from __future__ import annotations
+
+import pathlib
+import sys
+
+sys.path.insert(0, str(pathlib.Path(__file__).resolve().parent))
+
+from benchtools import timed  # noqa: E402
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+DATA = ROOT.parent / "shared" / "data" / "real-2011-283"
+
+STATION = """[station]
+id = "BRUS"
+name = "BRUS (real open data)"
+elevation_mask_deg = 7.0
+[station.position]
+x_m = 4027894.0130
+y_m = 307045.5980
+z_m = 4919474.9120
+sigma_m = 1.0
+frame = "RINEX header approximate position"
+epoch = 2011.8
+is_marker = true
+[station.antenna]
+type = "ASH701945B_M    NONE"
+delta_h_m = 3.9702
+delta_e_m = 0.0
+delta_n_m = 0.0
+[[delays]]
+valid_from = 2010-01-01T00:00:00Z
+receiver_ns = { C1W = 0.0, C2W = 0.0 }
+u_receiver_ns = 1.0
+cable_ns = 0.0
+u_cable_ns = 1.0
+reference_ns = 0.0
+u_reference_ns = 1.0
+"""
+
+
+def main() -> int:
+    import tempfile
+
+    from ctt.config import load_station
+    from ctt.formats.rinex_obs import read_obs
+    from ctt.pipeline import PairInputs, load_orbits, ppp_files
+    from ctt.ppp import PPPOptions, run_ppp
+
+    if not DATA.is_dir():
+        print(f"no data at {DATA}")
+        return 0
+    with tempfile.TemporaryDirectory() as tmp:
+        st_path = pathlib.Path(tmp) / "brus.toml"
+        st_path.write_text(STATION)
+        station = load_station(st_path)
+        sp3 = [DATA / f"igs1657{d}.sp3" for d in (0, 1, 2)]
+        clk = [DATA / "igs16571.clk"]
+        obs = read_obs(DATA / "brus2830.11o.gz", systems=("G",))
+        orbits = load_orbits(PairInputs(obs_a=None, obs_b=None, sp3=tuple(map(str, sp3)), clk=tuple(map(str, clk)),
+                                        antex=str(DATA / "igs08_1648.atx.gz")), "precise")[0]
+        core = timed(lambda: run_ppp(obs, orbits, station, PPPOptions()), runs=3)
+        whole = timed(lambda: ppp_files(DATA / "brus2830.11o.gz", station, sp3=sp3, clk=clk,
+                                        antex=DATA / "igs08_1648.atx.gz", out_dir=pathlib.Path(tmp) / "out"),
+                      runs=2)
+    n_obs = int(core.result.summary["n_code_used"] + core.result.summary["n_phase_used"])
+    print(f"run_ppp, one station-day (2880 epochs, {n_obs} code+phase values): "
+          f"median {core.median:.2f} s, best {core.best:.2f} s")
+    print(f"whole job (read obs, products, PPP, write outputs): median {whole.median:.2f} s, "
+          f"best {whole.best:.2f} s; target 5 s -> ratio {whole.median / 5.0:.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
