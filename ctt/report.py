@@ -40,7 +40,7 @@ import numpy as np
 import pandas as pd
 
 from . import __version__, plots, stability
-from .errors import FileFormatError, NoDataError
+from .errors import FileFormatError, NoDataError, UsageError, require_file
 from .timescales import NS_PER_DAY, from_mjd, parse_iso, to_iso
 
 TIME_COLUMNS = ("time_utc", "mjd_utc", "mjd")
@@ -107,9 +107,7 @@ def _numeric(path, frame, col, what):
 
 def read_series(path, column: str = "offset_ns", system: str | None = None) -> Series:
     """Read an offset series CSV (see the module docstring). Raises FileFormatError/NoDataError."""
-    path = pathlib.Path(path)
-    if not path.is_file():
-        raise NoDataError(f"{path}: no such file")
+    path = pathlib.Path(require_file(path, "series file"))   # absent: exit 3; a folder or a device: exit 2
     try:
         frame = pd.read_csv(path, comment="#", dtype=str, skipinitialspace=True, keep_default_na=False,
                             na_values=[""])
@@ -188,8 +186,10 @@ class RunData:
 def read_run_dir(folder) -> RunData:
     """A run folder, or a folder of day folders each with ``offset.csv`` (concatenated)."""
     folder = pathlib.Path(folder)
+    if not folder.exists():
+        raise NoDataError(f"{folder}: not found")
     if not folder.is_dir():
-        raise NoDataError(f"{folder}: not a folder")
+        raise UsageError(f"{folder}: expected a run folder, found a file")
     if (folder / "offset.csv").is_file():
         days = [folder]
     else:

@@ -175,6 +175,8 @@ CASES = [
     ("all-in-view-config-without-sp3", [*PAIR_CFG, "--mode", "all-in-view"], 2, "sp3"),
     ("input-is-folder", ["info", "demo"], 2, "demo"),
     ("input-is-device", [*MEASURE[:1], "/dev/null", *MEASURE[2:]], 2, "/dev/null"),
+    ("lock-timeout-negative", ["daily", "--config", D, *DAY, "--lock-timeout", "-5"], 2, "--lock-timeout"),
+    ("series-is-device", ["stability", "/dev/null"], 2, "/dev/null"),
     ("rebuild-over-archive", ["rebuild-archive", "--config", "demo/good.toml"], 2, "good.sqlite"),
     # 3: missing input, or no usable data
     ("info-missing", ["info", "demo/nothing.rnx"], 3, "nothing.rnx"),

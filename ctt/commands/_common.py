@@ -56,6 +56,17 @@ def add_model_arguments(p) -> None:
         g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {name} correction off (diagnostics)")
 
 
+def seconds_arg(text: str) -> float:
+    """argparse type of a duration in seconds: a finite number >= 0 (exit 2 otherwise)."""
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not value >= 0.0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"expected a number of seconds >= 0, found {text!r}")
+    return value
+
+
 def _existing_ancestor_problem(path: str) -> str | None:
     """The nearest existing ancestor of ``path`` must be a folder (``file.csv/x.csv`` is refused)."""
     parent = os.path.dirname(os.path.abspath(path))

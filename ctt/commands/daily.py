@@ -6,7 +6,7 @@ import logging
 import sys
 
 from ..errors import EXIT_OK, UsageError, worst_exit_code
-from ._common import date_arg
+from ._common import date_arg, seconds_arg
 
 log = logging.getLogger("ctt")
 
@@ -19,7 +19,7 @@ def register(sub) -> None:
     p.add_argument("--config", required=True, help="pair TOML file")
     p.add_argument("--date", type=date_arg, help="UTC date YYYY-MM-DD (default: yesterday, UTC)")
     p.add_argument("--force", action="store_true", help="reprocess even if done with the same inputs")
-    p.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS",
+    p.add_argument("--lock-timeout", type=seconds_arg, default=600.0, metavar="SECONDS",
                    help="how long to wait for another run holding the archive (default 600)")
     p.add_argument("--no-report", action="store_true", help="do not refresh the HTML report")
     p.add_argument("--force-inputs", action="store_true",
@@ -39,7 +39,7 @@ def register(sub) -> None:
                    help="run the day jobs on an existing Dask cluster (dask.distributed scheduler address)")
     b.add_argument("--check", action="store_true",
                    help="only list the days that need (re)processing and why; change nothing")
-    b.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS")
+    b.add_argument("--lock-timeout", type=seconds_arg, default=600.0, metavar="SECONDS")
     b.add_argument("--no-report", action="store_true")
     b.add_argument("--force-inputs", action="store_true",
                    help="process files whose marker name or position does not match their station file (a warning instead of a refusal)")
@@ -52,7 +52,7 @@ def register(sub) -> None:
                                    "run folders and do not come back.")
     r.add_argument("--config", required=True, help="pair TOML file")
     r.add_argument("--archive", metavar="FILE", help="write this new archive instead of the configured one")
-    r.add_argument("--lock-timeout", type=float, default=600.0, metavar="SECONDS")
+    r.add_argument("--lock-timeout", type=seconds_arg, default=600.0, metavar="SECONDS")
     r.set_defaults(func=run_rebuild)
 
 
