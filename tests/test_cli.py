@@ -293,3 +293,19 @@ def test_daily_outside_data_root_and_missing_input_do_not_depend_on_message_text
     long = run_ctt(["daily", "--config", f"{LONG}/aldr-brkw.toml", "--date", "2021-01-06", "--no-report"],
                    cwd=work)
     assert short.returncode == long.returncode == 3, short.stderr + long.stderr
+
+
+def test_codes_not_in_the_file_are_reported_not_silently_replaced(caplog):
+    """--codes names codes the file lacks: the priority lists choose others, and a warning says so."""
+    import types
+
+    from ctt.commands._common import warn_unused_codes
+
+    day = types.SimpleNamespace(station_id="ALDR", info={"codes": {"G01": "C1C+C2W", "G02": "C1C+C2W"}})
+    with caplog.at_level("WARNING", logger="ctt"):
+        warn_unused_codes(day, "C1W,C2W")
+    assert "C1W" in caplog.text and "C2W not" not in caplog.text and "used C1C,C2W" in caplog.text
+    caplog.clear()
+    with caplog.at_level("WARNING", logger="ctt"):
+        warn_unused_codes(day, "C1C,C2W")
+    assert caplog.text == ""

@@ -178,6 +178,22 @@ def add_station_day_arguments(p) -> None:
     add_product_arguments(p)
 
 
+def warn_unused_codes(day, codes: str | None) -> None:
+    """Warn when codes asked for with --codes were not used (absent from the file): the priority
+    lists then chose others, and the user must not believe their choice was applied."""
+    if not codes or day is None:
+        return
+    import logging
+
+    wanted = {c.strip() for c in codes.split(",") if c.strip()}
+    used = {c for label in (day.info.get("codes") or {}).values() for c in str(label).split("+") if c}
+    missing = sorted(wanted - used)
+    if missing:
+        logging.getLogger("ctt").warning(
+            "station %s: --codes %s not used (not in the observation file); used %s", day.station_id,
+            ",".join(missing), ",".join(sorted(used)) or "none")
+
+
 def check_input_files(args, names) -> None:
     """Every input file given on the command line exists and is a regular file, before any work
     (absent: exit 3; a folder or a device: exit 2; ctt.errors.require_file)."""
@@ -211,4 +227,5 @@ def measure_station_day(args):
         ionex = read_ionex(args.ionex)
     day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, ionex=ionex,
                        reference=reference, force_inputs=getattr(args, "force_inputs", False))
+    warn_unused_codes(day, args.codes)
     return station, day, opts

@@ -8,7 +8,7 @@ import pathlib
 
 from ..errors import UsageError
 from ._common import (add_model_arguments, add_product_arguments, check_input_files, check_options, checked,
-                      date_arg, measure_options, out_dir)
+                      date_arg, measure_options, out_dir, warn_unused_codes)
 
 log = logging.getLogger("ctt")
 
@@ -130,6 +130,8 @@ def run(args) -> int:
     from ..pipeline import run_pair, write_pair_outputs
 
     result = run_pair(inputs, sta, stb, options, force_inputs=args.force_inputs)
+    for day in (result.station_a, result.station_b):
+        warn_unused_codes(day, args.codes)
     paths = write_pair_outputs(result, pathlib.Path(args.out))
     print("\n".join(result.summary_lines()))
     print("wrote " + ", ".join(str(p) for p in paths.values()))
