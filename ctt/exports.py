@@ -497,12 +497,14 @@ def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.D
         "azth_deg": np.mod(np.round(ok["azimuth_deg"].to_numpy(float) * 10.0), 3600.0) / 10.0,
         "refsv_ns": col(refsv, "value_ns"), "srsv_ps_s": col(refsv, "slope_ps_s"),
         "refsys_ns": ok["value_ns"].to_numpy(float), "srsys_ps_s": ok["slope_ps_s"].to_numpy(float),
-        "dsg_ns": ok["rms_ns"].to_numpy(float),
+        # DSG is the RMS of the fit residuals (root mean square: RSS/n), not the n-2 dof standard
+        # deviation fit_tracks reports (format column definitions, see ctt.formats.cggtts)
+        "dsg_ns": ok["rms_ns"].to_numpy(float) * _rms_factor(ok["n_points"].to_numpy(float)),
         "ioe": (iode.reindex(ok.index).to_numpy(float) if iode is not None else np.nan),
         "mdtr_ns": col(mdtr, "value_ns"), "smdt_ps_s": col(mdtr, "slope_ps_s"),
         "mdio_ns": col(mdio, "value_ns"), "smdi_ps_s": col(mdio, "slope_ps_s"),
         "msio_ns": col(msio, "value_ns"), "smsi_ps_s": col(msio, "slope_ps_s"),
-        "isg_ns": col(msio, "rms_ns"), "fr": 0, "hc": 0,
+        "isg_ns": col(msio, "rms_ns") * _rms_factor(col(msio, "n_points")), "fr": 0, "hc": 0,
         "frc": [_FRC.get((s[0], int(n)), "L3P") for s, n in zip(ok.index.get_level_values(1), n_codes)],
     })
     ioe = out["ioe"].to_numpy(float)
@@ -518,6 +520,13 @@ def station_tracks_to_cggtts(meas_table: pd.DataFrame, *, schedule=None) -> pd.D
     out = out.sort_values(["mjd", "sttime", "sat"], kind="stable").reset_index(drop=True)
     out.attrs["unavailable"] = unavailable
     return out
+
+
+def _rms_factor(n):
+    """sqrt((n - 2)/n): from the residual standard deviation of a line fit (n - 2 dof) to the RMS."""
+    n = np.asarray(n, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(n > 2, np.sqrt((n - 2) / n), np.nan)
 
 
 def _track_iode(t: pd.DataFrame, schedule=None) -> pd.Series:
@@ -558,8 +567,9 @@ def cggtts_to_track_table(header: CggttsHeader, df: pd.DataFrame, *, sampling_s:
       its own receivers (:class:`ctt.measure.MeasureOptions` ``sigma0_m`` / sin el,
       times √(a₁² + a₂²) for an iono-free FRC 'L3…'); 1/n is the sum of the
       squared midpoint coefficients of a full, evenly sampled track;
-    * from the residuals ``u_fit_ns = DSG/√n``;
-    * ``u_ns`` is the a-priori value when (n − 2)·DSG²/σ² is below the 99 %
+    * from the residuals ``u_fit_ns = s/√n`` with s² = n·DSG²/(n − 2) (DSG is the
+      RMS of the residuals, s their standard deviation with n − 2 dof);
+    * ``u_ns`` is the a-priori value when n·DSG²/σ² is below the 99 %
       quantile of χ²(n − 2), else ``u_fit_ns``; plus, in quadrature, the
       rounding of REFSYS to 0.1 ns (0.1/√12 ns, uniform).
 
@@ -594,11 +604,11 @@ def cggtts_to_track_table(header: CggttsHeader, df: pd.DataFrame, *, sampling_s:
     sigma0_ns = MeasureOptions().sigma0_m / C_MPS * 1e9
     sig = sigma0_ns * amp / np.clip(np.sin(np.deg2rad(el)), 0.05, 1.0)
     u_prior = sig / np.sqrt(n)
-    u_fit = dsg / np.sqrt(n)
     dof = np.maximum(n - 2, 1)
+    u_fit = dsg / np.sqrt(dof)            # s/sqrt(n), s^2 = n DSG^2/(n-2)
     from scipy import stats
 
-    compatible = (dof * dsg ** 2 / sig ** 2) <= stats.chi2.ppf(0.99, dof)
+    compatible = (n * dsg ** 2 / sig ** 2) <= stats.chi2.ppf(0.99, dof)
     u = np.hypot(np.where(compatible, u_prior, u_fit), 0.1 / math.sqrt(12.0))
     flag = np.where(np.isfinite(dsg), "ok", "dsg_unavailable").astype(object)
     out = pd.DataFrame({

@@ -1,11 +1,22 @@
-"""The open CV exchange format, CGGTTS version 2E (CCTF/BIPM; Metrologia 52 (2015) G1).
+"""The open CV exchange format, CGGTTS version 2E, checked against the format's documentation.
 
-The published document itself could not be retrieved while writing these tests,
-so the field layout and checksum rules below are FROM MEMORY of it, cross-checked
-only against header lines of version 2E files published by the BIPM (first line
-'CGGTTS GENERIC DATA FORMAT VERSION = 2E', then REV DATE, RCVR, CH, IMS, LAB,
-X, Y, Z, FRAME, COMMENTS, 'INT DLY = ... ns (GPS P1), ... ns (GPS P2) CAL_ID = ...',
-CAB DLY, REF DLY, REF, 'CKSUM = <2 hex digits>'). Each check names what it relies on.
+Sources (the tags are used beside each check below):
+
+[R4]  CCTF Recommendation 4 (2015), "On the Common Generic GNSS Time Transfer
+      Standard" (BIPM web site): version V2E, described completely in
+      Metrologia 52 (2015) G1, covers GPS, GLONASS, BeiDou, Galileo, QZSS.
+[V01] The version-01 format (which 2E extends) as documented by time
+      laboratories publishing such files: a national measurement institute's
+      page "GGTTS GPS Data Format, version 01" (header lines in order, each
+      with its meaning; the label and units lines) and a national observatory's
+      and a national research council's data-category tables (meaning, unit and
+      reference instant of each column; '9999 indicates no data available').
+[MEM] From memory of the 2E article (Metrologia 52 (2015) G1), whose text
+      could not be retrieved: field widths and positions, the SAT/ISG/FR/HC/FRC
+      columns and FRC codes, the five spaces in the first line, the delay-line
+      variants and the two checksum rules.
+
+Programs that write or read such files were not used as a reference.
 """
 
 from __future__ import annotations
@@ -19,7 +30,8 @@ from ctt.errors import FileFormatError
 
 
 def _ck(text: str) -> str:
-    # checksum as the format defines it (from memory): sum of ASCII codes mod 256, 2 hex digits
+    # [MEM] checksum: sum of the ASCII codes mod 256, two hex digits ([V01]: CKSUM is a header
+    # checksum of the same kind as the data lines' CK)
     total = 0
     for ch in text:
         total += ord(ch)
@@ -27,18 +39,18 @@ def _ck(text: str) -> str:
 
 
 HEADER = [
-    "CGGTTS     GENERIC DATA FORMAT VERSION = 2E",   # 5 spaces after CGGTTS: from memory
-    "REV DATE = 2021-01-01",
-    "RCVR = INVENTED RX-1 SN0001",
-    "CH = 20",
-    "IMS = 99999",
+    "CGGTTS     GENERIC DATA FORMAT VERSION = 2E",   # [MEM] 5 spaces after CGGTTS
+    "REV DATE = 2021-01-01",                          # [V01] revision date of the header, YYYY-MM-DD
+    "RCVR = INVENTED RX-1 SN0001",                    # [V01] receiver type, serial number etc.
+    "CH = 20",                                        # [V01] number of channels, two digits
+    "IMS = 99999",                                    # [V01] 99999 when the ionosphere is modelled
     "LAB = LABA",
-    "X = +4034007.87 m",
+    "X = +4034007.87 m",                              # [V01] signed, metres, 2 decimals
     "Y = +502462.24 m",
     "Z = +4898445.16 m",
     "FRAME = ITRF2014",
     "COMMENTS = INVENTED TEST FILE",
-    "INT DLY = 25.3 ns (GPS C1), 27.0 ns (GPS C2)     CAL_ID = NA",
+    "INT DLY = 25.3 ns (GPS C1), 27.0 ns (GPS C2)     CAL_ID = NA",   # [V01] ns, 1 decimal; [MEM] form
     "CAB DLY = 152.4 ns",
     "REF DLY = 11.8 ns",
     "REF = LABA-CS1",
@@ -47,7 +59,7 @@ HEADER = [
 
 def _data_line(sat, cl, mjd, st, trkl, elv, azth, refsv, srsv, refsys, srsys, dsg, ioe, mdtr, smdt, mdio,
                smdi, msio, smsi, isg, fr, hc, frc):
-    # columns from memory of the 2E table: SAT 1-3, CL 5-6, MJD 8-12, STTIME 14-19, TRKL 21-24,
+    # [MEM] columns of the 2E table: SAT 1-3, CL 5-6, MJD 8-12, STTIME 14-19, TRKL 21-24,
     # ELV 26-28, AZTH 30-33, REFSV 35-45, SRSV 47-52, REFSYS 54-64, SRSYS 66-71, DSG 73-76,
     # IOE 78-80, MDTR 82-85, SMDT 87-90, MDIO 92-95, SMDI 97-100, MSIO 102-105, SMSI 107-110,
     # ISG 112-114, FR 116-117, HC 119-120, FRC 122-124, CK 126-127 (sum over columns 1-125)
@@ -60,7 +72,7 @@ def _data_line(sat, cl, mjd, st, trkl, elv, azth, refsv, srsv, refsys, srsys, ds
 
 def _file_text(lines=None, header=HEADER):
     head = list(header)
-    cks = _ck("".join(head) + "CKSUM = ")   # header checksum over lines 1..CKSUM = (from memory)
+    cks = _ck("".join(head) + "CKSUM = ")   # [MEM] header checksum over lines 1..'CKSUM = ' 
     data = lines if lines is not None else [
         _data_line("G07", "FF", 59215, "000200", 780, 453, 1234, -29296, -198, 134, 12, 41, 11, 138, -14, 87,
                    2, 96, 5, 11, 0, 0, "L3P"),
@@ -82,7 +94,8 @@ def test_reads_a_file_built_from_the_layout(tmp_path):
     assert (hdr.cab_dly_ns, hdr.ref_dly_ns, hdr.ref) == (152.4, 11.8, "LABA-CS1")
     assert hdr.x_m == 4034007.87
     r = df.iloc[0]
-    # units from the format: 0.1 deg, 0.1 ns, 0.1 ps/s (from memory; same units as version 01)
+    # [V01] units: ELV/AZTH 0.1 deg, REFSV/REFSYS/DSG/MDTR/MDIO/MSIO 0.1 ns, slopes 0.1 ps/s;
+    # STTIME hhmmss, TRKL s, MJD five digits; [MEM] the column positions they are read from
     assert (r.sat, r.cl, r.mjd, r.sttime, r.trkl_s) == ("G07", "FF", 59215, "000200", 780)
     assert r.elv_deg == pytest.approx(45.3) and r.azth_deg == pytest.approx(123.4)
     assert r.refsv_ns == pytest.approx(-2929.6) and r.srsv_ps_s == pytest.approx(-19.8)
@@ -91,7 +104,7 @@ def test_reads_a_file_built_from_the_layout(tmp_path):
     assert r.mdtr_ns == pytest.approx(13.8) and r.smdt_ps_s == pytest.approx(-1.4)
     assert r.msio_ns == pytest.approx(9.6) and r.isg_ns == pytest.approx(1.1)
     r2 = df.iloc[1]
-    # all 9s = not available (from memory of the format's convention)
+    # [V01] '9999 indicates no data available' (MSIO); [MEM] the same all-9 rule for SMSI/ISG
     assert np.isnan(r2.msio_ns) and np.isnan(r2.smsi_ps_s) and np.isnan(r2.isg_ns)
     assert r2.refsv_ns == pytest.approx(123456.7) and r2.hc == 12
 
@@ -103,7 +116,7 @@ def test_writer_output_matches_the_layout_and_checksums(tmp_path):
     out = tmp_path / "out.cggtts"
     CG.write_cggtts(out, df, hdr)
     lines = out.read_text().splitlines()
-    # header checksum: our independent sum over the written header lines
+    # [MEM] header checksum: our independent sum over the written header lines
     i = next(k for k, ln in enumerate(lines) if ln.startswith("CKSUM = "))
     assert lines[i] == "CKSUM = " + _ck("".join(lines[:i]) + "CKSUM = ")
     data = [ln for ln in lines[i + 1:] if ln[:1] in ("G", "E", "R", "C", "J")]
@@ -134,7 +147,7 @@ def test_round_trip_to_the_format_resolution(tmp_path, kind):
     p = tmp_path / "rt.cggtts"
     CG.write_cggtts(p, df, hdr)
     text = p.read_text()
-    # SYS: no CAB DLY line; TOT: neither CAB DLY nor REF DLY (from memory of the three variants)
+    # [MEM] SYS: no CAB DLY line; TOT: neither CAB DLY nor REF DLY (the three delay variants)
     assert "CAB DLY" not in text and (("REF DLY = 5.0 ns" in text) == (kind == "SYS"))
     hdr2, back = CG.read_cggtts(p)
     assert hdr2.delay_kind == kind and hdr2.cab_dly_ns is None
@@ -168,7 +181,7 @@ def test_corrupted_character_is_detected(tmp_path):
 
 
 def test_file_without_measured_ionosphere(tmp_path):
-    # single-frequency variant (from memory): no MSIO, SMSI, ISG columns
+    # [MEM] single-frequency variant: no MSIO, SMSI, ISG columns ([V01] lines had none either)
     body = "G07 FF 59215 000200  780 453 1234      -29296   -198         134     12   41  11  138  -14   87    2  0  0 L1C "
     line = body + _ck(body)
     labels = "SAT CL  MJD  STTIME TRKL ELV AZTH   REFSV      SRSV     REFSYS    SRSYS  DSG IOE MDTR SMDT MDIO SMDI FR HC FRC CK"
@@ -201,3 +214,51 @@ def test_writer_refuses_values_that_do_not_fit(tmp_path):
     with pytest.raises(ValueError, match="dsg_ns"):
         CG.write_cggtts(tmp_path / "o.cggtts", df, hdr)
     assert not (tmp_path / "o.cggtts").exists()
+
+
+def test_written_header_follows_the_documented_lines(tmp_path):
+    """[V01] header lines in order; X/Y/Z signed with 2 decimals and 'm'; CH two digits; delays in
+    ns with one decimal; 'NO COMMENTS' default; label line then units line (.1dg, .1ns, .1ps/s)."""
+    hdr = CG.CggttsHeader(rcvr="INVENTED RX-1 SN 7", ch=8, lab="LABA", x_m=4034007.871, y_m=-502462.2,
+                          z_m=4898445.16, frame="ITRF2014", delays=[(25.34, "GPS C1")], cab_dly_ns=152.44,
+                          ref_dly_ns=11.8, ref="LABA-CS1")
+    p = tmp_path / "h.cggtts"
+    CG.write_cggtts(p, pd.DataFrame(columns=list(CG.TRACK_COLUMNS)), hdr)
+    lines = p.read_text().splitlines()
+    keys = [ln.split(" = ")[0] for ln in lines[1:16]]
+    assert keys == ["REV DATE", "RCVR", "CH", "IMS", "LAB", "X", "Y", "Z", "FRAME", "COMMENTS", "INT DLY",
+                    "CAB DLY", "REF DLY", "REF", "CKSUM"]
+    assert lines[6:9] == ["X = +4034007.87 m", "Y = -502462.20 m", "Z = +4898445.16 m"]
+    assert lines[3] == "CH = 08" and lines[10] == "COMMENTS = NO COMMENTS"
+    assert lines[11].startswith("INT DLY = 25.3 ns (GPS C1)") and lines[12] == "CAB DLY = 152.4 ns"
+    assert lines[17].startswith("SAT CL  MJD  STTIME TRKL ELV AZTH   REFSV      SRSV     REFSYS    SRSYS  DSG")
+    for unit in ("hhmmss", ".1dg", ".1ns", ".1ps/s"):
+        assert unit in lines[18]
+
+
+def test_dsg_is_the_rms_of_the_fit_residuals():
+    """[V01] DSG is 'the root mean square of the residuals of the linear fit' (sqrt(RSS/n)), REFSYS
+    the fit at mid-track; checked on an invented station table whose residuals are known."""
+    from ctt.exports import station_tracks_to_cggtts
+    from ctt.timescales import NS_PER_S, convert, from_mjd
+
+    t0 = int(convert(from_mjd(59215), "UTC", "GPS"))
+    t = t0 + np.arange(2880, dtype=np.int64) * 30 * NS_PER_S
+    wiggle = np.where(np.arange(2880) % 2 == 0, 1.0, -1.0)          # +-1 ns alternating
+    tab = pd.DataFrame({"time": t, "sat": "G07", "system": "G", "signal": "C1W+C2W", "clock_ns": 5.0 + wiggle,
+                        "sigma_ns": 1.0, "elevation_deg": 45.0, "azimuth_deg": 100.0, "troposphere_m": 2.4,
+                        "ionosphere_m": 0.0, "flag": "ok", "sat_clock_ns": 0.0, "relativity_ns": 0.0,
+                        "group_delay_ns": 0.0})
+    tab.attrs["reference"] = "broadcast"
+    out = station_tracks_to_cggtts(tab)
+    full = out[out["sttime"] == "001400"].iloc[0]
+    # 26 points alternating +-1 about 5 ns: the expected DSG and REFSYS from an independent OLS
+    # fit (numpy.polyfit) of those points, DSG being sqrt(RSS/n)
+    x = np.arange(26) * 30.0                                           # the track's 26 samples
+    assert full["trkl_s"] == 780
+    ts = (convert(from_mjd(59215, 840.0), "UTC", "GPS") - t0) // (30 * NS_PER_S)
+    yy = wiggle[int(ts):int(ts) + 26]
+    coef = np.polyfit(x, yy, 1)
+    rms = np.sqrt(np.mean((yy - np.polyval(coef, x)) ** 2))
+    assert full["dsg_ns"] == pytest.approx(rms, rel=1e-9)
+    assert full["refsys_ns"] == pytest.approx(5.0 + np.polyval(coef, 390.0), abs=1e-9)

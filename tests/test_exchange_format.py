@@ -83,7 +83,8 @@ def test_fields_that_do_not_fit_are_not_available_and_partner_u_follows_our_rule
     # residual RMS compatible with the model: the model's value (plus the 0.1 ns rounding)
     assert t.loc["G07", "u_ns"] == pytest.approx(np.hypot(sig / np.sqrt(26), 0.1 / np.sqrt(12)), rel=1e-12)
     # 20 ns RMS is far above the model (chi2(24) 99 % quantile): the residuals' value
-    assert t.loc["G08", "u_ns"] == pytest.approx(np.hypot(20 / np.sqrt(26), 0.1 / np.sqrt(12)), rel=1e-12)
+    # (DSG is the RMS, so the residual SD with 24 dof is 20*sqrt(26/24) and u = that/sqrt(26))
+    assert t.loc["G08", "u_ns"] == pytest.approx(np.hypot(20 / np.sqrt(24), 0.1 / np.sqrt(12)), rel=1e-12)
     assert t.loc["G09", "flag"] == "dsg_unavailable" and t.loc["G07", "flag"] == "ok"
 
 

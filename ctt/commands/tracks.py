@@ -40,9 +40,14 @@ def run(args) -> int:
     names = {"G": "GPS", "E": "GAL", "C": "BDS", "R": "GLO", "J": "QZS"}
     codes = sorted({(names.get(sat[0], sat[0]), c) for sat, lab in day.info["codes"].items()
                     for c in lab.split("+") if c})
+    rcvr = receiver_line(read_obs_header(args.obs), station, t_mid_utc)
     header = CggttsHeader(
         rev_date=station_revision_date(station, t_mid_utc),
-        rcvr=receiver_line(read_obs_header(args.obs), station, t_mid_utc), ch=0, ims="99999",
+        rcvr=rcvr, ch=0,
+        # IMS: the ionosphere measurement system, or 99999 when the ionosphere is modelled
+        # (version-01 header documentation, see ctt.formats.cggtts): the receiver itself when
+        # dual-frequency codes measure it
+        ims=rcvr if opts.signals == "iono-free" else "99999",
         lab=args.lab or station.id, x_m=float(station.arp_m[0]), y_m=float(station.arp_m[1]),
         z_m=float(station.arp_m[2]), frame=station.frame,
         comments=f"ctt; clock reference {reference}; {opts.signals}",

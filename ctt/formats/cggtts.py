@@ -1,9 +1,10 @@
 """The time community's open common-view exchange format, CGGTTS version 2E.
 
 :func:`write_cggtts` / :func:`read_cggtts` handle per-track files of the time
-community's open common-view exchange format, version 2E (CCTF/BIPM; published
-in Metrologia 52 (2015) G1). Track tables use these columns (scaled on writing
-to the format's integer units, shown in brackets):
+community's open common-view exchange format, version 2E (CCTF; its complete
+description is the article in Metrologia 52 (2015) G1, as CCTF Recommendation 4
+(2015) states). Track tables use these columns (scaled on writing to the
+format's integer units, shown in brackets):
 
 ===========  =================================================  ==========
 column       meaning                                            file unit
@@ -19,7 +20,7 @@ refsv_ns     local reference - satellite time at mid-track, ns  0.1 ns
 srsv_ps_s    slope of refsv, ps/s                               0.1 ps/s
 refsys_ns    local reference - system time at mid-track, ns     0.1 ns
 srsys_ps_s   slope of refsys, ps/s                              0.1 ps/s
-dsg_ns       rms of the fit residuals, ns                       0.1 ns
+dsg_ns       RMS of the REFSYS fit residuals, ns                0.1 ns
 ioe          ephemeris issue (int)                              IOE
 mdtr_ns      modelled troposphere delay, ns                     0.1 ns
 smdt_ps_s    its slope, ps/s                                    0.1 ps/s
@@ -27,23 +28,63 @@ mdio_ns      modelled ionosphere delay, ns                      0.1 ns
 smdi_ps_s    its slope, ps/s                                    0.1 ps/s
 msio_ns      measured ionosphere delay, ns                      0.1 ns
 smsi_ps_s    its slope, ps/s                                    0.1 ps/s
-isg_ns       rms of the measured-ionosphere residuals, ns       0.1 ns
+isg_ns       RMS of the measured-ionosphere residuals, ns       0.1 ns
 fr           GLONASS frequency channel (int; 0 otherwise)       FR
 hc           receiver hardware channel (int)                    HC
 frc          frequency code, e.g. 'L3P' (str)                   FRC
 ===========  =================================================  ==========
 
-A value that is not available (NaN) is written as a field of 9s, which the
-reader maps back to NaN. Files without the measured-ionosphere columns (MSIO,
-SMSI, ISG) are read too (NaN there); the writer always writes them.
+Sources. The 2E article itself could not be retrieved (searched for in the
+stored documentation, web pages and code corpora; the programs that produce
+or read such files were not used as a reference). What was read:
 
-Checksums (from memory of the format document): the header checksum ``CKSUM``
-is the sum of the ASCII codes of every character of the header lines from the
-first line up to and including ``CKSUM = `` (line ends excluded), modulo 256,
-written as two hex digits; each data line's ``CK`` is the same sum over all
-characters before the CK field (columns 1..125 of the line with measured
-ionosphere). The reader verifies both and raises
-:class:`ctt.errors.FileFormatError` with the line number on a mismatch.
+[R4] CCTF Recommendation 4 (2015), "On the Common Generic GNSS Time Transfer
+     Standard": version V2E covers GPS, GLONASS, BeiDou, Galileo and QZSS; its
+     complete description is Metrologia 52 (2015) G1.
+[V01] The version-01 format as documented by time laboratories that publish
+     such files (a national measurement institute's "GGTTS GPS Data Format,
+     version 01" page; a national observatory's and a national research
+     council's CGGTTS data-category tables), which version 2E extends:
+     - header lines in this order with these meanings: REV DATE (revision
+       date of the header, YYYY-MM-DD), RCVR (receiver type, serial number
+       etc.), CH (number of channels, two digits), IMS (the ionosphere
+       measurement system, or 99999 when the ionosphere is modelled), LAB,
+       X/Y/Z (antenna coordinates, signed, metres with 2 decimals), FRAME,
+       COMMENTS ('NO COMMENTS' when none), INT DLY / CAB DLY / REF DLY (internal
+       receiver, antenna cable and reference 1PPS delays in ns with one
+       decimal), REF, CKSUM (header checksum);
+     - the column label line followed by the units line (hhmmss, s, .1dg,
+       .1ns, .1ps/s);
+     - column meanings and units: CL the common-view class in hexadecimal;
+       MJD of the track start (five digits); STTIME hhmmss UTC of the start;
+       TRKL in s (780 for a full track); ELV and AZTH at mid-track in 0.1
+       degree; REFSV = laboratory reference clock - satellite time and
+       REFGPS (REFSYS in 2E) = reference - system time, in 0.1 ns, at
+       mid-track from a linear fit, SRSV/SRGPS their slopes in 0.1 ps/s; DSG
+       the root mean square of the residuals of that fit; IOE a three-digit
+       decimal ephemeris index; MDTR/MDIO modelled troposphere/ionosphere in
+       0.1 ns at mid-track with slopes SMDT/SMDI in 0.1 ps/s; MSIO measured
+       ionosphere in 0.1 ns ('9999 indicates no data available') with slope
+       SMSI.
+
+From memory of the 2E article (not checked against its text): the first line
+with five spaces after CGGTTS; the SAT column (system letter and two-digit
+number) in place of PRN; ISG, FR, HC and FRC and the FRC codes ('L3P'
+iono-free P1/P2, 'L1C' C/A); the field widths and positions below; the
+delay line forms '<INT|SYS|TOT> DLY = v ns (SYS CODE), ... CAL_ID = ...' and
+which of CAB DLY / REF DLY follow each; and the checksum rules: the header
+``CKSUM`` is the sum of the ASCII codes of every character of the header lines
+from the first line up to and including ``CKSUM = `` (line ends excluded),
+modulo 256, written as two hex digits; each data line's ``CK`` is the same sum
+over all characters before the CK field (columns 1..125 of the line with
+measured ionosphere). The version-01 pages confirm only that CKSUM is a header
+checksum of the same kind as CK. The reader verifies both and raises
+:class:`ctt.errors.FileFormatError` with the line number on a mismatch; it
+accepts lower-case hex digits and delay lists without commas.
+
+A value that is not available (NaN) is written as a field of 9s [V01: MSIO],
+which the reader maps back to NaN. Files without the measured-ionosphere
+columns (MSIO, SMSI, ISG) are read too (NaN there); the writer always writes them.
 """
 
 from __future__ import annotations
@@ -256,11 +297,11 @@ def read_cggtts(path):
         raise FileFormatError(path, i + 1, "'INT DLY = ...', 'SYS DLY = ...' or 'TOT DLY = ...' with CAL_ID",
                               lines[i] if i < len(lines) else "end of file")
     hdr.delay_kind, dl, hdr.cal_id = m.group(1), m.group(2), m.group(3).strip()
-    for part in dl.split(","):
-        mm = re.match(r"^\s*([+-]?\d+(?:\.\d*)?) ns \(([^)]*)\)\s*$", part)
-        if not mm:
-            raise FileFormatError(path, i + 1, "delays written as '<value> ns (<system> <code>)'", part)
-        hdr.delays.append((float(mm.group(1)), mm.group(2)))
+    # '<v> ns (<system> <code>)' items separated by commas (or, in some files, by blanks only)
+    item = r"([+-]?\d+(?:\.\d*)?)\s*ns\s*\(([^)]*)\)"
+    if not re.fullmatch(rf"\s*{item}(?:\s*,?\s*{item})*\s*", dl):
+        raise FileFormatError(path, i + 1, "delays written as '<value> ns (<system> <code>)'", dl)
+    hdr.delays.extend((float(v), lab) for v, lab in re.findall(item, dl))
     i += 1
     hdr.cab_dly_ns = hdr.ref_dly_ns = None
     for key, label, needed in (("cab_dly_ns", "CAB DLY", hdr.delay_kind == "INT"),
