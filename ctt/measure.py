@@ -1102,8 +1102,13 @@ def estimate_code_biases(table: pd.DataFrame, *, max_iter: int = 20, tol_ns: flo
     weighted least squares (epoch clocks given the biases, biases given the clocks, then the
     constraint) until the biases change by less than ``tol_ns``. What is estimated is the
     satellite's code bias plus whatever else is constant for that satellite over the day at
-    this station (e.g. the pass-averaged multipath): the uncertainty below covers the latter
-    only as far as it varies between blocks.
+    this station (the pass-averaged multipath): the uncertainty below covers the latter only
+    as far as it varies between blocks. Measured on BRUS (real-2011-283, antenna on a tall
+    mast): 2.25 ns RMS of fitted 'biases' with P1/P2, where no code bias is expected, while
+    the difference of the C1/P2 and P1/P2 fits follows 2.546 x the published P1-C1 DCBs
+    (correlation 0.96, 0.87 ns RMS; tests/test_against_dcb_bias_estimates.py). For
+    all-in-view both parts are worth removing; as a DCB estimate a single fit is only as good
+    as the station's multipath.
 
     Uncertainty (``u_ns``): batch means. The residuals ``clock − e`` of a satellite are averaged
     in blocks of ``block_s`` (an hour, see :data:`BIAS_BLOCK_S`) and ``u = SD(block means)/√n_blocks``:
