@@ -5,6 +5,7 @@ from __future__ import annotations
 import logging
 
 from ..errors import UsageError
+from ._common import check_input_files, checked, out_dir
 
 log = logging.getLogger("ctt")
 
@@ -25,7 +26,7 @@ def register(sub) -> None:
     p.add_argument("--antex", help="ANTEX file (satellite and receiver antennas)")
     p.add_argument("--bias", help="code-bias file (Bias-SINEX) mapping C1C onto C1W where P1 is absent")
     p.add_argument("--met", help="RINEX meteorological file of the station")
-    p.add_argument("--out", required=True, help="output folder")
+    p.add_argument("--out", type=out_dir, required=True, help="output folder")
     p.add_argument("--force-inputs", action="store_true",
                    help="process an observation file whose marker name or position does not match the "
                         "station file (a warning is recorded in summary.json)")
@@ -54,14 +55,14 @@ def options_from_args(args):
 
     kw = {}
     if args.systems:
-        kw["systems"] = tuple(args.systems.replace(",", "").upper())
+        kw["systems"] = checked("--systems", tuple(args.systems.replace(",", "").replace(" ", "").upper()))
     for name, key in (("elevation_mask", "elevation_mask_deg"), ("position", "position"),
                       ("position_sigma", "position_sigma_m"), ("mapping", "mapping"),
                       ("ztd_interval", "ztd_interval_s"), ("code_sigma", "code_sigma_m"),
                       ("phase_sigma", "phase_sigma_m"), ("outlier_k", "outlier_k")):
         v = getattr(args, name)
         if v is not None:
-            kw[key] = v
+            kw[key] = checked("--elevation-mask", v) if name == "elevation_mask" else v
     try:
         return PPPOptions(**kw)
     except ValueError as e:
@@ -72,6 +73,7 @@ def run(args) -> int:
     from ..pipeline import ppp_files
 
     opts = options_from_args(args)
+    check_input_files(args, ("obs", "sp3", "clk", "antex", "bias", "met"))
     result, paths = ppp_files(args.obs, args.station, sp3=args.sp3, clk=args.clk, antex=args.antex,
                               bias=args.bias, met=args.met, options=opts, out_dir=args.out,
                               force_inputs=args.force_inputs)
