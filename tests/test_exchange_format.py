@@ -37,7 +37,8 @@ def test_pair_from_a_track_file_matches_pair_from_observations(tmp_path):
     day_b = measure_file(obs_b, stb, orbits[0], orbits[1], m, met_path=inputs.met_b, reference="broadcast")
     tracks = station_tracks_to_cggtts(day_b.table)
     f = tmp_path / "BRKW59215.cggtts"
-    write_cggtts(f, tracks, CggttsHeader(lab="BRKW", x_m=1.0, y_m=2.0, z_m=3.0))
+    x, y, z = (float(v) for v in stb.arp_m)  # the partner file must match its station file (input checks)
+    write_cggtts(f, tracks, CggttsHeader(lab="BRKW", x_m=x, y_m=y, z_m=z))
     hdr, back = read_cggtts(f)
     assert len(back) == len(tracks) and hdr.lab == "BRKW"
     np.testing.assert_allclose(back["refsys_ns"], tracks["refsys_ns"], atol=0.05 + 1e-9)  # 0.1 ns field
