@@ -537,14 +537,23 @@ def offset_table(offset: pd.DataFrame) -> pd.DataFrame:
     return out[cols]
 
 
-def _csv(df: pd.DataFrame):
-    """Writer of a table as CSV: 4 decimals (0.1 ps) for values, MJD with 10 (~10 µs)."""
+def _csv(df: pd.DataFrame, rounded: bool = False):
+    """Writer of a table as CSV: 4 decimals (0.1 ps) for values, MJD with 10 (~10 µs).
+
+    ``rounded``: values rounded to 4 decimals and written in their shortest form (no
+    trailing zeros) by pandas' C writer, ~20 times faster than a format string for large
+    tables (PPP residuals)."""
     def write(f):
         d = df.copy()
         for c in d.columns:
             if c.startswith("mjd"):
                 d[c] = d[c].map(lambda v: f"{v:.10f}" if np.isfinite(v) else "")
-        d.to_csv(f, index=False, float_format="%.4f")
+            elif rounded and d[c].dtype.kind == "f":
+                d[c] = d[c].round(4)
+        if rounded:
+            d.to_csv(f, index=False)
+        else:
+            d.to_csv(f, index=False, float_format="%.4f")
     return write
 
 
@@ -724,7 +733,7 @@ def write_ppp_outputs(result, out_dir) -> dict:
                                                                   if c not in PPP_CLOCK_COLUMNS]]))
     res = result.residuals.copy()
     res.insert(0, "time_utc", ts.to_iso(ts.convert(res["time_gps_ns"].to_numpy(np.int64), "GPS", "UTC"), 1))
-    _atomic_write(paths["residuals"], _csv(res))
+    _atomic_write(paths["residuals"], _csv(res, rounded=True))
     summary = dict(result.summary)
     summary["options"] = dataclasses.asdict(result.options) if result.options is not None else {}
     summary["software"] = {"name": "ctt", "version": __version__}

@@ -254,53 +254,51 @@ def detect_slips(t_ns, mw_cycles, gf_m, lli, usable, options: PPPOptions):
     n_ep, n_sat = mw_cycles.shape
     arc_start = np.zeros((n_ep, n_sat), dtype=bool)
     slip = np.zeros((n_ep, n_sat), dtype=bool)
+    # per-satellite state of the current arc: count, MW mean and sum of squares (Welford),
+    # time and GF of the last two epochs (NaN/0 at an arc start)
     n = np.zeros(n_sat)
     mean = np.zeros(n_sat)
     m2 = np.zeros(n_sat)
-    last_t = np.full(n_sat, np.iinfo(np.int64).min // 2, dtype=np.int64)
-    gf1 = np.full(n_sat, np.nan)   # GF at the previous epoch of the arc
-    gf2 = np.full(n_sat, np.nan)   # and the one before
+    last_t = np.full(n_sat, -1e30)
+    gf1 = np.full(n_sat, np.nan)
+    gf2 = np.full(n_sat, np.nan)
     t1 = np.zeros(n_sat)
     t2 = np.zeros(n_sat)
-    max_gap = int(options.max_gap_s * NS)
-    for i in range(n_ep):
-        u = usable[i]
-        if not u.any():
-            continue
-        t = t_ns[i]
-        new_arc = u & ((n == 0) | ((t - last_t) > max_gap))
-        sd = np.sqrt(m2 / np.maximum(n - 1, 1))
-        sd = np.where(n >= 3, sd, 0.5)
-        thr = np.maximum(options.mw_k * sd, options.mw_min_cycles)
-        mw_jump = u & ~new_arc & (np.abs(mw_cycles[i] - mean) > thr)
-        g = gf_m[i]
-        with np.errstate(invalid="ignore"):
-            ts1 = (t - t1) / NS
-            ts2 = (t1 - t2) / NS
-            rate = np.where(np.isfinite(gf2) & (ts2 > 0), (gf1 - gf2) / np.where(ts2 > 0, ts2, 1.0), 0.0)
-            pred = gf1 + rate * ts1
-            gf_jump = u & ~new_arc & np.isfinite(gf1) & (np.abs(g - pred) > options.gf_threshold_m)
-        lli_jump = u & ~new_arc & lli[i]
-        brk = mw_jump | gf_jump | lli_jump
-        start = new_arc | brk
-        arc_start[i] = start
-        slip[i] = brk
-        # running MW statistics (Welford), restarted at arc starts
-        n = np.where(start, 0, n)
-        mean = np.where(start, 0.0, mean)
-        m2 = np.where(start, 0.0, m2)
-        gf1 = np.where(start, np.nan, gf1)
-        gf2 = np.where(start, np.nan, gf2)
-        nn = n + 1
-        delta = mw_cycles[i] - mean
-        mean = np.where(u, mean + delta / nn, mean)
-        m2 = np.where(u, m2 + delta * (mw_cycles[i] - mean), m2)
-        n = np.where(u, nn, n)
-        gf2 = np.where(u, gf1, gf2)
-        t2 = np.where(u, t1, t2)
-        gf1 = np.where(u, g, gf1)
-        t1 = np.where(u, t, t1)
-        last_t = np.where(u, t, last_t)
+    tsec = (np.asarray(t_ns, dtype=np.int64) - int(t_ns[0])) / 1e9
+    mw_all = np.where(usable, mw_cycles, np.nan)
+    gf_all = np.where(usable, gf_m, np.nan)
+    max_gap, k_mw, floor_mw, gf_thr = options.max_gap_s, options.mw_k, options.mw_min_cycles, options.gf_threshold_m
+    rows = np.flatnonzero(usable.any(axis=1))
+    old = np.seterr(invalid="ignore", divide="ignore")
+    try:
+        for i in rows:
+            u = usable[i]
+            t = tsec[i]
+            mwi = mw_all[i]
+            g = gf_all[i]
+            new_arc = u & ((n == 0) | ((t - last_t) > max_gap))
+            sd = np.where(n >= 3, np.sqrt(m2 / np.maximum(n - 1.0, 1.0)), 0.5)
+            jump = np.abs(mwi - mean) > np.maximum(k_mw * sd, floor_mw)
+            # GF predicted linearly from the arc's last two epochs (one: held constant)
+            rate = (gf1 - gf2) / (t1 - t2)
+            pred = gf1 + np.where(np.isfinite(rate), rate, 0.0) * (t - t1)
+            jump |= np.abs(g - pred) > gf_thr
+            brk = u & ~new_arc & (jump | lli[i])
+            start = new_arc | brk
+            arc_start[i] = start
+            slip[i] = brk
+            keep = ~start
+            n = n * keep + u
+            delta = np.where(u, mwi - mean * keep, 0.0)
+            mean = mean * keep + delta / np.maximum(n, 1.0)
+            m2 = np.where(start, 0.0, m2) + np.where(u, delta * (mwi - mean), 0.0)
+            gf2 = np.where(u, np.where(start, np.nan, gf1), gf2)
+            t2 = np.where(u, t1, t2)
+            gf1 = np.where(u, g, gf1)
+            t1 = np.where(u, t, t1)
+            last_t = np.where(u, t, last_t)
+    finally:
+        np.seterr(**old)
     return arc_start, slip
 
 
@@ -470,7 +468,9 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     else:
         tide_m = np.zeros(len(ie))
     ant_m, ant_note = _receiver_antenna_m(antex, station, el, az, f1[js], f2[js])
-    sun = geodesy.sun_moon_ecef(t_rx, time_scale="GPS")[0]
+    from .orbits import sun_position_ecef
+
+    sun = sun_position_ecef(t_rx)
     if opt.windup:
         wu = np.full((n_ep, len(sats_all)), np.nan)
         okpos = np.isfinite(geo.sat_rotated_m).all(axis=1)
