@@ -125,6 +125,7 @@ class PPPOptions:
     shapiro: bool = True
     tide: bool = True
     min_sats: int = 4                        #: epochs with fewer satellites are flagged
+    clock_interpolation_sigma: bool = True   #: weight values between clock nodes down (see below)
 
     def __post_init__(self):
         if self.position not in ("estimate", "fixed", "constrained"):
@@ -209,6 +210,49 @@ def _unwrap_columns(grid_cycles):
         if ok.any():
             out[ok, j] = np.unwrap(grid_cycles[ok, j], period=1.0)
     return out
+
+
+def clock_interpolation_sigma_m(orbits, sats, t_ns):
+    """σ (m) of the linearly interpolated satellite clock at GPS instants ``t_ns`` per row.
+
+    Between two clock nodes T apart the interpolation error behaves like a Brownian bridge:
+    σ(u) = σ_mid · 2·√(u(1 − u)), u the fraction of T elapsed, 0 at the nodes. σ_mid per
+    satellite comes from the product itself: leave-one-out over 2T
+    (:func:`ctt.orbits.clock_interpolation_error`) gives the bridge's mid-point error over 2T,
+    and a bridge's variance scales with its length, so σ_mid(T) = RMS_LOO / √2. Measured on
+    BRUS with the IGS 5-min clocks, the phase residual RMS grows from 1.4 cm at the nodes to
+    3.4 cm mid-way, as this form predicts; with 30-s clocks and 30-s data the term is ~0.
+    Returns (sigma_m, note).
+    """
+    from .formats.rinex_clock import ClockSeries
+    from .orbits import clock_interpolation_error
+
+    clk = getattr(orbits, "clk", None)
+    if clk is not None:
+        series = clk.satellites
+    elif getattr(orbits, "sp3", None) is not None:
+        sp3 = orbits.sp3
+        series = ClockSeries(names=np.asarray(sp3.sats).astype(str), time_ns=sp3.time_ns, bias_s=sp3.clock_s,
+                             sigma_s=np.full(sp3.clock_s.shape, np.nan))
+    else:
+        return np.zeros(len(sats)), "none"
+    t = series.time_ns
+    if len(t) < 3:
+        return np.zeros(len(sats)), "none"
+    err, _ = clock_interpolation_error(series, 2)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        mid = np.sqrt(np.nanmean(err**2, axis=0)) / np.sqrt(2.0)
+    typical = float(np.nanmedian(mid)) if np.isfinite(mid).any() else 0.0
+    mid = np.where(np.isfinite(mid), mid, typical)
+    step = int(np.median(np.diff(t)))
+    names = np.asarray(series.names).astype(str)
+    order = np.argsort(names)
+    pos = np.clip(np.searchsorted(names[order], sats), 0, len(names) - 1)
+    col = np.where(names[order][pos] == sats, order[pos], -1)
+    u = ((np.asarray(t_ns, dtype=np.int64) - int(t[0])) % step) / step
+    sig = np.where(col >= 0, mid[np.maximum(col, 0)], typical) * 2.0 * np.sqrt(u * (1.0 - u)) * C_MPS
+    return sig, f"interpolation over {step / 1e9:.0f} s, median mid-interval {typical * 1e12:.0f} ps"
 
 
 # ------------------------------------------------------------------ slips and jumps
@@ -568,6 +612,13 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     amp = sel.noise_factor[js]
     sig_c = opt.code_sigma_m * amp / sin_el
     sig_p = opt.phase_sigma_m * amp / sin_el
+    if opt.clock_interpolation_sigma:
+        t_tx = t_rx - np.rint((geo.rx_clock_s + geo.tau_s) * 1e9).astype(np.int64)
+        sig_ci, ci_note = clock_interpolation_sigma_m(orbits, sats, t_tx)
+        sig_c = np.sqrt(sig_c**2 + sig_ci**2)
+        sig_p = np.sqrt(sig_p**2 + sig_ci**2)
+    else:
+        ci_note = "off"
 
     # --- ZWD nodes
     t0, t1 = int(t_tag[0]), int(t_tag[-1])
@@ -753,6 +804,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
             "pole_tide": "not applied",
             "eclipse": f"cylindrical shadow + {opt.eclipse_margin_s:.0f} s flagged",
             "code_biases": "bias file" if biases is not None else "none",
+            "satellite_clock_interpolation_sigma": ci_note,
         },
         "u_hardware_ns": float(u_hw),
         "iterations": it,
