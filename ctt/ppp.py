@@ -82,7 +82,7 @@ import scipy.sparse as sp
 
 from . import atmosphere, geodesy, measure
 from . import timescales as ts
-from .errors import NoDataError, ProcessingError
+from .errors import NoDataError
 
 log = logging.getLogger(__name__)
 
@@ -115,7 +115,8 @@ class PPPOptions:
     position_sigma_m: float | None = None    #: constrained: σ per ECEF axis (None: station file's)
     mw_k: float = 5.0                        #: MW slip at mw_k × running σ of the arc ...
     mw_min_cycles: float = 2.0               #: ... but never below this many wide-lane cycles
-    gf_threshold_m: float = 0.035            #: geometry-free jump (30-s sampling)
+    gf_threshold_m: float = 0.035            #: geometry-free jump (30-s sampling), at least ...
+    gf_noise_m: float = 0.0025               #: ... 4 × this / sin(el) (σ of the GF 2nd difference)
     max_gap_s: float = 300.0                 #: a longer data gap starts a new arc
     min_arc_s: float = 600.0                 #: shorter arcs are not used
     outlier_k: float = 5.0                   #: residual screening at k × robust σ
@@ -287,13 +288,21 @@ def detect_clock_jumps(t_ns, rx_clock_s, oc_phase_minus_code, *, tol_ms=0.1):
     return jumps, corr
 
 
-def detect_slips(t_ns, mw_cycles, gf_m, lli, usable, options: PPPOptions):
+def detect_slips(t_ns, mw_cycles, gf_m, lli, usable, options: PPPOptions, el_deg=None):
     """Arc numbering on the (n_ep, n_sat) grid: a new arc at LLI, gap, MW or GF jump.
 
     Returns ``(arc_start, slip)``: boolean grids, ``arc_start`` True at the first epoch of
     every arc and ``slip`` True where the arc was broken by a detected slip (not by a gap or
     the first observation). Loops over epochs (vectorised over satellites): the running
     MW mean and variance of each arc are a recursion.
+
+    The GF test predicts each value linearly from the arc's previous two (the ionosphere's
+    trend) and needs both: at an arc's second epoch only MW tests (a first difference carries
+    the ionospheric rate, which at low elevation exceeds the threshold and would cut every
+    following epoch into a new arc). Its threshold is ``max(gf_threshold_m, 4·gf_noise_m/sin el)``
+    when ``el_deg`` (grid, degrees) is given: the 30-s second difference of GF measured on BRUS
+    and CAGZ (2011-10-10) has a robust σ of 1.3-2.4 mm above 45° and 9-12 mm at 5-15°, about
+    2.5 mm/sin el. A (1, 1) slip (5.4 cm) is therefore found above about 14° elevation.
     """
     n_ep, n_sat = mw_cycles.shape
     arc_start = np.zeros((n_ep, n_sat), dtype=bool)
@@ -310,6 +319,12 @@ def detect_slips(t_ns, mw_cycles, gf_m, lli, usable, options: PPPOptions):
     t2 = np.zeros(n_sat)
     tsec = (np.asarray(t_ns, dtype=np.int64) - int(t_ns[0])) / 1e9
     mw_all = np.where(usable, mw_cycles, np.nan)
+    gf_thr_grid = None
+    if el_deg is not None:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            sin_el = np.sin(np.radians(np.clip(np.asarray(el_deg, dtype=float), 1.0, 90.0)))
+        gf_thr_grid = np.maximum(options.gf_threshold_m, 4.0 * options.gf_noise_m / sin_el)
+        gf_thr_grid = np.where(np.isfinite(gf_thr_grid), gf_thr_grid, options.gf_threshold_m)
     gf_all = np.where(usable, gf_m, np.nan)
     max_gap, k_mw, floor_mw, gf_thr = options.max_gap_s, options.mw_k, options.mw_min_cycles, options.gf_threshold_m
     rows = np.flatnonzero(usable.any(axis=1))
@@ -323,10 +338,9 @@ def detect_slips(t_ns, mw_cycles, gf_m, lli, usable, options: PPPOptions):
             new_arc = u & ((n == 0) | ((t - last_t) > max_gap))
             sd = np.where(n >= 3, np.sqrt(m2 / np.maximum(n - 1.0, 1.0)), 0.5)
             jump = np.abs(mwi - mean) > np.maximum(k_mw * sd, floor_mw)
-            # GF predicted linearly from the arc's last two epochs (one: held constant)
-            rate = (gf1 - gf2) / (t1 - t2)
-            pred = gf1 + np.where(np.isfinite(rate), rate, 0.0) * (t - t1)
-            jump |= np.abs(g - pred) > gf_thr
+            # GF predicted linearly from the arc's last two epochs (not tested with fewer)
+            pred = gf1 + (gf1 - gf2) / (t1 - t2) * (t - t1)
+            jump |= np.abs(g - pred) > (gf_thr if gf_thr_grid is None else gf_thr_grid[i])
             brk = u & ~new_arc & (jump | lli[i])
             start = new_arc | brk
             arc_start[i] = start
@@ -421,24 +435,59 @@ def _clock_convention(orbits, systems):
     return "; ".join(p for p in parts if p)
 
 
-def _receiver_antenna_m(antex, station, el, az, f1, f2):
-    """Receiver antenna iono-free PCO+PCV along the line of sight (m), and a note.
+def _antenna_terms(antex, station, sats, el, az, sat_pos, rx, t_ns):
+    """Receiver antenna PCO+PCV and satellite antenna nadir PCV along each line of sight (m,
+    to add to the range), iono-free on the ANTEX frequencies of :data:`ctt.orbits.IF_FREQUENCIES`,
+    with the ANTEX reader's receiver blocks and ctt.signals' combinations (ANTEX 1.4 §3).
+    Returns (receiver_m, satellite_pcv_m, notes); zeros with the reason where not available."""
+    from . import signals
+    from .orbits import IF_FREQUENCIES
 
-    Uses the ANTEX reader's receiver antenna model when it has one for the station's
-    antenna type; otherwise 0 with the fact recorded.
-    """
-    zero = np.zeros_like(el)
-    typ = getattr(getattr(station, "antenna", None), "type", "") or ""
+    n = len(sats)
+    rx_m, sat_m = np.zeros(n), np.zeros(n)
     if antex is None:
-        return zero, "not applied (no ANTEX file)"
-    fn = getattr(antex, "receiver_los_correction_m", None)
-    if fn is None:
-        return zero, "not applied (the ANTEX reader has no receiver antennas)"
-    try:
-        val = fn(typ, el, az, f1, f2)
-    except KeyError:
-        return zero, f"not applied ({typ!r} not in {antex.path})"
-    return np.asarray(val, dtype=float), f"{typ} from {antex.path}"
+        return rx_m, sat_m, {"receiver_antenna": "not applied (no ANTEX file)",
+                             "satellite_pcv": "not applied (no ANTEX file)"}
+    notes = {}
+    letters = np.array([s[0] for s in sats])
+    ant = getattr(station, "antenna", None)
+    name = getattr(ant, "antex_name", None) or getattr(ant, "type", "") or ""
+    block = antex.receiver(name) if hasattr(antex, "receiver") and name else None
+    if block is None or not hasattr(signals, "iono_free_antenna_range_m"):
+        notes["receiver_antenna"] = (f"not applied ({name.strip() or 'no antenna type'} not in {antex.path})"
+                                     if hasattr(antex, "receiver") else
+                                     "not applied (the ANTEX reader has no receiver antennas)")
+    else:
+        done = []
+        for letter in np.unique(letters):
+            f1, f2 = IF_FREQUENCIES.get(letter, (None, None))
+            rows = letters == letter
+            try:
+                rx_m[rows] = signals.iono_free_antenna_range_m(block, f1, f2, az[rows], el[rows])
+                done.append(letter)
+            except (KeyError, ValueError, TypeError):
+                continue
+        rx_m = np.where(np.isfinite(rx_m), rx_m, 0.0)
+        notes["receiver_antenna"] = f"{name} ({', '.join(done)}) from {antex.path}"
+    if hasattr(signals, "iono_free_satellite_pcv_m"):
+        rs = np.linalg.norm(sat_pos, axis=1)
+        nadir = np.arcsin(np.clip(np.linalg.norm(rx) / rs * np.cos(el), -1.0, 1.0))
+        t_mid = int(np.median(t_ns)) if len(t_ns) else 0
+        missing = []
+        for sat in np.unique(sats):
+            rows = sats == sat
+            blk = antex.offset(str(sat), t_mid)
+            f1, f2 = IF_FREQUENCIES.get(str(sat)[0], (None, None))
+            try:
+                sat_m[rows] = signals.iono_free_satellite_pcv_m(blk, f1, f2, nadir[rows])
+            except (KeyError, ValueError, TypeError):
+                missing.append(str(sat))
+        sat_m = np.where(np.isfinite(sat_m), sat_m, 0.0)
+        notes["satellite_pcv"] = (f"nadir PCV from {antex.path}"
+                                  + (f"; none for {', '.join(missing)}" if missing else ""))
+    else:
+        notes["satellite_pcv"] = "not applied (the ANTEX reader has no satellite PCV)"
+    return rx_m, sat_m, notes
 
 
 def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=None, biases=None,
@@ -511,7 +560,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
         tide_m = -np.einsum("ij,ij->i", geo.los, disp_ep[ie])
     else:
         tide_m = np.zeros(len(ie))
-    ant_m, ant_note = _receiver_antenna_m(antex, station, el, az, f1[js], f2[js])
+    ant_m, sat_pcv_m, ant_notes = _antenna_terms(antex, station, sats, el, az, geo.sat_rotated_m, rx0, t_rx)
     from .orbits import sun_position_ecef
 
     sun = sun_position_ecef(t_rx)
@@ -539,7 +588,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     eclipse = (t_rx - last_shadow) <= int(opt.eclipse_margin_s * NS)
 
     common_m = (geo.geometry_m + geo.sagnac_m - sat_clock_m - relativity_m + shap + hydro_m + wet_m
-                + tide_m + ant_m)
+                + tide_m + ant_m + sat_pcv_m)
     code_model = common_m + hw_ns * 1e-9 * C_MPS
     phase_model = common_m + windup_m
     oc_code = P[ie, js] - code_model
@@ -581,7 +630,9 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
         gf = sel.phase1_m - sel.phase2_m
     usable &= np.isfinite(mw) & np.isfinite(gf)
     lli = sel.slip_flags if sel.slip_flags is not None else np.zeros((n_ep, n_sat), dtype=bool)
-    arc_start, slip = detect_slips(t_tag, mw, gf, lli, usable, opt)
+    el_grid = np.full((n_ep, n_sat), np.nan)
+    el_grid[ie, js] = el_deg
+    arc_start, slip = detect_slips(t_tag, mw, gf, lli, usable, opt, el_deg=el_grid)
     arc_grid = np.full((n_ep, n_sat), -1, dtype=np.int64)
     arc_id = np.cumsum(arc_start.T.ravel()).reshape(n_sat, n_ep).T - 1   # numbered satellite by satellite
     arc_grid[usable] = arc_id[usable]
@@ -743,7 +794,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
         "geometry_m": geo.geometry_m, "sagnac_m": geo.sagnac_m, "sat_clock_m": sat_clock_m,
         "relativity_m": relativity_m, "shapiro_m": shap, "tropo_hydro_m": hydro_m,
         "tropo_wet_apriori_m": wet_m, "tropo_wet_est_m": mw_map * zw, "tide_m": tide_m,
-        "antenna_rx_m": ant_m, "windup_m": windup_m, "hardware_ns": hw_ns,
+        "antenna_rx_m": ant_m, "satellite_pcv_m": sat_pcv_m, "windup_m": windup_m, "hardware_ns": hw_ns,
         "eclipse": eclipse, "slip": slip[ie, js],
     })
 
@@ -797,7 +848,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
             "troposphere": f"Saastamoinen zenith delays ({'met file' if met is not None else 'standard atmosphere'}"
                            f"{f', standard atmosphere at {n_std} epochs' if n_std else ''}), {opt.mapping.upper()} "
                            f"mapping, ZWD piecewise linear every {opt.ztd_interval_s:.0f} s",
-            "receiver_antenna": ant_note,
+            **ant_notes,
             "windup": "Wu et al. 1993, nominal yaw" if opt.windup else "off",
             "shapiro": "IERS 2010 eq. 11.17" if opt.shapiro else "off",
             "solid_tide": "IERS 2010 §7.1.1" if opt.tide else "off",

@@ -17,7 +17,6 @@ can be applied: what that costs is measured here and reported, the bounds are ke
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
 
 from ctt.config import load_station

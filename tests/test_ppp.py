@@ -28,7 +28,6 @@ def test_epoch_clock_elimination_equals_the_full_least_squares():
     prior = np.full(n_g, 1e-3)
     x, Q, clk, var_c, v = _Design(n_ep, n_g).solve(epoch, y, w, sp.csr_matrix(A), prior_diag=prior)
     full = np.hstack([A, np.eye(n_ep)[epoch]])
-    sw = np.sqrt(w)
     N = (full * w[:, None]).T @ full
     N[np.arange(n_g), np.arange(n_g)] += prior
     sol = np.linalg.solve(N, (full * w[:, None]).T @ y)
@@ -38,7 +37,6 @@ def test_epoch_clock_elimination_equals_the_full_least_squares():
     assert np.allclose(clk[have], sol[n_g:][have], atol=1e-9)
     assert np.allclose(var_c[have], np.diag(cov)[n_g:][have], rtol=1e-8)
     assert np.allclose(v, y - full @ sol, atol=1e-9)
-    del sw
 
 
 def _arcs(n_ep=240, n_sat=3, seed=5):
