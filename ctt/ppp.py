@@ -4,9 +4,9 @@ against the time scale of a precise orbit/clock product.
 Observation model (metres; one row per epoch *i* and satellite *s*)::
 
     P_IF = ρ + sagnac − c(δt_s + δt_rel) + shapiro + T_h + T_w(apriori) + m_w·ΔZWD(t)
-           + tide + antenna_rx + c·hw + c·δt_r(i) [+ ISB_sys]
+           + tide + antenna_rx + satellite_pcv + c·hw + c·δt_r(i) [+ ISB_sys]
     L_IF = ρ + sagnac − c(δt_s + δt_rel) + shapiro + T_h + T_w(apriori) + m_w·ΔZWD(t)
-           + tide + antenna_rx + windup + c·δt_r(i) + A(arc)
+           + tide + antenna_rx + satellite_pcv + windup + c·δt_r(i) + A(arc)
 
 ``ρ + sagnac`` is ctt.measure's light-time geometry (:func:`ctt.measure.receive_geometry`, the
 same code the code-only measurement uses: receive instant = time tag − a pseudorange
@@ -21,8 +21,11 @@ delays from the met file or the standard atmosphere, mapped with GMF or Niell:
 linear in time between nodes ``ztd_interval_s`` apart with a random-walk constraint
 between nodes; ``tide`` the solid Earth tide (IERS 2010 §7.1.1, :mod:`ctt.geodesy`), the
 same term as ctt.measure; ``antenna_rx`` the receiver antenna's iono-free phase-centre
-offset and variation along the line of sight (ANTEX, when a reader of receiver antennas
-and the station's antenna type are available); ``windup`` the carrier phase wind-up
+offset and variation along the line of sight and ``satellite_pcv`` the satellite antenna's
+nadir-dependent variation (ANTEX 1.4, through ctt.signals, when the ANTEX reader has the
+station's antenna; otherwise 0 and said so in the summary); the pole tide (IERS 2010
+§7.1.4, a few mm, nearly constant over a day and absorbed by the position) is not yet
+applied and the summary says so; ``windup`` the carrier phase wind-up
 (Wu et al. 1993) with the nominal yaw-steering attitude; ``hw`` the station file's
 hardware delays of the codes used, applied exactly as in ctt.measure (so ``δt_r`` is
 *local reference clock minus the product's time scale*); ``A`` a float ambiguity (metres)
@@ -46,10 +49,12 @@ concatenated rows (``_Design`` does not know about days).
 
 Cycle slips (per satellite, on the epoch grid): a new arc starts at a loss-of-lock
 indicator, a gap longer than ``max_gap_s``, a Melbourne–Wübbena jump larger than
-``mw_k`` × the arc's running standard deviation (floor ``mw_min_cycles`` wide-lane cycles;
-Melbourne 1985, Wübbena 1985), or a geometry-free jump (λ1L1 − λ2L2, second difference
-against the previous two epochs of the arc, first difference at the start of an arc) larger
-than ``gf_threshold_m``. Arcs shorter than ``min_arc_s`` are not used (``short_arc``).
+``mw_k`` (5) × the arc's running standard deviation, at least ``mw_min_cycles`` (2) wide-lane
+cycles (Melbourne 1985, Wübbena 1985), or a geometry-free jump (λ1L1 − λ2L2 against its
+linear prediction from the arc's previous two epochs) larger than ``gf_threshold_m``
+(3.5 cm) or 4 × 2.5 mm/sin(el) (:func:`detect_slips`). Slips with λ1n1 − λ2n2 ≈ 0 and
+n1 − n2 = 1 (e.g. 5, 4 cycles: 2.5 cm and one wide-lane cycle) stay below both tests.
+Arcs shorter than ``min_arc_s`` are not used (``short_arc``).
 
 Receiver clock jumps: receivers on free oscillators reset their clock by whole
 milliseconds. A jump is the epoch-to-epoch change of the pseudorange receiver clock
