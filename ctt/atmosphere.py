@@ -15,9 +15,9 @@ Troposphere
   ``e_s = 6.1078 exp(17.2694 t / (t + 237.3))`` hPa, t in °C (over water).
 * Mapping: Niell (1996) hydrostatic (with its seasonal terms and height
   correction) and wet functions. The coefficient tables are those of Niell,
-  J. Geophys. Res. 101(B2), 3227–3246, 1996 (as reproduced in textbooks,
-  e.g. Leick et al., *GPS Satellite Surveying*, Tables 6.1–6.2; the values
-  here were recalled and then checked against those reproductions).
+  J. Geophys. Res. 101(B2), 3227–3246, 1996, Tables 3–4; every digit is
+  pinned in ``tests/test_against_niell_1996.py`` against two reproductions
+  of them (the paper itself was not at hand; sources named there).
   Optionally GMF (Boehm et al. 2006), with the coefficient tables published
   in the IERS Conventions (2010) software collection (Chapter 9, GMF); see
   :func:`gmf_mapping`. Niell and GMF differ by mm-level zenith equivalents

@@ -32,7 +32,7 @@ Robust rejection (per bin, iterated to a fixed point, at most ``max_iter``)
     chance from rejecting a fourth; ``scale_floor_ns`` = 0.01 ns keeps
     rounding noise of exact data from counting as scatter, and a bin is only
     'high_scatter' if its scatter exceeds it too); no rejection in bins with
-    fewer than 3 accepted values. Rejected rows are flagged ``'outlier'``; a
+    fewer than 3 usable values. Rejected rows are flagged ``'outlier'``; a
     satellite with at least 3 usable bins of which half or more are outliers is
     reported as ``suspect`` in ``sat_summary``.
 
@@ -182,8 +182,11 @@ def robust_weighted_mean(g, ng, d, w, sigma=None, *, family=None, mad_k=3.5, max
     order_d = _order(g, d)
     order_s = _order(g, sig_n)
     fin_s = np.isfinite(sig_n)
+    # "fewer than 3 values" counts the bin's usable values, not those still accepted: counting
+    # the accepted ones made a 3-value bin oscillate (reject one -> 2 left -> accept all) and
+    # end with its outlier kept
+    cnt = np.bincount(g[usable], minlength=ng)
     for _ in range(max_iter):
-        cnt = np.bincount(g[acc], minlength=ng)
         med = _median_sorted(order_d, g, d, acc, ng)
         absdev = np.abs(d - med[g]) * norm
         mad = _median_sorted(_order(g, absdev), g, absdev, acc, ng)

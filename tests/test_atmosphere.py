@@ -20,6 +20,27 @@ def test_saastamoinen_zhd_sea_level_45deg():
     assert zhd == pytest.approx(0.0022768 * 1013.25, rel=1e-15)
 
 
+def test_saastamoinen_zhd_latitude_and_height_terms():
+    # IERS Conventions (2010) §9.2, eq. 9.11 (Saastamoinen 1972 as given by Davis et al. 1985;
+    # equation number from memory): ZHD = 0.0022768 P / (1 − 0.00266 cos 2φ − 0.28e-6 H),
+    # H in metres. At φ = 0 and 60° (cos 2φ = +1, −0.5) and H = 2000 m both terms
+    # matter: the latitude term moves ZHD by 6 mm (φ = 0) and the height term by 1 mm.
+    # Expected values by hand from those published coefficients (P = 800 hPa):
+    #   φ = 0:   0.0022768·800 / (1 − 0.00266 − 0.00056) = 1.82144 / 0.99678
+    #   φ = 60°: 0.0022768·800 / (1 + 0.00133 − 0.00056) = 1.82144 / 1.00077
+    for lat_deg, denom in ((0.0, 0.99678), (60.0, 1.00077)):
+        zhd, _ = atm.zenith_delays(800.0, 0.0, 0.0, math.radians(lat_deg), 2000.0)
+        # float rounding of cos(2·60°) ~1e-16: 1e-9 m is far below the 1 mm terms tested
+        assert zhd == pytest.approx(1.82144 / denom, abs=1e-9)
+    # each term on its own, against the same published coefficients (to 1e-9 m)
+    z0, _ = atm.zenith_delays(800.0, 0.0, 0.0, math.radians(45.0), 0.0)
+    zh, _ = atm.zenith_delays(800.0, 0.0, 0.0, math.radians(45.0), 5000.0)
+    assert zh - z0 == pytest.approx(1.82144 / (1 - 0.28e-6 * 5000.0) - 1.82144, abs=1e-9)  # +2.55 mm
+    zl, _ = atm.zenith_delays(800.0, 0.0, 0.0, math.radians(10.0), 0.0)
+    assert zl - z0 == pytest.approx(1.82144 / (1 - 0.00266 * math.cos(math.radians(20.0))) - 1.82144,
+                                    abs=1e-9)  # +4.56 mm
+
+
 def test_saastamoinen_zwd_and_vapour_pressure():
     # Tetens/Murray: e_s(0 °C) = 6.1078 hPa by construction of the formula
     assert atm.water_vapour_pressure_hpa(0.0, 100.0) == pytest.approx(6.1078, rel=1e-12)

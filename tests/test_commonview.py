@@ -208,6 +208,22 @@ def test_mad_rejects_50ns_satellite_and_reports_it():
     assert np.max(np.abs(err / o["u_ns"])) < 6
 
 
+def test_three_satellite_bin_rejects_its_outlier():
+    # A quarter of real epoch bins hold exactly 3 satellites (ZIMM-CN00, 2021-001: 601 of
+    # 2,880), so the rule must act there. By hand from the documented rule (Hampel's
+    # median/MAD identifier, common practice): values 0, 0.1, 30 ns with a-priori σ 1 ns:
+    # median 0.1, |e| = 0.1, 0, 29.9, MAD 0.1 -> scale max(1.4826·0.1, median σ = 1) = 1;
+    # 29.9 > 3.5·1: rejected; the mean of the other two is 0.05 ns.
+    g = np.zeros(3, dtype=np.int64)
+    per, acc, _ = cv.robust_weighted_mean(g, 1, np.array([0.0, 0.1, 30.0]), np.ones(3), np.ones(3))
+    assert list(acc) == [True, True, False]
+    assert per["offset_ns"][0] == pytest.approx(0.05, abs=1e-12)
+    assert per["n_sat"][0] == 2 and per["n_rejected"][0] == 1
+    # two values: no rejection possible (documented), the mean of both
+    per, acc, _ = cv.robust_weighted_mean(g[:2], 1, np.array([0.0, 30.0]), np.ones(2), np.ones(2))
+    assert acc.all() and per["offset_ns"][0] == pytest.approx(15.0, abs=1e-12)
+
+
 # ---------------------------------------------------------------- all-in-view
 
 def test_all_in_view_without_common_satellite():
@@ -365,6 +381,34 @@ def test_coordinate_propagation_matches_monte_carlo():
     assert "coordinates A" in text and "total" in text
 
 
+def test_budget_ar1_standard_error_against_the_ar1_variance_of_the_mean():
+    # AR(1) residuals x_k = ρ x_{k−1} + e_k (simulation truth, ρ = 0.6, σ_e = 1): the variance
+    # of the mean of N values is σ²/N·(1+ρ)/(1−ρ) with σ² = σ_e²/(1−ρ²) (time-series
+    # textbook result, common practice; the finite-N correction 2ρ/(N(1−ρ)²) is 0.07 % here).
+    # One series gives the factor to ~3 % (sd of σ̂ ~2 %, of ρ̂ √((1−ρ²)/N) -> 2.3 %); the mean
+    # over K = 40 series is within 4·3 %/√40 = 1.9 % of the truth. Inverting the inflation
+    # (factor (1−ρ)/(1+ρ)) would be 4× low.
+    rng = np.random.default_rng(2024)
+    n, rho, k = 2880, 0.6, 40
+    t = 10**18 + np.arange(n, dtype=np.int64) * 30 * NS_PER_S
+    se_true = np.sqrt(1 / (1 - rho**2) / n * (1 + rho) / (1 - rho))
+    got, means = [], []
+    for _ in range(k):
+        e = rng.normal(0, 1.0, n)
+        x = np.empty(n)
+        x[0] = e[0] / np.sqrt(1 - rho**2)  # stationary start
+        for i in range(1, n):
+            x[i] = rho * x[i - 1] + e[i]
+        b = cv.uncertainty_budget(pd.DataFrame({"time": t, "system": "G", "offset_ns": x, "u_ns": 1.0,
+                                                "flag": "ok"}))
+        got.append(b["type_a_detail"]["se_autocorrelation_ns"])
+        means.append(b["mean_offset_ns"])
+        assert b["type_a_ns"] >= got[-1]
+    assert np.mean(got) == pytest.approx(se_true, rel=0.019)
+    # and the real spread of the K day means agrees (sd of an sd from K = 40: 11 %; 3 sd)
+    assert np.std(means, ddof=1) == pytest.approx(se_true, rel=0.33)
+
+
 def test_budget_type_a_white_and_correlated():
     # White noise: type A ≈ the standard error σ/√N. Random-walk noise: the
     # AR(1)/TDEV figure must exceed the white-noise standard error.
@@ -376,6 +420,9 @@ def test_budget_type_a_white_and_correlated():
     bw = cv.uncertainty_budget(white)
     # SE of the mean of N unit normals is 1/√N; the scatter-based SE has relative sd ~1/√(2N)
     assert bw["type_a_ns"] == pytest.approx(1 / np.sqrt(n), rel=0.35)  # TDEV extrapolation may raise it
+    # the AR(1) path itself: for white noise ρ̂ ~ 0 (sd 1/√N = 1.9 %, clipped at 0), so the
+    # inflated SE is the plain one within 4·1.3 % (sampling) + 4 % (factor at ρ̂ = 2 sd)
+    assert bw["type_a_detail"]["se_autocorrelation_ns"] == pytest.approx(1 / np.sqrt(n), rel=0.092)
     assert bw["type_a_ns"] >= bw["type_a_detail"]["se_scatter_ns"]
     walk = white.assign(offset_ns=np.cumsum(rng.normal(0, 0.2, n)))
     bk = cv.uncertainty_budget(walk)

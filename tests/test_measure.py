@@ -3,7 +3,9 @@
 The truth here is built in the inertial frame (satellites on circular orbits,
 the Earth turning at ω_e under them), so an error in ctt.measure's rotating-
 frame light time, Earth rotation or sign conventions cannot cancel itself.
-Invented geometry; the physics constants are IS-GPS-200's.
+Invented geometry; the physics constants are IS-GPS-200's, written here as
+literals (not imported from the module under test, whose values are checked
+against them below).
 """
 
 import dataclasses
@@ -13,10 +15,14 @@ import pytest
 
 from ctt import timescales as ts
 from ctt.config import load_station
-from ctt.measure import (C_MPS, OMEGA_E, MeasureOptions, light_time, measure_station,
-                         sagnac_closed_form_m)
+from ctt import measure as measure_module
+from ctt.measure import MeasureOptions, light_time, measure_station, sagnac_closed_form_m
 from ctt.orbits import SatStates
 from ctt.formats.rinex_obs import ObsData, ObsHeader
+
+# IS-GPS-200, Table 30-II / §20.3.4.3: WGS 84 Earth rotation rate and speed of light
+OMEGA_E = 7.2921151467e-5  # rad/s
+C_MPS = 2.99792458e8       # m/s (also the SI definition of the metre)
 
 T0 = ts.civil_to_ns(2021, 1, 1)  # GPS
 R_ORBIT = 26_560e3               # GPS semi-major axis, common practice
@@ -130,6 +136,12 @@ def _simulate(rx_ecef, clock_s, hardware_s, n_ep=120, step_s=30):
 
 
 OFF = dict(troposphere=False, ionosphere=False, tide=False)
+
+
+def test_module_constants_are_the_published_ones():
+    # IS-GPS-200 (Ω̇e, c): exact equality, these are defined values
+    assert measure_module.OMEGA_E == 7.2921151467e-5
+    assert measure_module.C_MPS == 299_792_458.0
 
 
 def test_recovers_the_clock_to_a_picosecond(tmp_path):
@@ -293,6 +305,19 @@ def test_epoch_rejection_keeps_a_normal_sample_and_removes_a_spike():
         v[:, 0] += 30.0
         _, _, _, rej = robust_epoch_mean(v, np.ones_like(v), 3.5, sigma=np.full_like(v, 3.0))
         assert rej[:, 0].mean() > 0.9
+
+
+def test_epoch_of_exactly_three_satellites_rejects_its_spike():
+    # By hand from the documented rule (median/MAD, Croux & Rousseeuw b₃ = 1.495 as in the
+    # module, floor 0.5 × median σ): values 0, 0.3, 30 with σ = 1: median 0.3, MAD 0.3,
+    # scale max(1.4826·1.495·0.3 = 0.665, 0.5) -> limit 3.5·0.665 = 2.33; 29.7 is rejected and
+    # the mean of the other two is 0.15. Two values: nothing can be rejected.
+    from ctt.measure import robust_epoch_mean
+
+    v = np.array([[0.0, 0.3, 30.0], [0.0, 30.0, np.nan]])
+    mean, _, n_used, rej = robust_epoch_mean(v, np.ones_like(v), 3.5, sigma=np.ones_like(v))
+    assert mean[0] == pytest.approx(0.15, abs=1e-12) and n_used[0] == 2 and list(rej[0]) == [False, False, True]
+    assert mean[1] == pytest.approx(15.0, abs=1e-12) and n_used[1] == 2 and not rej[1].any()
 
 
 def test_glonass_without_channel_numbers_does_not_stop_a_gps_day(tmp_path):
