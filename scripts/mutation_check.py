@@ -36,6 +36,7 @@ import os
 import pathlib
 import random
 import shutil
+import signal
 import subprocess
 import sys
 import tempfile
@@ -208,6 +209,8 @@ def main(argv=None):
             print(f"{m:12s} {len(candidate_mutations((ROOT / 'ctt' / f'{m}.py').read_text())):5d} candidates")
         return 0
 
+    # a SIGTERM must still restore and remove the copy (the finally clause below)
+    signal.signal(signal.SIGTERM, lambda *_: sys.exit(143))
     copy = make_copy()
     print(f"mutation check: tree copied to {copy.name}/ beside the repository; tests per module: "
           f"{'not slow' if a.fast else 'all'} of the module's files, -x, demo regeneration deselected")

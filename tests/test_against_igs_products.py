@@ -106,7 +106,6 @@ def test_leave_one_out_interpolation_error_on_igs_final(sp3):
 
 @pytest.fixture(scope="module")
 def comparison(shared_data):
-    pytest.importorskip("ctt.formats.rinex_nav")
     from ctt.commands.compare_products import run_comparison
 
     return run_comparison(shared_data / "brdc0010.21n", [shared_data / "igs21385.sp3"])
@@ -142,7 +141,6 @@ def test_broadcast_clocks_against_igs_final(comparison):
 
 
 def test_relativistic_terms_agree(shared_data, sp3):
-    pytest.importorskip("ctt.formats.rinex_nav")
     from ctt.orbits import BroadcastOrbits
     from ctt.formats.rinex_nav import read_nav
 
@@ -159,7 +157,6 @@ def test_relativistic_terms_agree(shared_data, sp3):
 
 
 def test_compare_products_cli_json(shared_data, capsys):
-    pytest.importorskip("ctt.formats.rinex_nav")
     from ctt.cli import main
 
     code = main(["compare-products", "--nav", str(shared_data / "brdc0010.21n"),

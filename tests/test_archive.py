@@ -21,7 +21,8 @@ import pandas as pd
 import pytest
 
 from ctt.archive import Archive, inputs_record, offsets_checksum
-from ctt.errors import EXIT_LOCKED, ArchiveError, ConfigError, FileFormatError, LockTimeoutError, exit_code_for
+from ctt.errors import (EXIT_LOCKED, ArchiveError, ConfigError, FileFormatError, LockTimeoutError, ProcessingError,
+                        exit_code_for)
 from ctt.timescales import parse_iso
 
 PAIR = "laba-labb"
@@ -153,7 +154,7 @@ def test_repeated_times_refused(tmp_path):
     off, _ = make_day(0, n=5)
     off.loc[3, "time_utc_ns"] = off.loc[2, "time_utc_ns"]
     with Archive(tmp_path / "a.sqlite") as a:
-        with pytest.raises(Exception, match="repeated"):
+        with pytest.raises(ProcessingError, match="repeated"):
             a.store_day(PAIR, DAY, off, None, {})
         assert a.day_info(PAIR, DAY) is None
 

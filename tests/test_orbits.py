@@ -14,6 +14,7 @@ import pytest
 from scipy.optimize import brentq
 
 from ctt import orbits
+from ctt.errors import ProcessingError
 from ctt.orbits import BroadcastOrbits, solve_kepler
 from ctt.formats.rinex_nav import read_nav
 from ctt.timescales import civil_to_ns
@@ -51,7 +52,7 @@ def test_kepler_against_brentq(emax):
 
 
 def test_kepler_rejects_hyperbolic():
-    with pytest.raises(Exception):
+    with pytest.raises(ProcessingError):
         solve_kepler(np.array([1.0]), np.array([1.2]))
 
 

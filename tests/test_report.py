@@ -204,7 +204,7 @@ def test_bad_file_exit_code(capsys):
 
 
 def test_report_from_archive(run_dir, tmp_path):
-    archive = pytest.importorskip("ctt.archive")
+    import ctt.archive as archive
     d, _ = run_dir
     off = pd.read_csv(d / "offset.csv")
     db = tmp_path / "a.sqlite"

@@ -103,7 +103,7 @@ def test_files_written(written):
 
 
 def test_project_reader_reads_back_exactly(written):
-    obs_mod = pytest.importorskip("ctt.formats.rinex_obs")
+    import ctt.formats.rinex_obs as obs_mod
     res, _ = written
     for sid, path in zip(res.stations, res.files["obs"]):
         r = res.stations[sid]
@@ -166,8 +166,8 @@ def test_georinex_reads_the_files(written):
 
 def test_nav_file_matches_the_truth_model(written):
     """ctt.orbits on the written nav file gives the simulator's satellites (both IS-GPS-200 Table 20-IV)."""
-    orbits = pytest.importorskip("ctt.orbits")
-    nav_mod = pytest.importorskip("ctt.formats.rinex_nav")
+    import ctt.orbits as orbits
+    import ctt.formats.rinex_nav as nav_mod
     res, _ = written
     nav = nav_mod.read_nav(res.files["nav"][0])
     bo = orbits.BroadcastOrbits(nav)
@@ -187,7 +187,7 @@ def test_nav_file_matches_the_truth_model(written):
 
 
 def test_station_and_pair_files_load_with_config(written):
-    config = pytest.importorskip("ctt.config")
+    import ctt.config as config
     res, out = written
     st = config.load_station(res.files["station"][0])
     spec = res.stations["LABA"].spec
@@ -328,7 +328,7 @@ def test_geometric_pseudorange_independent_check():
 
 def test_hardware_delay_signs_and_recovery_with_config():
     """Sign convention of ctt.config: x = raw − (receiver + cable) + reference."""
-    config = pytest.importorskip("ctt.config")
+    import ctt.config as config
     base = _quiet(_base(hours=0.5))
     res0 = simulate(scenario_from_dict(copy.deepcopy(base)))
     d = copy.deepcopy(base)
@@ -406,7 +406,7 @@ def test_resets_gaps_and_lli(written):
     assert np.all(r.lli["L1C"][mid][np.isfinite(r.obs["L1C"][mid])] <= 1)
     # RINEX epoch flag 1 ("power failure between previous and current epoch") on that epoch only
     assert r.epoch_flag[after] == 1 and r.epoch_flag.sum() == 1
-    obs_mod = pytest.importorskip("ctt.formats.rinex_obs")
+    import ctt.formats.rinex_obs as obs_mod
     o = obs_mod.read_obs(res.files["obs"][0])
     k = np.searchsorted(o.time_ns, r.time_ns[after])
     assert o.epoch_flag[k] == 1 and np.sum(o.epoch_flag == 1) == 1
@@ -466,7 +466,6 @@ def test_bad_scenario_names_the_key(tmp_path):
 
 
 def test_real_nav_file_as_satellite_source(shared_data, tmp_path):
-    pytest.importorskip("ctt.orbits")
     data = _base(hours=0.5)
     data["scenario"]["systems"] = ["G"]
     data["satellites"] = {"source": "nav", "nav_file": str(shared_data / "brdc0010.21n")}
@@ -484,7 +483,7 @@ DEMO = __import__("pathlib").Path(__file__).resolve().parents[1] / "data_demo"
 
 
 def test_demo_folder_is_complete_and_small():
-    config = pytest.importorskip("ctt.config")
+    import ctt.config as config
     total = sum(p.stat().st_size for p in DEMO.iterdir() if p.is_file())
     assert total < 5_000_000
     pair = config.load_pair(DEMO / "aldr-brkw.toml")
@@ -510,7 +509,7 @@ def test_demo_regenerates_identically(tmp_path):
 
 
 def test_met_file_reads_back_with_the_project_reader(written):
-    met_mod = pytest.importorskip("ctt.formats.rinex_met")
+    import ctt.formats.rinex_met as met_mod
     res, _ = written
     r = res.stations["LABA"]
     m = met_mod.read_met(res.files["met"][0])
@@ -532,7 +531,6 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
     agree within 4 standard errors of the mean plus 0.05 ns (met rounding to 0.1 hPa / 0.1 °C /
     0.1 % moves the slant delay by < 1 mm at 10° elevation, 3 ps).
     """
-    pytest.importorskip("ctt.measure")
     from ctt.config import load_station
     from ctt.measure import MeasureOptions, measure_station
     from ctt.orbits import BroadcastOrbits
@@ -561,8 +559,8 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
 
 
 def test_multi_day_scenario_writes_daily_files(tmp_path):
-    config = pytest.importorskip("ctt.config")
-    obs_mod = pytest.importorskip("ctt.formats.rinex_obs")
+    import ctt.config as config
+    import ctt.formats.rinex_obs as obs_mod
     data = _base(hours=48.0)
     data["scenario"]["interval_s"] = 300.0  # keeps the test quick
     res = simulate(scenario_from_dict(data))

@@ -17,6 +17,7 @@ import pandas as pd
 import pytest
 
 from ctt import tracks
+from ctt.errors import ProcessingError
 from ctt.timescales import NS_PER_S, civil_to_ns, convert, from_mjd
 
 MJD0 = 59215  # 2021-01-01, an arbitrary test day
@@ -253,7 +254,7 @@ def test_bin_epochs_single_and_300s():
 def test_empty_and_missing_columns():
     df = station_table(lambda ts: ts * 0, n_ep=4)
     assert len(tracks.fit_tracks(df.iloc[0:0])) == 0
-    with pytest.raises(Exception, match="clock_ns"):
+    with pytest.raises(ProcessingError, match="clock_ns"):
         tracks.fit_tracks(df.drop(columns=["clock_ns"]))
 
 
