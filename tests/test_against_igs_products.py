@@ -156,7 +156,7 @@ def test_relativistic_terms_agree(shared_data, sp3):
     assert np.abs(p.relativity_s[ok]).max() > 10e-9  # and it is not negligible (e ~ 0.01)
 
 
-def test_compare_products_cli_json(shared_data, capsys):
+def test_compare_products_cli_json(shared_data, capsys, comparison):
     from ctt.cli import main
 
     code = main(["compare-products", "--nav", str(shared_data / "brdc0010.21n"),
@@ -167,6 +167,17 @@ def test_compare_products_cli_json(shared_data, capsys):
     assert set(out["summary"]) == {"orbit_rms_m", "clock_rms_ns", "n_satellites"}
     for v in out["satellites"].values():
         assert set(v) == {"orbit_rms_m", "radial_rms_m", "along_rms_m", "cross_rms_m", "clock_rms_ns"}
+    # the values are those checked against the IGS final product above (same day, same files):
+    # G11 unhealthy and excluded, 31 satellites, broadcast orbits ≤ 2 m and clocks ≤ 5 ns RMS
+    # (IGS product table, from memory), each satellite's figures as the comparison gives them
+    result, _, _ = comparison
+    assert set(out["excluded"]) == {"G11"} and out["summary"]["n_satellites"] == 31
+    assert out["summary"]["orbit_rms_m"] <= 2.0 and out["summary"]["clock_rms_ns"] <= 5.0
+    assert out["summary"]["orbit_rms_m"] == pytest.approx(result["summary"]["orbit_rms_m"], rel=1e-6)
+    assert out["summary"]["clock_rms_ns"] == pytest.approx(result["summary"]["clock_rms_ns"], rel=1e-6)
+    for s, v in out["satellites"].items():
+        for k, x in v.items():
+            assert x == pytest.approx(result["satellites"][s][k], rel=1e-6, abs=1e-9), (s, k)
     code = main(["compare-products", "--nav", str(shared_data / "brdc0010.21n"),
                  "--sp3", str(shared_data / "igs21385.sp3")])
     text = capsys.readouterr().out

@@ -91,8 +91,11 @@ def test_baseline_geodesic_against_pyproj_geod():
     _, _, dist = Geod(ellps="WGS84").inv(7.465, 46.877, -61.8, 17.6)
     # pyproj.Geod (Karney) is the reference; the footprints come from our inverse (< 0.1 mm)
     assert abs(bl.geodesic_m - dist) < 1e-3
-    # chord is shorter than the geodesic over ~6900 km (common practice: chord = 2R sin(s/2R))
+    # the chord is the straight line between the two ECEF points: ‖b − a‖ (definition), to the µm;
+    # and it is shorter than the geodesic over ~6900 km (chord ≈ 2R sin(s/2R) on a sphere)
+    assert bl.chord_m == pytest.approx(float(np.linalg.norm(np.asarray(b) - np.asarray(a))), abs=1e-6)
     r = 6371e3
+    assert bl.chord_m < bl.geodesic_m
     assert abs(bl.chord_m - 2 * r * np.sin(dist / (2 * r))) < 25e3  # spherical approximation, ~0.3 %
 
 
@@ -111,7 +114,14 @@ def test_ionospheric_pierce_point_against_pyproj_geod_on_a_sphere():
     az = rng.uniform(0, 360, 2000)
     el = rng.uniform(5, 90, 2000)
     la, lo, z = atm.pierce_point(np.radians(lat), np.radians(lon), np.radians(az), np.radians(el), H, R)
-    psi = np.pi / 2 - np.radians(el) - z
+    # ψ from the geometry of the ray, not from the code's zenith angle: the ray leaves radius R
+    # at elevation E and meets the shell R + H after s = −R sin E + √(R² sin²E + (R+H)² − R²);
+    # in the plane of the ray the point is (R + s sin E, s cos E), so ψ = atan2(s cos E, R + s sin E)
+    e = np.radians(el)
+    s_ray = -R * np.sin(e) + np.sqrt((R * np.sin(e)) ** 2 + (R + H) ** 2 - R ** 2)
+    psi = np.arctan2(s_ray * np.cos(e), R + s_ray * np.sin(e))
+    # the zenith angle at the pierce point then follows as π/2 − E − ψ (plane triangle)
+    np.testing.assert_allclose(z, np.pi / 2 - e - psi, atol=1e-12)
     plon, plat, _ = Geod(a=R, f=0.0).fwd(lon, lat, az, R * psi)
     # 1e-9 deg ≈ 0.1 mm on the shell: both are closed forms in double precision
     assert np.max(np.abs(np.degrees(la) - plat)) < 1e-9

@@ -84,3 +84,60 @@ def test_styles_distinguishable_without_colour():
 
 def test_slope_fraction_labels():
     assert plots._frac(-0.5) == "-1/2" and plots._frac(1.5) == "+3/2" and plots._frac(0.0) == "0"
+
+
+# ------------------------------------------------------------------ the data drawn are the data given
+
+def _drawn_arrays(fig):
+    """Every y array a figure draws: line data and scatter offsets, per axes."""
+    out = []
+    for ax in fig.axes:
+        for ln in ax.get_lines():
+            out.append(np.asarray(ln.get_ydata(), dtype=float))
+        for col in ax.collections:
+            off = np.asarray(col.get_offsets(), dtype=float)
+            if off.ndim == 2 and off.shape[0] > 1:
+                out.append(off[:, 1])
+    return out
+
+
+def _draws(fig, y, rtol=1e-9):
+    y = np.asarray(y, dtype=float)
+    for a in _drawn_arrays(fig):
+        if a.shape == y.shape and np.allclose(a, y, rtol=rtol, atol=0, equal_nan=True):
+            return True
+        fin = np.isfinite(y)  # a plot may leave out the gaps (NaN) of the series
+        if a.shape == (int(fin.sum()),) and np.allclose(a, y[fin], rtol=rtol, atol=0):
+            return True
+    return False
+
+
+@pytest.fixture
+def captured(monkeypatch):
+    figs = []
+    real = plots._save
+
+    def keep(fig, stem, *a, **k):
+        figs.append(fig)
+        return real(fig, stem, *a, **k)
+
+    monkeypatch.setattr(plots, "_save", keep)
+    return figs
+
+
+def test_figures_draw_the_values_given(run, tmp_path, captured):
+    # Not only "non-blank": the offsets, residuals, satellite counts and deviations handed to
+    # each plot are the arrays its artists hold (the invented series of synth_run.py).
+    d, info, off, _ = run
+    t = timescales.parse_iso_array(off.time_utc)
+    summary, devs, fit, ch, g = stability.analyse(t, off.offset_ns.to_numpy(), off.u_ns.to_numpy())
+    plots.plot_offset(g.time_ns, g.value, tmp_path / "offset", u_ns=g.u, fit_ns=fit.model_ns)
+    assert _draws(captured[-1], g.value) and _draws(captured[-1], fit.model_ns)
+    plots.plot_residuals(g.time_ns, fit.residual_ns, tmp_path / "resid", u_ns=g.u)
+    assert _draws(captured[-1], fit.residual_ns)
+    plots.plot_common_satellites(t, off.n_sat, tmp_path / "nsat")
+    assert _draws(captured[-1], off.n_sat.to_numpy())
+    plots.plot_deviations(devs, tmp_path / "devs")
+    fig = captured[-1]
+    assert _draws(fig, devs["oadev"].dev) and _draws(fig, devs["mdev"].dev)
+    assert _draws(fig, devs["tdev"].dev * 1e9)  # TDEV drawn in ns (tdev_scale)

@@ -135,7 +135,14 @@ def test_report_json_numbers(built, run_dir):
     steps = [c for c in r["changes"] if c["kind"] == "phase step"]
     # the invented 5 ns step, found within 4 u of its size (local fit, ctt.stability)
     assert len(steps) == 1 and abs(steps[0]["size"] - info["step_ns"]) < 4 * steps[0]["u_size"]
-    assert r["stability_at"]["1 h"]["adev"]["dev"] > 0
+    # the invented series (tests/data/stability/synth_run.py): white PM σx = 1.2 ns and white
+    # FM with 0.05 ns phase steps per τ0 = 300 s. SP 1065 noise table: white PM σy(τ) = √3·σx/τ,
+    # white FM σy²(τ) = q²/(τ0·τ); at τ = 1 h: 5.774e-13 and 4.81e-14, root sum 5.794e-13 (the
+    # invented drift adds 6e-16). Within two half-widths of the 1σ CI (SP 1065 §5.3).
+    a = r["stability_at"]["1 h"]["adev"]
+    truth = np.hypot(np.sqrt(3) * 1.2e-9 / 3600, np.sqrt((0.05e-9) ** 2 / (300 * 3600)))
+    assert a["tau_s"] == 3600.0 and a["noise"] == "white PM"
+    assert abs(a["dev"] - truth) < 2 * (a["ci_high"] - a["ci_low"]) / 2
     assert r["stability_at"]["1 d"]["adev"] is None      # 3 d span: 1 d > span/3
     assert r["drift"]["drift_per_day"]["u"] > 0
     doc = built.read_text()

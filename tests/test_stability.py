@@ -379,16 +379,27 @@ def test_compare_periods_flags_noisier_after():
     assert c.adev_ratio[0]["significant"] and c.adev_ratio[0]["ratio"] == pytest.approx(2.0, rel=0.1)
 
 
-def test_analyse_json_shape():
+def test_analyse_json_values():
     t, x, u = simulate_phase(9, n=800, step_s=30.0)
     out, *_ = stability.analyse(t, x, u)
-    for k in ("adev", "mdev", "tdev", "hdev"):
-        row = out[k][0]
-        assert set(row) >= {"tau_s", "dev", "ci_low", "ci_high", "edf", "noise", "n"}
-        assert row["noise"] in stability.NOISE_NAMES.values()
+    # every row's deviation is allantools' (reference library) on the same phase series (s):
+    # overlapping ADEV, MDEV, TDEV (ns), overlapping HDEV
+    ref = {"adev": allantools.oadev, "mdev": allantools.mdev, "tdev": allantools.tdev, "hdev": allantools.ohdev}
+    for k, fn in ref.items():
+        rows = out[k]
+        assert set(rows[0]) >= {"tau_s", "dev", "ci_low", "ci_high", "edf", "noise", "n"}
+        taus = [r["tau_s"] for r in rows]
+        want = np.asarray(fn(x * 1e-9, 1 / 30.0, "phase", taus)[1]) * (1e9 if k == "tdev" else 1.0)
+        np.testing.assert_allclose([r["dev"] for r in rows], want, rtol=1e-9)
+        # white PM of σ = 1 ns (simulation truth) is what the noise identification must say
+        assert rows[0]["noise"] == "white PM"
+        assert all(r["ci_low"] < r["dev"] < r["ci_high"] for r in rows)
     assert out["units"]["tdev"] == "ns"
-    assert set(out["drift"]["offset_ns"]) >= {"value", "u"}
-    assert math.isfinite(out["drift"]["drift_per_day"]["u"])
+    # drift fit against the simulation truth (a = 5 ns at the mid-time, y = 2e-13): within 4 u
+    off, fr = out["drift"]["offset_ns"], out["drift"]["frequency"]
+    assert abs(fr["value"] - 2e-13) < 4 * fr["u"]
+    assert math.isfinite(out["drift"]["drift_per_day"]["u"]) and out["drift"]["drift_per_day"]["u"] > 0
+    assert math.isfinite(off["value"]) and off["u"] > 0
 
 
 def test_stability_set_tdev_equals_direct_tdev():
