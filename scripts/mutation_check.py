@@ -245,7 +245,12 @@ def main(argv=None):
             sample += rng.sample(pool, min(k, len(pool)))
         print(f"{n_pool} candidate mutations in {', '.join(modules)}; sampling {len(sample)}, "
               f"stratified by module (seed {a.seed})")
-        sample.sort(key=lambda r: (r[0], r[2]))
+        # round-robin over the modules, so that a run cut short still covers each of them
+        per_mod = {}
+        for r in sorted(sample, key=lambda r: (r[0], r[2])):
+            per_mod.setdefault(r[0], []).append(r)
+        sample = [r for k in range(max(map(len, per_mod.values()), default=0))
+                  for m in modules if k < len(per_mod.get(m, [])) for r in [per_mod[m][k]]]
         t0 = time.perf_counter()
         for m, desc, start, end, repl, line in sample:
             res, dt, by = mutate_and_run(copy, m, start, end, repl, a.timeout, extra)
