@@ -77,14 +77,46 @@ Code pseudorange of code ``k`` on frequency ``f``::
   truth; e.g. 1.3 = the true ionosphere is 30 % stronger than broadcast),
   dispersive ∝ 1/f², positive on code, negative on phase.
 
+* Shapiro delay (IERS Conventions 2010, eq. 11.17 with γ = 1), on code and
+  phase alike: ``(2GM/c²)·ln((r_s + r_r + ρ)/(r_s + r_r − ρ))`` with r_s, r_r
+  the geocentric distances of satellite and antenna and ρ = c·τ (12-19 mm for
+  GPS; ``[propagation] shapiro = false`` leaves it out).
+
 Carrier phase (cycles) of band ``f``, wavelength λ = c/f::
 
     L = [c·(τ + x − dt_sat) + T_slant − I_L1·(f_L1/f)² + c·(receiver_k + cable − reference)
-         + multipath_k/100 + noise] / λ + N
+         + multipath_k/100 + noise] / λ + N + φ_wu + slips
 
 with an integer ambiguity N drawn per continuous arc (new after a gap, a
-receiver reset or a cycle slip; LLI bit 0 is set on the first epoch of every
-arc; the first epoch after a receiver reset has epoch flag 1, "power failure").
+receiver reset or a random cycle slip; LLI bit 0 is set on the first epoch of
+every arc; the first epoch after a receiver reset has epoch flag 1, "power
+failure"). Carrier phase is written for every code's band (L1/L2/L5 for GPS,
+E1/E5a/E5b for Galileo), with the noise ``phase_noise_m / sin(el)``.
+
+* Phase wind-up φ_wu (cycles, the same on every band; Wu et al. 1993, "Effects
+  of antenna orientation on GPS carrier phase", manuscripta geodaetica 18,
+  pp. 91-98), computed here on its own (:func:`phase_windup_cycles`): with k̂
+  the unit vector from the satellite to the receiver, the satellite's body
+  axes x̂', ŷ' of nominal yaw attitude (ẑ' towards the Earth's centre, ŷ' = ẑ'
+  × ê_sun normalised, x̂' = ŷ' × ẑ'; Sun from
+  :func:`ctt.geodesy.sun_moon_ecef`) and the receiver antenna's x̂ = local
+  north, ŷ = local west (antenna not rotated), the effective dipoles are
+  ``D' = x̂' − k̂(k̂·x̂') − k̂ × ŷ'`` and ``D = x̂ − k̂(k̂·x̂) + k̂ × ŷ`` and
+  ``φ = sign(k̂·(D' × D))·arccos(D'·D / |D'||D|) / 2π``, made continuous along
+  time for each satellite (the integer count is then absorbed in N).
+  ``[propagation] phase_windup = false`` leaves it out. A PPP user removes it
+  by subtracting the same φ (cycles) from L.
+* Cycle slips at configured epochs (``[[stations.slips]]``): from that epoch
+  on the carrier phase of the named bands is shifted by whole cycles;
+  ``lli = true`` also sets LLI bit 0 there (receivers often do not).
+* Receiver millisecond clock jumps: a receiver on a free-running oscillator
+  (``[stations.clock] frequency_offset`` of e.g. −3e-7) keeps its clock within
+  ``ms_jump_threshold_us`` of GPS time by stepping it by whole milliseconds
+  (``[stations.clock] ms_jump_threshold_us``, 0 = never), or at configured
+  instants (``[[stations.clock_jumps]]``, added on top of the threshold's resets,
+  which look at the oscillator alone). The jump is part of x (the true
+  receiver clock, as truth.csv gives it), so code *and* phase both follow it:
+  the phase jumps by c·1 ms/λ cycles without any change of ambiguity.
 Signal strength S (dB-Hz) rises with elevation; the RINEX SSI digit is
 ``min(9, max(1, S // 6))`` (RINEX 3.04 §5.7).
 
@@ -178,12 +210,17 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     ionosphere = true
     iono_scale = 1.0
     solid_tide = true
+    shapiro = true                      # Shapiro delay on code and phase
+    phase_windup = true                 # carrier-phase wind-up (nominal yaw, antenna north-aligned)
 
     [output]
     gzip = true                         # gzip the obs and nav files (.gz)
     hatanaka = false                    # obs as Hatanaka compact RINEX (.crx)
     rinex2 = false                      # also write RINEX 2.11 (GPS) obs files
     met_interval_s = 300.0
+    products = false                    # also write precise products of the truth (SP3-c + RINEX clock)
+    sp3_interval_s = 300.0              # SP3 epochs (the file spans the data ± 1 h)
+    clk_interval_s = 30.0               # clock epochs (the file spans the data ± 5 min)
 
     [[stations]]
     id = "LABA"
@@ -197,6 +234,15 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     phase_noise_m = 0.002
     signals = { G = ["C1C", "C2W", "C5Q"], E = ["C1C", "C5Q", "C7Q"] }
     cycle_slips_per_h = 0.0             # random carrier-phase slips per satellite-hour (LLI set)
+    [[stations.slips]]                  # a cycle slip at a configured epoch
+    time = 2021-01-01T06:00:00Z         # first epoch at or after it
+    sat = "G05"                         # optional: default the highest tracked satellite of `system`
+    system = "G"                        # used when sat is not given (default "G")
+    cycles = { 1 = 3, 2 = -2 }          # band digit -> whole cycles (bands of the station's signals)
+    lli = false                         # set LLI bit 0 at the slip
+    [[stations.clock_jumps]]            # receiver clock stepped by whole ms
+    time = 2021-01-01T09:00:00Z
+    ms = 1
     [stations.delays]
     receiver_ns = { C1C = 25.1, C2W = 27.0, C5Q = 24.0, C7Q = 24.5 }
     cable_ns = 152.4
@@ -218,6 +264,7 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     offset_ns = 120.0
     frequency_offset = 1.0e-13
     drift_per_day = 0.0
+    ms_jump_threshold_us = 0.0          # > 0: free-running receiver kept within it by 1-ms steps
     [[stations.clock.noise]]
     type = "white_fm"                   # white_pm flicker_pm white_fm flicker_fm random_walk_fm
     adev_1s = 1.0e-11                   # or h = 2.0e-22
@@ -253,6 +300,18 @@ station's [[delays]]; for receiver-delay changes the first GPS code's).
 ``truth_steps.csv``: ``time_utc, station, kind (clock_phase |
 clock_frequency | delay), phase_ns, frequency, apparent_step_ns,
 in_delays, what``.
+``truth_events.csv``: the carrier-phase events, one row per cycle slip and
+phase observable, per receiver clock jump and per receiver reset:
+``time_utc, time_gps, time_gps_ns, station, kind (cycle_slip | clock_jump |
+receiver_reset), sat, obs (e.g. L1C), cycles, jump_ms, lli, source
+(configured | random | threshold)``. A random slip (``cycle_slips_per_h``)
+starts a new arc: its ``cycles`` is the change of that arc's ambiguity.
+With ``products = true``: ``SIMU{week}{dow}.sp3`` (SP3-c) and
+``SIMU{week}{dow}.clk`` (RINEX clock 3.00) per GPS day hold the true
+satellite positions and the true satellite clocks *without* the periodic
+relativistic term, −2 r·v/c² (IGS convention, as :class:`ctt.orbits.PreciseOrbits`
+adds it back), on GPS time; the satellites have no antenna offset (positions
+are of the phase centre).
 """
 
 from __future__ import annotations
@@ -278,12 +337,14 @@ __all__ = [
     "power_law_noise", "clock_series", "Scenario", "StationSpec", "ClockSpec", "load_scenario",
     "scenario_from_dict", "synthetic_constellation", "KeplerEphemerides", "light_time", "simulate", "run_scenario",
     "SimulationResult", "StationResult", "write_outputs", "obs_file_name", "nav_file_name", "met_file_name",
+    "phase_windup_cycles", "ms_jumps", "product_file_name",
 ]
 
 C_MPS = 299_792_458.0  # SI
 OMEGA_E = 7.2921151467e-5  # rad/s, IS-GPS-200
 GM_GPS = 3.986005e14  # IS-GPS-200
 GM_GAL = 3.986004418e14  # Galileo OS SIS ICD
+GM_EARTH = 3.986004418e14  # IERS Conventions 2010, table 1.1 (Shapiro delay)
 SIDEREAL_DAY_S = 86164.0905  # common practice
 NS = ts.NS_PER_S
 
@@ -392,6 +453,20 @@ class ClockSpec:
     drift_per_day: float = 0.0
     noise: tuple = ()
     steps: tuple = ()
+    ms_jump_threshold_us: float = 0.0   #: > 0: the receiver steps its clock by whole ms to stay within it
+    jumps: tuple = ()                   #: configured (time_utc_ns, ms) receiver clock steps
+
+
+@dataclasses.dataclass(frozen=True)
+class SlipSpec:
+    """A cycle slip at a configured epoch (``[[stations.slips]]``)."""
+
+    time_utc_ns: int
+    sat: str | None
+    system: str
+    cycles: dict          #: band digit -> whole cycles
+    lli: bool
+    key: str              #: scenario key, for error messages
 
 
 @dataclasses.dataclass(frozen=True)
@@ -429,6 +504,7 @@ class StationSpec:
     resets: tuple
     delay_changes: tuple
     cycle_slips_per_h: float = 0.0
+    slips: tuple = ()
 
 
 @dataclasses.dataclass(frozen=True)
@@ -579,7 +655,7 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
 
     prop = data.get("propagation", {})
     r.keys(prop, {"earth_rotation", "troposphere", "wet_random_walk_mm_per_sqrt_h", "ionosphere", "iono_scale",
-                  "solid_tide"}, "propagation")
+                  "solid_tide", "shapiro", "phase_windup"}, "propagation")
     prop_out = {
         "earth_rotation": r.flag(prop, "earth_rotation", "propagation", True),
         "troposphere": r.flag(prop, "troposphere", "propagation", True),
@@ -587,12 +663,18 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
         "ionosphere": r.flag(prop, "ionosphere", "propagation", True),
         "iono_scale": r.num(prop, "iono_scale", "propagation", 1.0, lo=0),
         "solid_tide": r.flag(prop, "solid_tide", "propagation", True),
+        "shapiro": r.flag(prop, "shapiro", "propagation", True),
+        "phase_windup": r.flag(prop, "phase_windup", "propagation", True),
     }
     out = data.get("output", {})
-    r.keys(out, {"gzip", "hatanaka", "rinex2", "met_interval_s"}, "output")
+    r.keys(out, {"gzip", "hatanaka", "rinex2", "met_interval_s", "products", "sp3_interval_s", "clk_interval_s"},
+           "output")
     out_out = {"gzip": r.flag(out, "gzip", "output", True), "hatanaka": r.flag(out, "hatanaka", "output", False),
                "rinex2": r.flag(out, "rinex2", "output", False),
-               "met_interval_s": r.num(out, "met_interval_s", "output", 300.0, lo=1.0)}
+               "met_interval_s": r.num(out, "met_interval_s", "output", 300.0, lo=1.0),
+               "products": r.flag(out, "products", "output", False),
+               "sp3_interval_s": r.num(out, "sp3_interval_s", "output", 300.0, lo=1.0, hi=3600.0),
+               "clk_interval_s": r.num(out, "clk_interval_s", "output", 30.0, lo=1.0, hi=3600.0)}
 
     st_list = data.get("stations")
     if not isinstance(st_list, list) or not st_list:
@@ -619,7 +701,7 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
 _STATION_KEYS = {"id", "name", "position_m", "lat_deg", "lon_deg", "height_m", "antenna_type",
                  "antenna_delta_hen_m", "receiver_type", "elevation_mask_deg", "code_noise_m", "phase_noise_m",
                  "signals", "delays", "met", "multipath", "clock", "gaps", "resets", "delay_changes",
-                 "cycle_slips_per_h"}
+                 "cycle_slips_per_h", "slips", "clock_jumps"}
 
 
 def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
@@ -673,7 +755,8 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
         mp_out = {"amplitude_m": r.num(mp, "amplitude_m", f"{w}.multipath", lo=0),
                   "decay_deg": r.num(mp, "decay_deg", f"{w}.multipath", 15.0, lo=0.1)}
     ck = st.get("clock", {})
-    r.keys(ck, {"offset_ns", "frequency_offset", "drift_per_day", "noise", "steps"}, f"{w}.clock")
+    r.keys(ck, {"offset_ns", "frequency_offset", "drift_per_day", "noise", "steps", "ms_jump_threshold_us"},
+           f"{w}.clock")
     noise = []
     for j, nt in enumerate(ck.get("noise", []), start=1):
         nw = f"{w}.clock.noise[{j}]"
@@ -692,10 +775,40 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
         r.keys(s, {"time", "phase_ns", "frequency", "what"}, sw)
         steps.append(ClockStep(r.utc(s, "time", sw), r.num(s, "phase_ns", sw, 0.0), r.num(s, "frequency", sw, 0.0),
                                r.text(s, "what", sw, "")))
+    jumps = []
+    for j, g in enumerate(st.get("clock_jumps", []), start=1):
+        gw = f"{w}.clock_jumps[{j}]"
+        r.keys(g, {"time", "ms"}, gw)
+        ms = g.get("ms")
+        if isinstance(ms, bool) or not isinstance(ms, int) or ms == 0:
+            r.fail(f"{gw}.ms", f"expected a non-zero whole number of milliseconds, found {ms!r}")
+        jumps.append((r.utc(g, "time", gw), int(ms)))
     clock = ClockSpec(offset_ns=r.num(ck, "offset_ns", f"{w}.clock", 0.0),
                       frequency_offset=r.num(ck, "frequency_offset", f"{w}.clock", 0.0),
                       drift_per_day=r.num(ck, "drift_per_day", f"{w}.clock", 0.0),
-                      noise=tuple(noise), steps=tuple(steps))
+                      noise=tuple(noise), steps=tuple(steps),
+                      ms_jump_threshold_us=r.num(ck, "ms_jump_threshold_us", f"{w}.clock", 0.0, lo=0, hi=1e6),
+                      jumps=tuple(sorted(jumps)))
+    slips = []
+    bands = {s: {c[1] for c in cs} for s, cs in signals.items()}
+    for j, g in enumerate(st.get("slips", []), start=1):
+        gw = f"{w}.slips[{j}]"
+        r.keys(g, {"time", "sat", "system", "cycles", "lli"}, gw)
+        sat = g.get("sat")
+        if sat is not None and not (isinstance(sat, str) and len(sat) == 3 and sat[0] in signals
+                                    and sat[1:].isdigit()):
+            r.fail(f"{gw}.sat", f"expected a satellite id of the systems {sorted(signals)} such as G05, found {sat!r}")
+        system = sat[0] if sat else r.text(g, "system", gw, "G")
+        if system not in signals:
+            r.fail(f"{gw}.system", f"expected one of {sorted(signals)}, found {system!r}")
+        cyc = g.get("cycles")
+        if (not isinstance(cyc, dict) or not cyc
+                or any(str(b) not in bands[system] or isinstance(v, bool) or not isinstance(v, int)
+                       for b, v in cyc.items())):
+            r.fail(f"{gw}.cycles", f"expected whole cycles per band among {sorted(bands[system])} "
+                                   f"(e.g. {{ 1 = 3, 2 = -2 }}), found {cyc!r}")
+        slips.append(SlipSpec(r.utc(g, "time", gw), sat, system, {str(b): int(v) for b, v in cyc.items()},
+                              r.flag(g, "lli", gw, False), gw))
     gaps = []
     for j, g in enumerate(st.get("gaps", []), start=1):
         gw = f"{w}.gaps[{j}]"
@@ -733,7 +846,8 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
         u_reference_ns=r.num(d, "u_reference_ns", f"{w}.delays", 0.3, lo=0),
         met=met_out, multipath=mp_out, clock=clock, gaps=tuple(gaps), resets=tuple(resets),
         delay_changes=tuple(sorted(changes, key=lambda c: c.time_utc_ns)),
-        cycle_slips_per_h=r.num(st, "cycle_slips_per_h", w, 0.0, lo=0))
+        cycle_slips_per_h=r.num(st, "cycle_slips_per_h", w, 0.0, lo=0),
+        slips=tuple(sorted(slips, key=lambda v: v.time_utc_ns)))
 
 
 # ==================================================================== clocks
@@ -760,6 +874,106 @@ def clock_series(spec: ClockSpec, time_gps_ns: np.ndarray, tau0: float, rng: np.
             after = t >= tg
             x = x + np.where(after, st.phase_ns * 1e-9 + st.frequency * (t - tg) / 1e9, 0.0)
     return x, levels
+
+
+def ms_jumps(x_s: np.ndarray, time_utc_ns: np.ndarray, spec: ClockSpec):
+    """Receiver millisecond clock steps added to a clock series ``x_s`` (s).
+
+    Configured jumps (``spec.jumps``: (UTC ns, ms)) apply from the first epoch at
+    or after their instant; with ``spec.ms_jump_threshold_us`` > 0 the receiver
+    also steps by the whole number of ms that brings |x| back within the
+    threshold whenever it exceeds it (a free-running oscillator kept near GPS
+    time, module docstring). Returns ``(steps_s, events)`` with ``events`` a list
+    of ``(epoch index, ms, source)``; one loop turn per jump, not per epoch.
+    """
+    t = np.asarray(time_utc_ns, dtype=np.int64)
+    add = np.zeros(t.size)
+    events = []
+    thr = spec.ms_jump_threshold_us * 1e-6
+    if thr > 0:
+        start = 0
+        while True:
+            y = x_s[start:] + add[start:]
+            over = np.flatnonzero(np.abs(y) > thr)
+            if not over.size:
+                break
+            k = start + int(over[0])
+            v = x_s[k] + add[k]
+            ms = -int(math.copysign(math.ceil((abs(v) - thr) / 1e-3 - 1e-9), v))
+            add[k:] += ms * 1e-3
+            events.append((k, ms, "threshold"))
+            start = k + 1
+    # configured jumps come on top of the free-running clock's own resets (the threshold
+    # looks at the oscillator, so a configured jump is not undone at once)
+    for tj, ms in spec.jumps:
+        k = int(np.searchsorted(t, tj))
+        if k < t.size:
+            add[k:] += ms * 1e-3
+            events.append((k, int(ms), "configured"))
+    events.sort()
+    return add, events
+
+
+# ==================================================================== carrier phase
+
+def phase_windup_cycles(sat_m: np.ndarray, rx_m: np.ndarray, sun_m: np.ndarray) -> np.ndarray:
+    """Carrier-phase wind-up (cycles, in (−0.5, 0.5]) by Wu et al. (1993); module docstring.
+
+    ``sat_m``, ``rx_m``, ``sun_m``: ECEF positions broadcastable to ``(..., 3)``.
+    Satellite: nominal yaw attitude (ẑ' to the Earth's centre, ŷ' = ẑ' × ê_sun,
+    x̂' = ŷ' × ẑ'); receiver antenna: x̂ = north, ŷ = west of the geodetic
+    horizon. Written here, apart from any model of the processing side, so a
+    test of that model against the simulator is a test against an independent
+    computation. The caller makes it continuous along time (``np.unwrap``).
+    """
+    from .geodesy import ecef_to_geodetic
+
+    sat = np.asarray(sat_m, dtype=float)
+    rx = np.asarray(rx_m, dtype=float)
+    sun = np.asarray(sun_m, dtype=float)
+
+    def unit(v):
+        return v / np.linalg.norm(v, axis=-1, keepdims=True)
+
+    ez = unit(-sat)
+    ey = unit(np.cross(ez, unit(sun - sat)))
+    ex = np.cross(ey, ez)
+    lat, lon, _ = ecef_to_geodetic(rx)
+    sl, cl, so, co = np.sin(lat), np.cos(lat), np.sin(lon), np.cos(lon)
+    north = np.stack([-sl * co, -sl * so, cl], axis=-1)
+    west = np.stack([so, -co, np.zeros_like(so)], axis=-1)
+    k = unit(rx - sat)
+    kdot = lambda a: np.sum(k * a, axis=-1, keepdims=True)  # noqa: E731
+    d_sat = ex - k * kdot(ex) - np.cross(k, ey)
+    d_rx = north - k * kdot(north) + np.cross(k, west)
+    cosang = np.sum(d_sat * d_rx, axis=-1) / (np.linalg.norm(d_sat, axis=-1) * np.linalg.norm(d_rx, axis=-1))
+    zeta = np.sum(k * np.cross(d_sat, d_rx), axis=-1)
+    return np.sign(zeta) * np.arccos(np.clip(cosang, -1.0, 1.0)) / (2 * math.pi)
+
+
+def _configured_slips(spec: StationSpec, t_utc, tracked, start_arc, el, sats, path):
+    """Resolve ``[[stations.slips]]`` to (epoch, satellite column, SlipSpec); a slip must fall inside an arc."""
+    out = []
+    sats = np.asarray(sats)
+    for sl in spec.slips:
+        k = int(np.searchsorted(t_utc, sl.time_utc_ns))
+        if k >= t_utc.size or k == 0:
+            raise ConfigError(path, f"{sl.key}.time", "expected an instant inside the scenario's span")
+        inside = tracked[k] & tracked[k - 1] & ~start_arc[k]
+        if sl.sat is None:
+            cand = np.flatnonzero(inside & (np.char.startswith(sats.astype(str), sl.system)))
+            if not cand.size:
+                raise ConfigError(path, sl.key, f"no {sl.system} satellite tracked across that epoch")
+            j = int(cand[np.argmax(el[k, cand])])
+        else:
+            hit = np.flatnonzero(sats == sl.sat)
+            if not hit.size or not inside[hit[0]]:
+                raise ConfigError(path, f"{sl.key}.sat",
+                                  f"{sl.sat} is not tracked across {ts.to_iso(int(t_utc[k]), 0, 'Z')} UTC "
+                                  "(a slip needs an arc that goes on; omit sat to take the highest satellite)")
+            j = int(hit[0])
+        out.append((k, j, sl))
+    return out
 
 
 # ==================================================================== satellites
@@ -1011,6 +1225,8 @@ class StationResult:
     met: dict                    # met truth at the met epochs
     noise_levels: list
     parts: dict                  # per-code itemised terms (m) for checks
+    windup_cycles: np.ndarray | None = None   # phase wind-up added to every band (n_epoch, n_sat)
+    events: list = dataclasses.field(default_factory=list)   # carrier-phase events (truth_events.csv rows)
 
 
 @dataclasses.dataclass
@@ -1023,6 +1239,8 @@ class SimulationResult:
     truth: pd.DataFrame
     steps: pd.DataFrame
     files: dict
+    model: object = None         # the true satellite model (orbits + clocks), for the product files
+    sat_clock_error_s: np.ndarray | None = None   # true minus broadcast satellite clock at the epochs
 
 
 def _met_truth(spec: StationSpec, lon_rad, time_gps_ns):
@@ -1113,6 +1331,8 @@ def simulate(scn: Scenario) -> SimulationResult:
         srng = np.random.default_rng(rng_clocks.integers(0, 2 ** 63))
         orng = np.random.default_rng(rng_obs.integers(0, 2 ** 63))
         x, levels = clock_series(spec.clock, t_tag, tau0, srng)
+        jump_s, jump_events = ms_jumps(x, ts.convert(t_tag, "GPS", "UTC"), spec.clock)
+        x = x + jump_s
         # true receive instant t_r = t_tag - x (int ns + float s)
         t_r_dt = -x
         arp = antenna_reference_point(spec.marker_m, *spec.antenna_delta_hen_m)
@@ -1177,6 +1397,24 @@ def simulate(scn: Scenario) -> SimulationResult:
         obs, lli, ssi, parts = {}, {}, {}, {}
         mp = spec.multipath
         base_range = C_MPS * (tau + x[:, None] - dts)
+        if prop["shapiro"]:
+            r_s = np.linalg.norm(sat_rot, axis=-1)
+            r_r = np.linalg.norm(rx, axis=-1)[:, None]
+            rho = C_MPS * tau
+            base_range = base_range + 2.0 * GM_EARTH / C_MPS ** 2 * np.log((r_s + r_r + rho) / (r_s + r_r - rho))
+        windup = None
+        if prop["phase_windup"]:
+            from .geodesy import sun_moon_ecef
+
+            sun = sun_moon_ecef(t_tag, time_scale="GPS")[0]
+            wu = phase_windup_cycles(sat_rot, rx[:, None, :], sun[:, None, :])
+            windup = np.unwrap(wu * 2 * math.pi, axis=0) / (2 * math.pi)
+            windup = windup - np.round(windup[:1])
+        slips = _configured_slips(spec, t_utc, tracked, start_arc, el, sats, scn.path)
+        events = [(int(k), "receiver_reset", "", "", np.nan, np.nan, True, "configured")
+                  for k in np.flatnonzero(reset_flag)]
+        events += [(k, "clock_jump", "", "", np.nan, float(ms), False, src) for k, ms, src in jump_events]
+        random_slip = start_arc & prev & ~reset_flag[:, None]
         for s_letter in scn.systems:
             cols = sys_of == s_letter
             for code in spec.signals.get(s_letter, ()):
@@ -1210,7 +1448,20 @@ def simulate(scn: Scenario) -> SimulationResult:
                 P = base_range + trop + k_iono * iono_l1 + hw_m + gd_m + mpm + code_noise
                 amb = orng.integers(-200, 200, size=(int(arc_id.max()) + 2, n_sat))
                 N = np.take_along_axis(amb, arc_id, axis=0)
+                lname = "L" + code[1:]
+                for k, j in zip(*np.nonzero(random_slip & cols[None, :])):
+                    events.append((int(k), "cycle_slip", sats[j], lname, float(N[k, j] - N[k - 1, j]), np.nan,
+                                   True, "random"))
+                slip_lli = np.zeros((n_ep, n_sat), dtype=bool)
+                for k, j, sl in slips:
+                    if sats[j][0] == s_letter and band in sl.cycles:
+                        N[k:, j] += sl.cycles[band]
+                        slip_lli[k, j] = sl.lli
+                        events.append((k, "cycle_slip", sats[j], lname, float(sl.cycles[band]), np.nan, sl.lli,
+                                       "configured"))
                 L = (base_range + trop - k_iono * iono_l1 + hw_m + mpm / 100.0 + phase_noise) / lam + N
+                if windup is not None:
+                    L = L + windup
                 cn0 = {"1": 0.0, "2": -6.0, "5": 3.0, "7": 2.0}[band] + 32.0 + 18.0 * np.sin(np.clip(el, 0, None))
                 Sv = np.round((cn0 + 0.5 * orng.standard_normal((n_ep, n_sat))) * 4) / 4
                 m = tracked & cols[None, :]
@@ -1226,7 +1477,7 @@ def simulate(scn: Scenario) -> SimulationResult:
                     if kind != "S":
                         ssi[name] = np.where(m, sig, ssi[name]).astype(np.int8)
                     if kind == "L":
-                        lli[name] = np.where(m & start_arc, 1, lli[name]).astype(np.int8)
+                        lli[name] = np.where(m & (start_arc | slip_lli), 1, lli[name]).astype(np.int8)
                 parts[(s_letter, code)] = dict(trop=trop, iono=k_iono * iono_l1, hw=hw_m, gd=gd_m, mp=mpm)
         first_code = next(iter(spec.signals.get("G", spec.signals.get("E", ("C1C",)))))
         undocumented = (_hardware_ns(spec, first_code, t_utc) - _hardware_ns(spec, first_code, t_utc, True)) * 1e-9
@@ -1234,10 +1485,29 @@ def simulate(scn: Scenario) -> SimulationResult:
             spec=spec, time_ns=t_tag, sats=sats, obs=obs, lli=lli, ssi=ssi, clock_s=x,
             apparent_s=x + undocumented, tau_s=tau, sat_clock_s=dts, rx_m=rx, elevation_rad=el, azimuth_rad=az,
             epoch_kept=kept, epoch_flag=reset_flag.astype(int),
-            met=dict(p=met_p, t=met_t, rh=met_rh), noise_levels=levels, parts=parts)
+            met=dict(p=met_p, t=met_t, rh=met_rh), noise_levels=levels, parts=parts,
+            windup_cycles=windup, events=sorted(events, key=lambda e: (e[0], e[1], e[2], e[3])))
     truth, steps = _truth_tables(scn, results)
     return SimulationResult(scenario=scn, stations=results, nav_records=recs or [], iono_alpha=alpha,
-                            iono_beta=beta, truth=truth, steps=steps, files={})
+                            iono_beta=beta, truth=truth, steps=steps, files={}, model=model,
+                            sat_clock_error_s=sat_clock_err)
+
+
+EVENT_COLUMNS = ["time_utc", "time_gps", "time_gps_ns", "station", "kind", "sat", "obs", "cycles", "jump_ms",
+                 "lli", "source"]
+
+
+def events_table(res: "SimulationResult") -> pd.DataFrame:
+    """The carrier-phase events of every station (``truth_events.csv``; module docstring)."""
+    rows = []
+    t = res.scenario.time_ns
+    for sid, r in res.stations.items():
+        for k, kind, sat, obs_name, cycles, jump_ms, lli_set, src in r.events:
+            tg = int(t[k])
+            rows.append(dict(time_utc=ts.to_iso(ts.convert(np.int64(tg), "GPS", "UTC"), 0, "Z"),
+                             time_gps=ts.to_iso(np.int64(tg), 0, ""), time_gps_ns=tg, station=sid, kind=kind,
+                             sat=sat, obs=obs_name, cycles=cycles, jump_ms=jump_ms, lli=bool(lli_set), source=src))
+    return pd.DataFrame(rows, columns=EVENT_COLUMNS)
 
 
 def _truth_tables(scn: Scenario, results: dict):
@@ -1310,6 +1580,70 @@ def met_file_name(sid: str, start_gps_ns: int) -> str:
     return f"{sid[:4].lower()}{doy:03d}0.{y % 100:02d}m"
 
 
+def product_file_name(start_gps_ns: int, ext: str) -> str:
+    """``SIMU{gpsweek}{gpsdow}.{ext}``: the simulated precise products of a GPS day."""
+    week, sow = ts.gps_week_sow(np.int64(start_gps_ns))
+    return f"SIMU{int(week):04d}{int(sow // 86400)}.{ext}"
+
+
+def true_products(res: SimulationResult, time_ns: np.ndarray):
+    """True satellite positions (m, ECEF) and product clocks (s) at GPS instants ``time_ns``.
+
+    Product clock = true satellite clock (polynomial + periodic relativistic
+    term + true-minus-broadcast error) + 2 r·v/c², i.e. without the periodic
+    term in the IGS convention (−2 r·v/c², IERS Conventions 2010 §10.2 as
+    recalled, from memory), r·v from the true orbit (velocity by a central
+    difference over ±0.5 s: its error, ~(h²/6)·|jerk| ≈ 1e-7 m/s, is
+    negligible). The clock error of the data epochs is linearly interpolated
+    (held constant outside them).
+    Returns ``(sats, pos_m (n, n_sat, 3), clock_s (n, n_sat))``.
+    """
+    scn = res.scenario
+    sats = next(iter(res.stations.values())).sats
+    t = np.asarray(time_ns, dtype=np.int64)
+    T = np.repeat(t, len(sats))
+    S = np.tile(np.array(sats), t.size)
+    st = res.model.states(S, T, 0.0)
+    p_plus = res.model.states(S, T, 0.5).pos_m
+    p_minus = res.model.states(S, T, -0.5).pos_m
+    vel = p_plus - p_minus
+    rel_rv = -2.0 * np.einsum("ij,ij->i", st.pos_m, vel) / C_MPS ** 2
+    err = np.zeros((t.size, len(sats)))
+    if res.sat_clock_error_s is not None and np.any(res.sat_clock_error_s):
+        tt = scn.time_ns
+        u = (t - tt[0]) / 1e9
+        uu = (tt - tt[0]) / 1e9
+        err = np.stack([np.interp(u, uu, res.sat_clock_error_s[:, j]) for j in range(len(sats))], axis=1)
+    clk = (st.clock_s + st.relativity_s - rel_rv).reshape(t.size, len(sats)) + err
+    bad = (np.asarray(st.status).reshape(t.size, len(sats)) != 0)
+    pos = st.pos_m.reshape(t.size, len(sats), 3).copy()
+    pos[bad] = np.nan
+    clk[bad] = np.nan
+    return sats, pos, clk
+
+
+def _write_products(res: SimulationResult, out: pathlib.Path, ts0: int, ts1: int, leap: int, comments) -> list:
+    from .formats.rinex_writers import write_clock3, write_sp3
+
+    scn = res.scenario
+    paths = []
+    step = int(round(scn.output["sp3_interval_s"] * NS))
+    a = ((ts0 - 3600 * NS) // step) * step
+    b = -(-(ts1 + 3600 * NS) // step) * step
+    t = np.arange(a, b + 1, step, dtype=np.int64)
+    sats, pos, clk = true_products(res, t)
+    paths.append(write_sp3(out / product_file_name(ts0, "sp3"), time_ns=t, sats=sats, pos_m=pos, clock_s=clk,
+                           comments=comments[:4]))
+    step = int(round(scn.output["clk_interval_s"] * NS))
+    a = ((ts0 - 300 * NS) // step) * step
+    b = -(-(ts1 + 300 * NS) // step) * step
+    t = np.arange(a, b + 1, step, dtype=np.int64)
+    sats, _, clk = true_products(res, t)
+    paths.append(write_clock3(out / product_file_name(ts0, "clk"), time_ns=t, sats=sats, clock_s=clk,
+                              leap_seconds=leap, comments=comments, run_ns=int(scn.time_ns[0])))
+    return paths
+
+
 def write_outputs(res: SimulationResult, out_dir) -> dict:
     """Write every file of the scenario into ``out_dir``; returns ``{kind: [paths]}``."""
     from .config import Antenna, DelaySet, HardwareChange, StationConfig, dump_station
@@ -1323,7 +1657,7 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
     t = scn.time_ns
     duration_s = scn.n_epochs * scn.interval_s
     leap = int(ts.leap_seconds_at_gps(t[0]))
-    files = {"obs": [], "obs2": [], "met": [], "station": [], "pair": [], "nav": [], "truth": []}
+    files = {"obs": [], "obs2": [], "met": [], "station": [], "pair": [], "nav": [], "truth": [], "products": []}
     comments = [f"simulated by ctt: scenario {scn.name}", f"random_state {scn.random_state}",
                 "synthetic data: invented stations and clocks"]
     # one set of files per GPS day when the scenario is longer than a day, else one set
@@ -1337,6 +1671,8 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
     for seg in segments:
         ts0, ts1 = int(t[seg[0]]), int(t[seg[-1]])
         seg_s = seg.size * scn.interval_s
+        if scn.output["products"]:
+            files["products"] += _write_products(res, out, ts0, ts1, leap, comments)
         # navigation
         if res.nav_records:
             week, sow = ts.gps_week_sow(ts0)
@@ -1442,6 +1778,9 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
             f"[pair]\nname = \"{a.lower()}-{b.lower()}\"\nstation_a = \"{a.lower()}.toml\"\n"
             f"station_b = \"{b.lower()}.toml\"\ndata_root = \".\"\n\n"
             f"[inputs]\nobs = \"{obs_pattern}\"\nnav = \"{nav_pattern}\"\n"
+            + ("sp3 = \"SIMU{gpsweek:04d}{gpsdow}.sp3\"\nclk = \"SIMU{gpsweek:04d}{gpsdow}.clk\"\n"
+               if scn.output["products"] else "")
+            + 
             "met = \"{station}{doy:03d}0.{yy:02d}m\"\noptional = [\"met\"]\n\n"
             f"[processing]\nsystems = [{systems}]\n\n[output]\ndir = \"out\"\n")
         files["pair"].append(pp)
@@ -1451,7 +1790,9 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
     table.to_csv(tp, index=False, float_format="%.6f")
     sp = out / "truth_steps.csv"
     res.steps.to_csv(sp, index=False)
-    files["truth"] += [tp, sp]
+    ep = out / "truth_events.csv"
+    events_table(res).to_csv(ep, index=False, float_format="%.0f")
+    files["truth"] += [tp, sp, ep]
     res.files = files
     return files
 

@@ -47,8 +47,9 @@ def _base(hours=2.0, **prop):
 
 
 def _quiet(data):
-    """No atmosphere, tide, clocks, hardware delays, noise: the pseudorange is geometry + sat clock."""
-    data["propagation"].update(troposphere=False, ionosphere=False, solid_tide=False)
+    """No atmosphere, tide, Shapiro delay, phase wind-up, clocks, hardware delays, noise: the pseudorange is geometry + sat clock."""
+    data["propagation"].update(troposphere=False, ionosphere=False, solid_tide=False, shapiro=False,
+                              phase_windup=False)
     for st in data["stations"]:
         st["clock"] = {}
         st["code_noise_m"] = 0.0

@@ -11,6 +11,11 @@
   records (``A1,I2.2,1X,I4,5(1X,I2.2),3D19.12`` then ``4X,4D19.12`` lines;
   RINEX 3.04 tables A6/A8), IONOSPHERIC CORR, TIME SYSTEM CORR, LEAP SECONDS.
 * :func:`write_met2` — RINEX 2.11 meteorological file (PR, TD, HR; table A9).
+* :func:`write_sp3` — SP3-c orbit and clock file (positions in km with
+  ``F14.6``, clocks in µs with ``F14.6``; header lines as in the SP3-c
+  format document, Hilla 2010).
+* :func:`write_clock3` — RINEX clock 3.00 file with ``AS`` satellite clock
+  records (``A2,1X,A4,1X,I4,4(1X,I2),F10.6,I3,2X,2E20.12``; RINEX clock 3.00).
 
 Every writer takes plain numpy arrays, writes text and, when the target name
 ends in ``.gz``, gzips it; an observation file named ``.crx`` (or ``.crx.gz``)
@@ -32,8 +37,8 @@ import numpy as np
 
 from ..timescales import ns_to_civil
 
-__all__ = ["write_obs3", "write_obs2", "write_nav3", "write_met2", "nav_field", "header_line",
-           "V3_TO_V2_GPS"]
+__all__ = ["write_obs3", "write_obs2", "write_nav3", "write_met2", "write_sp3", "write_clock3", "nav_field",
+           "header_line", "V3_TO_V2_GPS"]
 
 PROGRAM = "ctt simulate"
 
@@ -414,4 +419,110 @@ def write_met2(path, *, marker: str, time_ns, pressure_hpa, temperature_c, humid
         vals = (pressure_hpa[i], temperature_c[i], humidity_pct[i])
         w(f" {int(civ[0][i]) % 100:2d} {int(civ[1][i]):2d} {int(civ[2][i]):2d} {int(civ[3][i]):2d} "
           f"{int(civ[4][i]):2d} {int(civ[5][i]):2d}" + "".join(f"{float(v):7.1f}" for v in vals) + "\n")
+    return _finish(path, buf)
+
+
+# ---------------------------------------------------------------- SP3-c orbits and clocks
+
+def write_sp3(path, *, time_ns, sats, pos_m, clock_s, agency: str = "CTT", coord_system: str = "IGb14",
+              comments=()) -> pathlib.Path:
+    """Write an SP3-c file (GPS time) of positions ``pos_m`` (epochs × sats × 3, metres, ECEF)
+    and clocks ``clock_s`` (epochs × sats, seconds; NaN written as the format's 999999.999999).
+
+    Layout of the SP3-c format document (Hilla 2010): line 1 ``#cP`` with the first
+    epoch and the number of epochs, line 2 ``##`` with GPS week, seconds of week,
+    interval, MJD and fraction of day, 5+ ``+`` lines of satellite ids (17 per line),
+    as many ``++`` accuracy lines (exponent 0 = unknown), two ``%c``, two ``%f``, two
+    ``%i`` lines, 4+ ``/*`` comments, then ``*`` epoch lines and ``P`` records, ``EOF``.
+    """
+    from ..timescales import to_mjd, week_sow_ns
+
+    time_ns = np.asarray(time_ns, dtype=np.int64)
+    sats = [str(s) for s in sats]
+    pos_km = np.asarray(pos_m, dtype=float) / 1000.0
+    clk_us = np.asarray(clock_s, dtype=float) * 1e6
+    n_ep, n_sat = time_ns.size, len(sats)
+    if n_sat > 85:
+        raise ValueError("SP3-c lists at most 85 satellites")
+    y, mo, d, h, mi, s, nano = _civil(time_ns[0])
+    interval = float((time_ns[1] - time_ns[0]) / 1e9) if n_ep > 1 else 900.0
+    week, sow_ns = week_sow_ns(np.int64(time_ns[0]))
+    mjd, sod = to_mjd(np.int64(time_ns[0]))
+    buf = io.StringIO()
+    w = buf.write
+    w(f"#cP{y:4d} {mo:2d} {d:2d} {h:2d} {mi:2d} {s + nano / 1e9:11.8f} {n_ep:7d} ORBIT {coord_system[:5]:>5} "
+      f"FIT {agency[:4]:>4}\n")
+    w(f"## {int(week):4d} {int(sow_ns) / 1e9:15.8f} {interval:14.8f} {int(mjd):5d} {float(sod) / 86400.0:15.13f}\n")
+    n_lines = max(5, -(-n_sat // 17))
+    padded = sats + ["  0"] * (17 * n_lines - n_sat)
+    for k in range(n_lines):
+        head = f"+   {n_sat:2d}   " if k == 0 else "+        "
+        w(head + "".join(f"{v:>3}" for v in padded[17 * k:17 * (k + 1)]) + "\n")
+    for k in range(n_lines):
+        w("++       " + "  0" * 17 + "\n")
+    ftype = sats[0][0] if len({v[0] for v in sats}) == 1 else "M"
+    w(f"%c {ftype}  cc GPS ccc cccc cccc cccc cccc ccccc ccccc ccccc ccccc\n")
+    w("%c cc cc ccc ccc cccc cccc cccc cccc ccccc ccccc ccccc ccccc\n")
+    w("%f  1.2500000  1.025000000  0.00000000000  0.000000000000000\n")
+    w("%f  0.0000000  0.000000000  0.00000000000  0.000000000000000\n")
+    w("%i    0    0    0    0      0      0      0      0         0\n")
+    w("%i    0    0    0    0      0      0      0      0         0\n")
+    notes = list(comments)[:]
+    notes += [""] * max(0, 4 - len(notes))
+    for c in notes:
+        w(f"/* {c[:57]:<57}\n")
+    civ = ns_to_civil(time_ns)
+    for i in range(n_ep):
+        w(f"*  {int(civ[0][i]):4d} {int(civ[1][i]):2d} {int(civ[2][i]):2d} {int(civ[3][i]):2d} {int(civ[4][i]):2d} "
+          f"{int(civ[5][i]) + int(civ[6][i]) / 1e9:11.8f}\n")
+        for j, sat in enumerate(sats):
+            p = pos_km[i, j]
+            if not np.all(np.isfinite(p)):
+                p = np.zeros(3)
+            c = clk_us[i, j]
+            c = 999999.999999 if not np.isfinite(c) else c
+            w(f"P{sat}{p[0]:14.6f}{p[1]:14.6f}{p[2]:14.6f}{c:14.6f}\n")
+    w("EOF\n")
+    return _finish(path, buf)
+
+
+# ---------------------------------------------------------------- RINEX clock 3.00
+
+def write_clock3(path, *, time_ns, sats, clock_s, agency: str = "CTT", leap_seconds: int | None = None,
+                 comments=(), run_ns=None) -> pathlib.Path:
+    """Write a RINEX clock 3.00 file of satellite clocks (``AS`` records; GPS time).
+
+    ``clock_s`` (epochs × sats, seconds; NaN records are left out). One value
+    (the bias) per record; header records of RINEX clock 3.00 (RINEX VERSION /
+    TYPE, PGM / RUN BY / DATE, TIME SYSTEM ID, LEAP SECONDS, # / TYPES OF DATA,
+    ANALYSIS CENTER, # OF SOLN SATS, PRN LIST).
+    """
+    time_ns = np.asarray(time_ns, dtype=np.int64)
+    sats = [str(s) for s in sats]
+    clock_s = np.asarray(clock_s, dtype=float)
+    buf = io.StringIO()
+    w = buf.write
+    sys_letter = sats[0][0] if len({v[0] for v in sats}) == 1 else "M"
+    w(header_line(f"{'3.00':>9}{'':11}{'C':<20}{sys_letter:<20}", "RINEX VERSION / TYPE"))
+    w(header_line(f"{PROGRAM:<20}{'ctt':<20}{_run_date(run_ns if run_ns is not None else time_ns[0]):<20}",
+                  "PGM / RUN BY / DATE"))
+    for c in comments:
+        w(header_line(str(c)[:60], "COMMENT"))
+    w(header_line("   GPS", "TIME SYSTEM ID"))
+    if leap_seconds is not None:
+        w(header_line(f"{int(leap_seconds):6d}", "LEAP SECONDS"))
+    w(header_line(f"{1:6d}    AS", "# / TYPES OF DATA"))
+    w(header_line(f"{agency[:3]:<3}  {'simulated truth (ctt simulate)':<55}"[:60], "ANALYSIS CENTER"))
+    w(header_line(f"{len(sats):6d}", "# OF SOLN SATS"))
+    for k in range(0, len(sats), 15):
+        w(header_line(" ".join(f"{v:<3}" for v in sats[k:k + 15]), "PRN LIST"))
+    w(header_line("", "END OF HEADER"))
+    civ = ns_to_civil(time_ns)
+    for i in range(time_ns.size):
+        stamp = (f"{int(civ[0][i]):4d} {int(civ[1][i]):02d} {int(civ[2][i]):02d} {int(civ[3][i]):02d} "
+                 f"{int(civ[4][i]):02d} {int(civ[5][i]) + int(civ[6][i]) / 1e9:9.6f}")
+        for j, sat in enumerate(sats):
+            v = clock_s[i, j]
+            if np.isfinite(v):
+                w(f"AS {sat:<4} {stamp}  1   {v:19.12e}\n")
     return _finish(path, buf)
