@@ -98,7 +98,7 @@ not a plain folder name, are configuration errors naming the key.
     obs = "b/{station}{doy:03d}0.{yy:02d}o.gz"
 
     [processing]
-    mode = "tracks"                  # tracks | epochs | all-in-view
+    mode = "tracks"                  # tracks | epochs | all-in-view | ppp (needs sp3, clk advised)
     signals = "iono-free"            # iono-free | single
     systems = ["G"]                  # RINEX system letters
     codes = []                       # optional explicit codes, e.g. ["C1W", "C2W"]
@@ -194,7 +194,7 @@ _ID_RE = re.compile(r"^[A-Za-z0-9]{4,9}$")
 _CODE_RE = re.compile(r"^[CLDS][1-9][A-Z]$")
 NS_PER_DAY = 86_400 * 1_000_000_000
 
-MODES = ("tracks", "epochs", "all-in-view")
+MODES = ("tracks", "epochs", "all-in-view", "ppp")
 SIGNALS = ("iono-free", "single")
 ORBITS = ("auto", "broadcast", "precise")
 INPUT_KINDS = ("obs", "nav", "sp3", "clk", "ionex", "met")
@@ -1295,6 +1295,13 @@ def load_pair(path) -> PairConfig:
     if processing.mode == "all-in-view" and "sp3" not in patterns:
         r.fail("processing.mode", "all-in-view needs precise orbits and clocks; expected an [inputs] sp3 "
                "pattern (and clk) beside it")
+    if processing.mode == "ppp":
+        # precise orbits and satellite clocks: the SP3 file's own clocks serve when there is no clock file
+        if "sp3" not in patterns:
+            r.fail("inputs.sp3", "missing; mode 'ppp' needs precise orbits and clocks (an sp3 pattern, "
+                                 "and clk where the product has clock files)")
+        elif "sp3" in opt:
+            r.fail("inputs.optional", "mode 'ppp' cannot run without sp3; remove it from optional")
 
     out = r.table(data, "output", "output", required=False) or {}
     out_root, out_dir, archive, report = _output_paths(r, out, base)

@@ -138,11 +138,12 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         if known is not None and tuple(known) == (ih, ch) and not force:
             out.status, out.reason = "skipped", "already done with the same inputs and configuration"
             return out
-        from .pipeline import offset_table, pair_day_from_config, run_pair, write_pair_outputs
+        from .pipeline import add_day_boundary, offset_table, pair_day_from_config, run_pair, write_pair_outputs
 
         inputs, sta, stb, options = pair_day_from_config(pc, date)
         result = run_pair(inputs, sta, stb, options, force_inputs=force_inputs)
         _check_day(result, inputs, date)
+        add_day_boundary(result, pc, date)
         folder = run_folder(pc, date)
         result.summary["config_hash"] = ch
         result.summary["inputs_hash"] = ih

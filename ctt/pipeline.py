@@ -24,6 +24,26 @@ Output files
 ``summary.json``
     inputs (paths and SHA-256), configuration, software version, counts,
     mean offset and its uncertainty budget, rejected data by reason.
+
+Mode ``ppp`` (carrier-phase time transfer with precise products)
+----------------------------------------------------------------
+Each station's observation file goes through :func:`ctt.ppp.run_ppp` with the
+same precise orbits and clocks; A − B is the difference of the two stations'
+PPP clocks (``clock_ns``: local clock − the product's time scale, delays
+applied) on their common epochs (:func:`ppp_difference`): ``u_ns`` is the
+root sum of squares of the two formal uncertainties, ``n_sat`` the smaller of
+the two stations' satellite counts (``n_sat_a``/``n_sat_b`` give both), and a
+point is ``'ok'`` when both stations' epochs are, else it carries the first
+bad station's flag prefixed ``A:``/``B:``. ``satellites.csv`` holds both
+stations' residuals (column ``station``). The budget
+(:func:`ctt.commonview.uncertainty_budget`) says what cancels: the satellite
+clocks and orbits and the product's time scale are common to both stations and
+cancel in A − B; the receiver-delay calibrations, the stations' coordinates
+when held fixed, and the receiver-antenna models do not. When the previous
+day of the pair is in the archive, ``summary['day_boundary']`` records the
+jump between its last epoch and this day's first (:func:`day_boundary`): the
+discontinuity of per-day carrier-phase solutions (each day has its own
+ambiguities).
 """
 
 from __future__ import annotations
@@ -48,7 +68,7 @@ from .measure import MeasureOptions, StationDay, measure_station
 
 log = logging.getLogger(__name__)
 
-MODES = ("tracks", "epochs", "all-in-view")
+MODES = ("tracks", "epochs", "all-in-view", "ppp")
 
 
 @dataclasses.dataclass(frozen=True)
@@ -110,6 +130,8 @@ class PairOptions:
     #: configured inter-system biases {'A': {'E': ns}, 'B': {...}} (system minus GPS at that
     #: station); systems not given are estimated from the day (ctt.commonview)
     isb_ns: dict | None = None
+    #: mode 'ppp': the estimator's options (ctt.ppp.PPPOptions); None = its defaults
+    ppp: object | None = None
 
     def __post_init__(self):
         if self.mode not in MODES:
@@ -119,7 +141,10 @@ class PairOptions:
 
     def to_dict(self) -> dict:
         biases = self.measure.biases
-        d = dataclasses.asdict(dataclasses.replace(self, measure=dataclasses.replace(self.measure, biases=None)))
+        d = dataclasses.asdict(dataclasses.replace(self, measure=dataclasses.replace(self.measure, biases=None),
+                                                   ppp=None))
+        if self.ppp is not None:
+            d["ppp"] = dataclasses.asdict(self.ppp) if dataclasses.is_dataclass(self.ppp) else str(self.ppp)
         d["measure"]["biases"] = biases if isinstance(biases, str) else getattr(biases, "path", None)
         d["measure"]["systems"] = list(self.measure.systems)
         d["measure"]["codes"] = list(self.measure.codes)
@@ -134,8 +159,9 @@ class PairResult:
     summary: dict
     station_a: StationDay | None  #: None when A came as a track file
     station_b: StationDay | None
-    cv: commonview.CommonViewResult
+    cv: commonview.CommonViewResult | None   #: None in mode 'ppp'
     budget: dict
+    ppp: dict | None = None         #: mode 'ppp': {'A': PPPResult, 'B': PPPResult}
 
     def summary_lines(self) -> list[str]:
         s = self.summary
@@ -300,6 +326,9 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
 
     check_distinct_stations(station_a, station_b)
     mopt = options.measure
+    if options.mode == "ppp":
+        return run_pair_ppp(inputs, station_a, station_b, options, orbits_bundle=orbits_bundle,
+                            force_inputs=force_inputs)
     galileo_source = "fnav" if "E" in mopt.systems and mopt.signals == "iono-free" else "inav"
     if orbits_bundle is None and inputs.tracks_a and inputs.tracks_b:
         # two track files carry their own satellite clocks and models: no orbit product needed
@@ -435,10 +464,15 @@ def _partner_delay_u(station, tracks: pd.DataFrame) -> float:
     for GPS, ctt.signals), single frequency takes the L1 code's; cable and reference pass
     through (DelaySet.u_hardware_combined_ns)."""
     mid = int(np.median(tracks["mid_time"].to_numpy(np.int64)))
-    ds = station.delays_at(int(ts.convert(mid, "GPS", "UTC")))
+    iono_free = tracks["signal"].astype(str).str.startswith("L3").mean() > 0.5
+    return _delay_u_at(station, mid, iono_free)
+
+
+def _delay_u_at(station, t_gps_ns: int, iono_free: bool) -> float:
+    """A station's delay uncertainty (ns) at an instant, for the iono-free GPS pair or the L1 code."""
+    ds = station.delays_at(int(ts.convert(t_gps_ns, "GPS", "UTC")))
     l1 = next((c for c in ("C1W", "C1C", "C1P", "C1X") if c in ds.receiver_ns), None)
     l2 = next((c for c in ("C2W", "C2L", "C2X", "C2P", "C5Q", "C5X", "C7Q") if c in ds.receiver_ns), None)
-    iono_free = tracks["signal"].astype(str).str.startswith("L3").mean() > 0.5
     if l1 is None:
         return max((ds.u_hardware_ns(c) for c in ds.receiver_ns), default=0.0)
     if iono_free and l2 is not None:
@@ -449,6 +483,231 @@ def _partner_delay_u(station, tracks: pd.DataFrame) -> float:
         a1, a2 = iono_free_coefficients(f1, f2)
         return ds.u_hardware_combined_ns({l1: float(a1), l2: float(a2)})
     return ds.u_hardware_ns(l1)
+
+
+# ------------------------------------------------------------------ mode 'ppp'
+
+#: what the difference of two PPP clocks computed with one product removes and what it keeps
+PPP_CANCELS = ("satellite clocks and orbits (the same product at both stations)",
+               "the product's time scale (the reference of both stations' PPP clocks)")
+PPP_REMAINS = ("receiver, cable and reference delay calibrations of both stations",
+               "station coordinates when held fixed (estimated: inside the formal uncertainty)",
+               "receiver-antenna phase-centre models (must match the products' ANTEX)",
+               "the day-boundary discontinuity of per-day solutions (summary 'day_boundary')")
+
+
+def ppp_difference(clock_a: pd.DataFrame, clock_b: pd.DataFrame, system: str = "G") -> pd.DataFrame:
+    """A − B from two PPP clock tables (``time_gps_ns``, ``clock_ns``, ``u_ns``, ``n_sat``, ``flag``) on
+    their common epochs, as an offset table of :mod:`ctt.commonview`'s columns (module docstring)."""
+    cols = ["time_gps_ns", "clock_ns", "u_ns", "n_sat", "flag"]
+    m = pd.merge(clock_a[cols], clock_b[cols], on="time_gps_ns", how="inner", suffixes=("_a", "_b"))
+    m = m.sort_values("time_gps_ns").reset_index(drop=True)
+    t = m["time_gps_ns"].to_numpy(np.int64)
+    utc = ts.convert(t, "GPS", "UTC")
+    fa = m["flag_a"].astype(str).to_numpy()
+    fb = m["flag_b"].astype(str).to_numpy()
+    flag = np.where(fa != "ok", np.char.add("A:", fa.astype(str)),
+                    np.where(fb != "ok", np.char.add("B:", fb.astype(str)), "ok")).astype(object)
+    off = m["clock_ns_a"].to_numpy(float) - m["clock_ns_b"].to_numpy(float)
+    u = np.hypot(m["u_ns_a"].to_numpy(float), m["u_ns_b"].to_numpy(float))
+    flag = np.where(np.isfinite(off) | (flag != "ok"), flag, "no_data").astype(object)
+    na = m["n_sat_a"].to_numpy()
+    nb = m["n_sat_b"].to_numpy()
+    return pd.DataFrame({
+        "time": t, "time_utc": np.asarray(ts.to_iso(utc), dtype=object) if t.size else np.zeros(0, dtype=object),
+        "mjd_utc": ts.to_mjd_float(utc), "system": system, "offset_ns": off, "u_ns": u, "u_apriori_ns": u,
+        "n_sat": np.minimum(na, nb), "n_rejected": 0, "scatter_ns": np.nan, "chi2": np.nan, "dof": np.nan,
+        "flag": flag, "n_sat_a": na, "n_sat_b": nb,
+        "clock_a_ns": m["clock_ns_a"].to_numpy(float), "clock_b_ns": m["clock_ns_b"].to_numpy(float)})
+
+
+def day_boundary(previous: pd.DataFrame | None, offset: pd.DataFrame) -> dict | None:
+    """The jump between the previous day's last good point and this day's first (None without both).
+
+    ``previous``: the archive's rows of the day before (``time_utc_ns``, ``offset_ns``, ``u_ns``,
+    ``flag``); ``offset``: this day's series. The jump is this day's first value minus that
+    last value, with the root sum of squares of their uncertainties, and the time between them."""
+    if previous is None or not len(previous):
+        return None
+    p = previous[(previous["flag"] == "ok") & np.isfinite(previous["offset_ns"].to_numpy(float))]
+    o = offset[(offset["flag"] == "ok") & np.isfinite(offset["offset_ns"].to_numpy(float))]
+    if not len(p) or not len(o):
+        return None
+    p = p.sort_values("time_utc_ns").iloc[-1]
+    o = o.sort_values("time").iloc[0]
+    t_first_utc = int(ts.convert(np.int64(o["time"]), "GPS", "UTC"))
+    return {"previous_date": str(p.get("date", ""))[:10], "previous_last_utc": str(ts.to_iso(int(p["time_utc_ns"]))),
+            "first_utc": str(ts.to_iso(t_first_utc)), "gap_s": (t_first_utc - int(p["time_utc_ns"])) / 1e9,
+            "previous_ns": float(p["offset_ns"]), "first_ns": float(o["offset_ns"]),
+            "jump_ns": float(o["offset_ns"] - p["offset_ns"]),
+            "u_jump_ns": float(np.hypot(float(p["u_ns"]), float(o["u_ns"])))}
+
+
+def archived_day_before(archive_path, pair_name: str, date) -> pd.DataFrame | None:
+    """The previous UTC day's main series of a pair from its archive (None when absent)."""
+    import datetime as _dt
+
+    if archive_path is None or not pathlib.Path(archive_path).is_file():
+        return None
+    from .archive import Archive
+
+    prev = (_dt.date.fromisoformat(str(date)[:10]) - _dt.timedelta(days=1)).isoformat()
+    arc = Archive(archive_path)
+    try:
+        off = arc.load_offsets(pair_name, prev, prev, extras=False)
+    finally:
+        close = getattr(arc, "close", None)
+        if close is not None:
+            close()
+    if off is None or not len(off):
+        return None
+    return commonview.main_series(off)
+
+
+def add_day_boundary(result: PairResult, pc, date) -> dict | None:
+    """Mode 'ppp' of a pair file: record the jump from the archived day before (summary 'day_boundary')."""
+    if result.summary.get("mode") != "ppp":
+        return None
+    b = day_boundary(archived_day_before(getattr(pc, "archive_path", None), pc.name, date), result.offset)
+    if b is not None:
+        result.summary["day_boundary"] = b
+    return b
+
+
+def _ppp_options(options: PairOptions):
+    from .ppp import PPPOptions
+
+    return options.ppp if options.ppp is not None else PPPOptions()
+
+
+def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions, *, orbits_bundle=None,
+                 force_inputs: bool = False) -> PairResult:
+    """Mode 'ppp': each station by :func:`ctt.ppp.run_ppp`, then A − B on common epochs (module docstring)."""
+    from .ppp import run_ppp
+    from .formats.rinex_obs import read_obs
+
+    if inputs.obs_a is None or inputs.obs_b is None or inputs.tracks_a or inputs.tracks_b:
+        raise MissingInputError("mode ppp needs both stations' observation files (track files cannot be used)")
+    if orbits_bundle is None:
+        if not inputs.sp3:
+            raise MissingInputError("mode ppp needs precise orbits and clocks (--sp3, and --clk where the "
+                                    "product has a clock file)")
+        orbits_bundle = load_orbits(inputs, "precise")
+    orbits, _nav_header, reference, _nav = orbits_bundle
+    if reference != "precise":
+        raise MissingInputError("mode ppp needs precise orbits and clocks (--sp3, and --clk where the product "
+                                "has a clock file)")
+    antex = None
+    if inputs.antex:
+        from .formats.antex import read_antex
+
+        antex = read_antex(_need(inputs.antex, "ANTEX file"))
+    input_warnings = _check_inputs(inputs, station_a, station_b, force_inputs)
+    popt = _ppp_options(options)
+    res = {}
+    for who, obs_path, met_path, st in (("A", inputs.obs_a, inputs.met_a, station_a),
+                                        ("B", inputs.obs_b, inputs.met_b, station_b)):
+        obs = read_obs(_need(obs_path, "observation file"), on_error="skip")
+        if obs.dropped:
+            log.warning("%s: %d bad epochs skipped (first: line %s, %s)", obs_path, len(obs.dropped),
+                        obs.dropped[0][0], obs.dropped[0][1])
+        met = None
+        if met_path:
+            from .formats import rinex_met as metmod
+
+            met = metmod.read_met(_need(met_path, "meteorological file"))
+        res[who] = run_ppp(obs, orbits, st, popt, met=met, biases=options.measure.biases, antex=antex)
+    systems = sorted({str(s) for s in getattr(popt, "systems", options.measure.systems)})
+    system = systems[0] if len(systems) == 1 else "ALL"
+    offset = ppp_difference(res["A"].clock, res["B"].clock, system=system)
+    if not (offset["flag"] == "ok").any():
+        raise NoDataError(f"no common good PPP epoch between {station_a.id} and {station_b.id} "
+                          f"({len(offset)} common epochs, flags: {offset['flag'].value_counts().to_dict()})")
+    sats = []
+    for who, st in (("A", station_a), ("B", station_b)):
+        r = res[who].residuals.copy()
+        r.insert(0, "station", st.id)
+        r.insert(0, "time", r["time_gps_ns"].to_numpy(np.int64))
+        sats.append(r.drop(columns=["time_gps_ns"]))
+    satellites = pd.concat(sats, ignore_index=True).sort_values(["time", "station", "sat"], kind="stable")
+    satellites = satellites.reset_index(drop=True)
+    t_mid = int(np.median(offset["time"].to_numpy(np.int64)))
+    type_b = {}
+    for who, st in (("A", station_a), ("B", station_b)):
+        u_hw = (res[who].summary or {}).get("u_hardware_ns")
+        type_b[f"delays {st.id}"] = float(u_hw) if u_hw is not None else _delay_u_at(st, t_mid, iono_free=True)
+    for who, st in (("A", station_a), ("B", station_b)):
+        item = _ppp_coordinate_u(res[who], st)
+        if item is not None:
+            type_b[f"coordinates {st.id} (held fixed)"] = item
+    budget = commonview.uncertainty_budget(offset, type_b_items=type_b, system=system)
+    budget["cancels"] = list(PPP_CANCELS)
+    budget["does_not_cancel"] = list(PPP_REMAINS)
+    summary = _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budget, satellites)
+    summary["warnings"] = list(input_warnings)
+    return PairResult(offset=offset, offset_by_system=offset, satellites=satellites, summary=summary,
+                      station_a=None, station_b=None, cv=None, budget=budget, ppp=res)
+
+
+def _ppp_coordinate_u(result, station) -> float | None:
+    """Coordinate item (ns) of a station whose PPP held the position fixed at the station file's.
+
+    A constant position error moves every clock estimate by the mean projection on the lines of
+    sight; horizontal parts average out over the sky, the vertical one does not (as in
+    :func:`ctt.commonview.coordinate_uncertainty_ns`): u = σ_U·mean(sin el)/c, with the elevations
+    of the used residuals. None when the position was estimated or constrained (then it is in the
+    formal u)."""
+    summ = getattr(result, "summary", {}) or {}
+    if summ.get("position_mode", "estimate") != "fixed":
+        return None
+    el = result.residuals.loc[result.residuals["flag"] == "ok", "el_deg"].to_numpy(float)
+    if not el.size:
+        return None
+    s_u = _sigma_enu(station)[2]
+    return float(s_u * np.mean(np.sin(np.radians(el))) / 299_792_458.0 * 1e9)
+
+
+def _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budget, satellites) -> dict:
+    files = {}
+    for k, v in inputs.files().items():
+        paths = v if isinstance(v, (list, tuple)) else [v]
+        recs = [{"path": str(p), "sha256": file_sha256(p)} for p in paths]
+        files[k] = recs[0] if len(recs) == 1 else recs
+    for label, st in (("station_a", station_a), ("station_b", station_b)):
+        if getattr(st, "path", None):
+            files[label] = {"path": str(st.path), "sha256": st.sha256}
+    ok = offset["flag"] == "ok"
+    rejected = {}
+    for who in ("A", "B"):
+        for flag, n in res[who].clock["flag"].value_counts().to_dict().items():
+            if flag != "ok":
+                rejected[f"{who} epochs {flag}"] = int(n)
+        for flag, n in res[who].residuals["flag"].value_counts().to_dict().items():
+            if flag != "ok":
+                rejected[f"{who} observations {flag}"] = int(n)
+    for flag, n in offset["flag"].value_counts().to_dict().items():
+        if flag != "ok":
+            rejected[f"points {flag}"] = int(n)
+    t_mid = int(np.median(offset["time"].to_numpy(np.int64)))
+    return {
+        "software": {"name": "ctt", "version": __version__},
+        "version": __version__,
+        "pair": f"{station_a.id}-{station_b.id}",
+        "station_a": station_a.id, "station_b": station_b.id,
+        "date_utc": str(ts.to_iso(ts.convert(t_mid, "GPS", "UTC")))[:10],
+        "mode": "ppp", "signals": "iono-free code and carrier phase", "reference": "precise",
+        "sign": "offset_ns = clock A - clock B",
+        "inputs": files,
+        "config": options.to_dict(),
+        "models": {"A": res["A"].summary, "B": res["B"].summary},
+        "counts": {"points": int(len(offset)), "points_ok": int(ok.sum()),
+                   "epochs_a": int(len(res["A"].clock)), "epochs_b": int(len(res["B"].clock)),
+                   "residuals": int(len(satellites))},
+        "mean_offset_ns": budget["mean_offset_ns"],
+        "budget": budget,
+        "isb": [],
+        "rejected": rejected,
+    }
 
 
 def read_track_file(path) -> pd.DataFrame:
@@ -637,7 +896,7 @@ def options_from_processing(proc) -> PairOptions:
         sagnac=not proc.no_sagnac, relativity=not proc.no_relativity,
         smoothing_s=float(proc.smoothing_s),
         mad_k=float(proc.mad_k), biases="estimate" if getattr(proc, "bias", None) == "estimate" else None)
-    bin_s = proc.bin_s if proc.mode != "tracks" else None
+    bin_s = proc.bin_s if proc.mode not in ("tracks", "ppp") else None
     return PairOptions(mode=proc.mode, bin_s=bin_s, orbits=proc.orbits, mad_k=float(proc.mad_k),
                        min_common=int(proc.min_common_sats), measure=m,
                        weights=proc.weights)
@@ -651,7 +910,8 @@ def pair_day_from_config(config, date):
     found = pc.resolve_inputs(date)
     inputs = PairInputs(obs_a=str(found["obs_a"]), obs_b=str(found["obs_b"]),
                         nav=_s(found.get("nav")), sp3=_s(found.get("sp3")), clk=_s(found.get("clk")),
-                        ionex=_s(found.get("ionex")), met_a=_s(found.get("met_a")), met_b=_s(found.get("met_b")))
+                        ionex=_s(found.get("ionex")), met_a=_s(found.get("met_a")), met_b=_s(found.get("met_b")),
+                        antex=_s(found.get("antex")))
     options = options_from_processing(pc.processing)
     if options.measure.elevation_mask_deg is None:
         # the pair file's documented default: the larger of the two stations' masks, at both

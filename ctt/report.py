@@ -220,7 +220,8 @@ def read_run_dir(folder) -> RunData:
 def _merge_summaries(sums):
     """Several day summaries: inputs and counts collected, the last config/version kept."""
     out = {"inputs": [], "config": sums[-1].get("config"), "version": sums[-1].get("version"),
-           "days": len(sums), "budget": sums[-1].get("budget")}
+           "days": len(sums), "budget": sums[-1].get("budget"),
+           "day_boundaries": [s["day_boundary"] for s in sums if isinstance(s.get("day_boundary"), dict)]}
     for s in sums:
         ins = s.get("inputs", [])
         out["inputs"].extend(ins if isinstance(ins, list) else [{"name": k, **(v if isinstance(v, dict) else
@@ -380,6 +381,9 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
         "mean_offset_ns": {"value": mean, "u": per.u_mean_ns,
                            "note": "u: max(white sigma/sqrt(N) with lag-1 inflation, TDEV at the longest tau)"},
         "budget": summ.get("budget"),
+        # per-day carrier-phase solutions (mode ppp): the jump from the previous day's last point
+        "day_boundaries": (summ.get("day_boundaries") or
+                           ([summ["day_boundary"]] if isinstance(summ.get("day_boundary"), dict) else [])),
         "drift": res["drift"],
         "stability_at": noise_tab,
         "changes": res["changes"],
@@ -514,6 +518,14 @@ def _html(r, figs):
     if isinstance(b, dict):
         rows.append(("Uncertainty budget", _e(f"type A {_num(b.get('type_a_ns'))} ns, type B "
                                                 f"{_num(b.get('type_b_ns'))} ns, total {_num(b.get('total_ns'))} ns")))
+    if isinstance(b, dict) and b.get("cancels"):
+        rows.append(("Cancels in A − B", _e("; ".join(map(str, b["cancels"])))))
+        rows.append(("Does not cancel", _e("; ".join(map(str, b.get("does_not_cancel") or [])))))
+    for db in r.get("day_boundaries") or []:
+        rows.append((_e(f"Day-boundary jump at {db.get('first_utc')}"),
+                     _e(f"{_num(db.get('jump_ns'))} ± {_num(db.get('u_jump_ns'))} ns from the last point of "
+                        f"{db.get('previous_date') or 'the day before'} ({_num(db.get('gap_s'))} s earlier); "
+                        "per-day carrier-phase solutions")))
     for lab, v in r["stability_at"].items():
         a, td = v["adev"], v["tdev_ns"]
         if a is None:

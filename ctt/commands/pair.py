@@ -33,9 +33,10 @@ def register(sub) -> None:
     cfg.add_argument("--config", help="pair TOML file (instead of the file arguments)")
     cfg.add_argument("--date", type=date_arg, help="UTC date YYYY-MM-DD to process with --config")
     proc = p.add_argument_group("processing")
-    proc.add_argument("--mode", choices=("tracks", "epochs", "all-in-view"), default=None,
-                      help="standard 13-minute tracks (default), every epoch/bin, or all-in-view "
-                           "(needs precise clocks)")
+    proc.add_argument("--mode", choices=("tracks", "epochs", "all-in-view", "ppp"), default=None,
+                      help="standard 13-minute tracks (default), every epoch/bin, all-in-view "
+                           "(needs precise clocks), or ppp: carrier-phase PPP clocks of both stations "
+                           "differenced (needs --sp3, and --clk where the product has it; any baseline)")
     proc.add_argument("--bin", type=float, default=None, metavar="SECONDS",
                       help="epoch/all-in-view bin length (default: every epoch)")
     proc.add_argument("--orbits", choices=("auto", "broadcast", "precise"), default=None,
@@ -102,8 +103,8 @@ def run(args) -> int:
             raise UsageError("with --config the files come from the pair file; drop "
                              + ", ".join("--" + g.replace("_", "-") for g in given))
         pc = load_pair(args.config)
-        if args.mode == "all-in-view" and not pc.patterns.get("sp3"):
-            raise UsageError(f"--mode all-in-view needs precise orbits and clocks: {args.config} has no "
+        if args.mode in ("all-in-view", "ppp") and not pc.patterns.get("sp3"):
+            raise UsageError(f"--mode {args.mode} needs precise orbits and clocks: {args.config} has no "
                              "[inputs] sp3 pattern for them")
         from ..pipeline import pair_day_from_config
 
@@ -132,6 +133,10 @@ def run(args) -> int:
     result = run_pair(inputs, sta, stb, options, force_inputs=args.force_inputs)
     for day in (result.station_a, result.station_b):
         warn_unused_codes(day, args.codes)
+    if args.config:
+        from ..pipeline import add_day_boundary
+
+        add_day_boundary(result, pc, args.date)
     paths = write_pair_outputs(result, pathlib.Path(args.out))
     print("\n".join(result.summary_lines()))
     print("wrote " + ", ".join(str(p) for p in paths.values()))
