@@ -277,6 +277,9 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
     t = off["time_utc_ns"].to_numpy(np.int64) if "time_utc_ns" in off.columns else None
     t_from = int(t.max()) - days * ts.NS_PER_DAY if t is not None and len(t) else None
     changes = hardware_changes(pc)
+    bounds = _day_boundaries(pc, off, t_from)
+    if bounds:
+        summary = dict(summary or {}, day_boundaries=bounds)
     try:
         build_report(off, satellites, summary, changes, out_html=pc.report_path, time_from_ns=t_from,
                      title=f"{pc.name}: clock {pc.station_a.id} - clock {pc.station_b.id}",
@@ -285,6 +288,26 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
         log.warning("report not refreshed: %s", exc)
         return None
     return pathlib.Path(pc.report_path)
+
+
+def _day_boundaries(pc, off, t_from) -> list[dict]:
+    """The day-boundary jumps (mode ppp) recorded in the run folders of the days in the report."""
+    if "date" not in off.columns:
+        return []
+    days = sorted(set(off["date"].astype(str)))
+    if t_from is not None:
+        first = str(ts.to_iso(int(t_from)))[:10]
+        days = [d for d in days if d >= first]
+    out = []
+    for d in days:
+        p = run_folder(pc, d) / "summary.json"
+        try:
+            b = json.loads(p.read_text()).get("day_boundary") if p.is_file() else None
+        except (OSError, ValueError):
+            b = None
+        if isinstance(b, dict):
+            out.append(b)
+    return out
 
 
 def hardware_changes(pc) -> list[dict]:

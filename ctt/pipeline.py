@@ -521,26 +521,50 @@ def ppp_difference(clock_a: pd.DataFrame, clock_b: pd.DataFrame, system: str = "
         "clock_a_ns": m["clock_ns_a"].to_numpy(float), "clock_b_ns": m["clock_ns_b"].to_numpy(float)})
 
 
-def day_boundary(previous: pd.DataFrame | None, offset: pd.DataFrame) -> dict | None:
-    """The jump between the previous day's last good point and this day's first (None without both).
+#: points each side of midnight whose straight line carries each day to the boundary (5 min at 30 s)
+BOUNDARY_POINTS = 10
+
+
+def day_boundary(previous: pd.DataFrame | None, offset: pd.DataFrame, n: int = BOUNDARY_POINTS) -> dict | None:
+    """The discontinuity between the previous day's series and this day's (None without both).
 
     ``previous``: the archive's rows of the day before (``time_utc_ns``, ``offset_ns``, ``u_ns``,
-    ``flag``); ``offset``: this day's series. The jump is this day's first value minus that
-    last value, with the root sum of squares of their uncertainties, and the time between them."""
+    ``flag``); ``offset``: this day's series. A straight line is fitted to the last ``n`` good
+    points of the previous day and to the first ``n`` of this day, and both are carried to the
+    instant halfway between the two days' facing points: ``jump_ns`` is this day's line minus
+    the previous day's there, so the clocks' own rate (e.g. a free-running receiver's −3e-7)
+    does not count as a jump. ``u_jump_ns`` is the root sum of squares of the two lines' values'
+    standard errors at that instant (from the points' u). With fewer than 2 points on a side the
+    facing points themselves are used."""
     if previous is None or not len(previous):
         return None
     p = previous[(previous["flag"] == "ok") & np.isfinite(previous["offset_ns"].to_numpy(float))]
     o = offset[(offset["flag"] == "ok") & np.isfinite(offset["offset_ns"].to_numpy(float))]
     if not len(p) or not len(o):
         return None
-    p = p.sort_values("time_utc_ns").iloc[-1]
-    o = o.sort_values("time").iloc[0]
-    t_first_utc = int(ts.convert(np.int64(o["time"]), "GPS", "UTC"))
-    return {"previous_date": str(p.get("date", ""))[:10], "previous_last_utc": str(ts.to_iso(int(p["time_utc_ns"]))),
-            "first_utc": str(ts.to_iso(t_first_utc)), "gap_s": (t_first_utc - int(p["time_utc_ns"])) / 1e9,
-            "previous_ns": float(p["offset_ns"]), "first_ns": float(o["offset_ns"]),
-            "jump_ns": float(o["offset_ns"] - p["offset_ns"]),
-            "u_jump_ns": float(np.hypot(float(p["u_ns"]), float(o["u_ns"])))}
+    p = p.sort_values("time_utc_ns").tail(n)
+    o = o.sort_values("time").head(n)
+    tp = p["time_utc_ns"].to_numpy(np.int64)
+    to = ts.convert(o["time"].to_numpy(np.int64), "GPS", "UTC").astype(np.int64)
+    t_mid = tp[-1] + (to[0] - tp[-1]) // 2
+
+    def at_mid(t, x, u):
+        if len(t) < 2:
+            return float(x[-1] if t[-1] < t_mid else x[0]), float(u[0])
+        s = (t - t_mid) / 1e9
+        w = 1.0 / np.fmax(u, 1e-6) ** 2
+        a = np.vstack([np.ones_like(s), s]).T
+        cov = np.linalg.inv(a.T @ (a * w[:, None]))
+        coef = cov @ (a.T @ (w * x))
+        return float(coef[0]), float(np.sqrt(cov[0, 0]))
+
+    vp, up = at_mid(tp, p["offset_ns"].to_numpy(float), p["u_ns"].to_numpy(float))
+    vo, uo = at_mid(to, o["offset_ns"].to_numpy(float), o["u_ns"].to_numpy(float))
+    return {"previous_date": str(p["date"].iloc[-1])[:10] if "date" in p.columns else "",
+            "previous_last_utc": str(ts.to_iso(int(tp[-1]))), "first_utc": str(ts.to_iso(int(to[0]))),
+            "at_utc": str(ts.to_iso(int(t_mid))), "gap_s": (int(to[0]) - int(tp[-1])) / 1e9,
+            "previous_ns": vp, "first_ns": vo, "jump_ns": vo - vp, "u_jump_ns": float(np.hypot(up, uo)),
+            "points_each_side": [int(len(tp)), int(len(to))]}
 
 
 def archived_day_before(archive_path, pair_name: str, date) -> pd.DataFrame | None:

@@ -182,3 +182,30 @@ def test_pair_ppp_follows_the_true_difference(sim):
     assert s["mode"] == "ppp" and "satellite clocks" in " ".join(s["budget"]["cancels"])
     sat = pd.read_csv(paths["satellites"])
     assert set(sat["station"]) == {"LABA", "LABB"}
+
+
+@pytest.mark.slow
+def test_day_boundary_of_consecutive_days(tmp_path):
+    """Two simulated days through `ctt backfill` in mode ppp: the second day's summary records the jump from
+    the first (the true A − B is continuous, so the jump is the two days' independent datum errors,
+    within 4 × its uncertainty; LABA's free-running clock, −9.3 µs per 30 s, must not count as a jump)."""
+    import json
+
+    from ctt.cli import main
+    from ctt.simulate import scenario_from_dict, simulate, write_outputs
+
+    d = scenario(hours=26.0)
+    for st in d["stations"]:
+        st["slips"] = []
+    res = simulate(scenario_from_dict(d))
+    write_outputs(res, tmp_path)
+    pair = tmp_path / "laba-labb.toml"
+    pair.write_text(pair.read_text().replace("[processing]\n", "[processing]\nmode = \"ppp\"\n"))
+    assert main(["backfill", "--config", str(pair), "--from", "2021-01-01", "--to", "2021-01-02",
+                 "--no-report"]) == 0
+    s1 = json.loads((tmp_path / "out" / "laba-labb" / "2021-01-01" / "summary.json").read_text())
+    s2 = json.loads((tmp_path / "out" / "laba-labb" / "2021-01-02" / "summary.json").read_text())
+    b = s2["day_boundary"]
+    print(f"day boundary at {b['at_utc']}: jump {b['jump_ns']:+.3f} ± {b['u_jump_ns']:.3f} ns")
+    assert "day_boundary" not in s1 and b["previous_date"] == "2021-01-01"
+    assert abs(b["jump_ns"]) <= 4 * b["u_jump_ns"] and b["u_jump_ns"] < 0.5

@@ -39,15 +39,19 @@ def test_difference_on_common_epochs_with_rss_uncertainty():
     assert off["time_utc"].iloc[0].startswith("2021-01-01T00:04:42")  # 00:05:00 GPS; GPS − UTC = 18 s in 2021
 
 
-def test_day_boundary_jump():
-    prev = pd.DataFrame({"time_utc_ns": ts.convert(T0 - ts.NS_PER_S * np.array([60, 30]), "GPS", "UTC"),
-                         "offset_ns": [10.0, 10.5], "u_ns": [0.03, 0.04], "flag": ["ok", "ok"],
-                         "date": ["2020-12-31"] * 2})
-    today = ppp_difference(_clock(T0 + 30 * ts.NS_PER_S * np.arange(3), [10.9, 11.0, 11.1], 0.03, 8),
-                           _clock(T0 + 30 * ts.NS_PER_S * np.arange(3), 0.0, 0.0, 8))
+def test_day_boundary_jump_is_the_discontinuity_not_the_rate():
+    """A clock running at −3.1e-7 (a free receiver oscillator: −9.3 µs per 30 s) with a 0.4 ns step at
+    midnight: the boundary jump is the step (arithmetic: both lines are exact)."""
+    rate = -3.1e-7 * 1e9  # ns/s
+    tp = T0 - 30 * ts.NS_PER_S * np.arange(12, 0, -1)
+    prev = pd.DataFrame({"time_utc_ns": ts.convert(tp, "GPS", "UTC"), "offset_ns": 10.0 + rate * (tp - T0) / 1e9,
+                         "u_ns": 0.03, "flag": "ok", "date": "2020-12-31"})
+    tt = T0 + 30 * ts.NS_PER_S * np.arange(12)
+    today = ppp_difference(_clock(tt, 10.4 + rate * (tt - T0) / 1e9, 0.03, 8), _clock(tt, 0.0, 0.0, 8))
     b = day_boundary(prev, today)
-    assert b["jump_ns"] == pytest.approx(0.4) and b["u_jump_ns"] == pytest.approx(0.05)
+    assert b["jump_ns"] == pytest.approx(0.4, abs=1e-6)
     assert b["gap_s"] == pytest.approx(30.0) and b["previous_date"] == "2020-12-31"
+    assert b["points_each_side"] == [10, 10] and 0.0 < b["u_jump_ns"] < 0.05
     assert day_boundary(None, today) is None
 
 
