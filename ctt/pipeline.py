@@ -621,17 +621,14 @@ def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions,
     if reference != "precise":
         raise MissingInputError("mode ppp needs precise orbits and clocks (--sp3, and --clk where the product "
                                 "has a clock file)")
-    antex = None
-    if inputs.antex:
-        from .formats.antex import read_antex
-
-        antex = read_antex(_need(inputs.antex, "ANTEX file"))
     input_warnings = _check_inputs(inputs, station_a, station_b, force_inputs)
     popt = _ppp_options(options)
+    # a code-bias set maps C1C onto C1W where P1 is absent; 'estimate' (a code-mode option) does not apply
+    biases = options.measure.biases if not isinstance(options.measure.biases, str) else None
     res = {}
     for who, obs_path, met_path, st in (("A", inputs.obs_a, inputs.met_a, station_a),
                                         ("B", inputs.obs_b, inputs.met_b, station_b)):
-        obs = read_obs(_need(obs_path, "observation file"), on_error="skip")
+        obs = read_obs(_need(obs_path, "observation file"), on_error="skip", systems=tuple(popt.systems))
         if obs.dropped:
             log.warning("%s: %d bad epochs skipped (first: line %s, %s)", obs_path, len(obs.dropped),
                         obs.dropped[0][0], obs.dropped[0][1])
@@ -640,7 +637,8 @@ def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions,
             from .formats import rinex_met as metmod
 
             met = metmod.read_met(_need(met_path, "meteorological file"))
-        res[who] = run_ppp(obs, orbits, st, popt, met=met, biases=options.measure.biases, antex=antex)
+        # receiver antennas from the ANTEX file the orbits were loaded with (inputs.antex)
+        res[who] = run_ppp(obs, orbits, st, popt, met=met, biases=biases)
     systems = sorted({str(s) for s in getattr(popt, "systems", options.measure.systems)})
     system = systems[0] if len(systems) == 1 else "ALL"
     offset = ppp_difference(res["A"].clock, res["B"].clock, system=system)
