@@ -26,8 +26,8 @@ import pandas as pd
 import pytest
 
 from ctt.config import load_station
+from ctt.pipeline import PairOptions, run_pair  # noqa: F401  (mode ppp under test)
 
-pytest.importorskip("ctt.ppp")
 
 _STATION = """[station]
 id = "{id}"
