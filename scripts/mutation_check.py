@@ -47,7 +47,7 @@ ROOT = pathlib.Path(__file__).resolve().parents[1]
 #: Test files run for a mutant of each module (its own tests and the external references).
 TESTS = {
     "atmosphere": ["test_atmosphere.py", "test_against_iers_conventions.py", "test_against_niell_1996.py",
-                   "test_measure.py", "test_rinex_met.py"],
+                   "test_against_is_gps_200.py", "test_measure.py", "test_rinex_met.py"],
     "geodesy": ["test_geodesy.py", "test_against_pyproj.py", "test_against_iers_conventions.py",
                 "test_against_astropy.py"],
     "signals": ["test_signals.py", "test_against_is_gps_200.py", "test_measure.py"],

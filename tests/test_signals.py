@@ -19,6 +19,14 @@ def test_frequencies_other_systems():
     assert np.allclose(sig.frequency_hz(sats, codes) / 1e6, expect, rtol=0, atol=1e-9)
 
 
+def test_frequencies_qzss_sbas_navic():
+    # IS-QZSS (L1, L2, L5, L6), SBAS (RTCA DO-229: L1, L5) and the NavIC SPS ICD (L5, S), MHz
+    sats = ["J01", "J01", "J01", "J01", "S20", "S20", "I05", "I05"]
+    codes = ["C1C", "C2L", "C5Q", "C6L", "C1C", "C5I", "C5A", "C9A"]
+    expect = [1575.42, 1227.60, 1176.45, 1278.75, 1575.42, 1176.45, 1176.45, 2492.028]
+    assert np.allclose(sig.frequency_hz(sats, codes) / 1e6, expect, rtol=0, atol=1e-9)
+
+
 def test_glonass_fdma():
     # GLONASS ICD: G1 = 1602 + k·0.5625 MHz, G2 = 1246 + k·0.4375 MHz
     f = sig.frequency_hz(["R01", "R02", "R01", "R02"], ["C1C", "C1P", "C2P", "C2C"], {"R01": 1, "R02": -7})
