@@ -27,7 +27,8 @@ Station file
     epoch = 2021.0
     is_marker = true            # true: antenna delta below is added to get the ARP
     [station.antenna]
-    type = "INVENTED-ANT1"
+    type = "INVENTED-ANT1"      # as ANTEX spells it (up to 16 characters), or the
+    radome = "NONE"             # 20-character ANTEX name 'TYPE            RDME'; radome optional
     delta_h_m = 0.0
     delta_e_m = 0.0
     delta_n_m = 0.0
@@ -367,10 +368,25 @@ def _content_sha256(data) -> str:
 
 @dataclass(frozen=True, eq=False)
 class Antenna:
-    """Antenna type and the marker-to-ARP eccentricity (up, east, north) in metres."""
+    """Antenna type, radome and the marker-to-ARP eccentricity (up, east, north) in metres.
+
+    ``type`` as written in the station file; ``radome`` the 4-character radome
+    code ('NONE' when the type is given without one). :attr:`antex_name` is
+    the 20-character name under which ANTEX files list the calibration
+    (type in columns 1-16, radome in 17-20).
+    """
 
     type: str
     delta_hen_m: np.ndarray  # (3,) up, east, north
+    radome: str = ""
+
+    @property
+    def antex_name(self) -> str:
+        """'TYPE' left-justified to 16 characters + radome (ANTEX 1.4 / IGS antenna names)."""
+        if not self.type:
+            return ""
+        base = self.type[:16].strip() if len(self.type.rstrip()) > 16 else self.type.strip()
+        return f"{base:<16}{(self.radome or 'NONE'):>4}"
 
 
 @dataclass(frozen=True)
@@ -692,7 +708,7 @@ def _as_date(date) -> _dt.date:
 _STATION_KEYS = {"id", "name", "elevation_mask_deg", "position", "antenna", "met", "marker_names"}
 _POSITION_KEYS = {"x_m", "y_m", "z_m", "sigma_m", "sigma_x_m", "sigma_y_m", "sigma_z_m", "frame",
                   "epoch", "is_marker"}
-_ANTENNA_KEYS = {"type", "delta_h_m", "delta_e_m", "delta_n_m"}
+_ANTENNA_KEYS = {"type", "radome", "delta_h_m", "delta_e_m", "delta_n_m"}
 _DELAY_KEYS = {"valid_from", "valid_until", "receiver_ns", "u_receiver_ns", "cable_ns", "u_cable_ns",
                "reference_ns", "u_reference_ns", "note"}
 _CHANGE_KEYS = {"time", "what", "expected_delay_change_ns"}
@@ -751,7 +767,21 @@ def load_station(path) -> StationConfig:
     ant_type = r.text(ant, "type", "station.antenna.type", "an antenna type", required=False, default="")
     hen = [r.number(ant, k, f"station.antenna.{k}", "an eccentricity in metres", required=False,
                     default=0.0, lo=-100.0, hi=100.0) for k in ("delta_h_m", "delta_e_m", "delta_n_m")]
-    antenna = Antenna(ant_type or "", np.array([v if v is not None else 0.0 for v in hen]))
+    # the type as ANTEX spells it (up to 16 characters: 'ASH701945B_M'), or the whole 20-character
+    # ANTEX name with the radome in characters 17-20 ('ASH701945B_M    NONE'); 'radome' may say it apart
+    ant_type = ant_type or ""
+    radome = r.text(ant, "radome", "station.antenna.radome", "a 4-character radome code such as NONE or SCIS",
+                    required=False, default="")
+    embedded = ant_type[16:].strip() if len(ant_type.rstrip()) > 16 else ""
+    if len(ant_type.rstrip()) > 20 or (embedded and len(embedded) != 4):
+        r.fail("station.antenna.type", "expected an antenna type of up to 16 characters, optionally followed "
+               f"by the radome in characters 17-20 (as ANTEX spells it), found {ant_type!r}")
+    if radome and (len(radome) != 4 or not radome.isprintable() or " " in radome):
+        r.fail("station.antenna.radome", f"expected a 4-character radome code such as NONE, found {radome!r}")
+    elif radome and embedded and radome != embedded:
+        r.fail("station.antenna.radome", f"expected the radome written in the type ({embedded!r}), found {radome!r}")
+    radome = radome or embedded or ("NONE" if ant_type.strip() else "")
+    antenna = Antenna(ant_type, np.array([v if v is not None else 0.0 for v in hen]), radome)
 
     met = r.table(st, "met", "station.met", required=False) or {}
     r.unknown(met, {"pattern"}, "station.met")
@@ -907,6 +937,8 @@ def dump_station(cfg: StationConfig) -> str:
         lines.append(f"epoch = {_toml_float(cfg.epoch)}")
     lines.append(f"is_marker = {'true' if cfg.is_marker else 'false'}")
     lines += ["", "[station.antenna]", f"type = {_toml_str(cfg.antenna.type)}"]
+    if cfg.antenna.radome and len(cfg.antenna.type.rstrip()) <= 16:
+        lines.append(f"radome = {_toml_str(cfg.antenna.radome)}")
     for k, v in zip(("delta_h_m", "delta_e_m", "delta_n_m"), cfg.antenna.delta_hen_m):
         lines.append(f"{k} = {_toml_float(v)}")
     if cfg.met_pattern is not None:

@@ -171,6 +171,18 @@ def azimuth_elevation(receiver_ecef_m, sat_ecef_m, ellipsoid=WGS84):
     return az, el, rng
 
 
+def nadir_angle_rad(sat_ecef_m, receiver_ecef_m):
+    """Nadir angle (rad) at the satellite: between the direction to the Earth's centre and to the receiver.
+
+    The argument of satellite antenna variations (ANTEX 1.4: nadir angle);
+    at most about 14° for GPS seen from the ground. Vectorised (broadcasting).
+    """
+    sat = np.asarray(sat_ecef_m, dtype=float)
+    d = np.asarray(receiver_ecef_m, dtype=float) - sat
+    c = -np.einsum("...i,...i->...", sat, d) / (np.linalg.norm(sat, axis=-1) * np.linalg.norm(d, axis=-1))
+    return np.arccos(np.clip(c, -1.0, 1.0))
+
+
 def antenna_reference_point(marker_ecef_m, delta_h_m, delta_e_m=0.0, delta_n_m=0.0, ellipsoid=WGS84):
     """ECEF of the antenna reference point from the marker and the RINEX
     ``ANTENNA: DELTA H/E/N`` (height up along the ellipsoidal normal, east,

@@ -528,3 +528,134 @@ def code_bias_s(biases: BiasSet, sats, codes, t_ns, *, reference=None, station="
             out.ravel()[j] = v
             found.ravel()[j] = True
     return out, found
+
+
+# ------------------------------------------------------------------ antenna phase centres (ANTEX)
+#
+# The per-frequency antenna corrections live here, beside the frequencies and the
+# iono-free coefficients they are combined with: an antenna offset or variation is a
+# property of a carrier frequency, and the PPP model needs it per frequency and as the
+# iono-free combination of the two frequencies it uses. The geometry they need is only
+# the line of sight (azimuth and elevation, or the nadir angle), given by the caller.
+
+def antex_frequency_hz(freq: str) -> float:
+    """Carrier frequency (Hz) of an ANTEX frequency code (``'G01'``, ``'E05'``, ``'R02'``).
+
+    GLONASS FDMA codes R01/R02 give the channel-0 frequency (1602 / 1246 MHz):
+    ANTEX calibrations are per band, not per channel (ANTEX 1.4 frequency codes).
+    """
+    sys_, band = freq[0], str(int(freq[1:]))
+    if sys_ == "R" and band in GLONASS_FDMA:
+        return GLONASS_FDMA[band][0]
+    try:
+        return BAND_FREQUENCY_HZ[sys_][band]
+    except KeyError:
+        raise ValueError(f"unknown ANTEX frequency code {freq!r}") from None
+
+
+def _antex_freq(block: dict, freq: str, fallback_gps: bool) -> str:
+    if freq in block["pco_m"]:
+        return freq
+    if fallback_gps:
+        alt = "G01" if freq[1:] == "01" else "G02"
+        if alt in block["pco_m"]:
+            return alt
+    name = block.get("name", block.get("type", "?"))
+    raise KeyError(f"antenna {name!r} has no calibration for {freq} (has {sorted(block['pco_m'])})")
+
+
+def antenna_pcv_m(block: dict, freq: str, zen_deg, azi_deg=None):
+    """Phase-centre variation (m) of one ANTEX block at zenith (or nadir) angles, vectorised.
+
+    Bilinear in zenith angle and azimuth on the block's grid when it has
+    azimuth rows and ``azi_deg`` is given, else linear in the ``NOAZI`` row.
+    Angles beyond the grid by more than one step give NaN (never
+    extrapolated); within one step the edge value is held.
+    """
+    rec = block["pcv_m"][freq]
+    zen_grid = block["zen_deg"]
+    z = np.asarray(zen_deg, dtype=float)
+    dz = float(zen_grid[1] - zen_grid[0]) if len(zen_grid) > 1 else 1.0
+    x = (z - zen_grid[0]) / dz
+    n = len(zen_grid)
+    outside = (x < -1.0) | (x > n)
+    x = np.clip(x, 0.0, n - 1.0)
+    i0 = np.minimum(np.floor(x).astype(int), max(n - 2, 0))
+    i1 = np.minimum(i0 + 1, n - 1)
+    fz = x - i0
+    if rec.get("grid") is not None and azi_deg is not None and len(block["azi_deg"]) > 1:
+        g = rec["grid"]
+        a = np.mod(np.asarray(azi_deg, dtype=float), 360.0)
+        da = float(block["azi_deg"][1] - block["azi_deg"][0])
+        y = a / da
+        j0 = np.minimum(np.floor(y).astype(int), g.shape[0] - 2)
+        fa = y - j0
+        v = ((1 - fa) * ((1 - fz) * g[j0, i0] + fz * g[j0, i1])
+             + fa * ((1 - fz) * g[j0 + 1, i0] + fz * g[j0 + 1, i1]))
+    else:
+        row = rec["noazi"]
+        v = (1 - fz) * row[i0] + fz * row[i1]
+    return np.where(outside, np.nan, v)
+
+
+def receiver_antenna_range_m(block: dict, freq: str, azimuth_rad, elevation_rad, *, fallback_gps=True):
+    """Receiver antenna correction (m) to *add* to the geometric range computed to the ARP.
+
+    ANTEX 1.4 (section 3): mean phase centre = ARP + PCO (north, east, up) and
+    observed range = range to the mean phase centre + PCV(azimuth, zenith),
+    so to first order (the antenna is millimetres against 20,000 km)::
+
+        range_observed = range_ARP − e · PCO + PCV(az, 90° − el)
+
+    with ``e`` the unit vector from the receiver to the satellite in the local
+    north/east/up frame. Vectorised over the angles. ``fallback_gps``: a
+    frequency the calibration lacks (e.g. E05 in an IGS08-era file) takes the
+    GPS value of the same role (01 -> G01, others -> G02), the common practice
+    for type calibrations made on GPS only; without it a KeyError is raised.
+    """
+    f = _antex_freq(block, freq, fallback_gps)
+    az = np.asarray(azimuth_rad, dtype=float)
+    el = np.asarray(elevation_rad, dtype=float)
+    n, e, u = block["pco_m"][f]
+    ce = np.cos(el)
+    proj = n * ce * np.cos(az) + e * ce * np.sin(az) + u * np.sin(el)
+    pcv = antenna_pcv_m(block, f, 90.0 - np.degrees(el), np.degrees(az))
+    return -proj + pcv
+
+
+def iono_free_antenna_range_m(block: dict, freq1: str, freq2: str, azimuth_rad, elevation_rad, *,
+                              fallback_gps=True):
+    """Iono-free combination of two frequencies' receiver antenna corrections (m).
+
+    ``a1·Δ(f1) + a2·Δ(f2)`` with the coefficients of :func:`iono_free_coefficients`
+    (a1 = 2.546, a2 = −1.546 for GPS L1/L2): the correction of an iono-free
+    code or carrier combination formed on those frequencies (common practice).
+    """
+    a1, a2 = iono_free_coefficients(antex_frequency_hz(freq1), antex_frequency_hz(freq2))
+    return (a1 * receiver_antenna_range_m(block, freq1, azimuth_rad, elevation_rad, fallback_gps=fallback_gps)
+            + a2 * receiver_antenna_range_m(block, freq2, azimuth_rad, elevation_rad, fallback_gps=fallback_gps))
+
+
+def iono_free_offset_m(pco_by_freq: dict, freq1: str, freq2: str) -> np.ndarray:
+    """Iono-free combination of two frequencies' phase-centre offset vectors (any frame, m)."""
+    a1, a2 = iono_free_coefficients(antex_frequency_hz(freq1), antex_frequency_hz(freq2))
+    return a1 * np.asarray(pco_by_freq[freq1], dtype=float) + a2 * np.asarray(pco_by_freq[freq2], dtype=float)
+
+
+def satellite_antenna_pcv_m(block: dict, freq: str, nadir_rad, azimuth_rad=None):
+    """Satellite antenna phase-centre variation (m) at nadir angles, to *add* to the range.
+
+    ANTEX 1.4 (section 3): observed range = range to the satellite's mean
+    phase centre + PCV(nadir[, azimuth]). The offset itself is applied to the
+    orbit by :class:`ctt.orbits.PreciseOrbits`; this is the variation only.
+    IGS08-era satellite calibrations are nadir-only (``NOAZI``, 0-14° for
+    GPS); the azimuth (body frame) is used only where the block has a grid.
+    """
+    az = None if azimuth_rad is None else np.degrees(azimuth_rad)
+    return antenna_pcv_m(block, freq, np.degrees(np.asarray(nadir_rad, dtype=float)), az)
+
+
+def iono_free_satellite_pcv_m(block: dict, freq1: str, freq2: str, nadir_rad):
+    """Iono-free combination of two frequencies' satellite PCV (m)."""
+    a1, a2 = iono_free_coefficients(antex_frequency_hz(freq1), antex_frequency_hz(freq2))
+    return a1 * satellite_antenna_pcv_m(block, freq1, nadir_rad) + a2 * satellite_antenna_pcv_m(block, freq2, nadir_rad)
