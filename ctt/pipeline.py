@@ -985,9 +985,9 @@ def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None
         met_data = metmod.read_met(_need(met, "meteorological file"))
     biases = None
     if bias:
-        from .formats.bias_sinex import read_bias_sinex
+        from .formats.bias_sinex import read_code_biases
 
-        biases = read_bias_sinex(_need(bias, "code-bias file"))
+        biases = read_code_biases(_need(bias, "code-bias file"))     # Bias-SINEX or a monthly DCB file
     result = run_ppp(obs, orbits, st, opts, met=met_data, biases=biases)
     if warns:
         result.summary["input_warnings"] = warns

@@ -45,11 +45,11 @@ def add_model_arguments(p) -> None:
                    help="elevation mask in degrees (default: the station file's)")
     g.add_argument("--smoothing", type=float, default=None, metavar="SECONDS",
                    help="carrier-phase smoothing window of the code (Hatch filter), e.g. 600; 0 = off")
-    g.add_argument("--bias", metavar="BSX|estimate",
-                   help="Bias-SINEX code-bias file: maps the codes used (e.g. C1C) onto the codes the GPS "
-                        "clocks refer to (C1W/C2W); or 'estimate': fit each satellite's constant code bias "
-                        "on the day's own residuals (zero mean over the satellites; reported with its "
-                        "uncertainty)")
+    g.add_argument("--bias", metavar="FILE|estimate",
+                   help="code-bias file, Bias-SINEX or a classic monthly DCB file (P1-C1, P1-P2): maps the "
+                        "codes used (e.g. C1C) onto the codes the GPS clocks refer to (C1W/C2W); or 'estimate': "
+                        "fit each satellite's constant code bias on the day's own residuals (zero mean over the "
+                        "satellites; reported with its uncertainty)")
     g.add_argument("--iono-model", choices=("klobuchar", "ionex"), default=None,
                    help="ionosphere for single-frequency processing (default klobuchar; ionex needs --ionex)")
     for name in SWITCHES:
@@ -155,9 +155,9 @@ def measure_options(args, base=None):
     if getattr(args, "bias", None) == "estimate":
         kw["biases"] = "estimate"
     elif getattr(args, "bias", None):
-        from ..formats.bias_sinex import read_bias_sinex
+        from ..formats.bias_sinex import read_code_biases
 
-        kw["biases"] = read_bias_sinex(args.bias)
+        kw["biases"] = read_code_biases(args.bias)
     for name in SWITCHES:
         if getattr(args, f"no_{name}"):
             kw[name] = False

@@ -14,9 +14,10 @@ module                 format
 ``rinex_writers``      RINEX observation, navigation and met writers (the simulator's)
 ``sp3``                SP3-c/d precise orbits and clocks
 ``rinex_clock``        RINEX clock files (satellite and station clocks)
-``antex``              ANTEX antenna phase-centre offsets and variations
+``antex``              ANTEX antenna phase-centre offsets and variations (satellites and receivers)
 ``ionex``              IONEX ionosphere maps
-``bias_sinex``         Bias-SINEX code biases
+``bias_sinex``         Bias-SINEX code biases (and ``read_code_biases``: either kind of bias file)
+``dcb``                classic monthly DCB files (P1-C1, P1-P2) as Bias-SINEX DSB entries
 ``cggtts``             CGGTTS 2E common-view track files (reader and writer)
 =====================  =================================================
 """

@@ -114,3 +114,14 @@ def read_bias_sinex(path) -> BiasSet:
                    obs2=np.array(cols[4], dtype="<U3"), start_ns=np.array(cols[5], dtype=np.int64),
                    end_ns=np.array(cols[6], dtype=np.int64), value_s=np.array(cols[7], dtype=float),
                    sigma_s=np.array(cols[8], dtype=float), skipped=skipped)
+
+
+def read_code_biases(path) -> BiasSet:
+    """A code-bias file of either kind: Bias-SINEX (first line '%=BIA') or a classic monthly
+    DCB file (P1-C1, P1-P2; :func:`ctt.formats.dcb.read_dcb`), as one :class:`BiasSet`."""
+    from .dcb import is_dcb, read_dcb
+
+    first = read_text(pathlib.Path(path)).split("\n", 1)[0]
+    if not first.startswith("%=BIA") and is_dcb(path):
+        return read_dcb(path)
+    return read_bias_sinex(path)
