@@ -383,10 +383,9 @@ class Antenna:
     @property
     def antex_name(self) -> str:
         """'TYPE' left-justified to 16 characters + radome (ANTEX 1.4 / IGS antenna names)."""
-        if not self.type:
+        if not self.type.strip():
             return ""
-        base = self.type[:16].strip() if len(self.type.rstrip()) > 16 else self.type.strip()
-        return f"{base:<16}{(self.radome or 'NONE'):>4}"
+        return f"{self.type.split()[0]:<16}{(self.radome or 'NONE'):>4}"
 
 
 @dataclass(frozen=True)
@@ -767,15 +766,16 @@ def load_station(path) -> StationConfig:
     ant_type = r.text(ant, "type", "station.antenna.type", "an antenna type", required=False, default="")
     hen = [r.number(ant, k, f"station.antenna.{k}", "an eccentricity in metres", required=False,
                     default=0.0, lo=-100.0, hi=100.0) for k in ("delta_h_m", "delta_e_m", "delta_n_m")]
-    # the type as ANTEX spells it (up to 16 characters: 'ASH701945B_M'), or the whole 20-character
-    # ANTEX name with the radome in characters 17-20 ('ASH701945B_M    NONE'); 'radome' may say it apart
+    # the type as ANTEX spells it (up to 16 characters: 'ASH701945B_M'), or type and radome separated by
+    # blanks, as in the 20-character ANTEX name ('ASH701945B_M    NONE'); 'radome' may say it apart
     ant_type = ant_type or ""
     radome = r.text(ant, "radome", "station.antenna.radome", "a 4-character radome code such as NONE or SCIS",
                     required=False, default="")
-    embedded = ant_type[16:].strip() if len(ant_type.rstrip()) > 16 else ""
-    if len(ant_type.rstrip()) > 20 or (embedded and len(embedded) != 4):
+    words = ant_type.split()
+    embedded = words[1] if len(words) == 2 else ""
+    if len(words) > 2 or (words and len(words[0]) > 16) or (embedded and len(embedded) != 4):
         r.fail("station.antenna.type", "expected an antenna type of up to 16 characters, optionally followed "
-               f"by the radome in characters 17-20 (as ANTEX spells it), found {ant_type!r}")
+               f"by blanks and a 4-character radome (as ANTEX spells them), found {ant_type!r}")
     if radome and (len(radome) != 4 or not radome.isprintable() or " " in radome):
         r.fail("station.antenna.radome", f"expected a 4-character radome code such as NONE, found {radome!r}")
     elif radome and embedded and radome != embedded:
@@ -937,7 +937,7 @@ def dump_station(cfg: StationConfig) -> str:
         lines.append(f"epoch = {_toml_float(cfg.epoch)}")
     lines.append(f"is_marker = {'true' if cfg.is_marker else 'false'}")
     lines += ["", "[station.antenna]", f"type = {_toml_str(cfg.antenna.type)}"]
-    if cfg.antenna.radome and len(cfg.antenna.type.rstrip()) <= 16:
+    if cfg.antenna.radome and len(cfg.antenna.type.split()) == 1:
         lines.append(f"radome = {_toml_str(cfg.antenna.radome)}")
     for k, v in zip(("delta_h_m", "delta_e_m", "delta_n_m"), cfg.antenna.delta_hen_m):
         lines.append(f"{k} = {_toml_float(v)}")
