@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import dataclasses
 import logging
+import math
 import re
 
 import numpy as np
@@ -158,6 +159,7 @@ def read_antex(path) -> AntexData:  # noqa: C901 - one pass over a flat block st
                 raise ProductFormatError(path_s, i, "'END OF ANTENNA' before the next 'START OF ANTENNA'", text)
             block = {"line": i, "pco_m": {}, "pcv_m": {}, "valid_from_ns": None, "valid_until_ns": None,
                      "dazi_deg": 0.0, "zen_deg": None}
+            freq = None
         elif block is None:
             if text.strip():
                 raise ProductFormatError(path_s, i, "'START OF ANTENNA'", text)
@@ -175,15 +177,19 @@ def read_antex(path) -> AntexData:  # noqa: C901 - one pass over a flat block st
         elif label == "DAZI":
             try:
                 block["dazi_deg"] = float(text[2:8])
+                if not (block["dazi_deg"] == 0.0 or 0.1 <= block["dazi_deg"] <= 360.0):
+                    raise ValueError
             except ValueError:
-                raise ProductFormatError(path_s, i, "the azimuth step DAZI as F6.1 in columns 3-8", text) from None
+                raise ProductFormatError(path_s, i, "the azimuth step DAZI as F6.1 in columns 3-8: 0, or 0.1 to 360",
+                                         text) from None
         elif label == "ZEN1 / ZEN2 / DZEN":
             try:
                 z1, z2, dz = (float(text[a:a + 6]) for a in (2, 8, 14))
             except ValueError:
                 raise ProductFormatError(path_s, i, "ZEN1, ZEN2, DZEN as 2X,3F6.1", text) from None
-            if dz <= 0 or z2 < z1:
-                raise ProductFormatError(path_s, i, "ZEN1 <= ZEN2 and DZEN > 0", text)
+            if not (math.isfinite(z1) and math.isfinite(z2) and math.isfinite(dz)) or dz <= 0 or z2 < z1 \
+                    or z1 < 0 or z2 > 180 or (z2 - z1) / dz > 1000:
+                raise ProductFormatError(path_s, i, "0 <= ZEN1 <= ZEN2 <= 180 and DZEN > 0 (at most 1000 steps)", text)
             block["zen_deg"] = z1 + dz * np.arange(int(round((z2 - z1) / dz)) + 1)
         elif label == "VALID FROM":
             block["valid_from_ns"] = _antex_epoch(text, path_s, i)
@@ -199,6 +205,8 @@ def read_antex(path) -> AntexData:  # noqa: C901 - one pass over a flat block st
                 raise ProductFormatError(path_s, i, "'START OF FREQUENCY' before 'NORTH / EAST / UP'", text)
             try:
                 vals = tuple(float(text[a:a + 10]) * 1e-3 for a in (0, 10, 20))
+                if not all(math.isfinite(v) for v in vals):
+                    raise ValueError
             except ValueError:
                 raise ProductFormatError(path_s, i, "three offsets in mm as 3F10.2", text) from None
             block["pco_m"][freq] = vals
@@ -206,6 +214,8 @@ def read_antex(path) -> AntexData:  # noqa: C901 - one pass over a flat block st
             _close_frequency(block, freq, path_s, i)
             freq = None
         elif label == "END OF ANTENNA":
+            if freq is not None:
+                raise ProductFormatError(path_s, i, f"'END OF FREQUENCY' of {freq} before 'END OF ANTENNA'", text)
             prn = block.get("prn", "")
             if "type" not in block:
                 raise ProductFormatError(path_s, block["line"], "a 'TYPE / SERIAL NO' line in the antenna block",
@@ -241,6 +251,8 @@ def _pcv_values(text, path_s, line, block):
     n = len(zen) if zen is not None else None
     try:
         vals = np.array(text.split(), dtype=float) * 1e-3
+        if not np.isfinite(vals).all():
+            raise ValueError
     except ValueError:
         raise ProductFormatError(path_s, line, "PCV values in mm as mF8.2", text) from None
     if n is not None and len(vals) != n:
@@ -265,15 +277,19 @@ def _close_frequency(block, freq, path_s, line):
                                      f"frequency {freq}", f"{len(rows)} rows")
         try:
             vals = np.array(" ".join(t for _, t in rows).split(), dtype=float).reshape(n_azi, n_zen + 1)
+            if not np.isfinite(vals).all():
+                raise ValueError
         except ValueError:
             for ln, t in rows:     # find the line to name
                 try:
-                    if len(np.array(t.split(), dtype=float)) != n_zen + 1:
+                    v = np.array(t.split(), dtype=float)
+                    if len(v) != n_zen + 1 or not np.isfinite(v).all():
                         raise ValueError
                 except ValueError:
                     raise ProductFormatError(path_s, ln, f"an azimuth (F8.1) and {n_zen} PCV values in mm "
                                              "(mF8.2)", t) from None
-            raise
+            raise ProductFormatError(path_s, rows[0][0], f"azimuth rows of {n_zen + 1} numbers", "other rows") \
+                from None
         if np.max(np.abs(vals[:, 0] - dazi * np.arange(n_azi))) > 1e-6:
             raise ProductFormatError(path_s, rows[0][0], f"azimuths 0..360 by DAZI {dazi:g}", "other azimuths")
         grid = vals[:, 1:] * 1e-3
