@@ -18,6 +18,8 @@ module                 format
 ``ionex``              IONEX ionosphere maps
 ``bias_sinex``         Bias-SINEX code biases (and ``read_code_biases``: either kind of bias file)
 ``dcb``                classic monthly DCB files (P1-C1, P1-P2) as Bias-SINEX DSB entries
+``sinex``              SINEX station coordinates, velocities, antennas, eccentricities
+``erp``                IGS Earth rotation parameter files (pole coordinates)
 ``cggtts``             CGGTTS 2E common-view track files (reader and writer)
 =====================  =================================================
 """
