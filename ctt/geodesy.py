@@ -14,6 +14,11 @@ the references the tests compare against (``tests/test_against_pyproj.py``,
 ``tests/test_against_iers_conventions.py``). The one exception is the
 ellipsoidal geodesic distance of a baseline, which uses ``pyproj.Geod``
 (Karney's algorithm; writing that again would gain nothing).
+
+For the PPP estimator: :func:`pole_tide_displacement_enu` (IERS 2010 §7.1.4,
+with :func:`iers2010_mean_pole_arcsec`; pole coordinates from
+:func:`ctt.formats.erp.read_erp`), :func:`nadir_angle_rad` (argument of the
+satellite antenna variations), :func:`solid_tide_displacement`.
 """
 
 from __future__ import annotations
@@ -545,3 +550,50 @@ def solid_tide_displacement(station_ecef_m, t_ns, sun_ecef=None, moon_ecef=None,
         disp += 1e-3 * to_ecef(dr3, np.zeros(n), dn3)
 
     return disp
+
+
+# ------------------------------------------------------------------ pole tide (IERS Conventions 2010 §7.1.4)
+
+def iers2010_mean_pole_arcsec(decimal_year):
+    """Conventional mean pole (x̄p, ȳp) in arcseconds, IERS Conventions (2010) §7.1.4, Table 7.7.
+
+    Cubic in t = year − 2000.0 until 2010.0, linear after (the 2010
+    conventions' model; the two pieces meet at 2010.0)::
+
+        t < 10:  x̄p = 55.974 + 1.8243 t + 0.18413 t² + 0.007024 t³   mas
+                 ȳp = 346.346 + 1.7896 t − 0.10729 t² − 0.000908 t³   mas
+        t ≥ 10:  x̄p = 23.513 + 7.6141 t,  ȳp = 358.891 − 0.6287 t     mas
+    """
+    t = np.asarray(decimal_year, dtype=float) - 2000.0
+    cubic = t < 10.0
+    x = np.where(cubic, 55.974 + 1.8243 * t + 0.18413 * t**2 + 0.007024 * t**3, 23.513 + 7.6141 * t)
+    y = np.where(cubic, 346.346 + 1.7896 * t - 0.10729 * t**2 - 0.000908 * t**3, 358.891 - 0.6287 * t)
+    return x * 1e-3, y * 1e-3
+
+
+def pole_tide_displacement_enu(lat_rad, lon_rad, xp_arcsec, yp_arcsec, decimal_year):
+    """Solid Earth pole tide displacement (east, north, up) in metres, IERS Conventions (2010) eq. 7.26.
+
+    m1 = xp − x̄p, m2 = −(yp − ȳp) (arcsec, mean pole of
+    :func:`iers2010_mean_pole_arcsec`); with θ the colatitude and λ the
+    east longitude::
+
+        S_r = −33 sin 2θ (m1 cos λ + m2 sin λ)    mm  (up)
+        S_θ =  −9 cos 2θ (m1 cos λ + m2 sin λ)    mm  (south)
+        S_λ =   9 cos θ  (m1 sin λ − m2 cos λ)    mm  (east)
+
+    (the coefficients are h2 = 0.6207, l2 = 0.0836 times Ω²a²/(2g) per arcsec;
+    checked in tests/test_against_iers_conventions.py). At most about 25 mm
+    up and 7 mm horizontally (IERS 2010 §7.1.4). Vectorised; ``xp``/``yp``
+    e.g. from :func:`ctt.formats.erp.read_erp` interpolated to the day.
+    """
+    xbar, ybar = iers2010_mean_pole_arcsec(decimal_year)
+    m1 = np.asarray(xp_arcsec, dtype=float) - xbar
+    m2 = -(np.asarray(yp_arcsec, dtype=float) - ybar)
+    theta = np.pi / 2.0 - np.asarray(lat_rad, dtype=float)
+    lam = np.asarray(lon_rad, dtype=float)
+    a = m1 * np.cos(lam) + m2 * np.sin(lam)
+    s_r = -33.0 * np.sin(2.0 * theta) * a
+    s_t = -9.0 * np.cos(2.0 * theta) * a
+    s_l = 9.0 * np.cos(theta) * (m1 * np.sin(lam) - m2 * np.cos(lam))
+    return np.stack([s_l, -s_t, s_r], axis=-1) * 1e-3

@@ -39,6 +39,9 @@ Each row has ``flag`` ``ok`` or the reason it is not used: ``no_ephemeris``,
 smoothing: the first epoch after a slip while the filter restarts is still
 used, so this flag marks nothing unusable; it is recorded in
 ``smoothing_reset``). Poor data is counted, never fatal.
+
+For the PPP estimator: :func:`shapiro_delay_m` (IERS 2010 eq. 11.17, to add to
+the geometric range), :func:`sagnac_closed_form_m`, :func:`light_time`.
 """
 
 from __future__ import annotations
@@ -168,6 +171,28 @@ def sagnac_closed_form_m(sat_ecef_m, rx_ecef_m):
     s = np.asarray(sat_ecef_m, dtype=float)
     r = np.asarray(rx_ecef_m, dtype=float)
     return OMEGA_E / C_MPS * (s[..., 0] * r[..., 1] - s[..., 1] * r[..., 0])
+
+
+#: GM of the Earth for the Shapiro delay, m³/s² (IERS Conventions 2010, Table 1.1: 3.986004418e14).
+GM_EARTH_IERS = 3.986004418e14
+
+
+def shapiro_delay_m(sat_ecef_m, rx_ecef_m):
+    """Relativistic range delay by the Earth's gravity (Shapiro), metres, IERS Conventions (2010) eq. 11.17.
+
+    ``Δ = (2GM/c²) ln((r_s + r_r + ρ)/(r_s + r_r − ρ))`` with r_s, r_r the
+    geocentric distances of satellite and receiver and ρ their distance; to
+    be *added* to the geometric range. About 13 mm at the zenith and 19 mm
+    at the horizon for GPS (eq. 11.17 evaluated). It is common to both code and
+    carrier and, for a station clock, does not cancel between stations.
+    Vectorised (broadcasting over leading axes).
+    """
+    s = np.asarray(sat_ecef_m, dtype=float)
+    r = np.asarray(rx_ecef_m, dtype=float)
+    rs = np.linalg.norm(s, axis=-1)
+    rr = np.linalg.norm(r, axis=-1)
+    rho = np.linalg.norm(s - r, axis=-1)
+    return 2.0 * GM_EARTH_IERS / C_MPS**2 * np.log((rs + rr + rho) / (rs + rr - rho))
 
 
 def light_time(orbits, sats, t_rx_ns, dt_rx_s, rx_ecef_m, *, sagnac=True, tau0_s=None, max_iter=8):

@@ -93,6 +93,13 @@ Runge–Kutta integration of the PZ-90 state in the Earth-fixed frame with the
 central term, J2 and the broadcast (constant) luni-solar accelerations, steps
 ≤ 60 s (μ = 3.9860044e14, a_e = 6378136 m, J2 = 1082625.75e-9,
 ω = 7.292115e-5 rad/s).
+
+For the PPP estimator
+---------------------
+:func:`eclipse_flags` (rows in the Earth's shadow and 30 min after, from
+:func:`in_earth_shadow` and :func:`sun_position_ecef`), :func:`body_frame`
+(nominal yaw attitude), :class:`PreciseOrbits` with several SP3/clock files,
+:func:`clock_interpolation_error` (leave-one-out figures of a clock file).
 """
 
 from __future__ import annotations
@@ -1354,7 +1361,61 @@ def clock_interpolation_error(series: ClockSeries, stride: int = 2, max_gap_s: f
     return err, t[pred_idx]
 
 
+# ------------------------------------------------------------------ satellite eclipses
+
+#: Mean equatorial radius of the Earth for the shadow test, m (IERS Conventions 2010, Table 1.1).
+R_EARTH_M = 6378136.6
+
+
+def in_earth_shadow(sat_ecef_m, sun_ecef_m):
+    """True where a satellite is in the Earth's shadow (cylindrical model), vectorised.
+
+    The satellite is shadowed when it is on the night side (r·ŝ < 0) and
+    closer to the Earth–Sun line than the Earth's radius,
+    |r − (r·ŝ)ŝ| < R_E (the cylindrical shadow of Kouba 2009, "A guide to
+    using IGS products", eclipse section, from memory; it includes the
+    penumbra's inner part and ignores the ~0.5° Sun disc, a few seconds of
+    eclipse at GPS heights).
+    """
+    r = np.asarray(sat_ecef_m, dtype=float)
+    sun = np.asarray(sun_ecef_m, dtype=float)
+    s_hat = sun / np.linalg.norm(sun, axis=-1, keepdims=True)
+    along = np.einsum("...i,...i->...", r, s_hat)
+    perp = np.linalg.norm(r - along[..., None] * s_hat, axis=-1)
+    return (along < 0.0) & (perp < R_EARTH_M)
+
+
+def eclipse_flags(sats, t_ns, sat_ecef_m, sun_ecef_m, *, after_s: float = 1800.0):
+    """Flag rows of satellites in the Earth's shadow and for ``after_s`` after leaving it.
+
+    Flat rows (N,) of satellite id, GPS instant and positions. Returns
+    ``(in_shadow, flagged)``: flagged = in shadow, or less than ``after_s``
+    (default 30 min) after the satellite's last shadowed row: its yaw is not
+    nominal during the eclipse and the post-eclipse manoeuvre (common
+    practice for GPS Block IIA; applied to every satellite here, the safe
+    side). Vectorised: rows are sorted by satellite and time, and the last
+    shadow time is a running maximum within each satellite.
+    """
+    sats = np.asarray(sats).astype(str)
+    t = np.asarray(t_ns, dtype=np.int64)
+    shadow = in_earth_shadow(sat_ecef_m, sun_ecef_m)
+    order = np.lexsort((t, sats))
+    s_sorted, t_sorted, sh_sorted = sats[order], t[order], shadow[order]
+    new_sat = np.r_[True, s_sorted[1:] != s_sorted[:-1]]
+    neg = np.iinfo(np.int64).min // 4
+    last = np.where(sh_sorted, t_sorted, neg)
+    starts = np.flatnonzero(new_sat)
+    run = np.empty_like(last)
+    for a, b in zip(starts, np.r_[starts[1:], len(last)]):   # one loop per satellite, not per row
+        run[a:b] = np.maximum.accumulate(last[a:b])
+    recent = (run > neg) & (t_sorted - run <= int(after_s * 1e9))
+    flagged_sorted = sh_sorted | recent
+    flagged = np.empty_like(flagged_sorted)
+    flagged[order] = flagged_sorted
+    return shadow, flagged
+
+
 __all__ = ["BroadcastOrbits", "SatStates", "STATUS_NAMES", "reason", "solve_kepler", "glonass_propagate",
            "group_delay_correction_s", "F_GPS", "GM_GPS", "OMEGA_E_GPS", "C_MPS",
            "PreciseOrbits", "PreciseStates", "PRECISE_STATUS_NAMES", "PRECISE_STATUS_REASON",
-           "sun_position_ecef", "body_frame", "leave_one_out", "clock_interpolation_error", "IF_FREQUENCIES", "interpolate_clock_series"]
+           "sun_position_ecef", "body_frame", "leave_one_out", "clock_interpolation_error", "in_earth_shadow", "eclipse_flags", "R_EARTH_M", "IF_FREQUENCIES", "interpolate_clock_series"]

@@ -51,6 +51,15 @@ cancel in common view unless both stations use the same codes. Apply a bias
 file (:func:`ctt.formats.bias_sinex.read_bias_sinex`, :func:`code_bias_s`) to map C1C onto C1W, or
 make sure both stations of a pair use the same code pair. For single
 frequency the C1C user's error is the DCB itself (factor 1).
+
+For the PPP estimator
+---------------------
+:func:`phase_windup_cycles` (Wu et al. 1993; continuous per satellite along
+the epoch axis), :func:`receiver_antenna_range_m` /
+:func:`iono_free_antenna_range_m` (receiver PCO + PCV along the line of sight,
+ANTEX), :func:`satellite_antenna_pcv_m` / :func:`iono_free_satellite_pcv_m`
+(nadir-dependent satellite PCV), :func:`iono_free_offset_m`,
+:func:`antex_frequency_hz`.
 """
 
 from __future__ import annotations
@@ -659,3 +668,56 @@ def iono_free_satellite_pcv_m(block: dict, freq1: str, freq2: str, nadir_rad):
     """Iono-free combination of two frequencies' satellite PCV (m)."""
     a1, a2 = iono_free_coefficients(antex_frequency_hz(freq1), antex_frequency_hz(freq2))
     return a1 * satellite_antenna_pcv_m(block, freq1, nadir_rad) + a2 * satellite_antenna_pcv_m(block, freq2, nadir_rad)
+
+
+# ------------------------------------------------------------------ phase wind-up (Wu et al. 1993)
+
+def phase_windup_cycles(sat_ecef_m, rx_ecef_m, sun_ecef_m, *, axis=0):
+    """Carrier phase wind-up (cycles) of a right-hand circularly polarised signal, Wu et al. (1993).
+
+    Satellite dipole axes from the nominal yaw-steering body frame
+    (:func:`ctt.orbits.body_frame`: x toward the Sun side, y along the
+    solar-panel axis), receiver dipoles north (x) and east... following Wu
+    et al. (1993, Manuscripta Geodaetica 18) as written in Kouba (2009, "A
+    guide to using IGS products", §2.3; from memory)::
+
+        k  = unit vector satellite -> receiver
+        D' = x_s − k (k·x_s) − k × y_s          (satellite effective dipole)
+        D  = x_r − k (k·x_r) + k × y_r          (receiver, x_r north, y_r west)
+        Δφ = sign(k · (D' × D)) · arccos(D'·D / (|D'||D|)) / 2π
+
+    The value is defined modulo one cycle; over a continuous arc the wind-up
+    is continuous, so inputs shaped (epoch, satellite, 3) are unwrapped along
+    ``axis`` (the epochs) with :func:`numpy.unwrap` (period 1): the result is
+    continuous per satellite, starting in (−0.5, 0.5]. The sign makes the
+    correction to *subtract* from the measured phase in cycles (common
+    practice). Receiver antenna pointed north (no azimuth rotation).
+    Vectorised; no loop over observations.
+    """
+    from .geodesy import ecef_to_geodetic, enu_matrix
+    from .orbits import body_frame
+
+    s = np.asarray(sat_ecef_m, dtype=float)
+    r = np.broadcast_to(np.asarray(rx_ecef_m, dtype=float), s.shape)
+    sun = np.broadcast_to(np.asarray(sun_ecef_m, dtype=float), s.shape)
+    xs, ys, _ = body_frame(s, sun)
+    k = r - s
+    k = k / np.linalg.norm(k, axis=-1, keepdims=True)
+    lat, lon, _ = ecef_to_geodetic(r.reshape(-1, 3)[0])
+    rot = enu_matrix(float(lat), float(lon))          # rows: east, north, up in ECEF
+    east, north = rot[0], rot[1]
+    xr = np.broadcast_to(north, s.shape)
+    yr = np.broadcast_to(-east, s.shape)              # west: x north, y west, z up (right-handed)
+
+    def dot(a, b):
+        return np.einsum("...i,...i->...", a, b)[..., None]
+
+    d_sat = xs - k * dot(k, xs) - np.cross(k, ys)
+    d_rx = xr - k * dot(k, xr) + np.cross(k, yr)
+    cosang = dot(d_sat, d_rx)[..., 0] / (np.linalg.norm(d_sat, axis=-1) * np.linalg.norm(d_rx, axis=-1))
+    sign = np.sign(dot(k, np.cross(d_sat, d_rx))[..., 0])
+    sign = np.where(sign == 0, 1.0, sign)
+    frac = sign * np.arccos(np.clip(cosang, -1.0, 1.0)) / (2.0 * np.pi)
+    if frac.ndim >= 1 and frac.shape[axis] > 1:
+        frac = np.unwrap(frac, period=1.0, axis=axis)
+    return frac

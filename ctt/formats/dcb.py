@@ -94,6 +94,8 @@ def read_dcb(path) -> BiasSet:
             value = float(line[26:35])
             rms_txt = line[38:47].strip()
             rms = float(rms_txt) if rms_txt else np.nan
+            if not np.isfinite(value) or abs(value) > 1e6:
+                raise ValueError
         except ValueError:
             raise ProductFormatError(path, lineno, "a record: id in columns 1-3, station 7-22, value (ns) "
                                      "27-35 and RMS (ns) 39-47", line) from None

@@ -150,6 +150,8 @@ def read_sinex_stations(path) -> SinexStations:  # noqa: C901 - one pass over fo
                 val = float(ln[47:68])
                 sig_t = ln[69:80].strip()
                 sig = float(sig_t) if sig_t else np.nan
+                if not np.isfinite(val):
+                    raise ValueError
             except ValueError:
                 raise ProductFormatError(path, no, "the estimate in columns 48-68 and its standard deviation "
                                          "in 70-80", ln) from None
