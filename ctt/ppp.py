@@ -85,17 +85,14 @@ import pandas as pd
 import scipy.linalg
 import scipy.sparse as sp
 
-from . import atmosphere, geodesy, measure
+from . import atmosphere, geodesy, measure, signals
 from . import timescales as ts
 from .errors import NoDataError
+from .orbits import in_earth_shadow, sun_position_ecef
 
 log = logging.getLogger(__name__)
 
 C_MPS = measure.C_MPS
-#: Geocentric gravitational constant (IERS Conventions 2010, Table 1.1).
-GM_EARTH = 3.986004418e14
-#: Equatorial radius used for the cylindrical Earth shadow (WGS 84).
-R_EARTH_M = 6378137.0
 NS = 1_000_000_000
 
 #: Codes tried, in order, for the signals the precise clocks refer to: GPS P1/P2 (C1W/C2W),
@@ -167,46 +164,6 @@ class PPPResult:
 
 
 # ------------------------------------------------------------------ model terms
-
-def shapiro_m(sat_ecef_m, rx_ecef_m):
-    """Gravitational (Shapiro) delay of the signal path, metres (IERS Conventions 2010, eq. 11.17)."""
-    rs = np.linalg.norm(sat_ecef_m, axis=-1)
-    rr = np.linalg.norm(np.broadcast_to(rx_ecef_m, np.shape(sat_ecef_m)), axis=-1)
-    rho = np.linalg.norm(sat_ecef_m - rx_ecef_m, axis=-1)
-    return 2.0 * GM_EARTH / C_MPS**2 * np.log((rs + rr + rho) / (rs + rr - rho))
-
-
-def in_earth_shadow(sat_ecef_m, sun_ecef_m):
-    """True where the satellite is inside the Earth's cylindrical shadow (Kouba 2009)."""
-    s = sun_ecef_m / np.linalg.norm(sun_ecef_m, axis=-1, keepdims=True)
-    along = np.einsum("ij,ij->i", sat_ecef_m, s)
-    perp = np.linalg.norm(sat_ecef_m - along[:, None] * s, axis=-1)
-    return (along < 0) & (perp < R_EARTH_M)
-
-
-def windup_cycles(los, sat_ecef_m, sun_ecef_m, lat_rad, lon_rad):
-    """Carrier phase wind-up (cycles, within ±0.5; unwrap along each arc), Wu et al. (1993).
-
-    Satellite dipole ``D' = x' − k(k·x') − k × y'`` from the nominal yaw-steering body axes
-    (:func:`ctt.orbits.body_frame`), receiver dipole ``D = x − k(k·x) + k × y`` with x north
-    and y west, k the unit vector from the satellite to the receiver (``−los``);
-    ``Δφ = sign(k·(D' × D)) · arccos(D'·D / |D'||D|) / 2π``.
-    """
-    from .orbits import body_frame
-
-    k = -np.asarray(los, dtype=float)
-    xs, ys, _ = body_frame(sat_ecef_m, sun_ecef_m)
-    enu = geodesy.enu_matrix(lat_rad, lon_rad)          # rows: east, north, up (ECEF)
-    east, north = np.asarray(enu[0]), np.asarray(enu[1])
-    xr = np.broadcast_to(north, k.shape)
-    yr = np.broadcast_to(-east, k.shape)
-    ds = xs - k * np.einsum("ij,ij->i", k, xs)[:, None] - np.cross(k, ys)
-    dr = xr - k * np.einsum("ij,ij->i", k, xr)[:, None] + np.cross(k, yr)
-    cosp = np.einsum("ij,ij->i", ds, dr) / (np.linalg.norm(ds, axis=1) * np.linalg.norm(dr, axis=1))
-    phi = np.arccos(np.clip(cosp, -1.0, 1.0)) / (2.0 * np.pi)
-    sign = np.sign(np.einsum("ij,ij->i", k, np.cross(ds, dr)))
-    return np.where(sign < 0, -phi, phi)
-
 
 def _unwrap_columns(grid_cycles):
     """Unwrap each column of a (n_ep, n_sat) grid in cycles, over its finite values."""
@@ -546,7 +503,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     # --- model terms (each its own column)
     sat_clock_m = st.clock_s * C_MPS
     relativity_m = st.relativity_s * C_MPS
-    shap = shapiro_m(geo.sat_rotated_m, rx0) if opt.shapiro else np.zeros(len(ie))
+    shap = measure.shapiro_delay_m(geo.sat_rotated_m, rx0) if opt.shapiro else np.zeros(len(ie))
     doy = ts.day_of_year(t_rx)
     if met is not None:
         p_ep, t_ep, rh_ep, n_std = measure._met_at_epochs(met, t_tag, h)
@@ -566,14 +523,14 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     else:
         tide_m = np.zeros(len(ie))
     ant_m, sat_pcv_m, ant_notes = _antenna_terms(antex, station, sats, el, az, geo.sat_rotated_m, rx0, t_rx)
-    from .orbits import sun_position_ecef
-
     sun = sun_position_ecef(t_rx)
     if opt.windup:
         wu = np.full((n_ep, len(sats_all)), np.nan)
         okpos = np.isfinite(geo.sat_rotated_m).all(axis=1)
         vals = np.full(len(ie), np.nan)
-        vals[okpos] = windup_cycles(geo.los[okpos], geo.sat_rotated_m[okpos], sun[okpos], lat, lon)
+        # rows as one 'epoch' (leading axis of length 1): no unwrapping across satellites here;
+        # each satellite's arc is unwrapped below over its finite values
+        vals[okpos] = signals.phase_windup_cycles(geo.sat_rotated_m[okpos][None], rx0, sun[okpos][None])[0]
         wu[ie, js] = vals
         wu = _unwrap_columns(wu)
         windup_m = wu[ie, js] * (C_MPS / (f1[js] + f2[js]))
@@ -586,7 +543,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     # --- eclipse: in the shadow and eclipse_margin_s after
     okpos = np.isfinite(geo.sat_rotated_m).all(axis=1)
     shadow = np.zeros(len(ie), dtype=bool)
-    shadow[okpos] = in_earth_shadow(geo.sat_rotated_m[okpos], sun[okpos])
+    shadow[okpos] = in_earth_shadow(geo.sat_rotated_m[okpos], sun[okpos])  # ctt.orbits
     sgrid = np.full((n_ep, len(sats_all)), np.iinfo(np.int64).min // 2, dtype=np.int64)
     sgrid[ie[shadow], js[shadow]] = t_rx[shadow]
     last_shadow = np.maximum.accumulate(sgrid, axis=0)[ie, js]

@@ -6,10 +6,8 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from ctt import geodesy
 from ctt.cli import main
-from ctt.ppp import (C_MPS, PPPOptions, _Design, detect_clock_jumps, detect_slips, shapiro_m,
-                     windup_cycles)
+from ctt.ppp import C_MPS, PPPOptions, _Design, detect_clock_jumps, detect_slips
 
 F1, F2 = 1575.42e6, 1227.60e6          # GPS L1, L2 (IS-GPS-200)
 LAM1, LAM2 = C_MPS / F1, C_MPS / F2
@@ -95,32 +93,7 @@ def test_millisecond_clock_jumps():
     assert np.allclose((lmp2 + corr[:, None])[-1], lmp[-1])
 
 
-def test_shapiro_delay_size():
-    # GPS satellite at the zenith and near the horizon: about 1.3 cm and 1.9 cm
-    # (2GM/c² ln((r_s + r_r + ρ)/(r_s + r_r − ρ)), IERS Conventions 2010 eq. 11.17; sizes from memory)
-    rx = np.array([[6371e3, 0.0, 0.0]])
-    zen = np.array([[26560e3, 0.0, 0.0]])
-    hor = np.array([[6371e3, np.sqrt(26560e3**2 - 6371e3**2), 0.0]])
-    assert 0.012 < shapiro_m(zen, rx)[0] < 0.014
-    assert 0.018 < shapiro_m(hor, rx)[0] < 0.020
-
-
-def test_windup_follows_a_rotation_about_the_line_of_sight():
-    # A satellite straight overhead whose yaw turns by α about the line of sight changes the
-    # wind-up by α/2π cycles (Wu et al. 1993: the phase of a circularly polarised wave
-    # follows the relative rotation of the antennas).
-    lat, lon = np.radians(45.0), np.radians(10.0)
-    rx = geodesy.geodetic_to_ecef(lat, lon, 0.0)
-    up = np.asarray(geodesy.enu_matrix(lat, lon))[2]
-    sat = np.asarray(rx) + up * 20_200e3
-    los = up[None, :]
-    east = np.asarray(geodesy.enu_matrix(lat, lon))[0]
-    north = np.asarray(geodesy.enu_matrix(lat, lon))[1]
-    out = []
-    for a in np.radians([10.0, 40.0]):
-        sun = sat + 1.5e11 * (np.cos(a) * east + np.sin(a) * north) + 1e10 * up
-        out.append(windup_cycles(los, sat[None, :], sun[None, :], lat, lon)[0])
-    assert abs(abs(out[1] - out[0]) - 30.0 / 360.0) < 1e-3
+# Shapiro delay and phase wind-up: tests/test_against_iers_phase_terms.py (ctt.measure, ctt.signals).
 
 
 def test_command_bad_input_exit_codes(tmp_path):
