@@ -525,6 +525,11 @@ class Archive:
         return pd.DataFrame([json.loads(r[0]) for r in rows])
 
     @_guarded
+    def pairs(self) -> list[str]:
+        """Names of the pairs with days in the archive, sorted."""
+        return [r[0] for r in self._con.execute("SELECT DISTINCT pair FROM days ORDER BY pair").fetchall()]
+
+    @_guarded
     def days_done(self, pair: str) -> dict:
         """{date: (inputs_hash, config_hash)} of days holding good, non-stale results (for backfill)."""
         rows = self._con.execute(

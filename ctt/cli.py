@@ -52,6 +52,12 @@ def build_parser() -> argparse.ArgumentParser:
         register = getattr(module, "register", None)
         if register is not None:
             register(sub)
+    # -q / --debug are accepted after the sub-command too ("ctt daily -q ..."); SUPPRESS keeps
+    # the value given before the sub-command when they are not repeated after it
+    for sp in sub.choices.values():
+        sp.add_argument("--debug", action="store_true", default=argparse.SUPPRESS, help="show tracebacks and debug logs")
+        sp.add_argument("-q", "--quiet", action="store_true", default=argparse.SUPPRESS,
+                        help="only warnings and errors on stderr")
     return parser
 
 

@@ -4,10 +4,19 @@ Offset tables
 =============
 
 :func:`write_offsets` writes the columns ``time_utc`` (ISO 8601 with ``Z``; 9
-fractional digits only when some instant has a sub-second part), ``mjd_utc``,
-``offset_ns`` (clock A minus clock B), ``u_ns``, ``n_sat``, ``flag`` (and
-``system`` when the table has it). The CSV reads with ``pandas.read_csv(path)``
-and no options; floats are written with their shortest round-trip text.
+fractional digits only when some instant has a sub-second part), ``time_utc_ns``
+(integer ns since 1980-01-06T00:00:00 counted on UTC), ``mjd_utc``, ``offset_ns``
+(clock A minus clock B), ``u_ns``, ``n_sat``, ``flag`` (and ``system`` when the
+table has it), the values rounded as in ``offset.csv`` and the archive
+(:data:`ctt.commonview.OFFSET_DECIMALS`: 0.001 ns). With ``metadata`` (the pair,
+the sign convention, units, time scale: :func:`offsets_metadata`) every format
+carries it:
+
+* CSV: a block of ``# key: value`` comment lines before the header, which
+  ``pandas.read_csv(path, comment="#")`` skips;
+* JSON: one object ``{"metadata": {...}, "rows": [{...}, ...]}``;
+* Parquet: the schema's key-value metadata, key ``ctt`` (JSON text;
+  ``pyarrow.parquet.read_schema(path).metadata[b"ctt"]``).
 
 The exchange format (CGGTTS 2E) is read and written by :mod:`ctt.formats.cggtts`;
 the conversions between a station's measurement table and track rows live here.
@@ -69,7 +78,7 @@ from .errors import FileFormatError, NoDataError, ProcessingError, UsageError
 from .formats.cggtts import TRACK_COLUMNS, CggttsHeader
 from .timescales import EPOCH_MJD, NS_PER_DAY, parse_iso_array, to_iso, to_mjd_float
 
-__all__ = ["write_offsets", "read_offsets_csv", "read_events", "parse_iso_exact", "parse_mjd_exact", "correct_events",
+__all__ = ["write_offsets", "offsets_metadata", "read_offsets_csv", "read_events", "parse_iso_exact", "parse_mjd_exact", "correct_events",
            "tdev_from_series", "OUT_FORMATS"]
 
 OUT_FORMATS = ("csv", "parquet", "json")
@@ -91,6 +100,7 @@ def _offsets_frame(df: pd.DataFrame) -> pd.DataFrame:
     else:
         raise ProcessingError("offsets table needs a time_utc or time_utc_ns column")
     out = pd.DataFrame({"time_utc": _time_text(np.asarray(t, dtype=np.int64))})
+    out["time_utc_ns"] = np.asarray(t, dtype=np.int64)
     out["mjd_utc"] = df["mjd_utc"].to_numpy(float) if "mjd_utc" in df.columns else to_mjd_float(t)
     for c in ("offset_ns", "u_ns"):
         out[c] = df[c].to_numpy(float) if c in df.columns else np.nan
@@ -101,17 +111,50 @@ def _offsets_frame(df: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def write_offsets(df: pd.DataFrame, path_or_stdout=None, format: str = "csv") -> None:
-    """Write an offsets table as csv, parquet or json (records) to a path, a file object or stdout.
+def offsets_metadata(pair: str, station_a: str, station_b: str, **extra) -> dict:
+    """What an exported offset table says about itself (see the module docstring)."""
+    from . import __version__
+    from .commonview import OFFSET_DECIMALS
+
+    meta = {
+        "pair": pair, "station_a": station_a, "station_b": station_b,
+        "sign": f"offset_ns = clock A - clock B = clock {station_a} - clock {station_b}",
+        "units": {"offset_ns": "ns", "u_ns": "ns, standard uncertainty (1 sigma) of the point",
+                  "mjd_utc": "days (MJD, UTC)", "time_utc_ns": "ns"},
+        "time_scale": ("UTC. time_utc: ISO 8601 with Z; time_utc_ns: integer ns since "
+                       "1980-01-06T00:00:00 counted on UTC; mjd_utc: Modified Julian Date on UTC"),
+        "rounding": {c: f"{10.0 ** -n:g} ns" for c, n in OFFSET_DECIMALS.items() if c in ("offset_ns", "u_ns")},
+        "flag": "use rows with flag == ok; other rows are kept with the reason",
+        "software": f"ctt {__version__}",
+    }
+    meta.update({k: v for k, v in extra.items() if v is not None})
+    return meta
+
+
+def write_offsets(df: pd.DataFrame, path_or_stdout=None, format: str = "csv", metadata: dict | None = None) -> None:
+    """Write an offsets table as csv, parquet or json to a path, a file object or stdout.
 
     ``path_or_stdout`` None or '-' means stdout (parquet then goes to the binary stdout).
+    ``metadata`` (e.g. :func:`offsets_metadata`) goes into the file as the module
+    docstring says; JSON is then an object with ``metadata`` and ``rows``, else a bare
+    array of rows.
     """
     if format not in OUT_FORMATS:
         raise UsageError(f"unknown format {format!r}; expected one of {', '.join(OUT_FORMATS)}")
-    out = _offsets_frame(df)
+    from .commonview import OFFSET_DECIMALS, round_offsets
+
+    out = round_offsets(_offsets_frame(df))
     to_stdout = path_or_stdout is None or str(path_or_stdout) == "-"
     if format == "csv":
-        text = out.to_csv(index=False, lineterminator="\n", float_format=None)
+        head = ""
+        if metadata:
+            head = "".join(f"# {k}: {json.dumps(v) if isinstance(v, (dict, list)) else v}\n"
+                           for k, v in metadata.items())
+        csv_out = out.copy()
+        for c, n in OFFSET_DECIMALS.items():  # the same text as offset.csv
+            if c in csv_out.columns:
+                csv_out[c] = csv_out[c].map(lambda v, n=n: f"{v:.{n}f}" if np.isfinite(v) else "")
+        text = head + csv_out.to_csv(index=False, lineterminator="\n", float_format=None)
         _emit(text.encode(), path_or_stdout, to_stdout)
     elif format == "json":
         # built by hand: pandas' to_json caps float precision; json.dumps keeps repr (round-trip)
@@ -127,11 +170,19 @@ def write_offsets(df: pd.DataFrame, path_or_stdout=None, format: str = "csv") ->
                     v = None
                 r[k] = v
             recs.append(r)
-        text = json.dumps(recs, separators=(",", ":")) + "\n"
+        doc = {"metadata": metadata, "rows": recs} if metadata else recs
+        text = json.dumps(doc, separators=(",", ":")) + "\n"
         _emit(text.encode(), path_or_stdout, to_stdout)
     else:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        table = pa.Table.from_pandas(out, preserve_index=False)
+        if metadata:
+            table = table.replace_schema_metadata({**(table.schema.metadata or {}),
+                                                   b"ctt": json.dumps(metadata).encode()})
         buf = io.BytesIO()
-        out.to_parquet(buf, index=False)
+        pq.write_table(table, buf)
         _emit(buf.getvalue(), path_or_stdout, to_stdout)
 
 

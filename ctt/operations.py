@@ -183,7 +183,9 @@ def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
     if outcome.status == "ok":
         sat = outcome.satellites
         if sat is not None and "time" in sat.columns and "time_utc_ns" not in sat.columns:
-            sat = sat.assign(time_utc_ns=ts.convert(sat["time"].to_numpy(np.int64), "GPS", "UTC"))
+            # named by scale, as satellites.csv: time_gps_ns and time_utc_ns (ns since 1980-01-06)
+            sat = sat.rename(columns={"time": "time_gps_ns"})
+            sat = sat.assign(time_utc_ns=ts.convert(sat["time_gps_ns"].to_numpy(np.int64), "GPS", "UTC"))
         # the day's warnings and flags (inputs forced, coordinates off) stay with its results
         info["messages"] = [*(outcome.summary or {}).get("warnings", []),
                             *(f"DAY FLAGGED: {f}" for f in (outcome.summary or {}).get("day_flags", []))]
@@ -260,7 +262,8 @@ def rebuild_archive(pc, archive) -> tuple[list[str], list[str]]:
     return stored, problems
 
 
-def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, satellites=None):
+def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, satellites=None,
+                   figures_dir=None):
     """Rebuild the pair's HTML report from the last ``days`` days of the archive.
 
     ``summary`` (the latest day's summary.json) and ``satellites`` (its
@@ -283,7 +286,7 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
     try:
         build_report(off, satellites, summary, changes, out_html=pc.report_path, time_from_ns=t_from,
                      title=f"{pc.name}: clock {pc.station_a.id} - clock {pc.station_b.id}",
-                     source=str(archive.path))
+                     source=str(archive.path), figures_dir=figures_dir)
     except CttError as exc:
         log.warning("report not refreshed: %s", exc)
         return None

@@ -811,15 +811,23 @@ OFFSET_CSV_COLUMNS = ["time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag
 
 
 def offset_table(offset: pd.DataFrame) -> pd.DataFrame:
-    """The offset series in the column order of ``offset.csv``."""
-    out = offset.copy()
+    """The offset series in the column order of ``offset.csv``, values rounded as in every
+    output (:data:`ctt.commonview.OFFSET_DECIMALS`); the integer instant is ``time_gps_ns``."""
+    out = commonview.round_offsets(offset)
     out["time_gps_ns"] = out["time"].astype(np.int64)
     cols = [c for c in OFFSET_CSV_COLUMNS if c in out.columns]
     return out[cols]
 
 
+def with_named_times(df: pd.DataFrame) -> pd.DataFrame:
+    """A table for a file: its integer GPS-time column ``time`` renamed ``time_gps_ns`` (no
+    column in a written file is called just ``time``; ns since 1980-01-06 on GPS time)."""
+    return df.rename(columns={"time": "time_gps_ns"}) if "time" in df.columns else df
+
+
 def _csv(df: pd.DataFrame, rounded: bool = False):
-    """Writer of a table as CSV: 4 decimals (0.1 ps) for values, MJD with 10 (~10 µs).
+    """Writer of a table as CSV: 4 decimals (0.1 ps) for values, MJD with 10 (~10 µs), the
+    offset series' values with :data:`ctt.commonview.OFFSET_DECIMALS`.
 
     ``rounded``: values rounded to 4 decimals and written in their shortest form (no
     trailing zeros) by pandas' C writer, ~20 times faster than a format string for large
@@ -829,6 +837,9 @@ def _csv(df: pd.DataFrame, rounded: bool = False):
         for c in d.columns:
             if c.startswith("mjd"):
                 d[c] = d[c].map(lambda v: f"{v:.10f}" if np.isfinite(v) else "")
+            elif c in commonview.OFFSET_DECIMALS and d[c].dtype.kind == "f":
+                n = commonview.OFFSET_DECIMALS[c]
+                d[c] = d[c].map(lambda v: f"{v:.{n}f}" if np.isfinite(v) else "")
             elif rounded and d[c].dtype.kind == "f":
                 d[c] = d[c].round(4)
         if rounded:
@@ -895,9 +906,9 @@ def write_pair_outputs(result: PairResult, out_dir) -> dict:
         p = out / "offset_by_system.csv"
         _atomic_write(p, _csv(offset_table(result.offset_by_system)))
         paths["offset_by_system"] = p
-    sat = result.satellites.copy()
-    if "time" in sat.columns:
-        sat.insert(0, "time_utc", ts.to_iso(ts.convert(sat["time"].to_numpy(np.int64), "GPS", "UTC")))
+    sat = with_named_times(result.satellites)
+    if "time_gps_ns" in sat.columns:
+        sat.insert(0, "time_utc", ts.to_iso(ts.convert(sat["time_gps_ns"].to_numpy(np.int64), "GPS", "UTC")))
     p = out / "satellites.csv"
     _atomic_write(p, _csv(sat))
     paths["satellites"] = p

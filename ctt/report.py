@@ -336,13 +336,15 @@ def _img(path):
 def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = None,
                  summary: dict | None = None, changes: list | None = None, out_html="report.html",
                  time_from_ns: int | None = None, time_to_ns: int | None = None,
-                 title: str | None = None, column: str = "offset_ns", source: str = "<table>") -> dict:
+                 title: str | None = None, column: str = "offset_ns", source: str = "<table>",
+                 figures_dir=None) -> dict:
     """Write ``out_html`` and its ``.json`` twin for one offset series; return the JSON dict.
 
     ``offset_df`` has the offset.csv columns (``time_utc`` or ``time_utc_ns`` or
     ``mjd_utc``, ``offset_ns``, optionally ``u_ns``, ``n_sat``, ``flag``);
     ``satellites_df`` the satellites.csv columns; ``summary`` the summary.json
     dict(s); ``changes`` the hardware log ``[{"time_utc_ns", "what", "expected_ns"}]``.
+    ``figures_dir``: also write every figure there as a PNG file (the HTML embeds them).
     """
     out_html = pathlib.Path(out_html)
     series = series_from_frame(offset_df, column=column, path=source)
@@ -441,6 +443,15 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
                                f"({e.get('what')}). The step at the change comes from phase-and-frequency lines "
                                "fitted to each side; the mean change also contains the frequency offset "
                                "times the distance between the period centres."))
+        if figures_dir is not None:
+            import shutil
+
+            fd = pathlib.Path(figures_dir)
+            fd.mkdir(parents=True, exist_ok=True)
+            report["figures"] = []
+            for png, _cap in figs:
+                shutil.copyfile(png, fd / pathlib.Path(png).name)
+                report["figures"].append(str(fd / pathlib.Path(png).name))
         body_figs = "\n".join(
             f'<figure><img alt="{_e(cap)}" src="{_img(png)}"><figcaption>{_e(cap)}</figcaption></figure>'
             for png, cap in figs)

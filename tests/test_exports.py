@@ -29,22 +29,49 @@ def offsets(n=10, step_s=30, slope_ns_per_s=0.01, start=T0):
 @pytest.mark.parametrize("fmt", ["csv", "parquet", "json"])
 def test_write_offsets_round_trip(tmp_path, fmt):
     df = offsets()
-    df.loc[3, "offset_ns"] = 1 / 3          # needs all 17 significant digits
+    df.loc[3, "offset_ns"] = 1 / 3          # rounded to 0.001 ns, as offset.csv and the archive
     df.loc[4, "u_ns"] = np.nan
     p = tmp_path / f"o.{fmt}"
     X.write_offsets(df, p, format=fmt)
     if fmt == "csv":
-        back = pd.read_csv(p)                # no options (the documented promise)
+        back = pd.read_csv(p)                # no options without metadata (the documented promise)
     elif fmt == "parquet":
         back = pd.read_parquet(p)
     else:
         back = pd.DataFrame(json.loads(p.read_text()))
-    assert list(back.columns) == ["time_utc", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag"]
+    assert list(back.columns) == ["time_utc", "time_utc_ns", "mjd_utc", "offset_ns", "u_ns", "n_sat", "flag"]
     assert back["time_utc"].iloc[1] == "2021-01-01T00:00:30Z"
-    np.testing.assert_array_equal(back["offset_ns"].to_numpy(float), df["offset_ns"].to_numpy())
+    np.testing.assert_array_equal(back["time_utc_ns"].to_numpy(np.int64), df["time_utc_ns"].to_numpy())
+    np.testing.assert_array_equal(back["offset_ns"].to_numpy(float), np.round(df["offset_ns"].to_numpy(), 3))
+    assert back["offset_ns"].iloc[3] == 0.333
     assert np.isnan(back["u_ns"].iloc[4])
     assert back["mjd_utc"].iloc[0] == 59215.0   # MJD of 2021-01-01 (common practice)
     assert (back["flag"] == "ok").all() and (back["n_sat"] == 7).all()
+
+
+@pytest.mark.parametrize("fmt", ["csv", "parquet", "json"])
+def test_write_offsets_metadata(tmp_path, fmt):
+    """Each format carries the pair, the sign, units and the time scale (issue 12 item 8)."""
+    df = offsets(n=4)
+    meta = X.offsets_metadata("laba-labb", "LABA", "LABB", date_from="2021-01-01")
+    p = tmp_path / f"o.{fmt}"
+    X.write_offsets(df, p, format=fmt, metadata=meta)
+    if fmt == "csv":
+        head = [ln for ln in p.read_text().splitlines() if ln.startswith("#")]
+        assert "# pair: laba-labb" in head and any("clock LABA - clock LABB" in ln for ln in head)
+        back = pd.read_csv(p, comment="#")   # the documented way to read it
+        got = meta
+    elif fmt == "parquet":
+        import pyarrow.parquet as pq
+
+        got = json.loads(pq.read_schema(p).metadata[b"ctt"])
+        back = pd.read_parquet(p)
+    else:
+        doc = json.loads(p.read_text())
+        got, back = doc["metadata"], pd.DataFrame(doc["rows"])
+    assert got["pair"] == "laba-labb" and got["units"]["offset_ns"] == "ns"
+    assert "1980-01-06" in got["time_scale"] and got["sign"].startswith("offset_ns = clock A - clock B")
+    assert len(back) == 4 and list(back["offset_ns"]) == list(np.round(df["offset_ns"], 3))
 
 
 def test_write_offsets_sub_second_and_stdout(capsysbinary):
@@ -216,7 +243,7 @@ def test_export_command(archived_pair, capsysbinary):
     from ctt.cli import main
     pair = str(archived_pair / "pair.toml")
     assert main(["export", "--config", pair, "--from", "2021-01-02", "--to", "2021-01-02"]) == 0
-    df = pd.read_csv(io.BytesIO(capsysbinary.readouterr().out))
+    df = pd.read_csv(io.BytesIO(capsysbinary.readouterr().out), comment="#")  # the metadata block
     assert len(df) == 2880 and df["time_utc"].iloc[0] == "2021-01-02T00:00:00Z"
     out = archived_pair / "o.parquet"
     assert main(["export", "--config", pair, "--from", "2021-01-01", "--to", "2021-01-02", "--format", "parquet",
@@ -245,8 +272,13 @@ def test_correct_events_command(archived_pair, capsys):
         d.mkdir(parents=True)
         (d / "summary.json").write_text(json.dumps({"budget": {"type_b_ns": ub}}))
     assert main(["correct-events", "--config", str(archived_pair / "pair.toml"), "--events", str(ev),
-                 "--out", str(outp)]) == 0
+                 "--site", "B", "--out", str(outp)]) == 0
     assert pd.read_csv(outp)["u_type_b_ns"].iloc[0] == 4.0
+    # the site is required: a silent default could give the correction the wrong sign
+    with pytest.raises(SystemExit) as e:
+        main(["correct-events", "--config", str(archived_pair / "pair.toml"), "--events", str(ev),
+              "--out", str(outp)])
+    assert e.value.code == 2
 
 
 def test_correct_events_from_run_dir_and_baseline(archived_pair, capsys):

@@ -210,7 +210,7 @@ def test_bad_file_exit_code(capsys):
     assert "bad_value.csv:5" in capsys.readouterr().err
 
 
-def test_report_from_archive(run_dir, tmp_path):
+def test_report_from_archive(run_dir, tmp_path, capsys):
     import ctt.archive as archive
     d, _ = run_dir
     off = pd.read_csv(d / "offset.csv")
@@ -225,7 +225,15 @@ def test_report_from_archive(run_dir, tmp_path):
     r = json.loads(out.with_suffix(".json").read_text())
     assert r["series"]["start"] == "2026-03-02T00:00:00Z" and r["provenance"]["days"] == 2
     assert r["provenance"]["inputs"][0]["sha256"] == "ab" * 32
-    assert main(["report", str(db), "--out", str(out)]) == 2          # --pair missing
+    # one pair in the archive: no --pair needed, the same report; the command says where it wrote
+    capsys.readouterr()
+    assert main(["report", str(db), "--from", "2026-03-02", "--out", str(out)]) == 0
+    assert f"wrote {out} and {out.with_suffix('.json')}" in capsys.readouterr().out
+    assert json.loads(out.with_suffix(".json").read_text())["series"] == r["series"]
+    with archive.Archive(db) as ar:                                   # a second pair: --pair needed
+        ar.store_day("charlie-delta", "2026-03-02", off.iloc[:10], None, {"inputs": {}})
+    assert main(["report", str(db), "--out", str(out)]) == 2
+    assert "alpha-bravo, charlie-delta" in capsys.readouterr().err
 
 
 def test_too_short_duplicate_and_off_grid_series(tmp_path, capsys):

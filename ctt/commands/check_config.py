@@ -3,7 +3,8 @@
 Checks both station files and the pair file (every problem, one line each),
 that the two stations are distinct and their coordinates sane, that the
 input files resolve for the date(s) (default: the latest date for which both
-stations' observation files exist, searched back 400 days from today), that a
+stations' observation files exist: searched back 400 days from today, then
+among the file names under the data root that the obs patterns match), that a
 delay set covers every instant of those dates and has the configured codes.
 Prints ``ok`` lines for what passed and one line per problem; exit code 2 if
 anything is wrong.
@@ -47,18 +48,95 @@ def _dates(args):
 
 
 def latest_available(pair, today=None, days_back: int = 400):
-    """Latest UTC date (not after today) with observation files of both stations, or None."""
+    """Latest UTC date (not after today) with observation files of both stations, or None.
+
+    The last ``days_back`` days are tried first (the operational case); failing that, the
+    dates are read from the file names under the data root that station A's obs patterns
+    match (an archive of old data, or the shipped demo), newest first."""
     today = today or _dt.datetime.now(_dt.timezone.utc).date()
-    for k in range(days_back + 1):
-        d = today - _dt.timedelta(days=k)
+
+    def both(d):
         try:
             a, _ = pair.resolve_one("obs", d, "a")
             b, _ = pair.resolve_one("obs", d, "b")
         except ConfigError:
-            continue
-        if a is not None and b is not None:
+            return False
+        return a is not None and b is not None
+
+    for k in range(days_back + 1):
+        d = today - _dt.timedelta(days=k)
+        if both(d):
+            return d
+    for d in sorted(dates_in_data_root(pair), reverse=True):
+        if d <= today and both(d):
             return d
     return None
+
+
+_FIELD_RE = {"yyyy": r"\d{4}", "yy": r"\d{2}", "mm": r"\d{2}", "dd": r"\d{2}", "doy": r"\d{3}", "ddd": r"\d{3}",
+             "gpsweek": r"\d{3,4}", "gpsdow": r"\d"}
+
+
+def _pattern_regex(pattern: str, station_id: str):
+    """A file-name pattern of the pair file as a regex with named groups for the date fields."""
+    import re
+    import string
+
+    from ..config import pattern_fields
+
+    fixed = pattern_fields(station_id, "2000-01-01")  # the station fields do not depend on the date
+    out, seen = [], set()
+    for literal, name, spec, _conv in string.Formatter().parse(pattern):
+        out.append(re.escape(literal).replace(r"\*", "[^/]*").replace(r"\?", "[^/]"))
+        if name is None:
+            continue
+        base = name.split(".")[0].split("[")[0]
+        if base in _FIELD_RE:
+            if base in seen:
+                out.append(f"(?P={base})")
+            else:
+                seen.add(base)
+                rx = _FIELD_RE[base] if (spec or base not in ("doy", "mm", "dd")) else r"\d{1,3}"
+                out.append(f"(?P<{base}>{rx})")
+        else:
+            out.append(re.escape(format(fixed[base], spec or "")))
+    return re.compile("".join(out))
+
+
+def dates_in_data_root(pair, max_files: int = 200_000) -> set:
+    """UTC dates that file names under the data root give through station A's obs patterns."""
+    from ..timescales import NS_PER_DAY as _DAY
+    from ..timescales import to_iso
+
+    rxs = [_pattern_regex(p, pair.station_a.id) for p in pair.patterns_for("obs", "a")]
+    root = pair.data_root
+    found, n = set(), 0
+    for dirpath, _dirs, files in os.walk(root):
+        for f in files:
+            n += 1
+            if n > max_files:
+                return found
+            rel = os.path.relpath(os.path.join(dirpath, f), root).replace(os.sep, "/")
+            for rx in rxs:
+                m = rx.fullmatch(rel)
+                if m is None:
+                    continue
+                g = m.groupdict()
+                try:
+                    if "gpsweek" in g and "gpsdow" in g:
+                        ns = (int(g["gpsweek"]) * 7 + int(g["gpsdow"])) * _DAY
+                        found.add(_dt.date.fromisoformat(to_iso(ns)[:10]))
+                        break
+                    year = int(g["yyyy"]) if "yyyy" in g else (2000 + int(g["yy"]) if int(g["yy"]) < 80
+                                                               else 1900 + int(g["yy"]))
+                    if "doy" in g or "ddd" in g:
+                        found.add(_dt.date(year, 1, 1) + _dt.timedelta(days=int(g.get("doy") or g["ddd"]) - 1))
+                    else:
+                        found.add(_dt.date(year, int(g["mm"]), int(g["dd"])))
+                    break
+                except (KeyError, ValueError):
+                    continue
+    return found
 
 
 def check(pair_path, dates=None, today=None) -> tuple[list[str], list[str]]:
@@ -77,8 +155,8 @@ def check(pair_path, dates=None, today=None) -> tuple[list[str], list[str]]:
     if dates is None:
         d = latest_available(pair, today)
         if d is None:
-            problems.append(f"{pair.path}: [inputs.obs]: no date in the last 400 days has observation files "
-                            f"of both stations under {pair.data_root}")
+            problems.append(f"{pair.path}: [inputs.obs]: no date has observation files of both stations "
+                            f"under {pair.data_root} (the last 400 days tried, and the file names there)")
             dates = []
         else:
             dates = [d]
@@ -88,6 +166,7 @@ def check(pair_path, dates=None, today=None) -> tuple[list[str], list[str]]:
             got = pair.resolve_inputs(d)
             found = ", ".join(f"{k}={v.name}" for k, v in got.items() if v is not None)
             oks.append(f"ok: {d}: inputs {found}")
+            problems += _headers_match(got, a, b, oks, d)
         except (MissingInputError, ConfigError) as exc:
             problems.append(str(exc))
         t0 = date_to_ns(d)
@@ -112,6 +191,27 @@ def check(pair_path, dates=None, today=None) -> tuple[list[str], list[str]]:
         problems.append(f"{pair.path}: [output.archive]: expected a writable location, found {pair.archive_path} "
                         f"({probe} is not writable)")
     return problems, oks
+
+
+def _headers_match(got, a, b, oks, d) -> list[str]:
+    """The observation files' MARKER NAME and APPROX POSITION against the station files."""
+    from ..config import check_station_data
+    from ..errors import CttError
+    from ..formats.rinex_obs import read_obs_header
+
+    out = []
+    for key, st in (("obs_a", a), ("obs_b", b)):
+        path = got.get(key)
+        if path is None:
+            continue
+        try:
+            h = read_obs_header(path)
+            for w in check_station_data(st, path, h.marker_name, h.approx_position_m):
+                oks.append(f"note: {d}: {w}")
+            oks.append(f"ok: {d}: {path.name} belongs to {st.id} (marker name {h.marker_name.strip()!r})")
+        except CttError as exc:
+            out.append(str(exc))
+    return out
 
 
 def run(args) -> int:

@@ -110,7 +110,12 @@ def run_backfill(args) -> int:
             for d, r in changed.items():
                 print(f"  {d}: {r}")
         if args.check:
-            print(f"{len(todo)} of {len(dates)} day(s) to process")
+            new = [d for d, r in sorted(todo.items()) if r == "not processed yet"]
+            if new:
+                print(f"{len(new)} day(s) not processed yet: {_ranges(new)}")
+            print(f"{len(todo)} of {len(dates)} day(s) to process"
+                  + (f" ({len(dates) - len(todo)} already done with the same inputs and configuration)"
+                     if len(todo) < len(dates) else ""))
             return EXIT_OK
         if not todo:
             print(f"all {len(dates)} day(s) already done with the same inputs and configuration")
@@ -163,6 +168,24 @@ def run_rebuild(args) -> int:
     print(f"{pc.name}: {len(stored)} day(s) stored into {target} from the run folders "
           f"({stored[0]} .. {stored[-1]}); {len(problems)} folder(s) skipped")
     return EXIT_OK
+
+
+def _ranges(dates: list[str]) -> str:
+    """'2021-01-01..2021-01-05, 2021-01-09': consecutive dates as ranges."""
+    import datetime as _dt
+
+    out, start, prev = [], None, None
+    for d in sorted(dates):
+        day = _dt.date.fromisoformat(d)
+        if prev is not None and day - prev == _dt.timedelta(days=1):
+            prev = day
+            continue
+        if start is not None:
+            out.append(str(start) if start == prev else f"{start}..{prev}")
+        start = prev = day
+    if start is not None:
+        out.append(str(start) if start == prev else f"{start}..{prev}")
+    return ", ".join(out)
 
 
 def _outcomes(pair_path, dates, args):

@@ -2,8 +2,11 @@
 
 Reads the archived offsets of the pair (the archive named in the pair file's
 ``[output]`` table) for the dates D1..D2 inclusive and writes them to FILE,
-or to stdout when no file is given. Columns: time_utc, mjd_utc, offset_ns,
-u_ns, n_sat, flag, system. By default only the pair's main series is
+or to stdout when no file is given. Columns: time_utc, time_utc_ns, mjd_utc,
+offset_ns, u_ns, n_sat, flag, system; the pair, the sign convention, units and
+time scale go with the rows (CSV: ``#`` comment lines that ``pandas.read_csv(path,
+comment="#")`` skips; JSON: ``{"metadata": ..., "rows": [...]}``; Parquet: schema
+metadata ``ctt``), see :mod:`ctt.exports`. By default only the pair's main series is
 written, the one ``offset.csv`` holds (the combined 'ALL' series when several
 systems were processed, else the single system); ``--system all`` writes every
 stored series.
@@ -66,9 +69,11 @@ def run(args) -> int:
     if df.empty:
         raise NoDataError(f"{pair.archive_path}: no archived offsets of {pair.name} from {d0} to {d1}"
                           + (f" for system {args.system}" if args.system else ""))
-    from ..exports import write_offsets
+    from ..exports import offsets_metadata, write_offsets
 
-    write_offsets(df, args.out, args.format)
+    meta = offsets_metadata(pair.name, pair.station_a.id, pair.station_b.id, date_from=str(d0), date_to=str(d1),
+                            system=args.system or "main series (as offset.csv)", archive=str(pair.archive_path))
+    write_offsets(df, args.out, args.format, metadata=meta)
     if args.out:
         log.info("wrote %d rows to %s", len(df), args.out)
     return 0

@@ -27,10 +27,13 @@ def run(args) -> int:
     if args.out:
         out = pathlib.Path(args.out)
         out.parent.mkdir(parents=True, exist_ok=True)
+        from ..pipeline import with_named_times
+
+        table = with_named_times(day.table)  # the instant as time_gps_ns (ns since 1980-01-06, GPS time)
         if out.suffix == ".parquet":
-            day.table.to_parquet(out, index=False)
+            table.to_parquet(out, index=False)
         else:
-            day.table.to_csv(out, index=False, float_format="%.4f")
+            table.to_csv(out, index=False, float_format="%.4f")
         log.info("wrote %s (%d rows)", out, len(day.table))
     print("\n".join(day.summary_lines()))
     n_ok = int((day.table["flag"] == "ok").sum()) if len(day.table) else 0

@@ -3,7 +3,7 @@
 DIR is a run folder written by ``ctt pair`` (offset.csv, satellites.csv,
 summary.json) or a folder of such day folders (concatenated; ``--from``/``--to``
 select the range). An archive (SQLite file written by :mod:`ctt.archive`) needs
-``--pair``. The report (inline CSS, figures as embedded PNG, no scripts, no
+``--pair`` only when it holds several pairs. Prints where it wrote. The report (inline CSS, figures as embedded PNG, no scripts, no
 network) and ``report.json`` with the same numbers are written side by side.
 """
 
@@ -26,7 +26,7 @@ def register(subparsers) -> None:
     p.add_argument("--from", dest="time_from", metavar="DATE", help="first date or date-time (UTC)")
     p.add_argument("--to", dest="time_to", metavar="DATE", help="last date (whole day) or date-time (UTC)")
     p.add_argument("--out", required=True, metavar="report.html")
-    p.add_argument("--pair", help="pair name (archive input)")
+    p.add_argument("--pair", help="pair name (archive input; needed only when the archive holds several pairs)")
     p.add_argument("--column", default="offset_ns")
     p.add_argument("--title")
     p.add_argument("--log-a", metavar="STATION.toml", help="station A file whose [[changes]] to match")
@@ -70,10 +70,14 @@ def run(args) -> int:
         raise UsageError(f"--from/--to: {exc}") from None
     log = load_change_log(args.log_a, args.log_b)
     if src.is_file() and _is_sqlite(src):
-        if not args.pair:
-            raise UsageError(f"{src}: an archive needs --pair")
         from ..archive import Archive
         with Archive(src) as ar:
+            if not args.pair:
+                pairs = ar.pairs()
+                if len(pairs) != 1:
+                    raise UsageError(f"{src}: the archive holds {len(pairs)} pairs"
+                                     + (f" ({', '.join(pairs)}); choose one with --pair" if pairs else ""))
+                args.pair = pairs[0]
             off = ar.load_offsets(args.pair, args.time_from[:10] if args.time_from else None,
                                   args.time_to[:10] if args.time_to else None)
             if len(off) == 0:
@@ -81,6 +85,7 @@ def run(args) -> int:
             summary = _archive_provenance(ar.runs(args.pair), set(off["date"]))
         build_report(off, None, summary, log, args.out, lo, hi, args.title or f"Pair {args.pair}",
                      args.column, str(src))
+        _wrote(args.out)
         return 0
     if src.is_file():
         raise UsageError(f"{src}: expected a run folder, a folder of day folders, or a SQLite archive")
@@ -88,4 +93,10 @@ def run(args) -> int:
     off = run_data.offsets
     build_report(off, run_data.satellites, run_data.summary, log, args.out, lo, hi, args.title,
                  args.column, str(src))
+    _wrote(args.out)
     return 0
+
+
+def _wrote(out) -> None:
+    out = pathlib.Path(out)
+    print(f"wrote {out} and {out.with_suffix('.json')}")
