@@ -179,10 +179,11 @@ def test_measure_command_must_show(shared_data, test_data, tmp_path, capsys):
                "--station", str(test_data / "stations" / "zimm.toml"), "--signals", "iono-free", "--out", str(out)])
     assert rc == 0
     t = pd.read_csv(out)
-    for col in ("time", "sat", "system", "signal", "elevation_deg", "azimuth_deg", "clock_ns", "geometry_m",
+    for col in ("time_gps_ns", "sat", "system", "signal", "elevation_deg", "azimuth_deg", "clock_ns", "geometry_m",
                 "sat_clock_ns", "relativity_ns", "group_delay_ns", "sagnac_m", "troposphere_m", "ionosphere_m",
                 "tide_m", "hardware_ns", "residual_ns", "flag"):
         assert col in t.columns
+    assert "time" not in t.columns  # every integer time column names its scale (issue 12)
     ok = (t["flag"] == "ok") & (t["elevation_deg"] > 15)
     assert np.sqrt(np.mean(t.loc[ok, "residual_ns"] ** 2)) * C * 1e-9 <= 1.3  # regression bound, as above
     assert "clock reference: precise" in capsys.readouterr().out

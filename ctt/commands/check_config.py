@@ -206,10 +206,14 @@ def _headers_match(got, a, b, oks, d) -> list[str]:
             continue
         try:
             h = read_obs_header(path)
+        except CttError as exc:  # processing will say it; here it only keeps the names unchecked
+            oks.append(f"note: {d}: {path.name}: header not readable, marker name not checked ({exc})")
+            continue
+        try:
             for w in check_station_data(st, path, h.marker_name, h.approx_position_m):
                 oks.append(f"note: {d}: {w}")
             oks.append(f"ok: {d}: {path.name} belongs to {st.id} (marker name {h.marker_name.strip()!r})")
-        except CttError as exc:
+        except UsageError as exc:
             out.append(str(exc))
     return out
 
