@@ -182,9 +182,10 @@ def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
             "started": outcome.started, "finished": outcome.finished}
     if outcome.status == "ok":
         sat = outcome.satellites
-        if sat is not None and "time" in sat.columns and "time_utc_ns" not in sat.columns:
+        if sat is not None and "time" in sat.columns:
             # named by scale, as satellites.csv: time_gps_ns and time_utc_ns (ns since 1980-01-06)
             sat = sat.rename(columns={"time": "time_gps_ns"})
+        if sat is not None and "time_gps_ns" in sat.columns and "time_utc_ns" not in sat.columns:
             sat = sat.assign(time_utc_ns=ts.convert(sat["time_gps_ns"].to_numpy(np.int64), "GPS", "UTC"))
         # the day's warnings and flags (inputs forced, coordinates off) stay with its results
         info["messages"] = [*(outcome.summary or {}).get("warnings", []),

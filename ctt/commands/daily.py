@@ -86,6 +86,10 @@ def run_daily(args) -> int:
     b = s["budget"]
     print(f"{pc.name} {date}: {s['counts']['points_ok']} points, mean A - B {b['mean_offset_ns']:.3f} ns "
           f"+- {b['total_ns']:.3f} ns; run folder {outcome.out_dir}; archive {pc.archive_path}")
+    for w in s.get("warnings", []):
+        print(f"  warning: {w}")
+    for f in s.get("day_flags", []):
+        print(f"  DAY FLAGGED: {f}")
     return EXIT_OK
 
 
