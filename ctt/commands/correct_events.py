@@ -104,7 +104,10 @@ def _run_dir_config_changed(pair, run_dir: pathlib.Path) -> list[str]:
 
 def _series_warnings(pair, offsets, args, config_changed) -> list[tuple]:
     """(from UTC ns, until UTC ns or None, text) of everything that makes corrections after an instant doubtful."""
+    import numpy as np
+
     from ..operations import hardware_changes
+    from ..timescales import NS_PER_DAY, to_iso
 
     out = []
     if config_changed:
@@ -151,12 +154,14 @@ def _series_warnings(pair, offsets, args, config_changed) -> list[tuple]:
     return sorted(out, key=lambda n: n[0])
 
 
-def _concerned(t_events, note) -> np.ndarray:
+def _concerned(t_events, note):
     t0, t1, _ = note
     return (t_events >= t0) & (True if t1 is None else t_events < t1)
 
 
-def _event_warnings(t_events, notes) -> np.ndarray:
+def _event_warnings(t_events, notes):
+    import numpy as np
+
     w = np.full(len(t_events), "", dtype=object)
     for note in notes:
         text = note[2]
