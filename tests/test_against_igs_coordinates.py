@@ -2,8 +2,7 @@
 
 Sources: the IGS weekly SINEX combination igs11P1657.ssc.gz (GPS week 1657, IGS08; in
 ../shared/data/real-2011-283) for the station coordinates, the RINEX files and orbit
-products of real-2011-283 and real-2016-001 (IGS data, CC BY 4.0). The SINEX lines are
-parsed here (the few STAX/STAY/STAZ records needed) rather than by the project's reader.
+products of real-2011-283 and real-2016-001 (IGS data, CC BY 4.0).
 
 Accuracy expected of a one-day iono-free code solution with these orbits: decimetres
 horizontally and about a metre in height (code multipath, troposphere and the clock are
@@ -14,7 +13,6 @@ up -0.57..+1.29 m against the published coordinates. Bounds: 1.0 m horizontal, 2
 
 from __future__ import annotations
 
-import gzip
 import json
 import pathlib
 
@@ -39,18 +37,11 @@ def _need(*paths):
 
 
 def _sinex_positions(path) -> dict:
-    """{station: ECEF (3,)} from the SOLUTION/ESTIMATE block of a SINEX file (SINEX 2.01 format)."""
-    out: dict = {}
-    inside = False
-    with gzip.open(path, "rt") as f:
-        for line in f:
-            if line.startswith("+SOLUTION/ESTIMATE"):
-                inside = True
-            elif line.startswith("-SOLUTION/ESTIMATE"):
-                break
-            elif inside and line[7:10] == "STA" and line[10] in "XYZ":
-                out.setdefault(line[14:18], {})[line[10]] = float(line[47:68])
-    return {k: np.array([v["X"], v["Y"], v["Z"]]) for k, v in out.items() if len(v) == 3}
+    """{station: ECEF (3,)} of the SOLUTION/ESTIMATE block, read by ctt.formats.sinex (itself
+    checked against the file's text in test_against_igs_sinex.py)."""
+    from ctt.formats.sinex import read_sinex_stations
+
+    return {s.code: s.xyz_m for s in read_sinex_stations(path).sites}
 
 
 def _enu(ref, x):
