@@ -889,7 +889,7 @@ def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = N
 def format_budget(budget: dict) -> str:
     """Plain-text table of an :func:`uncertainty_budget` result (ns, 1-σ)."""
     lines = [f"Uncertainty budget, system {budget['system']}, {budget['n_bins']} bins (ns, 1 sigma)",
-             f"  {'mean offset A - B':<32}{budget['mean_offset_ns']:>12.3f}",
+             f"  {'value A - B':<32}{budget['mean_offset_ns']:>12.3f}",
              f"  {'type A (' + budget['type_a_method'] + ')':<32}{budget['type_a_ns']:>12.3f}"]
     for k, v in budget["items"].items():
         lines.append(f"  {'type B: ' + k:<32}{v:>12.3f}")

@@ -315,18 +315,10 @@ def _day_boundaries(pc, off, t_from) -> list[dict]:
 
 
 def hardware_changes(pc) -> list[dict]:
-    """Both stations' change logs as the expected steps of A − B.
+    """Both stations' change logs as the expected steps of A − B (ctt.pipeline.pair_changes)."""
+    from .pipeline import pair_changes
 
-    A delay that grows by x ns at a station whose file is not yet updated raises
-    that station's raw clock estimate by x: A − B steps by +x for a change at A
-    and by −x for a change at B.
-    """
-    out = []
-    for st, sign in ((pc.station_a, 1.0), (pc.station_b, -1.0)):
-        for c in st.changes:
-            exp = None if c.expected_delay_change_ns is None else sign * c.expected_delay_change_ns
-            out.append({"time_utc_ns": c.time_utc_ns, "what": f"{st.id}: {c.what}", "expected_ns": exp})
-    return sorted(out, key=lambda c: c["time_utc_ns"])
+    return pair_changes(pc.station_a, pc.station_b)
 
 
 def needs_reprocessing(pc, archive, dates) -> dict:

@@ -23,7 +23,11 @@ Output files
     behind each point, with elevations, azimuths, weights and flags.
 ``summary.json``
     inputs (paths and SHA-256), configuration, software version, counts,
-    mean offset and its uncertainty budget, rejected data by reason.
+    ``daily_value`` (the day's clock A − clock B, defined once in
+    :data:`ctt.stability.DAILY_VALUE_DEFINITION`: ``epoch_utc``, ``offset_ns``,
+    ``u_a_ns``, ``u_b_ns``, ``u_ns``, ``definition``) and ``daily_value_detail``
+    (the link-noise model, steps and clock wander behind it), the type B items
+    (``budget``), rejected data by reason.
 
 Mode ``ppp`` (carrier-phase time transfer with precise products)
 ----------------------------------------------------------------
@@ -170,11 +174,8 @@ class PairResult:
         lines = [f"pair {s['pair']} ({s['mode']}, {s['signals']}, {s['reference']} clocks): "
                  f"{int(ok.sum())} of {len(o)} points ok"]
         if ok.any():
-            lines.append(f"  clock A - clock B: mean {self.budget['mean_offset_ns']:.3f} ns, "
-                         f"total uncertainty {self.budget['total_ns']:.3f} ns (1 sigma)")
-            lines.append(f"  point scatter (RMS about the mean): "
-                         f"{np.sqrt(np.mean((o.loc[ok, 'offset_ns'] - o.loc[ok, 'offset_ns'].mean())**2)):.3f} ns, "
-                         f"median u {o.loc[ok, 'u_ns'].median():.3f} ns, "
+            lines.append(format_daily_value(s["daily_value"], s["station_a"], s["station_b"]))
+            lines.append(f"  median point u {o.loc[ok, 'u_ns'].median():.3f} ns, "
                          f"median satellites per point {o.loc[ok, 'n_sat'].median():.0f}")
         for k, v in s["rejected"].items():
             lines.append(f"  rejected {k}: {v}")
@@ -198,6 +199,12 @@ class PairResult:
             lines.append(f"  DAY FLAGGED: {f}")
         lines.append(commonview.format_budget(self.budget))
         return lines
+
+
+def format_daily_value(dv: dict, name_a: str = "A", name_b: str = "B") -> str:
+    """The one printed line of a ``daily_value`` object (the same figures as summary.json)."""
+    return (f"  daily value {name_a} - {name_b} at {dv['epoch_utc']}: {dv['offset_ns']:.3f} ns, "
+            f"u {dv['u_ns']:.3f} ns (type A {dv['u_a_ns']:.3f}, type B {dv['u_b_ns']:.3f}; 1 sigma)")
 
 
 # ------------------------------------------------------------------ inputs
@@ -390,9 +397,15 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
                        .replace("coordinates B", f"coordinates {station_b.id}"): v
                        for k, v in budget["items"].items()}
 
+    daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
+    budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
+              "total_ns": daily["u_ns"], "type_a_method": "time-transfer noise (see daily_value)",
+              "type_a_detail": daily_detail["u_a_parts_ns"]}
     summary = _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference)
     summary["warnings"] = list(input_warnings)
     _coordinate_checks(summary, ((station_a, day_a), (station_b, day_b)))
+    summary["daily_value"] = daily
+    summary["daily_value_detail"] = daily_detail
     return PairResult(offset=offset, offset_by_system=by_sys, satellites=cv.sat_df, summary=summary,
                       station_a=day_a, station_b=day_b, cv=cv, budget=budget)
 
@@ -454,6 +467,33 @@ def _coordinate_checks(summary: dict, stations) -> None:
                        "check the station coordinates")
             log.warning("%s", summary["warnings"][-1])
     summary["coordinates"] = coords
+
+
+def pair_changes(station_a, station_b) -> list[dict]:
+    """Both stations' change logs as the expected steps of A − B (UTC epochs).
+
+    A delay that grows by x ns at a station whose file is not yet updated raises
+    that station's raw clock estimate by x: A − B steps by +x for a change at A
+    and by −x for a change at B.
+    """
+    out = []
+    for st, sign in ((station_a, 1.0), (station_b, -1.0)):
+        for c in getattr(st, "changes", ()) or ():
+            exp = None if c.expected_delay_change_ns is None else sign * c.expected_delay_change_ns
+            out.append({"time_utc_ns": c.time_utc_ns, "what": f"{st.id}: {c.what}", "expected_ns": exp})
+    return sorted(out, key=lambda c: c["time_utc_ns"])
+
+
+def day_value(offset: pd.DataFrame, station_a, station_b, u_b_ns: float) -> tuple[dict, dict]:
+    """The day's ``daily_value`` object (and its detail) from the 'ok' points of the main
+    series, with the stations' logged changes (ctt.stability.daily_value, UTC)."""
+    from . import stability
+
+    ok = offset["flag"] == "ok"
+    t_utc = ts.convert(offset.loc[ok, "time"].to_numpy(np.int64), "GPS", "UTC")
+    return stability.daily_value(t_utc, offset.loc[ok, "offset_ns"].to_numpy(float),
+                                 offset.loc[ok, "u_ns"].to_numpy(float), pair_changes(station_a, station_b),
+                                 u_b_ns=u_b_ns, to_iso=lambda v: str(ts.to_iso(int(v))))
 
 
 def _partner_delay_u(station, tracks: pd.DataFrame) -> float:
@@ -797,8 +837,7 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
                    "differences": int(len(cv.sat_df)),
                    "measurements_a": int(len(day_a.table)) if day_a is not None else 0,
                    "measurements_b": int(len(day_b.table)) if day_b is not None else 0},
-        "mean_offset_ns": budget["mean_offset_ns"],
-        "budget": budget,
+        "budget": {k: budget[k] for k in ("type_b_ns", "items", "system", "n_bins")},
         "isb": cv.isb.to_dict(orient="records") if len(cv.isb) else [],
         "rejected": rejected,
     }

@@ -550,9 +550,12 @@ class DriftFit:
     r1: float
     residual_ns: np.ndarray
     model_ns: np.ndarray
+    fixed_steps: int = 0   #: the last ``fixed_steps`` entries of steps_ns were estimated locally, not fitted
 
     def as_dict(self):
-        return {
+        return {"fixed_steps": self.fixed_steps,
+                "steps_note": ("steps: the one local estimate of each phase step (ctt.stability."
+                               "estimate_step), held fixed in this fit") if self.fixed_steps else "",
             "offset_ns": self.offset_ns.as_dict(), "frequency": self.frequency.as_dict(),
             "drift_per_day": self.drift_per_day.as_dict(),
             "steps_ns": [p.as_dict() for p in self.steps_ns],
@@ -562,15 +565,25 @@ class DriftFit:
         }
 
 
-def fit_drift(time_ns, offset_ns, u_ns=None, step_epochs_ns=(), quadratic: bool = True) -> DriftFit:
+def fit_drift(time_ns, offset_ns, u_ns=None, step_epochs_ns=(), quadratic: bool = True,
+              fixed_steps=()) -> DriftFit:
     """Weighted least-squares fit of phase + frequency (+ drift) (+ steps at known epochs).
 
     NaN samples are ignored. ``u_ns`` (standard uncertainties) give weights
     1/u²; without them all weights are equal and the scale comes from the
-    residuals alone.
+    residuals alone. ``fixed_steps`` are ``(epoch_ns, Param)`` steps already
+    estimated elsewhere (:func:`estimate_step`, the one estimate of each
+    change): they are subtracted before the fit, put back into the model, and
+    listed after the fitted steps in ``steps_ns`` with their own u
+    (``fixed_steps`` in the result counts them).
     """
     t = np.asarray(time_ns, dtype=np.int64)
     x = np.asarray(offset_ns, dtype=float)
+    fixed = [(int(te), p) for te, p in fixed_steps]
+    fixed_part = np.zeros(len(t))
+    for te, p in fixed:
+        fixed_part += p.value * (t >= te)
+    x = x - fixed_part
     w = np.ones_like(x) if u_ns is None else 1.0 / np.asarray(u_ns, dtype=float) ** 2
     ok = np.isfinite(x) & np.isfinite(w) & (w > 0)
     t_all = t
@@ -610,7 +623,7 @@ def fit_drift(time_ns, offset_ns, u_ns=None, step_epochs_ns=(), quadratic: bool 
     sd = np.sqrt(np.diag(cov))
     res_all = np.full(len(t_all), np.nan)
     res_all[ok] = res
-    mod_all = design(t_all) @ coef
+    mod_all = design(t_all) @ coef + fixed_part
 
     def p(i, scale=1.0):
         return Param(coef[i] * scale, sd[i] * abs(scale), sd[i] * abs(scale) * infl)
@@ -619,8 +632,8 @@ def fit_drift(time_ns, offset_ns, u_ns=None, step_epochs_ns=(), quadratic: bool 
     freq = p(1, 1e-9)                                 # ns/s -> dimensionless
     drift = p(2, 1e-9 * 86400.0) if quadratic else Param(0.0, 0.0, 0.0)
     k0 = 2 + int(quadratic)
-    return DriftFit(t_ref, off, freq, drift, [p(k0 + i) for i in range(len(steps))], steps,
-                    chi2_red, dof, r1, res_all, mod_all)
+    return DriftFit(t_ref, off, freq, drift, [p(k0 + i) for i in range(len(steps))] + [q for _, q in fixed],
+                    steps + [te for te, _ in fixed], chi2_red, dof, r1, res_all, mod_all, len(fixed))
 
 
 # ------------------------------------------------------------------ change detection
@@ -628,8 +641,15 @@ def fit_drift(time_ns, offset_ns, u_ns=None, step_epochs_ns=(), quadratic: bool 
 @dataclass
 class Change:
     """A detected change: ``kind`` 'phase step' (size in ns) or 'frequency change'
-    (size dimensionless), with its 1σ uncertainty from a local fit either side,
-    and its match in the hardware change log (``expected`` True/False)."""
+    (size dimensionless), with its 1σ uncertainty, and its match in the hardware
+    change log (``expected`` True/False).
+
+    ``time_ns`` is the epoch the size refers to: the logged epoch for a change
+    matched to the log, else the epoch the search gave (``found_time_ns``). The
+    size is the one estimate of :func:`estimate_step` at that epoch (``window_s``
+    each side, ``n_before``/``n_after`` samples). ``agrees_with_log`` says whether
+    a phase step agrees with the log's expected size within 2σ (``z_log`` =
+    (size − expected)/u); None when the log gives no size."""
 
     time_ns: int
     kind: str
@@ -640,6 +660,12 @@ class Change:
     expected_ns: float | None = None
     log_time_ns: int | None = None
     significance: float = 0.0
+    found_time_ns: int | None = None
+    window_s: float | None = None
+    n_before: int = 0
+    n_after: int = 0
+    z_log: float | None = None
+    agrees_with_log: bool | None = None
 
     def as_dict(self, to_iso=None):
         d = asdict(self)
@@ -647,7 +673,9 @@ class Change:
             d["time_utc"] = to_iso(self.time_ns)
             if self.log_time_ns is not None:
                 d["log_time_utc"] = to_iso(self.log_time_ns)
-        for k in ("size", "u_size", "expected_ns", "significance"):
+            if self.found_time_ns is not None:
+                d["found_time_utc"] = to_iso(self.found_time_ns)
+        for k in ("size", "u_size", "expected_ns", "significance", "window_s", "z_log"):
             if d[k] is not None:
                 d[k] = _f(d[k])
         return d
@@ -701,6 +729,114 @@ def _local_fit(ts, x, i_lo, i_b, i_hi):
     infl = (1 + r1) / (1 - r1) if 0 < r1 < 1 else 1.0
     sd = np.sqrt(np.diag(cov) * infl)
     return coef, sd
+
+
+#: Candidate windows (samples each side) of :func:`estimate_step`: about √2 apart.
+STEP_WINDOWS = (4, 5, 6, 8, 11, 16, 22, 32, 45, 64, 90, 128, 181)
+#: Fewest window positions for the scan spread alone to give the step's uncertainty.
+_MIN_SCAN_POSITIONS = 20
+
+
+def _step_fit(rel, x, idx):
+    """Least squares of a + b·t + s·H + f·t·H on samples ``idx`` (t = rel, H = t > 0): coef, sd."""
+    tt, xx = rel[idx], x[idx]
+    h = (tt > 0).astype(float)
+    A = np.column_stack([np.ones_like(tt), tt, h, tt * h])
+    scale = np.array([1.0, max(np.ptp(tt), 1.0), 1.0, max(np.ptp(tt), 1.0)])
+    coef, *_ = np.linalg.lstsq(A / scale, xx, rcond=None)
+    coef = coef / scale
+    res = xx - A @ coef
+    dof = len(xx) - 4
+    s2 = float(np.sum(res ** 2) / dof) if dof > 0 else math.nan
+    cov = np.linalg.pinv((A / scale).T @ (A / scale)) / np.outer(scale, scale) * s2
+    r1 = lag1_acf(res) if dof > 0 else 0.0
+    infl = (1 + r1) / (1 - r1) if 0 < r1 < 1 else 1.0
+    return coef, np.sqrt(np.diag(cov) * infl)
+
+
+def estimate_step(t_s, x, epoch_s, step_s, *, x_others_removed=None, lo_s=-math.inf, hi_s=math.inf,
+                  max_window: int = 200) -> dict | None:
+    """The one estimate of a change at a given epoch: local lines either side.
+
+    Model, on the k samples before and the k samples after ``epoch_s`` (times
+    ``t_s`` in s on one scale, samples ``x`` in ns, NaN dropped)::
+
+        x(t) = a + b·(t − t_e) + s·H(t − t_e) + f·(t − t_e)·H(t − t_e)
+
+    i.e. offset and slope on each side, so ``s`` is the phase step *at* t_e and
+    ``f`` (ns/s) the change of slope. Samples closer than half a sampling
+    interval ``step_s`` to t_e are left out (their averaging window, e.g. a
+    13-minute track, may straddle the change), and so are samples beyond
+    ``lo_s``/``hi_s`` (neighbouring changes).
+
+    Window. k is chosen from the series' own noise: for each candidate of
+    :data:`STEP_WINDOWS` (up to ``max_window`` and a quarter of the series) the
+    step is estimated, removed from the series (``x_others_removed``: the
+    series with the other changes already removed; default ``x``), and the same
+    estimator is slid over every position of what is left; the robust spread
+    (1.4826·MAD) of its step values (:func:`_scan_null`) is what the estimator
+    does under "no change" with this series' noise: short windows suffer from
+    the measurement noise, long ones from the clocks' wander. The k with the
+    smallest spread is used, and that spread is the step's standard
+    uncertainty; with fewer than 20 positions the formal least-squares u
+    (residual scatter, lag-1 inflated) is taken if it is larger. Returns
+    ``None`` when fewer than 3 samples lie on a side, else ``{size_ns, u_ns,
+    freq_change, u_freq_change, window, window_s, n_before, n_after,
+    u_formal_ns, u_scan_ns}`` (``freq_change`` dimensionless).
+    """
+    t_s = np.asarray(t_s, dtype=float)
+    x = np.asarray(x, dtype=float)
+    xo = x if x_others_removed is None else np.asarray(x_others_removed, dtype=float)
+    fin = np.isfinite(x)
+    rel = t_s - epoch_s
+    before = np.nonzero(fin & (rel < -0.5 * step_s) & (t_s >= lo_s))[0]
+    after = np.nonzero(fin & (rel > 0.5 * step_s) & (t_s < hi_s))[0]
+    if len(before) < 3 or len(after) < 3:
+        return None
+    n_fin = int(np.count_nonzero(np.isfinite(xo)))
+    limit = max(3, min(max_window, n_fin // 4))
+    cands = [k for k in STEP_WINDOWS if k <= limit] or [3]
+    best = None
+    for k in cands:
+        nb, na = min(k, len(before)), min(k, len(after))
+        if nb < 3 or na < 3:
+            continue
+        idx = np.concatenate([before[-nb:], after[:na]])
+        coef, sd = _step_fit(rel, x, idx)
+        if not np.all(np.isfinite(coef)):
+            continue
+        clean = xo - coef[2] * (rel > 0)     # this step removed (a detected frequency change is in xo)
+        clean = clean[np.isfinite(clean)]
+        positions = len(clean) - nb - na + 1
+        spread_s, spread_f = _scan_null(clean, nb, na)
+        if best is None or spread_s < best[0]:
+            best = (spread_s, spread_f, nb, na, positions, k, coef, sd, idx)
+        if nb < k and na < k:        # both sides exhausted: longer windows change nothing
+            break
+    if best is None:
+        return None
+    spread_s, spread_f, nb, na, positions, k, coef, sd, idx = best
+    u_s, u_f = spread_s, spread_f / step_s
+    if positions < _MIN_SCAN_POSITIONS or not (u_s > 0):
+        u_s, u_f = max(u_s, float(sd[2])), max(u_f, float(sd[3]))
+    tt = rel[idx]
+    return {"size_ns": float(coef[2]), "u_ns": float(u_s), "freq_change": float(coef[3]) * 1e-9,
+            "u_freq_change": float(u_f) * 1e-9, "window": int(k),
+            "window_s": float(max(-tt[0], tt[-1])), "n_before": int(nb), "n_after": int(na),
+            "u_formal_ns": float(sd[2]), "u_scan_ns": float(spread_s)}
+
+
+STEP_METHOD = ("one estimate per change at its epoch (the logged epoch for a logged change, else the "
+               "epoch the search gave): offset and slope fitted on each side over k samples, samples "
+               "within half a sampling interval of the epoch left out; k is the candidate "
+               "(4, 5, 6, 8, 11, 16, ... samples) whose estimator varies least when slid over the "
+               "whole series with the changes removed, and that spread (1.4826 MAD) is the step's u")
+
+
+def _log_agreement(ch: "Change") -> None:
+    if ch.kind == "phase step" and ch.expected_ns is not None and ch.u_size > 0:
+        ch.z_log = (ch.size - float(ch.expected_ns)) / ch.u_size
+        ch.agrees_with_log = bool(abs(ch.z_log) <= 2.0)
 
 
 def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
@@ -832,6 +968,10 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
         found_b = nxt
         if same:
             break
+    contrib = {}
+    for b, c in found_b:
+        dt_ = ts - ts[b]
+        contrib[id(c)] = (c.size if c.kind == "phase step" else c.size * 1e9 * dt_) * (dt_ >= 0)
     found = [c for _, c in found_b]
     # one change may be found at neighbouring breaks: keep the most significant
     found = _dedupe(found, tol)
@@ -849,7 +989,30 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
             ch.expected_ns = e.get("expected_ns")
             ch.log_time_ns = int(e["time_utc_ns"])
             used.add(best[1])
-    undetected = _undetected([e for j, e in enumerate(log) if j not in used], tb, xb, found, window)
+    # the one estimate of each change, at the logged epoch when it is in a log (step 5)
+    te_of = {id(c): int(c.log_time_ns if c.expected else c.time_ns) for c in found}
+    epochs = sorted(set(te_of.values()))
+    for ch in found:
+        te = int(ch.log_time_ns if ch.expected else ch.time_ns)
+        lo = max((e for e in epochs if e < te), default=None)
+        hi = min((e for e in epochs if e > te), default=None)
+        others = xb - sum((contrib[id(o)] for o in found if id(o) in contrib and te_of[id(o)] != te),
+                          np.zeros(len(xb)))
+        est = estimate_step(ts, xb, (te - tb[0]) / 1e9, block_s, x_others_removed=others,
+                            lo_s=-math.inf if lo is None else (lo - tb[0]) / 1e9,
+                            hi_s=math.inf if hi is None else (hi - tb[0]) / 1e9, max_window=window)
+        ch.found_time_ns = int(ch.time_ns)
+        if est is not None:
+            ch.time_ns = te
+            if ch.kind == "phase step":
+                ch.size, ch.u_size = est["size_ns"], est["u_ns"]
+            else:
+                ch.size, ch.u_size = est["freq_change"], est["u_freq_change"]
+            ch.window_s, ch.n_before, ch.n_after = est["window_s"], est["n_before"], est["n_after"]
+        _log_agreement(ch)
+    clean = xb - sum(contrib.values(), np.zeros(len(xb)))
+    undetected = _undetected([e for j, e in enumerate(log) if j not in used], tb, xb, found, window,
+                             clean, block_s)
     return ChangeReport(found, undetected, sig_phase, block, penalty_k, tol)
 
 
@@ -883,26 +1046,33 @@ def _dedupe(found, tol):
     return out
 
 
-def _undetected(entries, tb=None, xb=None, found=(), window=200):
-    """Log entries without a detected change, with the step (and frequency change)
-    fitted locally at the logged epoch (same local model as for detections, bounded by
-    the detected changes around it)."""
+def _undetected(entries, tb=None, xb=None, found=(), window=200, xnull=None, block_s=None):
+    """Log entries without a detected change, with the step estimated at the logged epoch
+    by :func:`estimate_step` (the same estimator as for detections, bounded by the
+    detected changes around it)."""
     out = []
     marks = np.array(sorted({c.time_ns for c in found}), dtype=np.int64)
     for e in entries:
         te = int(e["time_utc_ns"])
         rec = {"time_utc_ns": te, "what": e.get("what"), "expected_ns": e.get("expected_ns"),
-               "fitted_step_ns": None, "u_fitted_step_ns": None}
+               "fitted_step_ns": None, "u_fitted_step_ns": None, "window_s": None,
+               "z_log": None, "agrees_with_log": None}
         if tb is not None and tb[0] < te <= tb[-1]:
-            b = int(np.searchsorted(tb, te))
+            ts = (tb - tb[0]) / 1e9
+            step_s = block_s if block_s else float(np.median(np.diff(ts)))
             prev = marks[marks < te]
             nxt = marks[marks > te]
-            lo = max(b - window, int(np.searchsorted(tb, prev[-1])) if len(prev) else 0)
-            hi = min(b + window, int(np.searchsorted(tb, nxt[0])) if len(nxt) else len(tb))
-            r = _local_fit((tb - tb[0]) / 1e9, xb, lo, b, hi)
-            if r is not None:
-                rec["fitted_step_ns"] = _f(r[0][2])
-                rec["u_fitted_step_ns"] = _f(r[1][2])
+            est = estimate_step(ts, xb, (te - tb[0]) / 1e9, step_s, x_others_removed=xnull,
+                                lo_s=(prev[-1] - tb[0]) / 1e9 if len(prev) else -math.inf,
+                                hi_s=(nxt[0] - tb[0]) / 1e9 if len(nxt) else math.inf, max_window=window)
+            if est is not None:
+                rec["fitted_step_ns"] = _f(est["size_ns"])
+                rec["u_fitted_step_ns"] = _f(est["u_ns"])
+                rec["window_s"] = _f(est["window_s"])
+                if e.get("expected_ns") is not None and est["u_ns"] > 0:
+                    z = (est["size_ns"] - float(e["expected_ns"])) / est["u_ns"]
+                    rec["z_log"] = _f(z)
+                    rec["agrees_with_log"] = bool(abs(z) <= 2.0)
         out.append(rec)
     return out
 
@@ -1019,7 +1189,152 @@ def compare_periods(time_ns, offset_ns, before, after, level: float = 0.05) -> C
                       bool(abs(z_step) > zc))
 
 
+# ------------------------------------------------------------------ the daily value
+
+#: The one definition of the day's clock A − clock B (ctt writes it as ``daily_value``).
+DAILY_VALUE_DEFINITION = (
+    "clock A - clock B at epoch_utc, the weighted centre (weights 1/u^2) of the day's 'ok' points. "
+    "Estimator: the day's drift model (offset + frequency, weighted least squares; every phase step "
+    "found in the day held at its one local estimate) evaluated at that epoch; with no step this is "
+    "the weighted mean of the points. u_a: time-transfer measurement noise only, modelled as white "
+    "plus flicker phase noise, TDEV^2(tau) = s_w^2 tau0/tau + s_f^2, fitted to the TDEV at the "
+    "shortest tau (where the link noise dominates) and propagated to the day as "
+    "s_w^2/(mean(u^2) sum(1/u^2)) + s_f^2, plus each step estimate's u times its leverage on the "
+    "value; the clocks' own wander is not in it (see the stability). u_b: root sum of squares of "
+    "the type B items (delays, coordinates, inter-system biases). u = sqrt(u_a^2 + u_b^2); "
+    "standard (1 sigma) uncertainties in ns.")
+
+
+def link_noise(time_ns, offset_ns) -> dict:
+    """White and flicker phase-noise levels of the time-transfer link from the short-τ TDEV.
+
+    TDEV at octave τ from τ0 (SP 1065 eq. 15; gaps skipped as in :func:`tdev`);
+    the link's noise is what TDEV shows at short τ, before it turns up where the
+    clocks' frequency noise takes over, so the fit uses the TDEV values from τ0
+    as long as they do not rise. Model: white PM has TDEV = σ_w·√(τ0/τ)
+    (TDEV(τ0) = σ of one point), flicker PM a flat TDEV = σ_f (SP 1065 noise
+    table), so TDEV² = σ_w²·τ0/τ + σ_f², fitted by non-negative least squares
+    on relative residuals (scipy.optimize.nnls). One usable τ gives σ_w alone.
+    Fewer than 8 samples: σ_w from the first differences
+    (:func:`robust_sigma_white`), σ_f = 0.
+    Returns ``{white_ns, flicker_ns, tau0_s, taus_s, tdev_ns, n_used}``.
+    """
+    from scipy.optimize import nnls
+
+    g = grid_series(time_ns, offset_ns)
+    n_ok = int(np.count_nonzero(np.isfinite(g.value)))
+    out = {"white_ns": math.nan, "flicker_ns": 0.0, "tau0_s": g.tau0_s, "taus_s": [], "tdev_ns": [],
+           "n_used": 0}
+    if n_ok < 8:
+        out["white_ns"] = robust_sigma_white(g.value[np.isfinite(g.value)])
+        return out
+    rate = 1.0 / g.tau0_s
+    m = _ms(octave_taus(len(g.value), g.tau0_s), rate, len(g.value))
+    dev, _ = _raw("tdev", g.value * 1e-9, rate, m)
+    ok = np.isfinite(dev) & (dev > 0)
+    m, td = m[ok], dev[ok] * 1e9
+    out["taus_s"] = [float(v) for v in m * g.tau0_s]
+    out["tdev_ns"] = [float(v) for v in td]
+    if len(td) == 0:
+        out["white_ns"] = robust_sigma_white(g.value[np.isfinite(g.value)])
+        return out
+    k = 1
+    while k < len(td) and td[k] <= td[k - 1]:
+        k += 1
+    out["n_used"] = k
+    if k == 1:
+        out["white_ns"] = float(td[0])
+        return out
+    A = np.column_stack([1.0 / m[:k], np.ones(k)]) / td[:k, None] ** 2
+    coef, _ = nnls(A, np.ones(k))
+    out["white_ns"], out["flicker_ns"] = float(math.sqrt(coef[0])), float(math.sqrt(coef[1]))
+    return out
+
+
+def daily_value(time_ns, offset_ns, u_ns, changes=None, *, u_b_ns: float = 0.0,
+                to_iso=None) -> tuple[dict, dict]:
+    """The day's clock A − clock B, defined once (:data:`DAILY_VALUE_DEFINITION`).
+
+    ``time_ns``/``offset_ns``/``u_ns`` are the day's 'ok' points (any one time
+    scale; ``to_iso`` turns an instant of it into the UTC text of
+    ``epoch_utc``); ``changes`` the hardware log as for :func:`detect_changes`;
+    ``u_b_ns`` the day's type B. Returns ``(daily_value, detail)``: the object
+    ``{epoch_utc, offset_ns, u_a_ns, u_b_ns, u_ns, definition}`` with values
+    rounded to 0.001 ns (every output shows this object as it is), and the
+    pieces it came from (link-noise model, steps, frequency, clock wander).
+    """
+    t = np.asarray(time_ns, dtype=np.int64)
+    x = np.asarray(offset_ns, dtype=float)
+    u = np.asarray(u_ns, dtype=float)
+    good = np.isfinite(x) & np.isfinite(u) & (u > 0)
+    t, x, u = t[good], x[good], u[good]
+    if len(x) == 0:
+        raise ValueError("no usable point for the daily value")
+    order = np.argsort(t, kind="stable")
+    t, x, u = t[order], x[order], u[order]
+    w = 1.0 / u ** 2
+    tc = int(t[0] + int(np.round(np.sum(w * (t - t[0]) / 1e9) / np.sum(w) * 1e9)))
+    steps = []
+    report = ChangeReport([])
+    if len(x) >= 20:
+        g = grid_series(t, x)
+        report = detect_changes(g.time_ns, g.value, changes)
+        steps = phase_steps(report)
+    if len(x) > 2 + len(steps):
+        fit = fit_drift(t, x, u, quadratic=False, fixed_steps=steps)
+        a = fit.offset_ns.value
+        freq = {"value": _f(fit.frequency.value), "u": _f(fit.frequency.u)}
+    else:
+        xc = x - sum(p.value * (t >= te) for te, p in steps) if steps else x
+        a = float(np.sum(w * xc) / np.sum(w))
+        freq = None
+    value = a + sum(p.value for te, p in steps if tc >= te)
+    xc = x - (sum(p.value * (t >= te) for te, p in steps) if steps else 0.0)
+    link = link_noise(t, xc)
+    sw, sf = link["white_ns"], link["flicker_ns"]
+    if not np.isfinite(sw):
+        sw = float(np.median(u))
+    var_white = sw ** 2 / (float(np.mean(u ** 2)) * float(np.sum(w)))
+    var_steps = 0.0
+    step_rows = []
+    for te, p in steps:
+        lever = float(tc >= te) - float(np.sum(w[t >= te]) / np.sum(w))
+        var_steps += (p.u * lever) ** 2
+        step_rows.append({"epoch": (to_iso or int)(te), "size_ns": _f(p.value), "u_ns": _f(p.u),
+                          "leverage": lever})
+    u_a = math.sqrt(var_white + sf ** 2 + var_steps)
+    u_b = float(u_b_ns)
+    iso = to_iso or (lambda v: int(v))
+    obj = {"epoch_utc": iso(tc), "offset_ns": round(float(value), 3), "u_a_ns": round(u_a, 3),
+           "u_b_ns": round(u_b, 3), "u_ns": round(math.hypot(u_a, u_b), 3),
+           "definition": DAILY_VALUE_DEFINITION}
+    wander = {}
+    if len(xc) >= 8:
+        g2 = grid_series(t, xc)
+        rate = 1.0 / g2.tau0_s
+        for lab, tau in (("1 h", 3600.0), ("1 d", 86400.0)):
+            ms = _ms(octave_taus(len(g2.value), g2.tau0_s), rate, len(g2.value))
+            if len(ms) and tau <= ms[-1] * g2.tau0_s * 1.5:
+                mm = np.array([ms[np.argmin(np.abs(np.log(ms * g2.tau0_s / tau)))]])
+                dv, _ = _raw("tdev", g2.value * 1e-9, rate, mm)
+                wander[lab] = {"tau_s": float(mm[0] * g2.tau0_s), "tdev_ns": _f(dv[0] * 1e9)}
+    detail = {"epoch_ns": tc, "n_points": int(len(x)), "frequency": freq,
+              "link_noise": {**link, "white_ns": sw,
+                             "model": "TDEV^2 = white_ns^2 tau0/tau + flicker_ns^2 (white + flicker PM)"},
+              "u_a_parts_ns": {"white": math.sqrt(var_white), "flicker": sf, "steps": math.sqrt(var_steps)},
+              "steps": step_rows, "changes": [c.as_dict(to_iso) for c in report.changes],
+              "logged_changes_not_detected": report.undetected_log,
+              "clock_wander_tdev": wander}
+    return obj, detail
+
+
 # ------------------------------------------------------------------ one call for a series
+
+def phase_steps(report: ChangeReport) -> list:
+    """``(epoch_ns, Param)`` of every detected phase step, as estimated once (for :func:`fit_drift`)."""
+    return [(int(c.time_ns), Param(float(c.size), float(c.u_size), float(c.u_size)))
+            for c in report.changes if c.kind == "phase step"]
+
 
 def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
             remove_steps: bool = False):
@@ -1032,19 +1347,19 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
     ``adev`` is the overlapping Allan deviation and ``hdev`` the overlapping
     Hadamard deviation. By default the deviations are of the series as given,
     steps included (a step adds to ADEV at every τ); with ``remove_steps`` the
-    phase steps found (sizes from the drift fit with steps) are subtracted
-    first, and the summary lists them under ``steps_removed``.
+    phase steps found (the one estimate of each, :func:`estimate_step`) are
+    subtracted first, and the summary lists them under ``steps_removed``. The
+    drift model holds the same step estimates fixed (:func:`fit_drift`).
     """
     g = grid_series(time_ns, offset_ns, u_ns)
     rate = 1.0 / g.tau0_s
     ch = detect_changes(g.time_ns, g.value, changes)
-    # the drift model carries a step at every detected phase step, so the residuals
-    # show what the model misses rather than the steps themselves
-    step_epochs = [c.time_ns for c in ch.changes if c.kind == "phase step"]
-    fit = fit_drift(g.time_ns, g.value, g.u, step_epochs_ns=step_epochs)
+    # the drift model carries every detected phase step, at its one estimate, so the
+    # residuals show what the model misses rather than the steps themselves
+    fit = fit_drift(g.time_ns, g.value, g.u, fixed_steps=phase_steps(ch))
     xs = g.value
     removed = []
-    if remove_steps and step_epochs:
+    if remove_steps and fit.step_epochs_ns:
         xs = g.value.copy()
         for te, p in zip(fit.step_epochs_ns, fit.steps_ns):
             xs[g.time_ns >= te] -= p.value
@@ -1069,7 +1384,7 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
             {**e, "time_utc": iso(e["time_utc_ns"])} for e in ch.undetected_log],
         "change_detection": {"sigma_white_ns": _f(ch.sigma_white_ns), "block": ch.block,
                              "penalty": f"{ch.penalty_k:g}*sigma^2*ln(n)",
-                             "match_tolerance_s": ch.tolerance_s},
+                             "match_tolerance_s": ch.tolerance_s, "step_estimate": STEP_METHOD},
     }
     out["drift"]["t_ref"] = iso(fit.t_ref_ns)
     out["drift"]["step_epochs"] = [iso(t) for t in fit.step_epochs_ns]

@@ -83,9 +83,11 @@ def run_daily(args) -> int:
         print(f"ctt: error: {pc.name} {date}: {outcome.reason}", file=sys.stderr)
         return outcome.exit_code
     s = outcome.summary
-    b = s["budget"]
-    print(f"{pc.name} {date}: {s['counts']['points_ok']} points, mean A - B {b['mean_offset_ns']:.3f} ns "
-          f"+- {b['total_ns']:.3f} ns; run folder {outcome.out_dir}; archive {pc.archive_path}")
+    from ..pipeline import format_daily_value
+
+    print(f"{pc.name} {date}: {s['counts']['points_ok']} points ok; run folder {outcome.out_dir}; "
+          f"archive {pc.archive_path}")
+    print(format_daily_value(s["daily_value"], s["station_a"], s["station_b"]))
     for w in s.get("warnings", []):
         print(f"  warning: {w}")
     for f in s.get("day_flags", []):

@@ -71,11 +71,12 @@ def run(args) -> int:
             return 1
     run_dir = pathlib.Path(outcome.out_dir)
     s = outcome.summary
-    b = s["budget"]
+    from ..pipeline import format_daily_value
+
+    dv = s["daily_value"]
     print(f"  processed: {s['counts']['points_ok']} of {s['counts']['points']} points ok "
           f"({s['mode']}, {s['signals']}, systems {','.join(s['config']['measure']['systems'])})")
-    print(f"  clock A - clock B: mean {b['mean_offset_ns']:.3f} ns, uncertainty {b['total_ns']:.3f} ns "
-          f"(type A {b['type_a_ns']:.3f}, type B {b['type_b_ns']:.3f})")
+    print(format_daily_value(dv, s["station_a"], s["station_b"]))
 
     # truth comparison (the simulator's true offset, incl. the cable change as the receiver sees it)
     import pandas as pd
@@ -91,6 +92,10 @@ def run(args) -> int:
     err = off.loc[ok, "offset_ns"].to_numpy() - tv
     print(f"  against the simulated truth: bias {err.mean():+.3f} ns, RMS {np.sqrt(np.mean(err**2)):.3f} ns "
           f"over {err.size} points")
+    t_dv = ts.convert(ts.parse_iso(dv["epoch_utc"]), "UTC", "GPS")
+    true_dv = float(np.interp(float(t_dv), tg.astype(float), truth[col].to_numpy()))
+    print(f"  daily value against the truth at its epoch: error {dv['offset_ns'] - true_dv:+.3f} ns "
+          f"(type A u {dv['u_a_ns']:.3f} ns; the truth there includes the clocks' wander about the day's line)")
 
     # the report, as the daily run makes it (archive series, change log, provenance)
     with Archive(pc.archive_path) as arc:
@@ -101,8 +106,11 @@ def run(args) -> int:
 
     report = json.loads(rep_json.read_text()) if rep_json.is_file() else {}
     for c in report.get("changes", []):
+        agree = c.get("agrees_with_log")
         print(f"  change found: {c.get('time_utc')} {c.get('kind')} {c.get('size'):+.2f} "
-              f"+- {c.get('u_size'):.2f} ({'expected' if c.get('expected') else 'unexpected'})")
+              f"+- {c.get('u_size'):.2f} ({'expected' if c.get('expected') else 'unexpected'}"
+              + ("" if agree is None else f"; log says {c.get('expected_ns'):+.2f}, "
+                 f"{'agrees' if agree else 'does not agree'} within 2 sigma") + ")")
     # the time-of-flight hand-off: events stamped on B's clock, expressed on A's time scale
     events = out / "events_b.csv"
     events.write_text("time_utc,event_id\n2021-01-01T06:00:00.123456789Z,1\n"
