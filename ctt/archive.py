@@ -16,6 +16,11 @@ Tables
                 ``flag``, plus ``extra`` (JSON of any further columns).
 ``satellites``  per-satellite rows: ``time_utc_ns`` and ``sat`` when the frame has them,
                 the whole row as JSON in ``data``.
+``daily_values`` one row per (pair, date): the day's ``daily_value`` object of
+                summary.json exactly as written there (``epoch_utc``, ``offset_ns``,
+                ``u_a_ns``, ``u_b_ns``, ``u_ns``, ``definition``) and ``stations``
+                ('ALDR-BRKW': the A − B names). Archives made before this table
+                existed get it when opened (it is created if missing).
 
 Semantics
 =========
@@ -114,6 +119,18 @@ CREATE TABLE IF NOT EXISTS offsets (
     flag,
     extra TEXT,
     PRIMARY KEY (pair, date, system, time_utc_ns)
+);
+CREATE TABLE IF NOT EXISTS daily_values (
+    pair TEXT NOT NULL,
+    date TEXT NOT NULL,
+    epoch_utc TEXT NOT NULL,
+    offset_ns REAL,
+    u_a_ns REAL,
+    u_b_ns REAL,
+    u_ns REAL,
+    definition TEXT,
+    stations TEXT,
+    PRIMARY KEY (pair, date)
 );
 CREATE TABLE IF NOT EXISTS satellites (
     pair TEXT NOT NULL,
@@ -358,6 +375,10 @@ class Archive:
             if row is None or int(row[0]) != SCHEMA_VERSION:
                 raise ProcessingError(f"{self.path}: archive schema version {row and row[0]}, "
                                       f"expected {SCHEMA_VERSION}")
+            if self._con.execute("SELECT name FROM sqlite_master WHERE type='table' AND name='daily_values'"
+                                 ).fetchone() is None:
+                stmt = _SCHEMA[_SCHEMA.index("CREATE TABLE IF NOT EXISTS daily_values"):]
+                self._con.execute(stmt[:stmt.index(";")])
 
     def _with_lock(self, what, fn, *args):
         deadline = time.monotonic() + self.timeout_s
@@ -419,12 +440,14 @@ class Archive:
 
     @_guarded
     def store_day(self, pair: str, date, offsets_df: pd.DataFrame, satellites_df: pd.DataFrame | None,
-                  run_info: dict | None = None) -> int:
+                  run_info: dict | None = None, daily_value: dict | None = None, stations: str | None = None) -> int:
         """Replace the day's results and record an ``ok`` run, all in one transaction; returns run_id.
 
         ``run_info`` keys (all optional): ``inputs`` ({name: {path, sha256}}, see
         :func:`inputs_record`), ``inputs_hash``, ``config_hash``, ``version``,
         ``messages`` (list of str), ``started``, ``finished`` (ISO UTC).
+        ``daily_value``: the day's ``daily_value`` object (stored as it is);
+        ``stations``: the A − B names, e.g. 'ALDR-BRKW'.
         """
         date = _date_text(date)
         orows = _offset_rows(pair, date, offsets_df)
@@ -447,6 +470,12 @@ class Archive:
             con.execute("DELETE FROM satellites WHERE pair=? AND date=?", (pair, date))
             con.executemany("INSERT INTO offsets VALUES (?,?,?,?,?,?,?,?,?,?,?)", orows)
             con.executemany("INSERT INTO satellites VALUES (?,?,?,?,?,?)", srows)
+            con.execute("DELETE FROM daily_values WHERE pair=? AND date=?", (pair, date))
+            if daily_value is not None:
+                dv = daily_value
+                con.execute("INSERT INTO daily_values VALUES (?,?,?,?,?,?,?,?,?)",
+                            (pair, date, dv["epoch_utc"], _clean(dv["offset_ns"]), _clean(dv["u_a_ns"]),
+                             _clean(dv["u_b_ns"]), _clean(dv["u_ns"]), dv.get("definition"), stations))
             run_id = self._insert_run(con, pair, date, "ok", run_info, [])
             con.execute(
                 "INSERT INTO days (pair, date, run_id, latest_run_id, latest_status, n_offsets, n_satellites,"
@@ -517,6 +546,23 @@ class Archive:
         else:
             df = df.drop(columns="extra")
         return df
+
+    @_guarded
+    def load_daily_values(self, pair: str, date_from=None, date_to=None) -> pd.DataFrame:
+        """The stored ``daily_value`` objects of ``pair`` (one row per date, sorted): ``date``,
+        ``epoch_utc``, ``offset_ns``, ``u_a_ns``, ``u_b_ns``, ``u_ns``, ``definition``, ``stations``."""
+        q = ("SELECT date, epoch_utc, offset_ns, u_a_ns, u_b_ns, u_ns, definition, stations"
+             " FROM daily_values WHERE pair=?")
+        args: list = [pair]
+        if date_from is not None:
+            q += " AND date >= ?"
+            args.append(_date_text(date_from))
+        if date_to is not None:
+            q += " AND date <= ?"
+            args.append(_date_text(date_to))
+        rows = self._con.execute(q + " ORDER BY date", args).fetchall()
+        return pd.DataFrame(rows, columns=["date", "epoch_utc", "offset_ns", "u_a_ns", "u_b_ns", "u_ns",
+                                           "definition", "stations"])
 
     @_guarded
     def load_satellites(self, pair: str, date) -> pd.DataFrame:

@@ -190,7 +190,9 @@ def store_outcome(archive, pair_name: str, outcome: DayOutcome) -> None:
         # the day's warnings and flags (inputs forced, coordinates off) stay with its results
         info["messages"] = [*(outcome.summary or {}).get("warnings", []),
                             *(f"DAY FLAGGED: {f}" for f in (outcome.summary or {}).get("day_flags", []))]
-        archive.store_day(pair_name, outcome.date, outcome.offsets, sat, info)
+        summ = outcome.summary or {}
+        archive.store_day(pair_name, outcome.date, outcome.offsets, sat, info, daily_value=summ.get("daily_value"),
+                          stations=summ.get("pair"))
     elif outcome.status == "failed":
         info["messages"] = [outcome.reason]
         archive.record_failure(pair_name, outcome.date, outcome.reason, info)
@@ -281,12 +283,16 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
     t = off["time_utc_ns"].to_numpy(np.int64) if "time_utc_ns" in off.columns else None
     t_from = int(t.max()) - days * ts.NS_PER_DAY if t is not None and len(t) else None
     changes = hardware_changes(pc)
+    summary = dict(summary or {})
+    summary["daily_values"] = archive.load_daily_values(pc.name).to_dict(orient="records")
+    summary.setdefault("station_a", pc.station_a.id)
+    summary.setdefault("station_b", pc.station_b.id)
     bounds = _day_boundaries(pc, off, t_from)
     if bounds:
         summary = dict(summary or {}, day_boundaries=bounds)
     try:
         build_report(off, satellites, summary, changes, out_html=pc.report_path, time_from_ns=t_from,
-                     title=f"{pc.name}: clock {pc.station_a.id} - clock {pc.station_b.id}",
+                     title=f"{pc.name}: clock {pc.station_a.id} − clock {pc.station_b.id}",
                      source=str(archive.path), figures_dir=figures_dir)
     except CttError as exc:
         log.warning("report not refreshed: %s", exc)

@@ -54,7 +54,7 @@ DEV_STYLE = {  # kind: (label, colour, marker, linestyle)
 
 # σ_y(τ) slopes by noise type (NIST SP 1065 noise-type table); flicker PM is −1 too
 # (it differs from white PM only by a log factor in ADEV; MDEV separates them: −3/2).
-ADEV_SLOPES = [("white PM", -1.0), ("white FM", -0.5), ("flicker FM", 0.0), ("random walk FM", 0.5)]
+ADEV_SLOPES = [("white/flicker PM", -1.0), ("white FM", -0.5), ("flicker FM", 0.0), ("random walk FM", 0.5)]
 MDEV_SLOPES = [("white PM", -1.5), ("flicker PM", -1.0), ("white FM", -0.5), ("flicker FM", 0.0),
                ("random walk FM", 0.5)]
 # TDEV = τ·MDEV/√3: slopes shifted by +1.
@@ -135,8 +135,9 @@ def _mark_changes(ax, changes, log):
 # ------------------------------------------------------------------ figures
 
 def plot_offset(time_ns, offset_ns, stem, u_ns=None, changes=None, log=None, fit_ns=None,
-                title="Clock A − clock B", ylabel="offset / ns", formats=FORMATS):
-    """Offset series with its ±u band, the drift model, and changes marked."""
+                title="A − B", ylabel="clock A − clock B / ns", formats=FORMATS, daily_values=None):
+    """Offset series with its ±u band, the drift model, changes marked, and the daily values
+    (``[{date, daily_value}]``, drawn at their epochs with their total u)."""
     with plt.rc_context(_RC):
         fig, ax = plt.subplots(figsize=(8.0, 3.6))
         t = _dt(time_ns)
@@ -150,6 +151,11 @@ def plot_offset(time_ns, offset_ns, stem, u_ns=None, changes=None, log=None, fit
         ax.plot(t, x, ls="none", marker="o", ms=ms, color=BLUE, label="offset", rasterized=n > 5000)
         if fit_ns is not None:
             ax.plot(t, fit_ns, color=INK, lw=1.2, ls="-", label="drift model")
+        for k, d in enumerate(daily_values or []):
+            dv = d["daily_value"]
+            te = timescales.parse_iso(str(dv["epoch_utc"]))
+            ax.errorbar(_dt(np.array([te])), [dv["offset_ns"]], yerr=[dv["u_ns"]], color=VERMILION, marker="s",
+                        ms=6, mfc="white", capsize=3, lw=1.2, label="daily value ± u" if k == 0 else None)
         handles = _mark_changes(ax, changes, log)
         h0, l0 = ax.get_legend_handles_labels()
         ax.legend(h0 + list(handles.values()), l0 + list(handles), loc="upper left",
@@ -249,18 +255,34 @@ def _slopes(ax, slopes, tau, dev, title="reference slopes"):
 
 
 def _noise_strip(ax, tau, dev, noise):
-    """Noise type at each τ, written vertically along the bottom of the axes."""
+    """Noise type at each τ, written vertically along the bottom of the axes.
+
+    ``noise`` holds one label or None per τ (:func:`ctt.stability.noise_labels`:
+    None where the type was not identified at that τ or would contradict the
+    plotted slope); None is left blank."""
     ok = np.isfinite(dev)
     short = {"white PM": "WPM", "flicker PM": "FPM", "white FM": "WFM", "flicker FM": "FFM",
              "random walk FM": "RWFM"}
     last = None
-    for tt, nn in zip(tau[ok], np.array(noise)[ok]):
+    for tt, nn in zip(tau[ok], np.array(noise, dtype=object)[ok]):
         if last is not None and tt < last * 1.4:      # an extra τ (1 h, 1 d) next to an octave one
             continue
         last = tt
+        if not nn:
+            continue
+        nn = str(nn).replace(" (lag-1 ACF)", "")
         ax.annotate(short.get(nn, nn), (tt, 0.0), xycoords=("data", "axes fraction"), fontsize=6,
                     xytext=(0, 3), textcoords="offset points", ha="center", va="bottom", color=BLUE,
                     rotation=90)
+
+
+def _labels(d):
+    """Noise labels of a Deviation (or JSON records) that never contradict its slope."""
+    if isinstance(d, list):
+        return [r.get("noise_label") for r in d]
+    from .stability import noise_labels
+
+    return noise_labels(d)
 
 
 def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev_scale=1e9,
@@ -282,27 +304,27 @@ def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev
             lab, col, mk, ls = DEV_STYLE[kind]
             _errorbar(a1, tau, dev, lo, hi, lab, col, mk, ls, mfc="white" if kind == "mdev" else None)
             if first is None:
-                first = (tau, dev, noise)
+                first = (tau, dev, _labels(devs[kind]))
         a1.set_xscale("log")
         a1.set_yscale("log")
         a1.set_xlabel("averaging time τ / s")
         a1.set_ylabel("fractional frequency deviation σ(τ) (dimensionless)")
-        a1.set_title("Allan-type deviations (1σ CI; noise type of ADEV at bottom)")
+        a1.set_title("Allan-type deviations (1σ CI; noise type at bottom: lag-1 ACF, where it fits ADEV)")
         if first is not None:
             _pad_log(a1)
             _noise_strip(a1, *first)
             _tau_ticks(a1)
-            _slopes(a1, MDEV_SLOPES if "mdev" in devs else ADEV_SLOPES, first[0], first[1],
-                    "slopes of MDEV" if "mdev" in devs else "slopes of ADEV")
+            _slopes(a1, ADEV_SLOPES, first[0], first[1], "ADEV slopes")
         a1.legend(loc="best", frameon=True, framealpha=0.9)
         if "tdev" in devs:
             tau, dev, lo, hi, noise = _dev_arrays(devs["tdev"], tdev_scale)
+            noise = _labels(devs["tdev"])
             _errorbar(a2, tau, dev, lo, hi, "TDEV", INK, "D", "-")
             a2.set_xscale("log")
             a2.set_yscale("log")
             a2.set_xlabel("averaging time τ / s")
             a2.set_ylabel("time deviation TDEV(τ) / ns")
-            a2.set_title("Time deviation (1σ CI; noise type at bottom)")
+            a2.set_title("Time deviation (1σ CI; noise type at bottom: lag-1 ACF, where it fits TDEV)")
             _pad_log(a2)
             _noise_strip(a2, tau, dev, noise)
             _tau_ticks(a2)
@@ -310,7 +332,7 @@ def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev
             a2.yaxis.set_major_locator(matplotlib.ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
             a2.yaxis.set_major_formatter(fmt)
             a2.yaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
-            _slopes(a2, TDEV_SLOPES, tau, dev, "slopes of TDEV")
+            _slopes(a2, TDEV_SLOPES, tau, dev, "TDEV slopes")
             a2.legend(loc="best", frameon=True, framealpha=0.9)
         else:
             a2.set_visible(False)
@@ -450,8 +472,9 @@ def plot_sky(sat, azimuth_a_deg, elevation_a_deg, stem, azimuth_b_deg=None, elev
 
 
 def plot_before_after(comparison, stem, labels=("before", "after"), title="Before / after comparison",
-                      formats=FORMATS):
-    """ADEV and TDEV of two periods overlaid (1σ CIs), with the mean offset change stated."""
+                      formats=FORMATS, step=None):
+    """ADEV and TDEV of two periods overlaid (1σ CIs); ``step`` ({value, u}: the one estimate of
+    the change, ns) is stated in the title when given."""
     b, a = comparison.before, comparison.after
     with plt.rc_context(_RC):
         fig, (a1, a2) = plt.subplots(1, 2, figsize=(10.0, 4.2))
@@ -461,8 +484,7 @@ def plot_before_after(comparison, stem, labels=("before", "after"), title="Befor
             tau, dev, lo, hi, _ = _dev_arrays(per.adev)
             _errorbar(a1, tau, dev, lo, hi, f"{lab}: {rng}", col, mk, ls, mfc)
             tau, dev, lo, hi, _ = _dev_arrays(per.tdev, 1e9)
-            _errorbar(a2, tau, dev, lo, hi, f"{lab}: mean {per.mean_ns:.3f} ± {per.u_mean_ns:.3f} ns",
-                      col, mk, ls, mfc)
+            _errorbar(a2, tau, dev, lo, hi, f"{lab}: {per.n} points", col, mk, ls, mfc)
         for ax in (a1, a2):
             ax.set_xscale("log")
             ax.set_yscale("log")
@@ -475,13 +497,10 @@ def plot_before_after(comparison, stem, labels=("before", "after"), title="Befor
                                 else " (no significant difference)"))
         a2.set_ylabel("TDEV / ns")
         a2.set_title("TDEV")
-        verdict = "significant" if comparison.significant else "not significant"
-        line2 = f"mean offset change {comparison.delta_mean_ns:+.3f} ± {comparison.u_delta_mean_ns:.3f} ns " \
-                f"(z = {comparison.z:.1f}, {verdict})"
-        if math.isfinite(getattr(comparison, "step_at_boundary_ns", math.nan)):
-            v2 = "significant" if comparison.step_significant else "not significant"
-            line2 = (f"offset change at the boundary {comparison.step_at_boundary_ns:+.3f} ± "
-                     f"{comparison.u_step_at_boundary_ns:.3f} ns ({v2}); " + line2)
+        if step:
+            line2 = f"step at the change {step['value']:+.3f} ± {step['u']:.3f} ns (the one estimate of the change)"
+        else:
+            line2 = "step at the change: not estimated (too few points on a side)"
         fig.suptitle(f"{title}\n{line2}", fontsize=9.5)
         fig.tight_layout()
         return _save(fig, stem, formats)

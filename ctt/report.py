@@ -236,13 +236,26 @@ def _u(v):
     return None if v is None or not math.isfinite(float(v)) else float(v)
 
 
-def _dev_at(devs_kind: stability.Deviation, tau):
-    i = np.nonzero(np.isclose(devs_kind.tau_s, tau))[0]
-    if len(i) == 0 or not np.isfinite(devs_kind.dev[i[0]]):
-        return None
-    i = int(i[0])
-    return {"tau_s": float(tau), "dev": float(devs_kind.dev[i]), "ci_low": _u(devs_kind.ci_low[i]),
-            "ci_high": _u(devs_kind.ci_high[i]), "noise": devs_kind.noise[i]}
+def _dev_at(devs_kind: stability.Deviation, tau, nearest: bool = False):
+    """The deviation at ``tau``; with ``nearest`` at the computed τ closest to it (log scale)
+    within one octave, the τ used given as ``tau_s`` (None when no τ is that close)."""
+    tt = np.asarray(devs_kind.tau_s, dtype=float)
+    fin = np.isfinite(devs_kind.dev)
+    if nearest:
+        cand = np.nonzero(fin)[0]
+        if len(cand) == 0:
+            return None
+        i = int(cand[np.argmin(np.abs(np.log(tt[cand] / tau)))])
+        if abs(math.log(tt[i] / tau)) > math.log(2.0) + 1e-9:
+            return None
+    else:
+        idx = np.nonzero(np.isclose(tt, tau))[0]
+        if len(idx) == 0 or not fin[idx[0]]:
+            return None
+        i = int(idx[0])
+    return {"tau_s": float(tt[i]), "dev": float(devs_kind.dev[i]), "ci_low": _u(devs_kind.ci_low[i]),
+            "ci_high": _u(devs_kind.ci_high[i]), "noise": devs_kind.noise[i],
+            "noise_label": stability.noise_labels(devs_kind)[i]}
 
 
 def _taus_with_marks(n, tau0):
@@ -365,28 +378,32 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
 
     span_s = (g.time_ns[-1] - g.time_ns[0]) / 1e9
     fin = np.isfinite(g.value)
-    mean = float(np.mean(g.value[fin]))
-    per = stability._period(g.time_ns, g.value, int(g.time_ns[0]), int(g.time_ns[-1]))
     noise_tab = {}
     for lab, tau in (("1 h", 3600.0), ("1 d", 86400.0)):
-        noise_tab[lab] = {"adev": _dev_at(devs["oadev"], tau),
-                          "tdev_ns": _scale_ns(_dev_at(devs["tdev"], tau))}
+        a = _dev_at(devs["oadev"], tau, nearest=True)
+        noise_tab[lab] = {"target_tau_s": tau, "tau_s": a["tau_s"] if a else None, "adev": a,
+                          "tdev_ns": _scale_ns(_dev_at(devs["tdev"], tau, nearest=True))}
     summ = summary or {}
+    name_a, name_b = _station_names(summ)
+    dvs = _daily_values(summ, time_from_ns, time_to_ns)
+    drift = {k: v for k, v in res["drift"].items() if k != "offset_ns"}
+    drift["note_offset"] = "the value of the series is given once, as the daily value (daily_value)"
     report = {
-        "title": title or "Clock offset report",
+        "title": title or f"{name_a} − {name_b}",
+        "pair": {"a": name_a, "b": name_b, "sign": f"clock {name_a} − clock {name_b}"},
         "generated_utc": _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
         "software": {"ctt": __version__},
         "series": {"source": source, "column": column, "start": to_iso(int(g.time_ns[0])),
                    "end": to_iso(int(g.time_ns[-1])), "span_s": span_s, "tau0_s": g.tau0_s,
                    "n_samples": int(fin.sum()), "n_missing": g.n_missing,
                    "n_flagged": series.n_flagged, "flagged": series.flagged},
-        "mean_offset_ns": {"value": mean, "u": per.u_mean_ns,
-                           "note": "u: max(white sigma/sqrt(N) with lag-1 inflation, TDEV at the longest tau)"},
+        "daily_value": dvs[-1]["daily_value"] if dvs else None,
+        "daily_values": dvs,
         "budget": summ.get("budget"),
         # per-day carrier-phase solutions (mode ppp): the jump from the previous day's last point
         "day_boundaries": (summ.get("day_boundaries") or
                            ([summ["day_boundary"]] if isinstance(summ.get("day_boundary"), dict) else [])),
-        "drift": res["drift"],
+        "drift": drift,
         "stability_at": noise_tab,
         "changes": res["changes"],
         "logged_changes_not_detected": res["logged_changes_not_detected"],
@@ -406,20 +423,29 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
     with tempfile.TemporaryDirectory(prefix="ctt-report-") as tmp:
         tmp = pathlib.Path(tmp)
         figs = []
+        pair_lab = f"{name_a} − {name_b}"
+        ylab = f"clock {name_a} − clock {name_b} / ns"
+        kind_pt = _point_kind(summ, g.tau0_s)
         p = plots.plot_offset(g.time_ns, g.value, tmp / "offset", u_ns=g.u, changes=ch.changes, log=log,
-                              fit_ns=fit.model_ns, title=f"{report['title']}: clock A − clock B", formats=_PNG)
-        figs.append((p[0], "Offset with its standard uncertainty band, the drift model (with a step "
-                           "at each detected phase step) and the changes found; dotted lines are "
-                           "hardware-log entries."))
-        p = plots.plot_residuals(g.time_ns, fit.residual_ns, tmp / "residuals", u_ns=g.u, formats=_PNG)
-        figs.append((p[0], "Residuals after the drift fit."))
+                              fit_ns=fit.model_ns, title=pair_lab, ylabel=ylab, formats=_PNG,
+                              daily_values=dvs)
+        figs.append((p[0], f"{pair_lab}: one point per {kind_pt} with its standard uncertainty band, the "
+                           "drift model (each detected phase step at its one estimate), the changes found "
+                           "(dotted: hardware-log entries) and the daily value with its u (square)."))
+        p = plots.plot_residuals(g.time_ns, fit.residual_ns, tmp / "residuals", u_ns=g.u, formats=_PNG,
+                                 title=f"{pair_lab}: residuals after the drift model")
+        figs.append((p[0], f"{pair_lab}: residuals after the drift model, one per {kind_pt}."))
         p = plots.plot_deviations({k: devs[k] for k in ("oadev", "mdev", "ohdev", "tdev")}, tmp / "stability",
-                                 formats=_PNG)
-        figs.append((p[0], "Overlapping ADEV, MDEV, overlapping HDEV and TDEV with 1σ confidence "
-                           "intervals (Greenhall–Riley EDF); noise type by lag-1 autocorrelation."))
+                                 formats=_PNG, title=f"{pair_lab}: frequency and time stability")
+        figs.append((p[0], f"{pair_lab}: overlapping ADEV, MDEV, overlapping HDEV and TDEV with 1σ "
+                           "confidence intervals (Greenhall–Riley EDF). Noise types from the lag-1 "
+                           "autocorrelation of the phase, written only at the τ where they were identified "
+                           "and where they agree with the plotted slope; the slope keys show each panel's "
+                           "own estimator."))
         if nsat is not None and np.isfinite(nsat).any():
-            p = plots.plot_common_satellites(t, nsat, tmp / "nsat", formats=_PNG)
-            figs.append((p[0], "Number of satellites in common view per epoch."))
+            p = plots.plot_common_satellites(t, nsat, tmp / "nsat", formats=_PNG,
+                                             title=f"{pair_lab}: satellites in common view per {kind_pt}")
+            figs.append((p[0], f"Number of satellites in common view per {kind_pt}."))
         if satellites_df is not None and len(satellites_df):
             sp = _satellite_figures(satellites_df, tmp, time_from_ns, time_to_ns)
             figs.extend(sp)
@@ -431,18 +457,16 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
                                               (te, int(g.time_ns[-1])))
             except ValueError:
                 continue
+            step = _step_of(res, te)
             report["before_after"].append({
                 "change_time_utc": to_iso(te), "what": e.get("what"), "expected_ns": e.get("expected_ns"),
-                "step_at_change_ns": {"value": c.step_at_boundary_ns, "u": c.u_step_at_boundary_ns,
-                                      "significant": c.step_significant},
-                "delta_mean_ns": {"value": c.delta_mean_ns, "u": c.u_delta_mean_ns}, "z": c.z,
-                "significant": c.significant, "adev_ratio_after_over_before": c.adev_ratio})
-            p = plots.plot_before_after(c, tmp / f"before_after_{k}", formats=_PNG,
-                                        title=f"Before / after {e.get('what') or 'logged change'}")
-            figs.append((p[0], f"ADEV and TDEV before and after the logged change at {to_iso(te)} "
-                               f"({e.get('what')}). The step at the change comes from phase-and-frequency lines "
-                               "fitted to each side; the mean change also contains the frequency offset "
-                               "times the distance between the period centres."))
+                "step_at_change_ns": step,
+                "adev_ratio_after_over_before": c.adev_ratio})
+            p = plots.plot_before_after(c, tmp / f"before_after_{k}", formats=_PNG, step=step,
+                                        title=f"{pair_lab}: before / after {e.get('what') or 'logged change'}")
+            figs.append((p[0], f"{pair_lab}: ADEV and TDEV before and after the logged change at {to_iso(te)} "
+                               f"({e.get('what')}); the step is the one estimate of the change (changes "
+                               "table)."))
         if figures_dir is not None:
             import shutil
 
@@ -460,6 +484,68 @@ def build_report(offset_df: pd.DataFrame, satellites_df: pd.DataFrame | None = N
     out_html.write_text(doc, encoding="utf-8")
     out_html.with_suffix(".json").write_text(json.dumps(report, indent=1, default=_json_default) + "\n")
     return report
+
+
+def _station_names(summ: dict) -> tuple[str, str]:
+    """(A, B) station ids of the series: from the summary, else from stored daily values."""
+    a, b = summ.get("station_a"), summ.get("station_b")
+    if a and b:
+        return str(a), str(b)
+    for d in reversed(summ.get("daily_values") or []):
+        st = d.get("stations") if isinstance(d, dict) else None
+        if st and "-" in str(st):
+            x, y = str(st).split("-", 1)
+            return x, y
+    pair = summ.get("pair")
+    if pair and "-" in str(pair):
+        x, y = str(pair).split("-", 1)
+        return x.upper(), y.upper()
+    return "A", "B"
+
+
+_DV_KEYS = ("epoch_utc", "offset_ns", "u_a_ns", "u_b_ns", "u_ns", "definition")
+
+
+def _daily_values(summ: dict, t0=None, t1=None) -> list:
+    """``[{date, daily_value}]`` in the range: the archive's rows (``summary['daily_values']``),
+    else the run folders' summaries, else the one summary's ``daily_value``; each object as stored."""
+    rows = []
+    for d in summ.get("daily_values") or []:
+        rows.append({"date": d.get("date") or str(d.get("epoch_utc", ""))[:10],
+                     "daily_value": {k: d.get(k) for k in _DV_KEYS}})
+    if not rows and isinstance(summ.get("daily_value"), dict):
+        dv = summ["daily_value"]
+        rows.append({"date": summ.get("date_utc") or str(dv.get("epoch_utc", ""))[:10],
+                     "daily_value": {k: dv.get(k) for k in _DV_KEYS}})
+    out = []
+    for r in rows:
+        try:
+            te = parse_iso(str(r["daily_value"]["epoch_utc"]))
+        except (ValueError, TypeError):
+            continue
+        if (t0 is None or te >= t0 - NS_PER_DAY) and (t1 is None or te <= t1):
+            out.append(r)
+    return sorted(out, key=lambda r: r["date"])
+
+
+def _point_kind(summ: dict, tau0_s: float) -> str:
+    mode = (summ.get("config") or {}).get("mode") if isinstance(summ.get("config"), dict) else None
+    if mode == "tracks" or (mode is None and abs(tau0_s - 960.0) < 1.0):
+        return "13-minute track (every 16 min)"
+    return f"epoch ({tau0_s:g} s)"
+
+
+def _step_of(res: dict, te: int) -> dict | None:
+    """The one estimate of the change logged at ``te`` (changes table or logged-not-detected)."""
+    for c in res["changes"]:
+        if c["kind"] == "phase step" and c.get("log_time_ns") == te:
+            return {"value": c["size"], "u": c["u_size"], "detected": True, "window_s": c.get("window_s"),
+                    "agrees_with_log": c.get("agrees_with_log")}
+    for e in res["logged_changes_not_detected"]:
+        if e.get("time_utc_ns") == te and e.get("fitted_step_ns") is not None:
+            return {"value": e["fitted_step_ns"], "u": e["u_fitted_step_ns"], "detected": False,
+                    "window_s": e.get("window_s"), "agrees_with_log": e.get("agrees_with_log")}
+    return None
 
 
 def _json_default(o):
@@ -519,16 +605,14 @@ def _html(r, figs):
                  f"({r['series']['span_s'] / 86400:.3g} d, τ0 = {r['series']['tau0_s']:g} s, "
                  f"{r['series']['n_samples']} samples, {r['series']['n_missing']} missing, "
                  f"{r['series']['n_flagged']} flagged)"),
-        ("Mean offset (clock A − clock B)", _e(_pm(r["mean_offset_ns"], 6, unit=" ns"))),
-        ("Offset at the reference epoch " + _e(d.get("t_ref")), _e(_pm(d["offset_ns"], 6, unit=" ns"))),
         ("Fractional frequency", _e(_pm(d["frequency"], 4))),
         ("Frequency drift", _e(_pm(d["drift_per_day"], 4, unit=" /day"))),
         ("Drift fit χ²/ν, lag-1 ACF of residuals", f"{_fmt(d.get('chi2_red'))}, {_fmt(d.get('lag1_acf'), 3)}"),
     ]
     b = r.get("budget")
-    if isinstance(b, dict):
-        rows.append(("Uncertainty budget", _e(f"type A {_num(b.get('type_a_ns'))} ns, type B "
-                                                f"{_num(b.get('type_b_ns'))} ns, total {_num(b.get('total_ns'))} ns")))
+    if r.get("daily_value"):
+        dv, date = r["daily_value"], r["daily_values"][-1]["date"]
+        rows.insert(0, (f"Daily value {_e(r['pair']['sign'])}, {_e(date)}", _e(_dv_text(dv))))
     if isinstance(b, dict) and b.get("cancels"):
         rows.append(("Cancels in A − B", _e("; ".join(map(str, b["cancels"])))))
         rows.append(("Does not cancel", _e("; ".join(map(str, b.get("does_not_cancel") or [])))))
@@ -540,35 +624,54 @@ def _html(r, figs):
     for lab, v in r["stability_at"].items():
         a, td = v["adev"], v["tdev_ns"]
         if a is None:
-            rows.append((f"Stability at τ = {lab}", "span too short (τ must be ≤ a third of the span)"))
+            rows.append((f"Stability at τ = {lab}", "span too short: no computed τ within a factor 2 "
+                                                    "(τ must be ≤ a third of the span)"))
         else:
-            rows.append((f"Stability at τ = {lab}",
+            near = "" if abs(a["tau_s"] - v["target_tau_s"]) < 1e-6 else \
+                f" (at τ = {a['tau_s']:g} s, the nearest the {r['series']['tau0_s']:g} s spacing allows)"
+            noise = a.get("noise_label") or "noise type not identified at this τ"
+            rows.append((f"Stability at τ = {lab}{near}",
                          _e(f"ADEV {a['dev']:.3g} [{_fmt(a['ci_low'], 3)}, {_fmt(a['ci_high'], 3)}]; "
                             f"TDEV {td['dev']:.3g} ns [{_fmt(td['ci_low'], 3)}, {_fmt(td['ci_high'], 3)}]; "
-                            f"{a['noise']}")))
+                            f"{noise}")))
     rows.append(("Changes found", str(len(r["changes"]))))
     summary_tab = "\n".join(f"<tr><th>{k}</th><td>{v}</td></tr>" for k, v in rows)
+
+    def agree(v):
+        return "—" if v is None else ("yes" if v else "NO")
 
     ch_rows = []
     for c in r["changes"]:
         unit = "ns" if c["kind"] == "phase step" else ""
         ch_rows.append("<tr>" + "".join(f"<td>{_e(v)}</td>" for v in (
-            c.get("time_utc"), c["kind"], f"{c['size']:.4g} {unit}", f"{c['u_size']:.2g} {unit}",
-            "expected" if c["expected"] else "UNEXPECTED", c.get("what") or "",
-            _fmt(c.get("expected_ns")))) + "</tr>")
+            c.get("time_utc"), c["kind"], f"{c['size']:+.4g} {unit}", f"{c['u_size']:.2g} {unit}",
+            _fmt(c.get("window_s"), 4), "expected" if c["expected"] else "UNEXPECTED", c.get("what") or "",
+            _fmt(c.get("expected_ns")), agree(c.get("agrees_with_log")))) + "</tr>")
     for e in r["logged_changes_not_detected"]:
         ch_rows.append("<tr>" + "".join(f"<td>{_e(v)}</td>" for v in (
-            e.get("time_utc"), "logged, not detected", _fmt(e.get("fitted_step_ns")) + " ns (fitted)",
-            _fmt(e.get("u_fitted_step_ns"), 2) + " ns", "—", e.get("what") or "", _fmt(e.get("expected_ns"))))
-            + "</tr>")
+            e.get("time_utc"), "logged, not detected", _fmt(e.get("fitted_step_ns")) + " ns",
+            _fmt(e.get("u_fitted_step_ns"), 2) + " ns", _fmt(e.get("window_s"), 4), "—", e.get("what") or "",
+            _fmt(e.get("expected_ns")), agree(e.get("agrees_with_log")))) + "</tr>")
     cd = r["change_detection"]
     changes_tab = ("<table><tr><th>epoch (UTC)</th><th>kind</th><th>size</th><th>u (1σ)</th>"
-                   "<th>log</th><th>logged change</th><th>expected size / ns</th></tr>"
-                   + ("\n".join(ch_rows) or "<tr><td colspan=7>none</td></tr>") + "</table>"
+                   "<th>window each side / s</th><th>log</th><th>logged change</th><th>expected size / ns</th>"
+                   "<th>agrees with the log (2σ)</th></tr>"
+                   + ("\n".join(ch_rows) or "<tr><td colspan=9>none</td></tr>") + "</table>"
                    + f"<p class=note>Change-point search on the phase (piecewise-linear cost), penalty "
                      f"{_e(cd['penalty'])} with σ = {_fmt(cd['sigma_white_ns'], 3)} ns from the median absolute "
-                     f"first difference; each change re-measured by a local fit either side and kept at ≥ 5σ; "
-                     f"log entries matched within {_fmt(cd['match_tolerance_s'], 4)} s.</p>")
+                     f"first difference, candidates kept at ≥ 5σ; log entries matched within "
+                     f"{_fmt(cd['match_tolerance_s'], 4)} s. Size: {_e(cd.get('step_estimate', ''))}. The same "
+                     f"estimate is used in the drift model and the before/after table.</p>")
+    dv_rows = [f"<tr><td>{_e(x['date'])}</td><td>{_e(x['daily_value']['epoch_utc'])}</td>"
+               + "".join(f"<td class=num>{_fmt3(x['daily_value'].get(k))}</td>"
+                         for k in ("offset_ns", "u_a_ns", "u_b_ns", "u_ns")) + "</tr>"
+               for x in r.get("daily_values") or []]
+    dv_tab = ""
+    if dv_rows:
+        dv_tab = (f"<h2>Daily values ({_e(r['pair']['sign'])})</h2><table><tr><th>date</th><th>epoch (UTC)</th>"
+                  "<th>value / ns</th><th>u type A / ns</th><th>u type B / ns</th><th>u / ns</th></tr>"
+                  + "\n".join(dv_rows) + "</table><p class=note>"
+                  + _e(r["daily_value"].get("definition") or "") + "</p>")
 
     dev_rows = []
     tdev = {row["tau_s"]: row for row in r["stability"]["tdev"]}
@@ -578,9 +681,12 @@ def _html(r, figs):
         td = tdev.get(a["tau_s"], {})
         dev_rows.append("<tr>" + "".join(f"<td class=num>{v}</td>" for v in (
             _fmt(a["tau_s"], 6), _fmt(a["dev"], 4), f"{_fmt(a['ci_low'], 3)} – {_fmt(a['ci_high'], 3)}",
-            _fmt(m.get("dev"), 4), _fmt(td.get("dev"), 4), _fmt(a["edf"], 4), _e(a["noise"]))) + "</tr>")
+            _fmt(m.get("dev"), 4), _fmt(td.get("dev"), 4), _fmt(a["edf"], 4),
+            _e(a.get("noise_label") or "—"))) + "</tr>")
     dev_tab = ("<table><tr><th>τ / s</th><th>ADEV</th><th>ADEV 1σ CI</th><th>MDEV</th><th>TDEV / ns</th>"
-               "<th>EDF (ADEV)</th><th>noise type</th></tr>" + "\n".join(dev_rows) + "</table>")
+               "<th>EDF (ADEV)</th><th>noise type of the phase (lag-1 ACF at this τ)</th></tr>"
+               + "\n".join(dev_rows) + "</table><p class=note>A noise type is shown only where it was "
+               "identified at that τ (at least 30 decimated points) and agrees with the ADEV slope there.</p>")
 
     prov = r.get("provenance") or {}
     ins = prov.get("inputs")
@@ -608,7 +714,7 @@ def _html(r, figs):
                 return _fmt(float(v))
             except (TypeError, ValueError):
                 return _e(v)
-        budget_html = ("<table><tr><th>budget item</th><th>u / ns</th></tr>" + "".join(
+        budget_html = ("<table><tr><th>type B item (latest day)</th><th>u / ns</th></tr>" + "".join(
             f"<tr><td>{_e(k)}</td><td class=num>{cell(v)}</td></tr>" for k, v in items.items()) + "</table>")
 
     return f"""<!DOCTYPE html>
@@ -623,6 +729,7 @@ Uncertainties are standard (1σ). ADEV, MDEV and HDEV are dimensionless fraction
 <table>{summary_tab}</table>
 {budget_html}
 {_coordinates_html(r)}
+{dv_tab}
 <p class=note>Formal uncertainties of the drift fit come from the weights scaled by χ²/ν and assume white
 residuals; the lag-1 figure inflates them by √((1+r1)/(1−r1)) for correlated residuals, which still
 understates flicker and random-walk noise.</p>
@@ -668,17 +775,26 @@ def _before_after_html(r):
     rows = []
     for b in r["before_after"]:
         sig = [x["tau_s"] for x in b["adev_ratio_after_over_before"] if x["significant"]]
+        st = b.get("step_at_change_ns")
+        step = "—" if not st else f"{st['value']:+.4g} ± {st['u']:.2g}"
+        ag = "—" if not st or st.get("agrees_with_log") is None else ("yes" if st["agrees_with_log"] else "NO")
         rows.append("<tr>" + "".join(f"<td>{_e(v)}</td>" for v in (
-            b["change_time_utc"], b.get("what") or "", _fmt(b.get("expected_ns")),
-            f"{b['step_at_change_ns']['value']:+.4g} ± {b['step_at_change_ns']['u']:.2g}"
-            + (" (significant)" if b["step_at_change_ns"]["significant"] else ""),
-            f"{b['delta_mean_ns']['value']:+.4g} ± {b['delta_mean_ns']['u']:.2g}", f"{b['z']:.2f}",
-            "yes" if b["significant"] else "no",
+            b["change_time_utc"], b.get("what") or "", _fmt(b.get("expected_ns")), step, ag,
             ", ".join(f"{t:g}" for t in sig) or "none")) + "</tr>")
     return ("<h3>Before / after logged changes</h3><table><tr><th>change (UTC)</th><th>what</th>"
-            "<th>expected / ns</th><th>step at the change / ns (lines fitted either side)</th>"
-            "<th>mean change / ns</th><th>z (mean)</th><th>mean change significant (5 %)</th>"
+            "<th>expected / ns</th><th>step at the change / ns (the one estimate, changes table)</th>"
+            "<th>agrees with the log (2σ)</th>"
             "<th>τ / s where ADEV differs (F test, 5 %)</th></tr>" + "\n".join(rows) + "</table>")
+
+
+def _fmt3(v):
+    return "—" if v is None else f"{float(v):.3f}"
+
+
+def _dv_text(dv: dict) -> str:
+    """A daily_value object as one line (the figures exactly as stored, 0.001 ns)."""
+    return (f"{dv['offset_ns']:.3f} ns at {dv['epoch_utc']}, u {dv['u_ns']:.3f} ns "
+            f"(type A {dv['u_a_ns']:.3f}, type B {dv['u_b_ns']:.3f}; 1σ)")
 
 
 def day_range_ns(text_from: str | None, text_to: str | None):

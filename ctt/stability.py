@@ -366,6 +366,47 @@ def deviation(kind: str, data, rate: float = 1.0, data_type: str = "phase", taus
     return Deviation(kind, m / rate, dev, lo, hi, edf, n, a, a_int, names, src / rate, ci)
 
 
+def expected_slope(kind: str, alpha_int: int) -> float:
+    """Log-log slope of a deviation for power-law noise α (SP 1065 noise table): σ ∝ τ^μ/2 with
+    μ = −α − 1, except ADEV/HDEV of white PM (−1, like flicker PM); TDEV one more than MDEV."""
+    mu2 = (-alpha_int - 1) / 2.0
+    if kind in ("adev", "oadev", "hdev", "ohdev"):
+        return max(mu2, -1.0)
+    if kind == "tdev":
+        return mu2 + 1.0
+    return mu2
+
+
+def noise_labels(dev: "Deviation", tolerance: float = 0.5) -> list:
+    """Noise-type label per τ that can be shown beside ``dev``, or None.
+
+    A label is given only where the lag-1 ACF identification was made at that
+    very τ (not inherited from a shorter τ because too few points were left),
+    and only when the deviation's own log-log slope there (from its neighbours)
+    is within ``tolerance`` (one noise type) of the slope that noise type gives
+    for this estimator (:func:`expected_slope`): a label never contradicts the
+    plotted curve. Text: "<noise> (lag-1 ACF)".
+    """
+    tau = np.asarray(dev.tau_s, dtype=float)
+    d = np.asarray(dev.dev, dtype=float)
+    lt, ld = np.log(tau), np.where(np.isfinite(d) & (d > 0), np.log(np.where(d > 0, d, 1.0)), np.nan)
+    out = []
+    for i in range(len(tau)):
+        if not np.isfinite(ld[i]) or not np.isclose(dev.noise_tau_s[i], tau[i]):
+            out.append(None)
+            continue
+        sl = []
+        for j in (i - 1, i + 1):
+            if 0 <= j < len(tau) and np.isfinite(ld[j]):
+                sl.append((ld[j] - ld[i]) / (lt[j] - lt[i]))
+        exp = expected_slope(dev.kind, int(max(-2, dev.alpha_int[i])))
+        if sl and abs(float(np.mean(sl)) - exp) > tolerance:
+            out.append(None)
+            continue
+        out.append(f"{dev.noise[i]} (lag-1 ACF)")
+    return out
+
+
 def adev(data, rate=1.0, data_type="phase", taus=None, ci=ONE_SIGMA_CI):
     """Non-overlapping Allan deviation (SP 1065 eq. 7) with CIs."""
     return deviation("adev", data, rate, data_type, taus, ci)
@@ -755,7 +796,7 @@ def _step_fit(rel, x, idx):
 
 
 def estimate_step(t_s, x, epoch_s, step_s, *, x_others_removed=None, lo_s=-math.inf, hi_s=math.inf,
-                  max_window: int = 200) -> dict | None:
+                  max_window: int = 200, found_s=None) -> dict | None:
     """The one estimate of a change at a given epoch: local lines either side.
 
     Model, on the k samples before and the k samples after ``epoch_s`` (times
@@ -767,7 +808,10 @@ def estimate_step(t_s, x, epoch_s, step_s, *, x_others_removed=None, lo_s=-math.
     ``f`` (ns/s) the change of slope. Samples closer than half a sampling
     interval ``step_s`` to t_e are left out (their averaging window, e.g. a
     13-minute track, may straddle the change), and so are samples beyond
-    ``lo_s``/``hi_s`` (neighbouring changes).
+    ``lo_s``/``hi_s`` (neighbouring changes). When the search put the change at
+    ``found_s`` rather than at the logged ``epoch_s``, the samples between the
+    two are ambiguous and left out too (the search's epoch itself is kept when it
+    is after the logged one: it is the first sample of the new segment).
 
     Window. k is chosen from the series' own noise: for each candidate of
     :data:`STEP_WINDOWS` (up to ``max_window`` and a quarter of the series) the
@@ -789,6 +833,10 @@ def estimate_step(t_s, x, epoch_s, step_s, *, x_others_removed=None, lo_s=-math.
     xo = x if x_others_removed is None else np.asarray(x_others_removed, dtype=float)
     fin = np.isfinite(x)
     rel = t_s - epoch_s
+    if found_s is not None and found_s > epoch_s:
+        fin = fin & ~((t_s >= epoch_s) & (t_s < found_s))
+    elif found_s is not None and found_s < epoch_s:
+        fin = fin & ~((t_s >= found_s - 0.5 * step_s) & (t_s <= epoch_s))
     before = np.nonzero(fin & (rel < -0.5 * step_s) & (t_s >= lo_s))[0]
     after = np.nonzero(fin & (rel > 0.5 * step_s) & (t_s < hi_s))[0]
     if len(before) < 3 or len(after) < 3:
@@ -1000,7 +1048,8 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
                           np.zeros(len(xb)))
         est = estimate_step(ts, xb, (te - tb[0]) / 1e9, block_s, x_others_removed=others,
                             lo_s=-math.inf if lo is None else (lo - tb[0]) / 1e9,
-                            hi_s=math.inf if hi is None else (hi - tb[0]) / 1e9, max_window=window)
+                            hi_s=math.inf if hi is None else (hi - tb[0]) / 1e9, max_window=window,
+                            found_s=(ch.time_ns - tb[0]) / 1e9)
         ch.found_time_ns = int(ch.time_ns)
         if est is not None:
             ch.time_ns = te
@@ -1386,6 +1435,9 @@ def analyse(time_ns, offset_ns, u_ns=None, changes=None, taus=None, to_iso=None,
                              "penalty": f"{ch.penalty_k:g}*sigma^2*ln(n)",
                              "match_tolerance_s": ch.tolerance_s, "step_estimate": STEP_METHOD},
     }
+    for key, kind in (("adev", "oadev"), ("mdev", "mdev"), ("tdev", "tdev"), ("hdev", "ohdev")):
+        for rec, lab in zip(out[key], noise_labels(devs[kind])):
+            rec["noise_label"] = lab
     out["drift"]["t_ref"] = iso(fit.t_ref_ns)
     out["drift"]["step_epochs"] = [iso(t) for t in fit.step_epochs_ns]
     out["steps_removed"] = [{**r, "time_utc": iso(r["time_ns"])} for r in removed]

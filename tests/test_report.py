@@ -143,7 +143,11 @@ def test_report_json_numbers(built, run_dir):
     truth = np.hypot(np.sqrt(3) * 1.2e-9 / 3600, np.sqrt((0.05e-9) ** 2 / (300 * 3600)))
     assert a["tau_s"] == 3600.0 and a["noise"] == "white PM"
     assert abs(a["dev"] - truth) < 2 * (a["ci_high"] - a["ci_low"]) / 2
-    assert r["stability_at"]["1 d"]["adev"] is None      # 3 d span: 1 d > span/3
+    # 3 d span: 1 d > span/3, so the nearest computed τ within an octave is used and named
+    # (octave τ of the series' τ0; the largest ≤ span/3)
+    one_d = r["stability_at"]["1 d"]
+    assert one_d["tau_s"] == one_d["adev"]["tau_s"] and 43200 <= one_d["tau_s"] < 86400
+    assert one_d["tau_s"] <= r["series"]["span_s"] / 3
     assert r["drift"]["drift_per_day"]["u"] > 0
     doc = built.read_text()
     assert f"TDEV {r['stability_at']['1 h']['tdev_ns']['dev']:.3g} ns" in doc    # same number in both
