@@ -203,7 +203,7 @@ class PairResult:
 
 def format_daily_value(dv: dict, name_a: str = "A", name_b: str = "B") -> str:
     """The one printed line of a ``daily_value`` object (the same figures as summary.json)."""
-    return (f"  daily value {name_a} - {name_b} at {dv['epoch_utc']}: {dv['offset_ns']:.3f} ns, "
+    return (f"  daily value, clock A - clock B ({name_a} - {name_b}) at {dv['epoch_utc']}: {dv['offset_ns']:.3f} ns, "
             f"u {dv['u_ns']:.3f} ns (type A {dv['u_a_ns']:.3f}, type B {dv['u_b_ns']:.3f}; 1 sigma)")
 
 
@@ -399,7 +399,7 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
 
     daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
     budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
-              "total_ns": daily["u_ns"], "type_a_method": "time-transfer noise (see daily_value)",
+              "total_ns": daily["u_ns"], "type_a_method": "link noise",
               "type_a_detail": daily_detail["u_a_parts_ns"]}
     summary = _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference)
     summary["warnings"] = list(input_warnings)

@@ -97,7 +97,9 @@ def test_pair_command_writes_the_three_files(pair, tmp_path, capsys):
     import json
     s = json.loads((tmp_path / "summary.json").read_text())
     assert len(s["inputs"]["obs_a"]["sha256"]) == 64 and s["software"]["name"] == "ctt"
-    assert "budget" in s and s["budget"]["total_ns"] > 0
+    assert "budget" in s and s["budget"]["type_b_ns"] > 0
+    dv = s["daily_value"]   # the one daily value (issue 12): u from type A and type B
+    assert dv["u_ns"] == pytest.approx(np.hypot(dv["u_a_ns"], dv["u_b_ns"]), abs=1.5e-3)  # rounding to 0.001
     assert "clock A - clock B" in capsys.readouterr().out
 
 
