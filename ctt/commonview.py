@@ -51,13 +51,19 @@ Bin value and uncertainty
       (the floor is the 5 % lower quantile of what the scatter would give if
       ``u_ref`` were right: it bites only on bins whose satellites agree
       implausibly well), and ``u_ref`` for n < 3.
-    * ``chi2`` = Σrᵢ²/σᵢ² (a-priori σ; NaN if unknown), ``dof`` = n − 1,
-      ``scatter_ns`` = √(Σwᵢrᵢ²/Σwᵢ).
+    * ``chi2`` = Σrᵢ²/σᵢ² (a-priori σ; NaN if unknown); for two values
+      (d₁ − d₂)²/(σ₁² + σ₂²), their difference against √(σ₁² + σ₂²), whatever
+      the weights; ``dof`` = n − 1, ``scatter_ns`` = √(Σwᵢrᵢ²/Σwᵢ).
 
 Bin flags: ``'no_data'`` (no usable value, offset NaN), ``'few_satellites'``
 (fewer than ``min_common`` values: the offset is still given, with the flag;
-users keep ``flag == 'ok'``), ``'high_scatter'`` (χ² above its 99 % quantile,
-or without a-priori σ ``c_bin`` above ``c_day·χ²₀.₉₉(n−1)/(n−1)``), ``'ok'``.
+users keep ``flag == 'ok'``), ``'high_scatter'`` (n ≥ 2: χ² above its 99 %
+quantile, χ²₀.₉₉(1) = 6.63 for two values, or without a-priori σ ``c_bin``
+above ``c_day·χ²₀.₉₉(n−1)/(n−1)``), ``'ok'``. So ``ok`` guarantees: n = 1
+(only with ``min_common`` 1) nothing beyond the value's own a-priori u; n = 2
+that the two agree within their a-priori σ at 99 % (which one is wrong cannot
+be told, nothing is rejected); n ≥ 3 that outliers were rejected (MAD rule)
+and the rest agree with their a-priori σ at 99 %.
 
 Multi-GNSS
     Each system is solved alone (``system`` = its letter). With more than one
@@ -224,8 +230,16 @@ def robust_weighted_mean(g, ng, d, w, sigma=None, *, family=None, mad_k=3.5, max
         nu = np.maximum(dof, 1)
         floor = u_ref * np.sqrt(stats.chi2.ppf(0.05, nu) / nu)
         u = np.where(n >= 3, np.fmax(u_sc, floor), u_ref)
+        # two values: their difference against √(σ₁² + σ₂²), i.e. χ² = (d₁ − d₂)²/(σ₁² + σ₂²)
+        # with one degree of freedom, whatever the weights ((d₁−d₂)² = 2Σr² − (Σr)², r = d − m)
+        sr = np.bincount(g, np.where(acc, r, 0.0), ng)
+        sr2 = np.bincount(g, np.where(acc, r * r, 0.0), ng)
+        ss2 = np.bincount(g, np.where(acc, s0 * s0, 0.0), ng)
+        chi2_pair = np.where(ss2 > 0, (2.0 * sr2 - sr * sr) / np.where(ss2 > 0, ss2, 1.0), np.nan)
+        chi2 = np.where((n == 2) & np.isfinite(chi2), chi2_pair, chi2)
         q99 = stats.chi2.ppf(0.99, nu)
-        high = (n >= 3) & np.where(np.isfinite(u_prior), chi2 > q99, c_bin > c_day * q99 / nu)
+        high = (n >= 2) & np.where(np.isfinite(u_prior), chi2 > q99,
+                                   np.isfinite(c_day) & (c_bin > c_day * q99 / nu))
         high &= scatter > scale_floor_ns
     m = np.where(n > 0, m, np.nan)
     per = {"offset_ns": m, "u_ns": u, "u_apriori_ns": u_prior, "n_sat": n.astype(np.int64),

@@ -39,6 +39,10 @@ Station file
     valid_until = 2030-01-01T00:00:00Z   # optional, exclusive; absent = open
     receiver_ns = { C1C = 25.1, C1W = 25.3, C2W = 27.0, C5Q = 24.0 }
     u_receiver_ns = 1.0          # or a table per code
+    receiver_correlation = 1.0   # optional: correlation of the codes' receiver-delay errors
+                                 # (default 1: one calibration campaign against one reference)
+    combined_ns = { "C1W+C2W" = 22.4 }   # optional: a calibrated combination's delay (e.g. the
+    u_combined_ns = 0.8                  # iono-free P3), used instead of combining the codes
     cable_ns = 152.4
     u_cable_ns = 0.2
     reference_ns = 11.8
@@ -407,6 +411,14 @@ class DelaySet:
     note: str = ""
     source: str = field(default="", compare=False)  # file it came from (for messages)
     index: int = field(default=0, compare=False)    # 1-based position among the file's [[delays]]
+    #: correlation coefficient of the receiver-delay errors of different codes (1: fully
+    #: correlated, the default: the codes are calibrated together against one reference)
+    receiver_correlation: float = 1.0
+    #: calibrated combinations: frozenset of codes -> (delay ns, u ns), e.g. the iono-free P3
+    combined_ns: Mapping = field(default_factory=dict)
+
+    def _combined(self, coefficients):
+        return self.combined_ns.get(frozenset(coefficients)) if self.combined_ns else None
 
     def covers(self, time_utc_ns: int) -> bool:
         return self.valid_from_ns <= time_utc_ns and (
@@ -438,14 +450,31 @@ class DelaySet:
         s = sum(coefficients.values())
         if abs(s - 1.0) > 1e-9:
             raise ValueError(f"combination coefficients must sum to 1, got {s}")
+        comb = self._combined(coefficients)
+        if comb is not None:       # the station file gives this combination's calibrated delay
+            return comb[0] + self.cable_ns - self.reference_ns
         return sum(c * self._code(k) for k, c in coefficients.items()) + self.cable_ns - self.reference_ns
 
     def u_hardware_combined_ns(self, coefficients: Mapping[str, float]) -> float:
-        """Uncertainty of :meth:`hardware_combined_ns`; receiver terms taken as independent per code."""
+        """Uncertainty of :meth:`hardware_combined_ns` (GUM law of propagation with correlation).
+
+        A calibrated combination (``combined_ns``) brings its own u. Otherwise the codes'
+        receiver terms combine as ``Σᵢ Σⱼ cᵢ cⱼ r_ij uᵢ uⱼ`` with r_ii = 1 and r_ij =
+        ``receiver_correlation`` (GUM, JCGM 100:2008 eq. 16). Fully correlated (the default)
+        with equal u per code, the iono-free receiver term is u·|Σcᵢ| = u (1.5 ns stays
+        1.5 ns); independent (0) it is u·√Σcᵢ² (×2.98 for GPS L1/L2). Cable and reference
+        pass through (weight Σcᵢ = 1).
+        """
+        comb = self._combined(coefficients)
+        if comb is not None:
+            return math.sqrt(comb[1] ** 2 + self.u_cable_ns ** 2 + self.u_reference_ns ** 2)
         for k in coefficients:
             self._code(k)
-        var = sum((c * self.u_receiver_ns[k]) ** 2 for k, c in coefficients.items())
-        return math.sqrt(var + self.u_cable_ns ** 2 + self.u_reference_ns ** 2)
+        v = np.array([c * self.u_receiver_ns[k] for k, c in coefficients.items()], dtype=float)
+        r = np.full((len(v), len(v)), float(self.receiver_correlation))
+        np.fill_diagonal(r, 1.0)
+        var = float(v @ r @ v)
+        return math.sqrt(max(var, 0.0) + self.u_cable_ns ** 2 + self.u_reference_ns ** 2)
 
 
 @dataclass(frozen=True)
@@ -709,6 +738,7 @@ _POSITION_KEYS = {"x_m", "y_m", "z_m", "sigma_m", "sigma_x_m", "sigma_y_m", "sig
                   "epoch", "is_marker"}
 _ANTENNA_KEYS = {"type", "radome", "delta_h_m", "delta_e_m", "delta_n_m"}
 _DELAY_KEYS = {"valid_from", "valid_until", "receiver_ns", "u_receiver_ns", "cable_ns", "u_cable_ns",
+               "receiver_correlation", "combined_ns", "u_combined_ns",
                "reference_ns", "u_reference_ns", "note"}
 _CHANGE_KEYS = {"time", "what", "expected_delay_change_ns"}
 
@@ -858,11 +888,42 @@ def _read_delays(r: _Reader, items, path) -> tuple[DelaySet, ...]:
                                ("u_reference_ns", "an uncertainty in ns", 0.0)):
             vals[name] = r.number(d, name, f"{k}.{name}", what, lo=lo)
         note = r.text(d, "note", f"{k}.note", "a note", required=False, default="")
-        if t0 is None or any(v is None for v in vals.values()) or len(urec) != len(rec):
+        rho = 1.0
+        if "receiver_correlation" in d:
+            rho = r.number(d, "receiver_correlation", f"{k}.receiver_correlation",
+                           "a correlation coefficient from 0 to 1", lo=0.0)
+            if rho is not None and rho > 1.0:
+                r.fail(f"{k}.receiver_correlation", f"expected a correlation coefficient from 0 to 1, found {rho}")
+                rho = None
+        combined = {}
+        craw = d.get("combined_ns")
+        if craw is not None:
+            ucomb = d.get("u_combined_ns")
+            if not isinstance(craw, dict) or not craw:
+                r.fail(f"{k}.combined_ns", 'expected a table such as { "C1W+C2W" = 22.4 }')
+            elif ucomb is None:
+                r.fail(f"{k}.u_combined_ns", "missing; a calibrated combination needs its uncertainty in ns")
+            else:
+                for name in craw:
+                    codes = [c.strip() for c in str(name).split("+")]
+                    if len(codes) < 2 or not all(_CODE_RE.match(c) for c in codes):
+                        r.fail(f"{k}.combined_ns.{name}", "expected RINEX 3 codes joined by '+', e.g. C1W+C2W")
+                        continue
+                    val = r.number(craw, name, f"{k}.combined_ns.{name}", "a delay in ns")
+                    if isinstance(ucomb, dict):
+                        uu = r.number(ucomb, name, f"{k}.u_combined_ns.{name}", "an uncertainty in ns", lo=0.0)
+                    else:
+                        uu = r.number(d, "u_combined_ns", f"{k}.u_combined_ns", "an uncertainty in ns", lo=0.0)
+                    if val is not None and uu is not None:
+                        combined[frozenset(codes)] = (val, uu)
+        elif d.get("u_combined_ns") is not None:
+            r.fail(f"{k}.u_combined_ns", "given without combined_ns")
+        if t0 is None or any(v is None for v in vals.values()) or len(urec) != len(rec) or rho is None:
             continue
         out.append(DelaySet(t0, t1, types.MappingProxyType(rec), types.MappingProxyType(urec),
                             vals["cable_ns"], vals["u_cable_ns"], vals["reference_ns"],
-                            vals["u_reference_ns"], note, str(path), i))
+                            vals["u_reference_ns"], note, str(path), i, float(rho),
+                            types.MappingProxyType(combined)))
     out.sort(key=lambda s: s.valid_from_ns)
     for a, b in zip(out, out[1:]):
         if a.valid_until_ns is None or a.valid_until_ns > b.valid_from_ns:
@@ -953,6 +1014,14 @@ def dump_station(cfg: StationConfig) -> str:
             lines.append(f"u_receiver_ns = {_toml_float(u[0])}")
         else:
             lines.append(f"u_receiver_ns = {_toml_code_table(ds.u_receiver_ns)}")
+        if ds.receiver_correlation != 1.0:
+            lines.append(f"receiver_correlation = {_toml_float(ds.receiver_correlation)}")
+        if ds.combined_ns:
+            names = {"+".join(sorted(k)): v for k, v in ds.combined_ns.items()}
+            lines.append("combined_ns = { " + ", ".join(f'"{n}" = {_toml_float(v[0])}' for n, v in names.items())
+                         + " }")
+            lines.append("u_combined_ns = { " + ", ".join(f'"{n}" = {_toml_float(v[1])}'
+                                                          for n, v in names.items()) + " }")
         for k in ("cable_ns", "u_cable_ns", "reference_ns", "u_reference_ns"):
             lines.append(f"{k} = {_toml_float(getattr(ds, k))}")
         if ds.note:

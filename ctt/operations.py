@@ -97,6 +97,8 @@ def day_config_hash(pc, date) -> str:
             "arp_m": [round(float(v), 6) for v in st.arp_m], "mask": st.elevation_mask_deg,
             "delays": [{"from": d.valid_from_ns, "until": d.valid_until_ns, "receiver": dict(d.receiver_ns),
                         "u_receiver": dict(d.u_receiver_ns), "cable": d.cable_ns, "u_cable": d.u_cable_ns,
+                        "receiver_correlation": d.receiver_correlation,
+                        "combined": {"+".join(sorted(k)): list(v) for k, v in d.combined_ns.items()},
                         "reference": d.reference_ns, "u_reference": d.u_reference_ns} for d in sets],
         }
 

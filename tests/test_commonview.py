@@ -326,7 +326,9 @@ def test_coordinate_propagation_is_the_pipeline_linear_map():
     # Fast exact check: a 1-m error along E, N or U at A (B) moves the day's mean by
     # +ū_k/c (−ū_k/c), ū the effective line of sight (linearity of weighted means).
     # Two satellites per bin with a-priori σ: bin u then comes from σ alone and
-    # does not move with the values, so the map is exactly linear.
+    # does not move with the values, so the map is exactly linear. The shift is 1 mm
+    # (result scaled by 1000): two-value bins are tested against their σ (issue 12), and
+    # a 1 m shift would move some of them across the 99 % line, changing the bins used.
     rng = np.random.default_rng(8)
     a = station(lambda ts: truth(ts), GPS10[:2], n_ep=96, step_s=900, noise0=0.5, rng=rng)
     b = station(lambda ts: 0 * ts, GPS10[:2], n_ep=96, step_s=900, phase=0.4, noise0=0.5, rng=rng)
@@ -338,10 +340,10 @@ def test_coordinate_propagation_is_the_pipeline_linear_map():
         los = cv.line_of_sight_enu(tab["elevation_deg"], tab["azimuth_deg"])
         for k in range(3):
             moved = tab.copy()
-            moved["value_ns"] = tab["value_ns"] + los[:, k] / C * 1e9
+            moved["value_ns"] = tab["value_ns"] + 1e-3 * los[:, k] / C * 1e9
             pair = (moved, tb) if name == "A" else (ta, moved)
-            shift = cv.uncertainty_budget(cv.common_view(*pair).offset_df)["mean_offset_ns"] - base
-            assert shift == pytest.approx(sign * ubar[k] / C * 1e9, rel=1e-9, abs=1e-12)
+            shift = 1e3 * (cv.uncertainty_budget(cv.common_view(*pair).offset_df)["mean_offset_ns"] - base)
+            assert shift == pytest.approx(sign * ubar[k] / C * 1e9, rel=1e-9, abs=1e-9)
     # geometry sanity: the up component of a mean line of sight over a sky above
     # 10° is positive and dominant (horizontal parts partly cancel)
     ubar, _ = cv.effective_line_of_sight(r0, "A")
@@ -518,3 +520,22 @@ def test_main_series_is_chosen_per_day():
     assert list(zip(out["date"], out["system"])) == [("2021-01-01", "ALL"), ("2021-01-02", "G")]
     with pytest.raises(ValueError, match="choose one"):
         main_series(pd.DataFrame({"date": ["d", "d"], "system": ["G", "E"], "offset_ns": [1.0, 2.0]}), strict=True)
+
+
+def test_two_value_points_are_tested_against_their_apriori_sigma():
+    # issue 12: a point made of two values is flagged like any other when they disagree:
+    # χ² = (d1 − d2)²/(σ1² + σ2²) against χ²(1 dof) at 99 % = 6.635 (chi-square table,
+    # e.g. NIST/SEMATECH e-Handbook 1.3.6.7.4), whatever the weights of the mean.
+    g = np.array([0, 0, 1, 1, 2, 2, 3, 3])
+    s1, s2 = 0.6, 0.8
+    lim = np.sqrt(6.635 * (s1 ** 2 + s2 ** 2))          # 2.576 σ of the difference
+    d = np.array([10.0, 10.0 + 0.97 * lim, 10.0, 10.0 + 1.03 * lim, 3.0, 3.1, 7.0, 7.0 - 3 * lim])
+    sig = np.tile([s1, s2], 4)
+    w = np.array([0.9, 0.2] * 4)                       # elevation weights, not 1/σ²
+    per, acc, _ = cv.robust_weighted_mean(g, 4, d, w, sig)
+    assert per["high_scatter"].tolist() == [False, True, False, True]
+    assert acc.all()                                   # two values: nothing rejected, only flagged
+    dd = d[1::2] - d[0::2]
+    np.testing.assert_allclose(per["chi2"], dd ** 2 / (s1 ** 2 + s2 ** 2), rtol=1e-9)
+    flags = cv._bin_flags(per, min_common=2)
+    assert flags.tolist() == ["ok", "high_scatter", "ok", "high_scatter"]

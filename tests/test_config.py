@@ -78,10 +78,41 @@ def test_iono_free_combination_of_delays():
     comb = {"C1W": a, "C2W": 1 - a}
     expect = a * 25.3 + (1 - a) * 27.0 + 152.4 - 11.8
     assert ds.hardware_combined_ns(comb) == pytest.approx(expect, abs=1e-9)
+    # default: the codes' receiver delays fully correlated (one calibration campaign), so by the
+    # GUM law of propagation (JCGM 100:2008 eq. 16, r = 1) u = |a·1.0 + (1 − a)·1.0| = 1.0 ns
+    assert ds.receiver_correlation == 1.0
     assert ds.u_hardware_combined_ns(comb) == pytest.approx(
-        math.sqrt((a * 1.0) ** 2 + ((1 - a) * 1.0) ** 2 + 0.2 ** 2 + 0.3 ** 2), rel=1e-12)
+        math.sqrt((a * 1.0 + (1 - a) * 1.0) ** 2 + 0.2 ** 2 + 0.3 ** 2), rel=1e-12)
     with pytest.raises(ValueError):
         ds.hardware_combined_ns({"C1W": 1.0, "C2W": 1.0})
+
+
+def test_receiver_delay_correlation_and_calibrated_combination(tmp_path):
+    # issue 12: 1.5 ns per code gave 4.48 ns iono-free when taken as independent (×2.98 for L1/L2);
+    # the station file now states the correlation, or the combination's own delay and u
+    f1, f2 = 1575.42, 1227.60  # MHz, IS-GPS-200
+    a = f1 ** 2 / (f1 ** 2 - f2 ** 2)
+    comb = {"C1W": a, "C2W": 1 - a}
+    text = _station_text(**{"u_receiver_ns = 1.0": "u_receiver_ns = 1.5\nreceiver_correlation = 0.0"})
+    ind = C.load_station(_write(tmp_path, text)).delay_sets[0]
+    assert math.sqrt(a ** 2 + (1 - a) ** 2) == pytest.approx(2.98, abs=0.005)   # the amplification
+    assert ind.u_hardware_combined_ns(comb) == pytest.approx(
+        math.sqrt((1.5 * a) ** 2 + (1.5 * (1 - a)) ** 2 + 0.2 ** 2 + 0.3 ** 2), rel=1e-12)
+    half = C.load_station(_write(tmp_path, text.replace("receiver_correlation = 0.0",
+                                                        "receiver_correlation = 0.5"))).delay_sets[0]
+    var = (1.5 * a) ** 2 + (1.5 * (1 - a)) ** 2 + 2 * 0.5 * (1.5 * a) * (1.5 * (1 - a))   # GUM eq. 16
+    assert half.u_hardware_combined_ns(comb) == pytest.approx(math.sqrt(var + 0.2 ** 2 + 0.3 ** 2), rel=1e-12)
+    # a calibrated iono-free delay replaces the combination of the codes, with its own u
+    cal = C.load_station(_write(tmp_path, _station_text(**{"u_receiver_ns = 1.0": (
+        'u_receiver_ns = 1.0\ncombined_ns = { "C1W+C2W" = 22.0 }\nu_combined_ns = 0.7')}))).delay_sets[0]
+    assert cal.hardware_combined_ns(comb) == pytest.approx(22.0 + 152.4 - 11.8, abs=1e-9)
+    assert cal.u_hardware_combined_ns(comb) == pytest.approx(math.sqrt(0.7 ** 2 + 0.2 ** 2 + 0.3 ** 2), rel=1e-12)
+    # written back and read again: the same set
+    again = C.load_station(_write(tmp_path, C.dump_station(C.load_station(_write(tmp_path, text)))))
+    assert again.delay_sets[0].receiver_correlation == 0.0
+    # a correlation outside 0..1 is refused naming the key
+    with pytest.raises(ConfigError, match="receiver_correlation"):
+        C.load_station(_write(tmp_path, text.replace("receiver_correlation = 0.0", "receiver_correlation = 1.5")))
 
 
 def test_delays_at_boundaries():
