@@ -78,7 +78,7 @@ from .errors import FileFormatError, NoDataError, ProcessingError, UsageError
 from .formats.cggtts import TRACK_COLUMNS, CggttsHeader
 from .timescales import EPOCH_MJD, NS_PER_DAY, parse_iso_array, to_iso, to_mjd_float
 
-__all__ = ["write_offsets", "offsets_metadata", "read_offsets_csv", "read_events", "parse_iso_exact", "parse_mjd_exact", "correct_events",
+__all__ = ["write_offsets", "write_daily_values", "DAILY_COLUMNS", "offsets_metadata", "read_offsets_csv", "read_events", "parse_iso_exact", "parse_mjd_exact", "correct_events",
            "tdev_from_series", "OUT_FORMATS"]
 
 OUT_FORMATS = ("csv", "parquet", "json")
@@ -183,6 +183,41 @@ def write_offsets(df: pd.DataFrame, path_or_stdout=None, format: str = "csv", me
                                                    b"ctt": json.dumps(metadata).encode()})
         buf = io.BytesIO()
         pq.write_table(table, buf)
+        _emit(buf.getvalue(), path_or_stdout, to_stdout)
+
+
+DAILY_COLUMNS = ("date", "epoch_utc", "offset_ns", "u_a_ns", "u_b_ns", "u_ns", "definition")
+
+
+def write_daily_values(df: pd.DataFrame, path_or_stdout=None, format: str = "csv", *,
+                       stations: str | None = None) -> None:
+    """Write the archived ``daily_value`` objects (one row per date) as csv, parquet or json.
+
+    The figures are the objects exactly as summary.json and the archive hold them
+    (ns, 0.001 ns). CSV: the columns of :data:`DAILY_COLUMNS`; JSON: ``{"stations",
+    "sign", "units", "daily_values": [{date, daily_value: {...}}]}``; Parquet: the columns.
+    """
+    if format not in OUT_FORMATS:
+        raise UsageError(f"unknown format {format!r}; expected one of {', '.join(OUT_FORMATS)}")
+    out = pd.DataFrame({c: df[c].to_numpy() if c in df.columns else None for c in DAILY_COLUMNS})
+    to_stdout = path_or_stdout is None or str(path_or_stdout) == "-"
+    if format == "csv":
+        _emit(out.to_csv(index=False, lineterminator="\n").encode(), path_or_stdout, to_stdout)
+    elif format == "json":
+        a, b = (str(stations).split("-", 1) + ["B"])[:2] if stations else ("A", "B")
+        rows = []
+        for r in out.to_dict(orient="records"):
+            dv = {k: (None if isinstance(r[k], float) and not np.isfinite(r[k]) else r[k])
+                  for k in DAILY_COLUMNS if k != "date"}
+            rows.append({"date": r["date"], "daily_value": dv})
+        obj = {"stations": stations, "sign": f"offset_ns = clock {a} - clock {b}",
+               "units": {"offset_ns": "ns", "u_a_ns": "ns (type A, 1 sigma)", "u_b_ns": "ns (type B, 1 sigma)",
+                         "u_ns": "ns (combined, 1 sigma)", "epoch_utc": "UTC, ISO 8601"},
+               "daily_values": rows}
+        _emit((json.dumps(obj, indent=1) + "\n").encode(), path_or_stdout, to_stdout)
+    else:
+        buf = io.BytesIO()
+        out.to_parquet(buf, index=False)
         _emit(buf.getvalue(), path_or_stdout, to_stdout)
 
 

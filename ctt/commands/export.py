@@ -9,7 +9,8 @@ comment="#")`` skips; JSON: ``{"metadata": ..., "rows": [...]}``; Parquet: schem
 metadata ``ctt``), see :mod:`ctt.exports`. By default only the pair's main series is
 written, the one ``offset.csv`` holds (the combined 'ALL' series when several
 systems were processed, else the single system); ``--system all`` writes every
-stored series.
+stored series. ``--daily`` writes the archived daily values instead: one row per
+date, the day's ``daily_value`` object exactly as in its summary.json.
 """
 
 from __future__ import annotations
@@ -38,6 +39,9 @@ def register(subparsers) -> None:
     p.add_argument("--format", choices=FORMATS, default="csv", help="output format (default csv)")
     p.add_argument("--system", help="G, E, ALL ... or 'all' for every stored series "
                                     "(default: the main series, as in offset.csv)")
+    p.add_argument("--daily", action="store_true",
+                   help="write the archived daily values (one row per date: the daily_value of each day's "
+                        "summary.json: epoch_utc, offset_ns, u_a_ns, u_b_ns, u_ns, definition) instead of the points")
     p.add_argument("--out", help="output file (default: stdout)")
     p.set_defaults(func=run)
 
@@ -59,6 +63,16 @@ def run(args) -> int:
     pair = load_pair(args.config)
     if not pair.archive_path.exists():
         raise MissingInputError(f"{pair.archive_path}: archive not found (configured in {pair.path} [output])")
+    if args.daily:
+        from ..exports import write_daily_values
+
+        with Archive(pair.archive_path) as arch:
+            dv = arch.load_daily_values(pair.name, d0, d1)
+        if dv.empty:
+            raise NoDataError(f"{pair.archive_path}: no archived daily values of {pair.name} from {d0} to {d1}")
+        stations = next((s for s in dv["stations"] if s), f"{pair.station_a.id}-{pair.station_b.id}")
+        write_daily_values(dv, args.out, args.format, stations=stations)
+        return 0
     with Archive(pair.archive_path) as arch:
         system = None if (args.system or "").lower() == "all" else args.system
         df = arch.load_offsets(pair.name, d0, d1, system=system, extras=False)
