@@ -173,7 +173,9 @@ class PairResult:
         ok = o["flag"] == "ok"
         lines = [f"pair {s['pair']} ({s['mode']}, {s['signals']}, {s['reference']} clocks): "
                  f"{int(ok.sum())} of {len(o)} points ok"]
-        if ok.any():
+        if s.get("daily_value") is None:
+            lines.append("  " + str((s.get("daily_value_detail") or {}).get("reason", "no daily value")))
+        if ok.any() and s.get("daily_value") is not None:
             lines.append(format_daily_value(s["daily_value"], s["station_a"], s["station_b"]))
             lines.append(f"  median point u {o.loc[ok, 'u_ns'].median():.3f} ns, "
                          f"median satellites per point {o.loc[ok, 'n_sat'].median():.0f}")
@@ -197,7 +199,8 @@ class PairResult:
             lines.append(f"  warning: {w}")
         for f in s.get("day_flags", []):
             lines.append(f"  DAY FLAGGED: {f}")
-        lines.append(commonview.format_budget(self.budget))
+        if "mean_offset_ns" in self.budget:
+            lines.append(commonview.format_budget(self.budget))
         return lines
 
 
@@ -378,7 +381,8 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
     by_sys = cv.offset_df
     main_sys = commonview.main_system(by_sys["system"]) or sorted(set(by_sys["system"]))[0]
     offset = by_sys[by_sys["system"] == main_sys].reset_index(drop=True)
-    if not (offset["flag"] == "ok").any():
+    any_ok = bool((offset["flag"] == "ok").any())
+    if not any_ok and not (offset["flag"] == "high_scatter").any():
         raise NoDataError(f"no usable common-view point between {station_a.id} and {station_b.id} "
                           f"({len(offset)} bins, flags: {offset['flag'].value_counts().to_dict()})")
 
@@ -390,19 +394,29 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
         else:
             red = red_a if st is station_a else red_b
             type_b[f"delays {st.id} (partner file)"] = _partner_delay_u(st, red)
-    budget = commonview.uncertainty_budget(
-        by_sys, type_b_items=type_b, result=cv, system=main_sys,
-        coordinate_sigma_m={"A": _sigma_enu(station_a), "B": _sigma_enu(station_b)})
-    budget["items"] = {k.replace("coordinates A", f"coordinates {station_a.id}")
-                       .replace("coordinates B", f"coordinates {station_b.id}"): v
-                       for k, v in budget["items"].items()}
-
-    daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
-    budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
-              "total_ns": daily["u_ns"], "type_a_method": "link noise",
-              "type_a_detail": daily_detail["u_a_parts_ns"]}
+    no_value = None
+    if any_ok:
+        budget = commonview.uncertainty_budget(
+            by_sys, type_b_items=type_b, result=cv, system=main_sys,
+            coordinate_sigma_m={"A": _sigma_enu(station_a), "B": _sigma_enu(station_b)})
+        budget["items"] = {k.replace("coordinates A", f"coordinates {station_a.id}")
+                           .replace("coordinates B", f"coordinates {station_b.id}"): v
+                           for k, v in budget["items"].items()}
+        daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
+        budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
+                  "total_ns": daily["u_ns"], "type_a_method": "link noise",
+                  "type_a_detail": daily_detail["u_a_parts_ns"]}
+    else:
+        # every point failed its consistency test (e.g. files that do not belong together,
+        # forced): the points are written with their flags, but there is no daily value
+        no_value = (f"no daily value: none of the {len(offset)} points passed the consistency checks "
+                    f"(flags: {offset['flag'].value_counts().to_dict()})")
+        log.warning("%s", no_value)
+        b_var = sum(v * v for v in type_b.values())
+        budget = {"type_b_ns": float(np.sqrt(b_var)), "items": dict(type_b), "system": main_sys, "n_bins": 0}
+        daily, daily_detail = None, {"reason": no_value}
     summary = _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference)
-    summary["warnings"] = list(input_warnings)
+    summary["warnings"] = list(input_warnings) + ([no_value] if no_value else [])
     _coordinate_checks(summary, ((station_a, day_a), (station_b, day_b)))
     summary["daily_value"] = daily
     summary["daily_value_detail"] = daily_detail

@@ -309,7 +309,9 @@ def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev
         a1.set_yscale("log")
         a1.set_xlabel("averaging time τ / s")
         a1.set_ylabel("fractional frequency deviation σ(τ) (dimensionless)")
-        a1.set_title("Allan-type deviations (1σ CI; noise type at bottom: lag-1 ACF, where it fits ADEV)")
+        a1.set_title("Allan-type deviations (1σ CI)")
+        a1.set_xlabel("averaging time τ / s\n(blue: noise type of the phase by lag-1 ACF, "
+                      "where it fits the ADEV slope)")
         if first is not None:
             _pad_log(a1)
             _noise_strip(a1, *first)
@@ -324,7 +326,9 @@ def plot_deviations(devs: dict, stem, title="Frequency and time stability", tdev
             a2.set_yscale("log")
             a2.set_xlabel("averaging time τ / s")
             a2.set_ylabel("time deviation TDEV(τ) / ns")
-            a2.set_title("Time deviation (1σ CI; noise type at bottom: lag-1 ACF, where it fits TDEV)")
+            a2.set_title("Time deviation (1σ CI)")
+            a2.set_xlabel("averaging time τ / s\n(blue: noise type of the phase by lag-1 ACF, "
+                          "where it fits the TDEV slope)")
             _pad_log(a2)
             _noise_strip(a2, tau, dev, noise)
             _tau_ticks(a2)
@@ -497,6 +501,9 @@ def plot_before_after(comparison, stem, labels=("before", "after"), title="Befor
                                 else " (no significant difference)"))
         a2.set_ylabel("TDEV / ns")
         a2.set_title("TDEV")
+        a2.yaxis.set_major_locator(matplotlib.ticker.LogLocator(subs=(1.0, 2.0, 5.0)))
+        a2.yaxis.set_major_formatter(matplotlib.ticker.FuncFormatter(lambda v, _: f"{v:g}"))
+        a2.yaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
         if step:
             line2 = f"step at the change {step['value']:+.3f} ± {step['u']:.3f} ns (the one estimate of the change)"
         else:

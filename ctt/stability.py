@@ -49,7 +49,24 @@ quadratic (phase) or linear (frequency) trend removed, then differenced until
 (minutes on a year of 30 s data) and it raises for fewer than 30 points, so
 the vectorised version here is used; it agrees with allantools' (tested).
 Below 30 decimated points the τ inherits the identification of the
-largest τ that had enough points (``noise_tau_s`` says which).
+largest τ that had enough points (``noise_tau_s`` says which);
+:func:`noise_labels` gives the labels that may be shown beside a curve (only
+where identified at that τ and consistent with the curve's slope).
+
+Changes. :func:`detect_changes` searches for change points and estimates each
+change once, at the logged epoch when the change is in a station log
+(:func:`estimate_step`: offset and slope on each side, window chosen from the
+series' noise); the drift model (:func:`fit_drift` with ``fixed_steps``), the
+reports and the daily value use that one estimate.
+
+The daily value. :func:`daily_value` is the one definition of a day's clock
+A − clock B (:data:`DAILY_VALUE_DEFINITION`): epoch = weighted centre of the
+day's ok points; estimator = the day's drift model (offset + frequency,
+steps held at their one estimate) evaluated there, the weighted mean when
+there is no step; type A = the time-transfer link's white + flicker phase
+noise (:func:`link_noise`, fitted to the TDEV at short τ) propagated to the
+day, plus the step estimates' leverage; type B = the budget's items; the
+clocks' wander is reported as stability, not in the uncertainty.
 """
 
 from __future__ import annotations
@@ -923,6 +940,12 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
        ``tolerance_s`` of it (default: max(1 h, 3 blocks)); the closest entry is
        taken. Log entries with no detected change within tolerance are listed
        in ``undetected_log`` with the step fitted at their epoch.
+    5. The one estimate: every change kept is re-estimated by :func:`estimate_step`
+       at the logged epoch (matched changes; samples between the logged and the
+       found epoch left out) or at the found epoch (unlogged ones), the other
+       changes removed first; ``time_ns`` is that epoch, ``found_time_ns`` the
+       search's, and a phase step is compared with the log's expected size
+       (``agrees_with_log`` within 2σ).
 
     ``changes`` is the station log as ``[{"time_utc_ns": int, "what": str,
     "expected_ns": float}]``.

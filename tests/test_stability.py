@@ -437,3 +437,77 @@ def test_remove_steps_restores_white_pm_adev():
     truth = math.sqrt(3) * 1e-9 / last["tau_s"]
     assert raw["adev"][-1]["dev"] > 3 * truth
     assert abs(last["dev"] - truth) < 3 * (last["ci_high"] - last["ci_low"]) / 2
+
+
+def test_daily_value_is_the_drift_model_at_the_weighted_centre():
+    # issue 12: a day of 900-s points, white phase noise σ = 0.4 ns (the link), a frequency
+    # offset of 2e-14 and a logged +5 ns step at 16:00 (invented, like the demo's cable change).
+    rng = np.random.default_rng(12)
+    n, sigma = 96, 0.4
+    t = (np.arange(n) * 900 * NS).astype(np.int64) + 10 ** 18
+    true = 100.0 + 2e-14 * 1e9 * (t - t[0]) / 1e9
+    te = int(t[0] + 16 * 3600 * NS)
+    true = true + 5.0 * (t >= te)
+    x = true + rng.normal(scale=sigma, size=n)
+    u = np.full(n, sigma)
+    log = [{"time_utc_ns": te, "what": "cable", "expected_ns": 5.0}]
+    dv, det = stability.daily_value(t, x, u, log, u_b_ns=1.2)
+    tc = det["epoch_ns"]
+    assert tc == int(np.mean(t))                       # equal weights: the middle of the day
+    true_c = 100.0 + 2e-14 * 1e9 * (tc - t[0]) / 1e9   # the true model value there (before the step)
+    err = dv["offset_ns"] - true_c
+    # white PM propagated to the day is σ/√N (equal weights, SP 1065: TDEV(τ0) = σ for white PM);
+    # the step estimate adds u_step·|H − f| (its leverage). The error lies within 3 u_a.
+    assert det["link_noise"]["white_ns"] == pytest.approx(sigma, rel=0.25)     # TDEV(τ0) from 96 points
+    assert abs(err) < 3 * dv["u_a_ns"]
+    assert det["u_a_parts_ns"]["white"] == pytest.approx(det["link_noise"]["white_ns"] / np.sqrt(n), rel=1e-9)
+    assert dv["u_ns"] == pytest.approx(np.hypot(dv["u_a_ns"], 1.2), abs=1.5e-3)
+    # no step: the estimator is the weighted mean (a line evaluated at the weighted centre)
+    dv0, _ = stability.daily_value(t, x - 5.0 * (t >= te), u)
+    assert dv0["offset_ns"] == pytest.approx(np.mean(x - 5.0 * (t >= te)), abs=1e-3)
+
+
+def test_logged_change_estimated_at_the_logged_epoch_and_compared_with_the_log():
+    # the search finds the break at a sample; the size is estimated once, at the logged epoch,
+    # with offset and slope each side, and compared with the log's expected size (2σ)
+    rng = np.random.default_rng(21)
+    t = (np.arange(2880) * 30 * NS).astype(np.int64)
+    x = rng.normal(scale=0.3, size=len(t))
+    te = int(t[1500] - 10 * NS)                  # the change 10 s before a sample
+    x[t >= te] += 3.0
+    rep = stability.detect_changes(t, x, [{"time_utc_ns": te, "what": "cable", "expected_ns": 3.0},
+                                          ])
+    c = [c for c in rep.changes if c.kind == "phase step"][0]
+    assert c.time_ns == te and c.log_time_ns == te and c.expected
+    assert abs(c.size - 3.0) < 3 * c.u_size and c.agrees_with_log is True
+    assert c.window_s > 0 and c.n_before >= 4 and c.n_after >= 4
+    rep2 = stability.detect_changes(t, x, [{"time_utc_ns": te, "what": "cable", "expected_ns": 6.0}])
+    c2 = [c for c in rep2.changes if c.kind == "phase step"][0]
+    assert c2.agrees_with_log is False and c2.z_log < -2
+    # the drift model holds that same estimate
+    fit = stability.fit_drift(t, x, fixed_steps=stability.phase_steps(rep))
+    assert fit.steps_ns[-1].value == c.size and fit.step_epochs_ns[-1] == te
+
+
+def test_noise_labels_name_their_estimator_and_never_contradict_the_slope():
+    # issue 12: a label is shown only where the lag-1 ACF identified the type at that τ and its
+    # slope (NIST SP 1065 noise table: ADEV τ^-1 for white/flicker PM, τ^-1/2 white FM, ...;
+    # TDEV = τ·MDEV/√3, one more) agrees with the plotted curve there
+    rng = np.random.default_rng(3)
+    x = np.cumsum(rng.normal(scale=1e-11, size=200)) * 1e-9 + rng.normal(scale=3e-10, size=200)
+    devs = stability.stability_set(x, 1 / 960.0)
+    for kind in ("oadev", "mdev", "tdev"):
+        d = devs[kind]
+        labels = stability.noise_labels(d)
+        assert len(labels) == len(d.tau_s)
+        lt, ld = np.log(d.tau_s), np.log(d.dev)
+        for i, lab in enumerate(labels):
+            if not np.isclose(d.noise_tau_s[i], d.tau_s[i]):
+                assert lab is None                       # inherited from a shorter τ: not shown
+            if lab is None:
+                continue
+            assert lab.endswith("(lag-1 ACF)") and lab.startswith(d.noise[i])
+            nb = [(ld[j] - ld[i]) / (lt[j] - lt[i]) for j in (i - 1, i + 1) if 0 <= j < len(ld)]
+            assert abs(np.mean(nb) - stability.expected_slope(kind, int(d.alpha_int[i]))) <= 0.5
+    assert stability.expected_slope("oadev", 2) == -1.0 and stability.expected_slope("tdev", 2) == -0.5
+    assert stability.expected_slope("mdev", 0) == -0.5 and stability.expected_slope("tdev", -1) == 1.0

@@ -87,7 +87,10 @@ def run_daily(args) -> int:
 
     print(f"{pc.name} {date}: {s['counts']['points_ok']} points ok; run folder {outcome.out_dir}; "
           f"archive {pc.archive_path}")
-    print(format_daily_value(s["daily_value"], s["station_a"], s["station_b"]))
+    if s.get("daily_value") is not None:
+        print(format_daily_value(s["daily_value"], s["station_a"], s["station_b"]))
+    else:
+        print("  " + str((s.get("daily_value_detail") or {}).get("reason", "no daily value")))
     for w in s.get("warnings", []):
         print(f"  warning: {w}")
     for f in s.get("day_flags", []):
