@@ -16,7 +16,6 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from ctt import stability
 from ctt import timescales as ts
 from ctt.archive import Archive
 from ctt.cli import main
