@@ -221,7 +221,10 @@ def _merge_summaries(sums):
     """Several day summaries: inputs and counts collected, the last config/version kept."""
     out = {"inputs": [], "config": sums[-1].get("config"), "version": sums[-1].get("version"),
            "days": len(sums), "budget": sums[-1].get("budget"),
-           "day_boundaries": [s["day_boundary"] for s in sums if isinstance(s.get("day_boundary"), dict)]}
+           "day_boundaries": [s["day_boundary"] for s in sums if isinstance(s.get("day_boundary"), dict)],
+           "station_a": sums[-1].get("station_a"), "station_b": sums[-1].get("station_b"),
+           "daily_values": [{"date": s.get("date_utc"), **s["daily_value"]} for s in sums
+                            if isinstance(s.get("daily_value"), dict)]}
     for s in sums:
         ins = s.get("inputs", [])
         out["inputs"].extend(ins if isinstance(ins, list) else [{"name": k, **(v if isinstance(v, dict) else

@@ -942,7 +942,8 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
        in ``undetected_log`` with the step fitted at their epoch.
     5. The one estimate: every change kept is re-estimated by :func:`estimate_step`
        at the logged epoch (matched changes; samples between the logged and the
-       found epoch left out) or at the found epoch (unlogged ones), the other
+       found epoch left out) or, for unlogged ones, midway between the last sample
+       before the search's break and the first after it (both left out), the other
        changes removed first; ``time_ns`` is that epoch, ``found_time_ns`` the
        search's, and a phase step is compared with the log's expected size
        (``agrees_with_log`` within 2σ).
@@ -1061,10 +1062,18 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
             ch.log_time_ns = int(e["time_utc_ns"])
             used.add(best[1])
     # the one estimate of each change, at the logged epoch when it is in a log (step 5)
-    te_of = {id(c): int(c.log_time_ns if c.expected else c.time_ns) for c in found}
+    def epoch_of(c):
+        # logged: the logged epoch; else the search's break lies between the last sample of the
+        # old segment and the first of the new one: the middle of that interval
+        if c.expected:
+            return int(c.log_time_ns)
+        ib = int(np.searchsorted(tb, c.time_ns))
+        return int(tb[ib - 1] + (tb[ib] - tb[ib - 1]) // 2) if 0 < ib < len(tb) else int(c.time_ns)
+
+    te_of = {id(c): epoch_of(c) for c in found}
     epochs = sorted(set(te_of.values()))
     for ch in found:
-        te = int(ch.log_time_ns if ch.expected else ch.time_ns)
+        te = te_of[id(ch)]
         lo = max((e for e in epochs if e < te), default=None)
         hi = min((e for e in epochs if e > te), default=None)
         others = xb - sum((contrib[id(o)] for o in found if id(o) in contrib and te_of[id(o)] != te),
@@ -1072,7 +1081,7 @@ def detect_changes(time_ns, offset_ns, changes=None, *, penalty_k: float = 3.0,
         est = estimate_step(ts, xb, (te - tb[0]) / 1e9, block_s, x_others_removed=others,
                             lo_s=-math.inf if lo is None else (lo - tb[0]) / 1e9,
                             hi_s=math.inf if hi is None else (hi - tb[0]) / 1e9, max_window=window,
-                            found_s=(ch.time_ns - tb[0]) / 1e9)
+                            found_s=(ch.time_ns - tb[0]) / 1e9 if ch.expected else None)
         ch.found_time_ns = int(ch.time_ns)
         if est is not None:
             ch.time_ns = te

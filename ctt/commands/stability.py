@@ -112,24 +112,29 @@ def _text(res) -> str:
              f"tau0 {res['tau0_s']:g} s, {res['n_samples']} samples, {res['n_missing']} missing, "
              f"{res['n_flagged']} flagged"]
     d = res["drift"]
-    lines.append(f"offset   {d['offset_ns']['value']:.4f} ± {d['offset_ns']['u']:.2g} ns at {d['t_ref']} "
-                 f"(± {d['offset_ns']['u_ar1']:.2g} with lag-1 inflation)")
+    lines.append(f"model    offset + frequency + drift about {d['t_ref']}, {len(d['steps_ns'])} phase step(s) "
+                 f"held at their one estimate (a day's value: the daily_value of its summary.json)")
     lines.append(f"freq     {d['frequency']['value']:.4g} ± {d['frequency']['u']:.2g}")
     lines.append(f"drift    {d['drift_per_day']['value']:.4g} ± {d['drift_per_day']['u']:.2g} /day")
-    lines.append("tau_s        ADEV       [1σ CI]               MDEV       TDEV/ns    noise")
+    lines.append("tau_s        ADEV       [1σ CI]               MDEV       TDEV/ns    noise of the phase (lag-1 ACF)")
     td = {r["tau_s"]: r for r in res["tdev"]}
     md = {r["tau_s"]: r for r in res["mdev"]}
     for a in res["adev"]:
         if a["dev"] is None:
             continue
         lines.append(f"{a['tau_s']:<12g} {a['dev']:.3e}  [{a['ci_low'] or 0:.3e} {a['ci_high'] or 0:.3e}]  "
-                     f"{md[a['tau_s']]['dev'] or 0:.3e}  {td[a['tau_s']]['dev'] or 0:.3e}  {a['noise']}")
+                     f"{md[a['tau_s']]['dev'] or 0:.3e}  {td[a['tau_s']]['dev'] or 0:.3e}  "
+                     f"{(a.get('noise_label') or '—').replace(' (lag-1 ACF)', '')}")
     for c in res["changes"]:
-        lines.append(f"change   {c['time_utc']} {c['kind']} {c['size']:.4g} ± {c['u_size']:.2g} "
-                     f"{'expected: ' + str(c['what']) if c['expected'] else 'UNEXPECTED'}")
+        agree = c.get("agrees_with_log")
+        lines.append(f"change   {c['time_utc']} {c['kind']} {c['size']:+.4g} ± {c['u_size']:.2g} "
+                     f"{'expected: ' + str(c['what']) if c['expected'] else 'UNEXPECTED'}"
+                     + ("" if agree is None else f" (log {c['expected_ns']:+g} ns: "
+                        f"{'agrees' if agree else 'does NOT agree'} within 2σ)"))
     for e in res["logged_changes_not_detected"]:
-        lines.append(f"logged   {e['time_utc']} {e['what']}: not detected (fitted step "
-                     f"{e['fitted_step_ns'] if e['fitted_step_ns'] is not None else '?'} ns)")
+        lines.append(f"logged   {e['time_utc']} {e['what']}: not detected (step at the logged epoch "
+                     f"{e['fitted_step_ns'] if e['fitted_step_ns'] is not None else '?'} ± "
+                     f"{e['u_fitted_step_ns'] if e['u_fitted_step_ns'] is not None else '?'} ns)")
     return "\n".join(lines)
 
 
