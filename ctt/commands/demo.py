@@ -161,6 +161,7 @@ def truth_daily_value(dv: dict, ok_rows, truth, col: str, steps_csv) -> tuple[fl
     The estimator is ctt.stability's drift model (offset + frequency, weights 1/u², steps
     held fixed) evaluated at the daily value's epoch; with the true steps the difference
     is the measurement's own error, which type A describes."""
+    import numpy as np
     import pandas as pd
 
     from .. import stability
