@@ -1302,13 +1302,14 @@ def link_noise(time_ns, offset_ns) -> dict:
     """
     from scipy.optimize import nnls
 
-    g = grid_series(time_ns, offset_ns)
-    n_ok = int(np.count_nonzero(np.isfinite(g.value)))
-    out = {"white_ns": math.nan, "flicker_ns": 0.0, "tau0_s": g.tau0_s, "taus_s": [], "tdev_ns": [],
+    v = np.asarray(offset_ns, dtype=float)
+    out = {"white_ns": math.nan, "flicker_ns": 0.0, "tau0_s": math.nan, "taus_s": [], "tdev_ns": [],
            "n_used": 0}
-    if n_ok < 8:
-        out["white_ns"] = robust_sigma_white(g.value[np.isfinite(g.value)])
+    if int(np.count_nonzero(np.isfinite(v))) < 8:
+        out["white_ns"] = robust_sigma_white(v[np.isfinite(v)])
         return out
+    g = grid_series(time_ns, v)
+    out["tau0_s"] = g.tau0_s
     rate = 1.0 / g.tau0_s
     m = _ms(octave_taus(len(g.value), g.tau0_s), rate, len(g.value))
     dev, _ = _raw("tdev", g.value * 1e-9, rate, m)
@@ -1373,8 +1374,8 @@ def daily_value(time_ns, offset_ns, u_ns, changes=None, *, u_b_ns: float = 0.0,
     xc = x - (sum(p.value * (t >= te) for te, p in steps) if steps else 0.0)
     link = link_noise(t, xc)
     sw, sf = link["white_ns"], link["flicker_ns"]
-    if not np.isfinite(sw):
-        sw = float(np.median(u))
+    if len(x) < 8 or not np.isfinite(sw):
+        sw = float(np.median(u))      # too few points for the series' own noise: the points' u
     var_white = sw ** 2 / (float(np.mean(u ** 2)) * float(np.sum(w)))
     var_steps = 0.0
     step_rows = []

@@ -511,3 +511,13 @@ def test_noise_labels_name_their_estimator_and_never_contradict_the_slope():
             assert abs(np.mean(nb) - stability.expected_slope(kind, int(d.alpha_int[i]))) <= 0.5
     assert stability.expected_slope("oadev", 2) == -1.0 and stability.expected_slope("tdev", 2) == -0.5
     assert stability.expected_slope("mdev", 0) == -0.5 and stability.expected_slope("tdev", -1) == 1.0
+
+
+def test_daily_value_of_a_day_with_one_or_two_points():
+    # a day where only one or two points pass (e.g. forced inputs that do not belong together):
+    # the value is the weighted mean and u_a falls back to the points' own u (σ/√N, N = 1, 2)
+    t = np.array([10 ** 18, 10 ** 18 + 960 * NS], dtype=np.int64)
+    dv, det = stability.daily_value(t[:1], [5.0], [0.4])
+    assert dv["offset_ns"] == 5.0 and dv["u_a_ns"] == pytest.approx(0.4, abs=1e-3)
+    dv2, _ = stability.daily_value(t, [5.0, 6.0], [0.4, 0.4])
+    assert dv2["offset_ns"] == 5.5 and dv2["u_a_ns"] == pytest.approx(0.4 / np.sqrt(2), abs=1e-3)
