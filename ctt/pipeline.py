@@ -719,8 +719,14 @@ def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions,
     budget = commonview.uncertainty_budget(offset, type_b_items=type_b, system=system)
     budget["cancels"] = list(PPP_CANCELS)
     budget["does_not_cancel"] = list(PPP_REMAINS)
+    daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
+    budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
+              "total_ns": daily["u_ns"], "type_a_method": "link noise",
+              "type_a_detail": daily_detail["u_a_parts_ns"]}
     summary = _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budget, satellites)
     summary["warnings"] = list(input_warnings)
+    summary["daily_value"] = daily
+    summary["daily_value_detail"] = daily_detail
     return PairResult(offset=offset, offset_by_system=offset, satellites=satellites, summary=summary,
                       station_a=None, station_b=None, cv=None, budget=budget, ppp=res)
 
@@ -779,8 +785,8 @@ def _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budge
         "counts": {"points": int(len(offset)), "points_ok": int(ok.sum()),
                    "epochs_a": int(len(res["A"].clock)), "epochs_b": int(len(res["B"].clock)),
                    "residuals": int(len(satellites))},
-        "mean_offset_ns": budget["mean_offset_ns"],
-        "budget": budget,
+        "budget": {k: budget[k] for k in ("type_b_ns", "items", "system", "n_bins", "cancels",
+                                          "does_not_cancel") if k in budget},
         "isb": [],
         "rejected": rejected,
     }
