@@ -256,7 +256,7 @@ def _dev_at(devs_kind: stability.Deviation, tau, nearest: bool = False):
         if len(idx) == 0 or not fin[idx[0]]:
             return None
         i = int(idx[0])
-    return {"tau_s": float(tt[i]), "dev": float(devs_kind.dev[i]), "ci_low": _u(devs_kind.ci_low[i]),
+    return {"tau_s": float(tau) if np.isclose(tt[i], tau) else float(tt[i]), "dev": float(devs_kind.dev[i]), "ci_low": _u(devs_kind.ci_low[i]),
             "ci_high": _u(devs_kind.ci_high[i]), "noise": devs_kind.noise[i],
             "noise_label": stability.noise_labels(devs_kind)[i]}
 
