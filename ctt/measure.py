@@ -133,6 +133,14 @@ class StationDay:
                 if np.any(np.isfinite(v)) and np.nanmax(np.abs(v)) > 0:
                     lines.append(f"  {col:<15} median |{np.nanmedian(np.abs(v)):.3f}| {unit}, "
                                  f"max |{np.nanmax(np.abs(v)):.3f}| {unit}")
+            if t.loc[ok, "system"].nunique() > 1:
+                for letter, r_s in t.loc[ok].groupby("system")["residual_ns"]:
+                    lines.append(f"  system {letter}: {len(r_s)} values, residual RMS "
+                                 f"{np.sqrt(np.mean(r_s ** 2)):.2f} ns")
+            for letter, b in (self.info.get("inter_system_bias") or {}).items():
+                lines.append(f"  inter-system bias {letter}-{b['reference']}: {b['mean_ns']:+.2f} ns "
+                             f"(SD over {b['n_epochs']} epochs {b['sd_ns']:.2f} ns; hourly means within "
+                             f"{b['hourly_spread_ns']:.2f} ns, SD {b['hourly_sd_ns']:.2f} ns)")
             per_sat = t.loc[ok].groupby("sat")["residual_ns"].mean()
             off = per_sat[np.abs(per_sat) > 3.0].sort_values()
             if len(off):
@@ -155,6 +163,51 @@ class StationDay:
 
 
 # ------------------------------------------------------------------ helpers
+
+def inter_system_biases(table: pd.DataFrame, reference_system: str, *, bin_s: float = 3600.0) -> dict:
+    """The receiver's inter-system biases from a multi-system measurement table.
+
+    Each system gets its own clock per epoch: the weighted (1/σ²) mean of its rows flagged
+    ``ok`` (after any code-bias estimates were removed from ``clock_ns``); the bias of system X
+    against ``reference_system`` at an epoch is the difference of the two. It is the receiver's
+    hardware delay difference of the two systems' signals plus, with broadcast clocks, the offset
+    between the two system times as the broadcast clocks realise them (with a precise product
+    all clocks refer to one time scale). It is a constant of the receiver for a day (common
+    practice), so its stability is part of the result: per system the mean, the SD of the
+    epoch differences, and the spread (max − min) and SD of the ``bin_s`` means (single-epoch
+    noise averages out there, a drift or a constellation-dependent error does not: GLONASS
+    per-channel code biases move the epoch mean as satellites rise and set unless estimated).
+    Returns ``{X: {reference, mean_ns, sd_ns, n_epochs, hourly_spread_ns, hourly_sd_ns,
+    hourly_mean_ns}}``; systems with fewer than 2 common epochs are left out.
+    """
+    ok = table["flag"].to_numpy() == "ok"
+    if not ok.any():
+        return {}
+    t = table.loc[ok, ["time", "system"]].copy()
+    w = 1.0 / table.loc[ok, "sigma_ns"].to_numpy(float) ** 2
+    t["w"] = w
+    t["wx"] = w * table.loc[ok, "clock_ns"].to_numpy(float)
+    g = t.groupby(["time", "system"])[["w", "wx"]].sum()
+    clk = (g["wx"] / g["w"]).unstack("system")
+    if reference_system not in clk.columns:
+        return {}
+    out = {}
+    times = clk.index.to_numpy(dtype=np.int64)
+    for letter in [c for c in clk.columns if c != reference_system]:
+        d = (clk[letter] - clk[reference_system]).to_numpy(float)
+        m = np.isfinite(d)
+        if m.sum() < 2:
+            continue
+        b = (times[m] - times[m].min()) // int(bin_s * 1e9)
+        hourly = pd.Series(d[m]).groupby(b).agg(["mean", "size"])
+        hourly = hourly.loc[hourly["size"] >= 10, "mean"]   # bins with at least 10 epochs
+        out[str(letter)] = {"reference": reference_system, "mean_ns": float(np.mean(d[m])),
+                            "sd_ns": float(np.std(d[m], ddof=1)), "n_epochs": int(m.sum()),
+                            "hourly_spread_ns": float(np.ptp(hourly)) if len(hourly) else float("nan"),
+                            "hourly_sd_ns": float(np.std(hourly, ddof=1)) if len(hourly) > 1 else float("nan"),
+                            "hourly_mean_ns": [float(v) for v in hourly]}
+    return out
+
 
 def _rotate_z(pos, angle):
     """Rotate ECEF positions (N,3) about z by ``angle`` (N,) radians (frame rotation R3(angle))."""
@@ -459,7 +512,7 @@ def receive_geometry(orbits, sats, t_rx, pr_m, ie, n_ep, rx, *, sagnac=True) -> 
 # ------------------------------------------------------------------ main
 
 def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptions(), *,
-                    nav_header=None, met=None, ionex=None, reference=None) -> StationDay:
+                    nav_header=None, met=None, ionex=None, reference=None, nav=None) -> StationDay:
     """Per-satellite local clock minus system time for one station-day (see module docstring).
 
     ``obs``: :class:`ctt.formats.rinex_obs.ObsData`; ``orbits``: a satellite source
@@ -468,7 +521,8 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     for the Klobuchar coefficients; ``met``: a meteorological data object
     (``ctt.formats.rinex_met``) or None for the standard atmosphere; ``ionex``: IONEX
     maps for ``iono_model='ionex'``. ``reference`` ('broadcast'/'precise')
-    defaults to what the orbit source says.
+    defaults to what the orbit source says. ``nav``: the navigation data beside a
+    precise product, for the GLONASS frequency channels (:func:`_glonass_channels`).
     """
     opt = options
     if reference is None:
@@ -485,7 +539,9 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
         raise NoDataError(f"{obs.path}: no satellites of the systems {','.join(opt.systems)}")
 
     # --- signals per satellite (only the systems asked for)
-    sel = select_signals(obs, sats_all, opt, glonass_k=_glonass_channels(obs, orbits))
+    glo_info = {}
+    sel = select_signals(obs, sats_all, opt,
+                         glonass_k=_glonass_channels(obs, orbits, nav, glo_info) if "R" in opt.systems else None)
     if "E" in opt.systems and hasattr(orbits, "galileo_source"):
         # the broadcast records of each Galileo satellite must be those whose clocks refer to its
         # signals: F/NAV for E1/E5a, I/NAV for E1/E5b and E1 alone (OS SIS ICD §5.1.5)
@@ -668,11 +724,14 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
             "code_biases": ("bias file: codes mapped onto " + "/".join(sorted(set(CLOCK_REFERENCE_CODES.values())))
                             if opt.biases is not None and not isinstance(opt.biases, str)
                             else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
-            "position_m": [float(v) for v in rx], "position_check": pos_check}
+            "position_m": [float(v) for v in rx], "position_check": pos_check,
+            "glonass_channels": glo_info or None}
     day = StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
                      counts={str(k): int(v) for k, v in counts.items()}, info=info)
     if isinstance(opt.biases, str) and opt.biases == "estimate":
         day = apply_code_bias_estimates(day)
+    if ref_sys is not None and len(mean_sys) > 1:
+        day.info["inter_system_bias"] = inter_system_biases(day.table, ref_sys)
     return day
 
 
@@ -748,14 +807,34 @@ class GalileoBySignal:
         return dataclasses.replace(a, **out)
 
 
-def _glonass_channels(obs, orbits):
-    """GLONASS frequency numbers k: the observation header's, completed from the navigation records."""
-    k = dict(getattr(obs.header, "glonass_slots", None) or {})
-    nav = getattr(orbits, "nav", None)
+def glonass_channels_from_nav(nav) -> dict:
+    """GLONASS frequency numbers k per satellite from broadcast navigation records (the most
+    frequent value of the day's records; RINEX 3 GLONASS record, "freq_num"), {} without any."""
     rec = getattr(nav, "records", {}).get("R") if nav is not None else None
-    if rec is not None and len(rec) and "freq_num" in rec.columns:
-        for sat, kk in rec.groupby("sat")["freq_num"].agg(lambda v: v.mode().iloc[0]).items():
-            k.setdefault(str(sat), int(kk))
+    if rec is None or not len(rec) or "freq_num" not in rec.columns:
+        return {}
+    return {str(sat): int(kk) for sat, kk in
+            rec.groupby("sat")["freq_num"].agg(lambda v: v.mode().iloc[0]).items()}
+
+
+def _glonass_channels(obs, orbits, nav=None, info=None):
+    """GLONASS frequency numbers k: the navigation file's (broadcast by the satellites themselves:
+    the broadcast source's own records, or ``nav`` given beside a precise product), completed from
+    the observation header's GLONASS SLOT / FRQ # (the only source for a precise product without a
+    navigation file). A header value that contradicts the navigation file is logged and the
+    navigation value used. ``info`` (a dict) receives the source counts."""
+    header = {str(s): int(v) for s, v in (getattr(obs.header, "glonass_slots", None) or {}).items()}
+    from_nav = glonass_channels_from_nav(nav if nav is not None else getattr(orbits, "nav", None))
+    bad = {s: (header[s], v) for s, v in from_nav.items() if s in header and header[s] != v}
+    if bad:
+        log.warning("%s: GLONASS SLOT / FRQ # disagrees with the navigation file for %s; the navigation "
+                    "file's channels are used", getattr(obs, "path", "observation file"),
+                    ", ".join(f"{s} (header {a:+d}, navigation {b:+d})" for s, (a, b) in sorted(bad.items())))
+    k = dict(header)
+    k.update(from_nav)
+    if info is not None:
+        info.update({"navigation": len(from_nav), "header_only": len(set(header) - set(from_nav)),
+                     "disagreeing": sorted(bad)})
     return k or None
 
 

@@ -254,7 +254,7 @@ def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = 
 
 def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions, *, met_path=None,
                  ionex=None, reference=None, obs=None, force_inputs: bool = False,
-                 check_inputs: bool = True) -> StationDay:
+                 check_inputs: bool = True, nav=None) -> StationDay:
     """Read one observation file (unless ``obs`` is given), check that it belongs to the
     station file (:func:`check_obs_file`) and run the measurement model. The check's
     warnings are in ``info['input_warnings']``."""
@@ -272,7 +272,7 @@ def measure_file(obs_path, station, orbits, nav_header, options: MeasureOptions,
 
         met = metmod.read_met(_need(met_path, "meteorological file"))
     day = measure_station(obs, orbits, station, options, nav_header=nav_header, met=met,
-                          ionex=ionex, reference=reference)
+                          ionex=ionex, reference=reference, nav=nav)
     day.info["input_warnings"] = input_warnings
     return day
 
@@ -368,7 +368,7 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
             reduced.append(cggtts_to_track_table(header, trk))
             continue
         day = measure_file(obs_path, station, orbits, nav_header, mopt, met_path=met_path, ionex=ionex,
-                           reference=reference, check_inputs=False)
+                           reference=reference, check_inputs=False, nav=_nav)
         day.info["input_warnings"] = [w for w in input_warnings if w.startswith(str(obs_path))]
         days.append(day)
         reduced.append(_reduce(day, options))

@@ -213,19 +213,21 @@ def measure_station_day(args):
     if not args.nav and not args.sp3:
         raise UsageError("give --nav (broadcast) or --sp3 (precise orbits)")
     opts = measure_options(args)
-    check_input_files(args, ("obs", "nav", "sp3", "clk", "antex", "ionex", "met", "bias"))
+    # '--bias estimate' is a word, not a file
+    check_input_files(args, ("obs", "nav", "sp3", "clk", "antex", "ionex", "met")
+                      + (() if getattr(args, "bias", None) == "estimate" else ("bias",)))
     station = load_station(args.station)
     from ..pipeline import PairInputs, load_orbits, measure_file
 
     inputs = PairInputs(obs_a=args.obs, obs_b=None, nav=args.nav, sp3=args.sp3, clk=args.clk,
                         ionex=args.ionex, met_a=args.met, antex=args.antex)
-    orbits, nav_header, reference, _ = load_orbits(inputs, "auto")
+    orbits, nav_header, reference, nav = load_orbits(inputs, "auto")
     ionex = None
     if args.ionex:
         from ..formats.ionex import read_ionex
 
         ionex = read_ionex(args.ionex)
     day = measure_file(args.obs, station, orbits, nav_header, opts, met_path=args.met, ionex=ionex,
-                       reference=reference, force_inputs=getattr(args, "force_inputs", False))
+                       reference=reference, force_inputs=getattr(args, "force_inputs", False), nav=nav)
     warn_unused_codes(day, args.codes)
     return station, day, opts
