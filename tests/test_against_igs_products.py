@@ -163,7 +163,8 @@ def test_compare_products_cli_json(shared_data, capsys, comparison):
                  "--sp3", str(shared_data / "igs21385.sp3"), "--json"])
     assert code == 0
     out = json.loads(capsys.readouterr().out)
-    assert set(out) == {"satellites", "summary", "excluded"}
+    assert set(out) == {"satellites", "summary", "systems", "excluded"}
+    assert set(out["systems"]) == {"G"} and out["systems"]["G"]["n_satellites"] == out["summary"]["n_satellites"]
     assert set(out["summary"]) == {"orbit_rms_m", "clock_rms_ns", "n_satellites"}
     for v in out["satellites"].values():
         assert set(v) == {"orbit_rms_m", "radial_rms_m", "along_rms_m", "cross_rms_m", "clock_rms_ns"}

@@ -45,8 +45,16 @@ them at the decimetre level.
 
 JSON (``--json``), exactly: ``satellites`` → {id: {orbit_rms_m, radial_rms_m,
 along_rms_m, cross_rms_m, clock_rms_ns}}, ``summary`` → {orbit_rms_m,
-clock_rms_ns, n_satellites}, ``excluded`` → {id: reason}. A value that cannot
+clock_rms_ns, n_satellites}, ``systems`` → {letter: {orbit_rms_m, radial_rms_m,
+along_rms_m, cross_rms_m, clock_rms_ns, clock_rms_median_ns, n_satellites}} (the
+clock datum is per system already; the median of the satellites' clock RMS is
+robust to one bad satellite), ``excluded`` → {id: reason}. A value that cannot
 be formed (e.g. no clock) is ``null``.
+
+Other systems: the broadcast Galileo clocks are those of the I/NAV message
+(E1/E5b) and GLONASS's refer to the GLONASS control segment's own code
+convention; a precise product's convention may differ (a constant per
+satellite: it stays in the clock RMS, as the P1−P2 realisations do for GPS).
 """
 
 from __future__ import annotations
@@ -173,6 +181,18 @@ def compare_states(broadcast, precise, sats, t_ns):
         "clock_rms_ns": _num(_rms(resid_ns[used])),
         "n_satellites": int(used.sum()),
     }
+    # per system: broadcast accuracies differ by system (and so do their published figures)
+    result["systems"] = {}
+    for letter in np.unique(system[used]):
+        rows = used & (system == letter)
+        clk_sat = np.array([result["satellites"][s]["clock_rms_ns"] for s in sats[rows]], dtype=float)
+        result["systems"][str(letter)] = {
+            "orbit_rms_m": _num(_rms(d3[rows])), "radial_rms_m": _num(_rms(dr[rows])),
+            "along_rms_m": _num(_rms(da[rows])), "cross_rms_m": _num(_rms(dc[rows])),
+            "clock_rms_ns": _num(_rms(resid_ns[rows])),
+            "clock_rms_median_ns": _num(np.nanmedian(clk_sat)) if np.isfinite(clk_sat).any() else None,
+            "n_satellites": int(rows.sum()),
+        }
     return result, details
 
 
@@ -229,7 +249,13 @@ def format_table(result, details, precise, nav_path) -> str:
                    f"{_f(v['along_rms_m'])}   {_f(v['cross_rms_m'])}     {_f(details['radial_mean_m'][s])}   "
                    f"{_f(v['clock_rms_ns'])}")
     sm = result["summary"]
-    out += ["", f"constellation  {sm['n_satellites']} satellites: orbit 3D rms {_f(sm['orbit_rms_m'], '.3f')} m, "
+    out += [""]
+    for letter, v in result.get("systems", {}).items():
+        out.append(f"system {letter}       {v['n_satellites']} satellites: orbit 3D rms {_f(v['orbit_rms_m'], '.3f')} m "
+                   f"(radial {_f(v['radial_rms_m'], '.3f')}, along {_f(v['along_rms_m'], '.3f')}, cross "
+                   f"{_f(v['cross_rms_m'], '.3f')}), clock rms {_f(v['clock_rms_ns'], '.3f')} ns "
+                   f"(median over satellites {_f(v['clock_rms_median_ns'], '.3f')} ns)")
+    out += [f"constellation  {sm['n_satellites']} satellites: orbit 3D rms {_f(sm['orbit_rms_m'], '.3f')} m, "
             f"clock rms {_f(sm['clock_rms_ns'], '.3f')} ns"]
     if result["excluded"]:
         out.append("excluded:")
