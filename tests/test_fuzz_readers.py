@@ -286,7 +286,7 @@ def test_reader_survives_mutations(reader, tmp_path):
 
 def test_hypothesis_drives_the_same_engine(tmp_path):
     """hypothesis picks the random streams (and shrinks a failure to a minimal mutation)."""
-    hypothesis = pytest.importorskip("hypothesis")   # a third-party test aid, not a project module
+    import hypothesis   # a test extra (pyproject.toml), so a missing install fails instead of skipping
     from hypothesis import HealthCheck, given, settings, strategies as st
 
     read = reader_function("sp3")
