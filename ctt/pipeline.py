@@ -755,9 +755,6 @@ def _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budge
         paths = v if isinstance(v, (list, tuple)) else [v]
         recs = [{"path": str(p), "sha256": file_sha256(p)} for p in paths]
         files[k] = recs[0] if len(recs) == 1 else recs
-    for label, st in (("station_a", station_a), ("station_b", station_b)):
-        if getattr(st, "path", None):
-            files[label] = {"path": str(st.path), "sha256": st.sha256}
     ok = offset["flag"] == "ok"
     rejected = {}
     for who in ("A", "B"):
@@ -767,19 +764,9 @@ def _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budge
         for flag, n in res[who].residuals["flag"].value_counts().to_dict().items():
             if flag != "ok":
                 rejected[f"{who} observations {flag}"] = int(n)
-    for flag, n in offset["flag"].value_counts().to_dict().items():
-        if flag != "ok":
-            rejected[f"points {flag}"] = int(n)
-    t_mid = int(np.median(offset["time"].to_numpy(np.int64)))
     return {
-        "software": {"name": "ctt", "version": __version__},
-        "version": __version__,
-        "pair": f"{station_a.id}-{station_b.id}",
-        "station_a": station_a.id, "station_b": station_b.id,
-        "date_utc": str(ts.to_iso(ts.convert(t_mid, "GPS", "UTC")))[:10],
+        **_summary_head(station_a, station_b, files, offset, rejected),
         "mode": "ppp", "signals": "iono-free code and carrier phase", "reference": "precise",
-        "sign": "offset_ns = clock A - clock B",
-        "inputs": files,
         "config": options.to_dict(),
         "models": {"A": res["A"].summary, "B": res["B"].summary},
         "counts": {"points": int(len(offset)), "points_ok": int(ok.sum()),
@@ -822,21 +809,12 @@ def _check_overlap(inputs, red_a, red_b):
         warnings.warn(msg, stacklevel=3)
 
 
-def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference) -> dict:
-    files = files_record(inputs.files())
+def _summary_head(station_a, station_b, files, offset, rejected) -> dict:
+    """The part of a pair-day summary every mode shares: software, pair, date, sign, inputs with
+    the station files' hashes; adds the flagged points to ``rejected`` (in place)."""
     for label, st in (("station_a", station_a), ("station_b", station_b)):
         if getattr(st, "path", None):
             files[label] = {"path": str(st.path), "sha256": st.sha256}
-    ok = offset["flag"] == "ok"
-    rejected = {}
-    for who, day in (("A", day_a), ("B", day_b)):
-        for flag, n in (day.counts.items() if day is not None else ()):
-            if flag != "ok":
-                rejected[f"{who} {flag}"] = int(n)
-    sat_flags = cv.sat_df["flag"].value_counts().to_dict() if "flag" in cv.sat_df else {}
-    for flag, n in sat_flags.items():
-        if flag != "ok":
-            rejected[f"differences {flag}"] = int(n)
     for flag, n in offset["flag"].value_counts().to_dict().items():
         if flag != "ok":
             rejected[f"points {flag}"] = int(n)
@@ -847,9 +825,26 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
         "pair": f"{station_a.id}-{station_b.id}",
         "station_a": station_a.id, "station_b": station_b.id,
         "date_utc": str(ts.to_iso(ts.convert(t_mid, "GPS", "UTC")))[:10],
-        "mode": options.mode, "signals": options.measure.signals, "reference": reference,
         "sign": "offset_ns = clock A - clock B",
         "inputs": files,
+    }
+
+
+def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, budget, reference) -> dict:
+    files = files_record(inputs.files())
+    ok = offset["flag"] == "ok"
+    rejected = {}
+    for who, day in (("A", day_a), ("B", day_b)):
+        for flag, n in (day.counts.items() if day is not None else ()):
+            if flag != "ok":
+                rejected[f"{who} {flag}"] = int(n)
+    sat_flags = cv.sat_df["flag"].value_counts().to_dict() if "flag" in cv.sat_df else {}
+    for flag, n in sat_flags.items():
+        if flag != "ok":
+            rejected[f"differences {flag}"] = int(n)
+    return {
+        **_summary_head(station_a, station_b, files, offset, rejected),
+        "mode": options.mode, "signals": options.measure.signals, "reference": reference,
         "config": options.to_dict(),
         "models": {"A": day_a.info if day_a is not None else {"source": f"track file {inputs.tracks_a}"},
                    "B": day_b.info if day_b is not None else {"source": f"track file {inputs.tracks_b}"}},
