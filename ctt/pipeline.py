@@ -503,6 +503,9 @@ def day_value(offset: pd.DataFrame, station_a, station_b, u_b_ns: float) -> tupl
     series, with the stations' logged changes (ctt.stability.daily_value, UTC)."""
     from . import stability
 
+    # from the values as written (offset.csv, archive, exports), so a value recomputed from
+    # any output is the same number
+    offset = commonview.round_offsets(offset)
     ok = offset["flag"] == "ok"
     t_utc = ts.convert(offset.loc[ok, "time"].to_numpy(np.int64), "GPS", "UTC")
     return stability.daily_value(t_utc, offset.loc[ok, "offset_ns"].to_numpy(float),

@@ -40,6 +40,8 @@ def _numbers(mat, a, b, *, path, line_no, lines, what, dtype=np.float64, blank=n
     except (ValueError, OverflowError):
         for i, t in enumerate(text):
             try:
+                if not t.isascii():   # Python's float() takes e.g. U+0085 as blank, numpy does not
+                    raise ValueError(t)
                 dtype(t.decode("latin-1"))
             except (ValueError, OverflowError):
                 raise ProductFormatError(path, int(line_no[i]), what,

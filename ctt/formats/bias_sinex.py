@@ -41,7 +41,8 @@ def _sinex_time_ns(text, path, lineno, line):
 
     text = text.strip()
     parts = text.split(":")
-    if len(parts) != 3 or not all(p.strip().isdigit() for p in parts):
+    # isascii: str.isdigit also accepts digits such as '³' that int() refuses
+    if len(parts) != 3 or not all(p.strip().isascii() and p.strip().isdigit() for p in parts):
         raise ProductFormatError(path, lineno, "a time YYYY:DDD:SSSSS", line)
     y, d, s = (int(p) for p in parts)
     if y == 0 and d == 0 and s == 0:

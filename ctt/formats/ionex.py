@@ -53,9 +53,12 @@ class IonexMaps:
 
 def _f(line, a, b, path, lineno, what):
     try:
-        return float(line[a:b])
+        v = float(line[a:b])
     except ValueError:
         raise ProductFormatError(path, lineno, what, line) from None
+    if not np.isfinite(v):   # 'nan'/'inf' parse as floats but are no IONEX value
+        raise ProductFormatError(path, lineno, what, line)
+    return v
 
 
 def _i(line, a, b, path, lineno, what):
@@ -82,6 +85,18 @@ def read_ionex(path, *, time_scale="UTC") -> IonexMaps:
     names the scale of the file's epochs (IONEX 1.0: UT, taken as UTC); the
     epochs are stored converted to GPS time.
     """
+    try:
+        return _read_ionex(path, time_scale=time_scale)
+    except (ValueError, OverflowError, IndexError, MemoryError) as e:
+        if isinstance(e, ProductFormatError):
+            raise
+        # header counts or grid values that parse but describe no possible grid (negative or
+        # huge sizes): no single line is to blame, so the file is named with the reason
+        raise ProductFormatError(path, None, "a consistent IONEX header (grid sizes, number of maps)",
+                                 f"{type(e).__name__}: {e}") from None
+
+
+def _read_ionex(path, *, time_scale="UTC") -> IonexMaps:
     import pathlib
 
     from .. import timescales as ts
@@ -213,7 +228,10 @@ def read_ionex(path, *, time_scale="UTC") -> IonexMaps:
     if maps["RMS"]:
         rms = np.stack([maps["RMS"][k][1] if k in maps["RMS"] else np.full((n_lat, n_lon), np.nan) for k in order])
     scale = ts.normalise_scale(time_scale)
-    epochs_gps = epochs if scale == "GPS" else ts.convert(epochs, scale, "GPS")
+    try:
+        epochs_gps = epochs if scale == "GPS" else ts.convert(epochs, scale, "GPS")
+    except ts.TimeScaleError as e:   # a damaged year (e.g. before 1972 in UTC)
+        raise ProductFormatError(path, None, "map epochs the time scales can convert", str(e)) from None
     if np.any(np.diff(epochs_gps) <= 0):
         raise ProductFormatError(path, None, "map epochs in increasing order", epochs.tolist())
     return IonexMaps(path=str(path), epochs_ns=np.asarray(epochs_gps, dtype=np.int64), lat_deg=lat_grid,

@@ -83,7 +83,7 @@ import dataclasses
 import numpy as np
 import pandas as pd
 
-from ..errors import RinexFormatError
+from ..errors import RinexFormatError, TimeScaleError
 from ..timescales import NS_PER_S, NS_PER_WEEK, SYSTEM_SCALE, civil_to_ns, convert, unwrap_week, week_sow_ns
 from .compression import display_name, read_text
 from .rinex_obs import SUPPORTED_VERSIONS
@@ -496,7 +496,11 @@ def _parse_system(s, lines, entries, hdr, name, dropped):
 def _finish(s, df, name):
     _check_integer_fields(s, df, name)
     scale = SYSTEM_SCALE[s] if s != "R" else "UTC"
-    df["toc_gps_ns"] = convert(df["toc_ns"].to_numpy(), scale, "GPS")
+    try:
+        df["toc_gps_ns"] = convert(df["toc_ns"].to_numpy(), scale, "GPS")
+    except TimeScaleError as e:   # e.g. a damaged year before 1972 in a UTC-based record
+        bad = int(df["line"].iloc[0])
+        raise RinexFormatError(name, bad, "record epochs the time scales can convert", str(e)) from None
     if s == "R":
         for c in _KM:
             df[c] = df[c] * 1000.0

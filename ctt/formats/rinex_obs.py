@@ -1387,6 +1387,10 @@ def read_obs(path, *, on_error: str = "raise", systems=None, codes=None) -> ObsD
             single = bool(rs.all())
             if v2:
                 cmap = _v2_map_for(h, x)
+                if any(c not in cmap for c in types):   # a system letter no RINEX 2 file has (damage)
+                    first = int(np.flatnonzero(keep)[int((flat if single else flat[rs])[0]) // max(n_s, 1)])
+                    raise src.error(int(ep_lines[first]), "a satellite system letter G, R, E, S or J",
+                                    repr(x))
                 clist = [cmap[c] for c in types]
                 orig = list(types)
             else:
