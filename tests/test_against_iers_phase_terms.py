@@ -97,7 +97,7 @@ def test_pole_tide_coefficients_from_iers_love_numbers():
 def test_mean_pole_pieces_meet_at_2010():
     """IERS 2010 Table 7.7: the cubic (before 2010.0) and linear (after) mean-pole models are
     continuous at 2010.0 (99.654 mas, 352.605 / 352.604 mas: the rounded published coefficients
-    leave 1 µas); a transcription error of any coefficient would break that."""
+    leave 1 µas); a mistyped digit in any coefficient would break that."""
     x0, y0 = geodesy.iers2010_mean_pole_arcsec(2010.0 - 1e-9)
     x1, y1 = geodesy.iers2010_mean_pole_arcsec(2010.0)
     assert x0 == pytest.approx(0.099654, abs=1e-6) and x1 == pytest.approx(0.099654, abs=1e-6)
