@@ -11,6 +11,17 @@ Sources (the tags are used beside each check below):
       with its meaning; the label and units lines) and a national observatory's
       and a national research council's data-category tables (meaning, unit and
       reference instant of each column; '9999 indicates no data available').
+[HDR] Header files of version 2E published by the BIPM time department for its
+      time links (webtai.bipm.org, ftp/pub/tai/timelinks/taippp/header/, e.g.
+      hdwtzs58.995, hdkrp158.845, hdapl259.184; read through the search tool,
+      whose excerpts fold blanks, so spacing is not taken from them): header
+      lines in the [V01] order under 'CGGTTS GENERIC DATA FORMAT VERSION = 2E';
+      'REV DATE = YYYY-MM-DD' (or a placeholder); 'RCVR = <model> (<firmware>)
+      SN<serial>'; 'CH = 80'; X/Y/Z written unsigned with 3 decimals and ' m';
+      'INT DLY = v ns (GPS P1), v ns (GPS P2)' followed by 'CAL_ID = ...'
+      (numbers, 'NONE' or a placeholder) on the same line; 'CAB DLY = v ns';
+      'REF DLY = v ns'; 'REF = UTC(lab)'; 'CKSUM = ' with two hex digits, seen in
+      lower case.
 [MEM] From memory of the 2E article (Metrologia 52 (2015) G1), whose text
       could not be retrieved: field widths and positions, the SAT/ISG/FR/HC/FRC
       columns and FRC codes, the five spaces in the first line, the delay-line
@@ -262,3 +273,41 @@ def test_dsg_is_the_rms_of_the_fit_residuals():
     rms = np.sqrt(np.mean((yy - np.polyval(coef, x)) ** 2))
     assert full["dsg_ns"] == pytest.approx(rms, rel=1e-9)
     assert full["refsys_ns"] == pytest.approx(5.0 + np.polyval(coef, 390.0), abs=1e-9)
+
+
+def test_reads_headers_in_the_published_forms(tmp_path):
+    """[HDR] forms seen in the BIPM's published 2E header files: coordinates unsigned with three
+    decimals, a receiver line with firmware in parentheses, two INT DLY items separated by ', ',
+    CAL_ID on the same line, REF as UTC(lab), and a lower-case CKSUM. The reader must take them
+    (a partner laboratory's file is written by whatever its receiver does)."""
+    head = [
+        "CGGTTS     GENERIC DATA FORMAT VERSION = 2E",
+        "REV DATE = 2020-01-01",
+        "RCVR = MAKER MODEL-5 (5.3.2) SN3000001",            # invented receiver, [HDR] form
+        "CH = 80",
+        "IMS = MAKER MODEL-5",
+        "LAB = LABX",
+        "X = 4075535.110 m",                                # [HDR] unsigned, 3 decimals
+        "Y = 931822.590 m",
+        "Z = 4801609.320 m",
+        "FRAME = ITRF",
+        "COMMENTS = LS=18; ElMask=10deg",
+        "INT DLY = 0.0 ns (GPS P1), -9.7 ns (GPS P2)     CAL_ID = NONE",
+        "CAB DLY = 464.0 ns",
+        "REF DLY = 40.3 ns",
+        "REF = UTC(LABX)",
+    ]
+    cks = _ck("".join(head) + "CKSUM = ").lower()           # [HDR] lower-case hex seen
+    text = "\n".join(head + [f"CKSUM = {cks}", "", "SAT CL ...", "units"]) + "\n"
+    p = tmp_path / "GZLX0159.184"
+    p.write_text(text)
+    hdr, df = CG.read_cggtts(p)
+    assert (hdr.x_m, hdr.y_m, hdr.z_m) == (4075535.110, 931822.590, 4801609.320)
+    assert hdr.delays == [(0.0, "GPS P1"), (-9.7, "GPS P2")] and hdr.cal_id == "NONE"
+    assert (hdr.cab_dly_ns, hdr.ref_dly_ns, hdr.ref, hdr.ch) == (464.0, 40.3, "UTC(LABX)", 80)
+    assert hdr.rcvr == "MAKER MODEL-5 (5.3.2) SN3000001" and len(df) == 0
+    # the same header with one changed character fails the checksum, naming the CKSUM line (16)
+    p.write_text(text.replace("REF DLY = 40.3", "REF DLY = 40.4"))
+    with pytest.raises(FileFormatError) as ei:
+        CG.read_cggtts(p)
+    assert ei.value.line == 16

@@ -67,6 +67,15 @@ or read such files were not used as a reference). What was read:
        ionosphere in 0.1 ns ('9999 indicates no data available') with slope
        SMSI.
 
+[HDR] Version-2E header files published by the BIPM time department for its
+     time links (webtai.bipm.org, ftp/pub/tai/timelinks/taippp/header/):
+     the [V01] header order under the 2E first line; 'RCVR = <model>
+     (<firmware>) SN<serial>'; X/Y/Z also written unsigned with 3 decimals;
+     'INT DLY = v ns (GPS P1), v ns (GPS P2)' with 'CAL_ID = ...' on the same
+     line; 'REF = UTC(lab)'; CKSUM hex digits seen in lower case. The reader
+     accepts all of these (tests/test_against_cggtts_v2e.py). The excerpts fold
+     blanks, so no spacing and no checksum value could be checked against them.
+
 From memory of the 2E article (not checked against its text): the first line
 with five spaces after CGGTTS; the SAT column (system letter and two-digit
 number) in place of PRN; ISG, FR, HC and FRC and the FRC codes ('L3P'
