@@ -511,6 +511,22 @@ def receive_geometry(orbits, sats, t_rx, pr_m, ie, n_ep, rx, *, sagnac=True) -> 
 
 # ------------------------------------------------------------------ main
 
+def observation_epochs_and_satellites(obs, systems):
+    """The start of every per-station run (code or carrier phase): the epochs' time tags on
+    GPS time (int64 ns), the file's satellite ids, and which of them belong to ``systems``.
+
+    Raises :class:`NoDataError` naming the file when it has no epochs or no satellite of
+    those systems."""
+    t_tag = ts.convert(obs.time_ns, obs.header.time_system or "GPS", "GPS").astype(np.int64)
+    if len(t_tag) == 0:
+        raise NoDataError(f"{obs.path}: no observation epochs")
+    sats_all = np.asarray(obs.sats).astype(str)
+    use_sys = np.isin(np.array([s[0] for s in sats_all]), list(systems))
+    if not use_sys.any():
+        raise NoDataError(f"{obs.path}: no satellites of the systems {','.join(systems)}")
+    return t_tag, sats_all, use_sys
+
+
 def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptions(), *,
                     nav_header=None, met=None, ionex=None, reference=None, nav=None) -> StationDay:
     """Per-satellite local clock minus system time for one station-day (see module docstring).
@@ -527,16 +543,8 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     opt = options
     if reference is None:
         reference = "precise" if type(orbits).__name__.startswith("Precise") else "broadcast"
-    # --- time tags to GPS time
-    t_tag = ts.convert(obs.time_ns, obs.header.time_system or "GPS", "GPS")
+    t_tag, sats_all, use_sys = observation_epochs_and_satellites(obs, opt.systems)
     n_ep = len(t_tag)
-    if n_ep == 0:
-        raise NoDataError(f"{obs.path}: no observation epochs")
-
-    sats_all = np.asarray(obs.sats).astype(str)
-    use_sys = np.isin(np.array([s[0] for s in sats_all]), list(opt.systems))
-    if not use_sys.any():
-        raise NoDataError(f"{obs.path}: no satellites of the systems {','.join(opt.systems)}")
 
     # --- signals per satellite (only the systems asked for)
     glo_info = {}
@@ -572,7 +580,7 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     lat, lon, h = float(lat), float(lon), float(h)
 
     geo = receive_geometry(orbits, sats, t_rx, Pf, ie, n_ep, rx, sagnac=opt.sagnac)
-    tau, st, sat_rot = geo.tau_s, geo.states, geo.sat_rotated_m
+    st, sat_rot = geo.states, geo.sat_rotated_m
     geometry_m, sagnac_m, el, az, los = geo.geometry_m, geo.sagnac_m, geo.el_rad, geo.az_rad, geo.los
     elev_deg = np.degrees(el)
     azim_deg = np.degrees(az)

@@ -465,14 +465,8 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     opt = options
     if antex is None:
         antex = getattr(orbits, "antex", None)
-    t_tag = ts.convert(obs.time_ns, obs.header.time_system or "GPS", "GPS").astype(np.int64)
+    t_tag, sats_all, use_sys = measure.observation_epochs_and_satellites(obs, opt.systems)
     n_ep = len(t_tag)
-    if n_ep == 0:
-        raise NoDataError(f"{obs.path}: no observation epochs")
-    sats_all = np.asarray(obs.sats).astype(str)
-    use_sys = np.isin(np.array([s[0] for s in sats_all]), list(opt.systems))
-    if not use_sys.any():
-        raise NoDataError(f"{obs.path}: no satellites of the systems {','.join(opt.systems)}")
     mopt = measure.MeasureOptions(signals="iono-free", systems=tuple(opt.systems), codes=PPP_CODES,
                                   biases=biases, elevation_mask_deg=opt.elevation_mask_deg)
     sel = measure.select_signals(obs, sats_all, mopt)

@@ -15,7 +15,6 @@ with final products).
 
 from __future__ import annotations
 
-import gzip
 import json
 
 import numpy as np
@@ -25,6 +24,9 @@ import pytest
 from ctt import geodesy
 from ctt.cli import main
 from ctt.formats.rinex_clock import read_clock
+from ctt.formats.sinex import read_sinex_stations
+
+from station_files import igs_station_toml
 
 STATIONS = {
     # id: (file, RINEX header APPROX POSITION (a priori, metres from the IGS frame), antenna, delta H)
@@ -33,49 +35,13 @@ STATIONS = {
 }
 
 
-def _station_toml(sid, pos, antenna, dh):
-    x, y, z = pos
-    return f"""[station]
-id = "{sid}"
-name = "{sid}, IGS station (real open data)"
-elevation_mask_deg = 7.0
-[station.position]
-x_m = {x}
-y_m = {y}
-z_m = {z}
-sigma_m = 1.0
-frame = "RINEX header approximate position"
-epoch = 2011.8
-is_marker = true
-[station.antenna]
-type = "{antenna}"
-delta_h_m = {dh}
-delta_e_m = 0.0
-delta_n_m = 0.0
-[[delays]]
-valid_from = 2010-01-01T00:00:00Z
-receiver_ns = {{ C1C = 0.0, C1W = 0.0, C2W = 0.0 }}
-u_receiver_ns = 5.0
-cable_ns = 0.0
-u_cable_ns = 1.0
-reference_ns = 0.0
-u_reference_ns = 1.0
-"""
+def _station_toml(sid, pos, antenna, dh, sigma=1.0):
+    return igs_station_toml(sid, pos, antenna, dh, sigma=sigma)
 
 
 def sinex_marker(path, sid):
-    """STAX/STAY/STAZ of a station from a SINEX SOLUTION/ESTIMATE block (SINEX 2.x fixed columns)."""
-    out = {}
-    inside = False
-    with gzip.open(path, "rt") as f:
-        for line in f:
-            if line.startswith("+SOLUTION/ESTIMATE"):
-                inside = True
-            elif line.startswith("-SOLUTION/ESTIMATE"):
-                break
-            elif inside and line[1:2] != "*" and line[14:18] == sid and line[7:10] == "STA":
-                out[line[7:11]] = float(line[47:68])
-    return np.array([out["STAX"], out["STAY"], out["STAZ"]])
+    """STAX/STAY/STAZ of a station from the IGS weekly SINEX (read by ctt.formats.sinex)."""
+    return read_sinex_stations(path).site(sid).xyz_m
 
 
 @pytest.fixture(scope="module")
@@ -178,7 +144,7 @@ def test_outputs_and_position_modes(day, tmp_path):
     fname, pos, ant, dh = STATIONS["BRUS"]
     marker = sinex_marker(d / "igs11P1657.ssc.gz", "BRUS")
     st_path = tmp_path / "brus.toml"
-    st_path.write_text(_station_toml("BRUS", marker, ant, dh).replace("sigma_m = 1.0", "sigma_m = 0.005"))
+    st_path.write_text(_station_toml("BRUS", marker, ant, dh, sigma=0.005))
     station = load_station(st_path)
     obs = read_obs(d / fname, systems=("G",))
     orbits = load_orbits(PairInputs(obs_a=None, obs_b=None, sp3=tuple(str(d / f"igs1657{k}.sp3") for k in range(3)),

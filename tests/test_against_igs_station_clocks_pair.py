@@ -26,36 +26,9 @@ import pandas as pd
 import pytest
 
 from ctt.config import load_station
-from ctt.pipeline import PairOptions, run_pair  # noqa: F401  (mode ppp under test)
 
+from station_files import igs_station_toml
 
-_STATION = """[station]
-id = "{id}"
-name = "{id}, IGS station (real open data)"
-elevation_mask_deg = 10.0
-[station.position]
-x_m = {x}
-y_m = {y}
-z_m = {z}
-sigma_m = {sigma}
-frame = "{frame}"
-epoch = {epoch}
-is_marker = true
-[station.antenna]
-type = "{antenna}"
-delta_h_m = {dh}
-delta_e_m = 0.0
-delta_n_m = 0.0
-[[delays]]
-valid_from = 2010-01-01T00:00:00Z
-receiver_ns = {{ C1C = 0.0, C1W = 0.0, C2W = 0.0 }}
-u_receiver_ns = 5.0
-cable_ns = 0.0
-u_cable_ns = 1.0
-reference_ns = 0.0
-u_reference_ns = 1.0
-note = "not calibrated: zero delays, uncertainties are placeholders"
-"""
 
 STATIONS = {
     # IGS weekly SINEX igs11P1657.ssc.gz, SOLUTION/ESTIMATE (m); antenna type and height: RINEX headers
@@ -73,7 +46,9 @@ STATIONS = {
 
 def _station(folder, sid):
     p = folder / f"{sid.lower()}.toml"
-    p.write_text(_STATION.format(id=sid, **STATIONS[sid]))
+    v = STATIONS[sid]
+    p.write_text(igs_station_toml(sid, (v["x"], v["y"], v["z"]), v["antenna"], v["dh"], sigma=v["sigma"],
+                                  frame=v["frame"], epoch=v["epoch"], mask=10.0))
     return load_station(p)
 
 
