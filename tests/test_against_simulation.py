@@ -5,9 +5,14 @@ The simulator writes RINEX files from a known truth with its own forward model
 measurement code), so these tests catch errors in time tags, light time,
 Earth rotation, relativity, group delays and delay signs. Scenario: two
 invented stations ~ 600 km apart (east-west and north-south), a synthetic GPS
-constellation, 6 h at 30 s. Targets from the common-view issue; where a
-target is a bias, the test allows the larger of the target and 3 standard
-errors of the mean (error propagation: the test cannot resolve less).
+constellation, 6 h at 30 s (24 h where the noise is realistic, so that the
+13-minute tracks number about 90 rather than 22). Targets from the
+common-view issue where it sets them; the bounds on the bias and the scatter
+against the truth come from the standard error of the estimate: the
+simulator's configured code noise (simulation truth) propagated through
+ctt's own combination, track fit and weights (tests/simulated_budget.py),
+with two-sided 99.9 % quantiles (normal for the mean, chi-square for the sum
+of squares; scipy.stats).
 """
 
 import copy
@@ -16,6 +21,9 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import stats
+
+from simulated_budget import point_budget
 
 from ctt import timescales as ts
 from ctt.pipeline import PairOptions, pair_day_from_config, run_pair
@@ -48,9 +56,10 @@ def _station(sid, lat, lon, h, sigma0, clock):
             "clock": clock}
 
 
-def _scenario(sigma0, iono_scale=1.0, steps=None, state=7):
+def _scenario(sigma0, iono_scale=1.0, steps=None, state=7, hours=6.0):
     d = copy.deepcopy(BASE)
     d["scenario"]["random_state"] = state
+    d["scenario"]["duration_h"] = hours
     d["propagation"]["iono_scale"] = iono_scale
     ca = {"offset_ns": 40.0, "frequency_offset": 2e-13, "drift_per_day": 0.0,
           "noise": [{"type": "white_fm", "adev_1s": 1e-11}]}
@@ -65,7 +74,7 @@ def _scenario(sigma0, iono_scale=1.0, steps=None, state=7):
 
 @pytest.fixture(scope="module")
 def world(tmp_path_factory):
-    """Simulated folders keyed by a name."""
+    """Simulated folders keyed by a name (``get.results[name]``: the simulation's result)."""
     made = {}
 
     def get(name, **kw):
@@ -74,8 +83,11 @@ def world(tmp_path_factory):
             res = simulate(scenario_from_dict(_scenario(**kw)))
             write_outputs(res, out)
             made[name] = out
+            get.results[name] = res
         return made[name]
 
+    get.results = {}
+    get.budgets = {}  # (name, mode, signals) -> what _against_budget returns, computed once
     return get
 
 
@@ -92,8 +104,39 @@ def _errors(folder, mode="epochs", signals="iono-free", smoothing_s=0.0):
     return err, o, r
 
 
-def _bias_bound(err, target):
-    return max(target, 3.0 * err.std(ddof=1) / np.sqrt(err.size))
+#: two-sided 99.9 % quantile of the standard normal (scipy.stats): the mean's bound in standard errors
+Z999 = stats.norm.ppf(0.9995)
+
+
+def _against_budget(world, name, mode, signals, **kw):
+    """Error against the truth, less the parts the truth explains, and the white noise it should have.
+
+    Returns (r, var): r = ctt − truth − multipath − the track line's miss of the true clocks
+    (both computed from the simulation, tests/simulated_budget.py), var = variance of each
+    point from the configured code noise propagated through ctt's combination, track fit and
+    weights. If ctt's model equals the simulator's, r is N(0, var), independent between points.
+    """
+    key = (name, mode, signals)
+    if key not in world.budgets:
+        err, o, r = _errors(world(name, **kw), mode=mode, signals=signals)
+        b = point_budget(world.results[name], r.satellites, ("TSTA", "TSTB"), signals, mode)
+        b = b.reindex(o["time"].to_numpy())
+        assert b.notna().all().all()
+        world.budgets[key] = (err - b["mp_ns"].to_numpy() - b["clock_ns"].to_numpy(), b["var_ns2"].to_numpy())
+    return world.budgets[key]
+
+
+def _statistics(r, var, label):
+    """(bound on |mean|: 3.29 standard errors of the mean, Σ r²/var, its chi-square(n) 0.05 % and
+    99.95 % quantiles), printed with the measured figures."""
+    n = r.size
+    se = np.sqrt(var.sum()) / n            # standard error of the mean of independent points
+    chi2 = float(np.sum(r * r / var))      # ~ chi-square with n degrees of freedom
+    lo, hi = stats.chi2.ppf([0.0005, 0.9995], n)
+    print(f"{label}: {n} points, mean {r.mean():+.4f} ns (bound {Z999 * se:.4f} = 3.29 SE), RMS "
+          f"{np.sqrt(np.mean(r * r)):.4f} ns, predicted {np.sqrt(var.mean()):.4f} ns; chi2/n {chi2 / n:.3f} "
+          f"in [{lo / n:.3f}, {hi / n:.3f}]")
+    return Z999 * se, chi2, lo, hi
 
 
 @pytest.mark.parametrize("signals", ["iono-free", "single"])
@@ -107,18 +150,70 @@ def test_physics_exactness_nearly_noiseless(world, signals):
     assert np.sqrt(np.mean(err**2)) <= 0.15
 
 
+@pytest.mark.parametrize("mode", ["epochs", "tracks"])
+@pytest.mark.parametrize("signals", ["iono-free", "single"])
+def test_physics_exactness_within_the_configured_noise(world, signals, mode):
+    """Nearly noiseless (σ0 = 0.01 m): what is left against the truth is the configured code noise.
+
+    The issue's targets above allow 0.05 ns of bias; the noise itself resolves far less: over
+    720 epochs (iono-free) the standard error of the mean is 2.6 ps, over 22 tracks 3.1 ps (1.1 ps
+    single), so a modelling difference of ~0.01 ns between ctt and the simulator shows here.
+    Tracks: the line fitted over 13 minutes misses the true clock at the midpoint by up to 0.2 ns
+    (clock A is white FM at 1e-11 over 1 s); that miss is computed from the true clocks and
+    taken out (tests/simulated_budget.py), it is not an error of ctt.
+    """
+    r, var = _against_budget(world, "exact", mode, signals, sigma0=0.01)
+    assert r.size >= (700 if mode == "epochs" else 21)
+    bound, chi2, lo, hi = _statistics(r, var, f"exact {signals} {mode}")
+    assert abs(r.mean()) <= bound, "bias against the truth beyond 3.29 standard errors"
+    assert lo <= chi2 <= hi, "scatter against the truth outside what the configured noise gives (99.9 %)"
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("signals, mode, rms_target", [
     ("iono-free", "epochs", 2.5), ("iono-free", "tracks", 0.5),
     ("single", "epochs", 0.9), ("single", "tracks", 0.2),
 ])
 def test_realistic_code_noise(world, signals, mode, rms_target):
-    # σ0 = 0.3 m / sin(el), 10° mask (issue targets: the floor an ideal weighted mean reaches).
+    # σ0 = 0.3 m / sin(el), 10° mask, 6 h (issue targets: the floor an ideal weighted mean reaches
+    # with this scenario's geometry; the bias and the scatter against the configured noise are
+    # checked over a whole day below, where 22 tracks could not resolve them).
     err, o, _ = _errors(world("noisy", sigma0=0.3), mode=mode, signals=signals)
     rms = np.sqrt(np.mean(err**2))
     print(f"{signals} {mode}: {err.size} points, mean {err.mean():+.4f} ns, RMS {rms:.4f} ns")
     assert rms <= rms_target
-    assert abs(err.mean()) <= _bias_bound(err, 0.05)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("mode", ["epochs", "tracks"])
+@pytest.mark.parametrize("signals", ["iono-free", "single"])
+def test_realistic_code_noise_bias(world, signals, mode):
+    """σ0 = 0.3 m / sin(el), 24 h: about 88 tracks and 2860 epochs. The bias against the truth
+    is within 3.29 standard errors of the mean of the configured noise propagated (iono-free
+    tracks: SE 0.059 ns, bound 0.19 ns; over the 22 tracks of 6 h the bound was
+    max(0.05, 3 × sample SE) = 0.27 ns for a measured −0.12 ns)."""
+    r, var = _against_budget(world, "day", mode, signals, sigma0=0.3, hours=24.0)
+    assert r.size >= (2800 if mode == "epochs" else 85)
+    bound, *_ = _statistics(r, var, f"realistic {signals} {mode}")
+    assert abs(r.mean()) <= bound
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("signals, mode", [
+    pytest.param("iono-free", "epochs", marks=pytest.mark.xfail(strict=True, reason=(
+        "measured chi2/n 1.099 over 2855 epochs (RMS 3.18 ns against the propagated 2.85 ns), above "
+        "the 99.95 % quantile 1.089: the satellites of one epoch share ~1.3 % correlated error at each "
+        "station (the station's own epoch means scatter 15 % above independent noise); not yet explained"))),
+    ("iono-free", "tracks"), ("single", "epochs"), ("single", "tracks"),
+])
+def test_realistic_code_noise_scatter(world, signals, mode):
+    """The scatter against the truth is the configured code noise propagated, no more, no less:
+    Σ r²/var within the 0.05 % and 99.95 % quantiles of chi-square(n) (scipy.stats), i.e.
+    for 88 tracks the RMS within 0.76-1.25 times the prediction (0.55 ns iono-free, 0.18 ns
+    single on this day), for 2860 epochs 0.96-1.04 times it (2.85 / 0.97 ns)."""
+    r, var = _against_budget(world, "day", mode, signals, sigma0=0.3, hours=24.0)
+    _, chi2, lo, hi = _statistics(r, var, f"realistic {signals} {mode}")
+    assert lo <= chi2 <= hi
 
 
 @pytest.mark.slow
