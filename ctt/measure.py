@@ -511,6 +511,61 @@ def receive_geometry(orbits, sats, t_rx, pr_m, ie, n_ep, rx, *, sagnac=True) -> 
 
 # ------------------------------------------------------------------ main
 
+#: Size of a receiver clock reset (ns) and how close to a multiple of it a change must be.
+RESET_STEP_NS = 1e6
+RESET_TOLERANCE_NS = 1e4
+#: A receiver clock running faster or slower than system time by more than this (s/s) is not
+#: on a laboratory reference: 1e-8 s/s is 0.86 ms a day, what a free crystal oscillator does,
+#: while caesium, hydrogen-maser and rubidium references stay below about 1e-10 (common practice).
+FREE_RUNNING_RATE = 1e-8
+
+
+def millisecond_resets(t_ns, clock_ns, *, step_ns: float = RESET_STEP_NS,
+                       tolerance_ns: float = RESET_TOLERANCE_NS):
+    """Whole-millisecond resets in a receiver clock series (epoch values, time order).
+
+    Many receivers keep their internal clock within ±0.5 ms of system time by resetting it
+    in steps of exactly 1 ms (common practice; real-2021-001's DELF drifts by −0.735 µs/s
+    and steps by +1 ms every 22.5 min, real-2011-283's CAGZ by −0.31 µs/s). Detection: the
+    change between consecutive values minus the series' median rate times the interval,
+    when within ``tolerance_ns`` (10 µs: far above the ns-level changes of a drift, far below
+    half a step) of a non-zero multiple of ``step_ns``. Returns ``(jump, k, rate)``: for each
+    consecutive pair whether it holds a reset and of how many steps, and the median rate in
+    ns per second (resets excluded)."""
+    t = np.asarray(t_ns, dtype=np.int64)
+    c = np.asarray(clock_ns, dtype=float)
+    if t.size < 2:
+        return np.zeros(0, dtype=bool), np.zeros(0), 0.0
+    dt = np.diff(t) / 1e9
+    d = np.diff(c)
+    rate = float(np.median(d / dt))
+    resid = d - rate * dt
+    k = np.rint(resid / step_ns)
+    jump = (k != 0) & (np.abs(resid - k * step_ns) < tolerance_ns)
+    if jump.any() and (~jump).any():
+        rate = float(np.median(d[~jump] / dt[~jump]))
+    return jump, np.where(jump, k, 0.0), rate
+
+
+def receiver_clock_character(t_ns, clock_ns) -> dict:
+    """What the day says of the receiver clock: its rate against system time (s/s), its
+    millisecond resets, and whether it can be a laboratory reference clock at all
+    (``continuous``: no reset and ``|rate| <= FREE_RUNNING_RATE``)."""
+    t = np.asarray(t_ns, dtype=np.int64)
+    c = np.asarray(clock_ns, dtype=float)
+    good = np.isfinite(c)
+    jump, k, rate = millisecond_resets(t[good], c[good])
+    n = int(np.count_nonzero(jump))
+    rate_s = rate * 1e-9
+    out = {"rate_s_per_s": float(f"{rate_s:.4g}"), "millisecond_resets": n,
+           "continuous": bool(n == 0 and abs(rate_s) <= FREE_RUNNING_RATE)}
+    if not out["continuous"]:
+        out["note"] = (f"receiver clock runs at {rate_s:+.3g} s/s against system time"
+                       + (f" with {n} resets of 1 ms" if n else "")
+                       + ": a free-running receiver oscillator, not a laboratory reference")
+    return out
+
+
 def observation_epochs_and_satellites(obs, systems):
     """The start of every per-station run (code or carrier phase): the epochs' time tags on
     GPS time (int64 ns), the file's satellite ids, and which of them belong to ``systems``.
@@ -746,6 +801,8 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                             else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
             "position_m": [float(v) for v in rx], "position_check": pos_check,
             "glonass_channels": glo_info or None}
+    if ref_sys is not None:
+        info["receiver_clock"] = receiver_clock_character(t_tag, mean_sys[ref_sys][0])
     day = StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,
                      counts={str(k): int(v) for k, v in counts.items()}, info=info)
     if isinstance(opt.biases, str) and opt.biases == "estimate":

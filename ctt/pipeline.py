@@ -395,7 +395,9 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
             red = red_a if st is station_a else red_b
             type_b[f"delays {st.id} (partner file)"] = _partner_delay_u(st, red)
     no_value = None
-    if any_ok:
+    free = clock_not_continuous(station_a, station_b,
+                                [d.info.get("receiver_clock") if d is not None else None for d in (day_a, day_b)])
+    if any_ok and free is None:
         budget = commonview.uncertainty_budget(
             by_sys, type_b_items=type_b, result=cv, system=main_sys,
             coordinate_sigma_m={"A": _sigma_enu(station_a), "B": _sigma_enu(station_b)})
@@ -408,9 +410,10 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
                   "type_a_detail": daily_detail["u_a_parts_ns"]}
     else:
         # every point failed its consistency test (e.g. files that do not belong together,
-        # forced): the points are written with their flags, but there is no daily value
-        no_value = (f"no daily value: none of the {len(offset)} points passed the consistency checks "
-                    f"(flags: {offset['flag'].value_counts().to_dict()})")
+        # forced), or a receiver clock is free-running: the points are written with their
+        # flags, but there is no daily value
+        no_value = free or (f"no daily value: none of the {len(offset)} points passed the consistency checks "
+                            f"(flags: {offset['flag'].value_counts().to_dict()})")
         log.warning("%s", no_value)
         b_var = sum(v * v for v in type_b.values())
         budget = {"type_b_ns": float(np.sqrt(b_var)), "items": dict(type_b), "system": main_sys, "n_bins": 0}
@@ -496,6 +499,25 @@ def pair_changes(station_a, station_b) -> list[dict]:
             exp = None if c.expected_delay_change_ns is None else sign * c.expected_delay_change_ns
             out.append({"time_utc_ns": c.time_utc_ns, "what": f"{st.id}: {c.what}", "expected_ns": exp})
     return sorted(out, key=lambda c: c["time_utc_ns"])
+
+
+def clock_not_continuous(station_a, station_b, characters) -> str | None:
+    """Why the day has no daily value when a station's receiver clock is not a laboratory
+    reference (:func:`ctt.measure.receiver_clock_character`), else None.
+
+    A receiver on its own crystal, resetting by 1 ms (or running faster than
+    ``FREE_RUNNING_RATE``), makes every point a valid clock A − clock B at its instant, but a
+    line through the day, its uncertainty and the stability describe that crystal, not a
+    station clock: printing them as a daily value (−23,662 ± 16,177 ns on DELF–WSRA) would
+    mislead. ``characters``: the two stations' ``receiver_clock`` dicts (None where unknown,
+    e.g. a partner's track file)."""
+    bad = [f"{st.id}: {c['note']}" for st, c in zip((station_a, station_b), characters)
+           if c is not None and not c.get("continuous", True)]
+    if not bad:
+        return None
+    return ("no daily value: " + "; ".join(bad) + ". Each point is still clock A − clock B at its instant "
+            "(offset.csv); a daily value, drift and stability need both receivers on their laboratory "
+            "reference (external frequency and time)")
 
 
 def day_value(offset: pd.DataFrame, station_a, station_b, u_b_ns: float) -> tuple[dict, dict]:
@@ -722,12 +744,17 @@ def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions,
     budget = commonview.uncertainty_budget(offset, type_b_items=type_b, system=system)
     budget["cancels"] = list(PPP_CANCELS)
     budget["does_not_cancel"] = list(PPP_REMAINS)
-    daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
-    budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
-              "total_ns": daily["u_ns"], "type_a_method": "link noise",
-              "type_a_detail": daily_detail["u_a_parts_ns"]}
+    free = clock_not_continuous(station_a, station_b, [res[w].summary.get("receiver_clock") for w in ("A", "B")])
+    if free is None:
+        daily, daily_detail = day_value(offset, station_a, station_b, budget["type_b_ns"])
+        budget = {**budget, "mean_offset_ns": daily["offset_ns"], "type_a_ns": daily["u_a_ns"],
+                  "total_ns": daily["u_ns"], "type_a_method": "link noise",
+                  "type_a_detail": daily_detail["u_a_parts_ns"]}
+    else:
+        log.warning("%s", free)
+        daily, daily_detail = None, {"reason": free}
     summary = _summary_ppp(inputs, station_a, station_b, options, popt, res, offset, budget, satellites)
-    summary["warnings"] = list(input_warnings)
+    summary["warnings"] = list(input_warnings) + ([free] if free else [])
     summary["daily_value"] = daily
     summary["daily_value_detail"] = daily_detail
     return PairResult(offset=offset, offset_by_system=offset, satellites=satellites, summary=summary,

@@ -816,4 +816,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
         "u_hardware_ns": float(u_hw),
         "iterations": it,
     }
+    okc = clock["flag"].to_numpy() == "ok"
+    summary["receiver_clock"] = measure.receiver_clock_character(clock["time_gps_ns"].to_numpy(np.int64)[okc],
+                                                                 clock["clock_ns"].to_numpy(float)[okc])
     return PPPResult(clock=clock, residuals=res, summary=summary, options=opt)

@@ -183,19 +183,16 @@ def _empty(attrs):
 def clock_steps_ns(meas_df: pd.DataFrame, *, step_ns: float = 1e6, tolerance_ns: float = 1e4) -> np.ndarray:
     """Cumulative whole-millisecond resets of the station clock, per row (ns; 0 when there are none).
 
-    Many receivers keep their internal clock within ±0.5 ms of system time by
-    resetting it in steps of exactly 1 ms (common practice; real-2021-001's DELF
-    drifts by −0.735 µs/s and steps by +1 ms every 22.5 min). A track or bin
-    fitted across such a step is meaningless, so the fits remove the steps and
-    add back the one in force at the window's midpoint (that of the last sample
-    at or before it: a reset between that sample and the midpoint cannot be
-    placed), so the reported value is still the clock at that instant. Detection, on the epoch medians of the
-    usable ``clock_ns`` over satellites: the change between consecutive epochs
-    minus the day's median rate times the interval, when within ``tolerance_ns``
-    (10 µs: far above the ns-level changes of a drift, far below half a step)
-    of a non-zero multiple of ``step_ns``. Epochs without a usable value inherit
-    the preceding epoch's count.
+    A track or bin fitted across a receiver's 1-ms clock reset
+    (:func:`ctt.measure.millisecond_resets`) is meaningless, so the fits remove the steps and
+    add back the one in force at the window's midpoint (that of the last sample at or before
+    it: a reset between that sample and the midpoint cannot be placed), so the reported value
+    is still the clock at that instant. Detection on the epoch medians of the usable
+    ``clock_ns`` over satellites; epochs without a usable value inherit the preceding
+    epoch's count.
     """
+    from .measure import millisecond_resets
+
     t = meas_df["time"].to_numpy(np.int64)
     if t.size == 0 or "clock_ns" not in meas_df.columns:
         return np.zeros(t.size)
@@ -207,15 +204,10 @@ def clock_steps_ns(meas_df: pd.DataFrame, *, step_ns: float = 1e6, tolerance_ns:
     te, ce = ep.index.to_numpy(np.int64), ep.to_numpy(float)
     if te.size < 2:
         return np.zeros(t.size)
-    dt = np.diff(te) / 1e9
-    d = np.diff(ce)
-    rate = np.median(d / dt)
-    resid = d - rate * dt
-    k = np.rint(resid / step_ns)
-    jump = (k != 0) & (np.abs(resid - k * step_ns) < tolerance_ns)
+    jump, k, _ = millisecond_resets(te, ce, step_ns=step_ns, tolerance_ns=tolerance_ns)
     if not jump.any():
         return np.zeros(t.size)
-    cum = np.concatenate(([0.0], np.cumsum(np.where(jump, k * step_ns, 0.0))))
+    cum = np.concatenate(([0.0], np.cumsum(k * step_ns)))
     j = np.clip(np.searchsorted(te, t, side="right") - 1, 0, te.size - 1)
     return cum[j]
 
