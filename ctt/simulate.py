@@ -1098,6 +1098,22 @@ class KeplerEphemerides:
                     self.p[k][i, j] = nav_field(r.get(k, 0.0))
         self.gm = np.array([GM_GPS if s[0] == "G" else GM_GAL for s in self.sats])
 
+    def _nearest_record(self, si, t_ns):
+        """Index of each instant's record with the nearest t_oe (the first such on a tie or a
+        repeated t_oe, as an argmin over the row would give). A search per satellite rather than
+        an (instants x records) table, whose size grows with the square of the span (25 GB for a
+        month of 30 s epochs)."""
+        j = np.zeros(si.shape, dtype=np.int64)
+        for k in np.unique(si):
+            m = si == k
+            row = self.toe_ns[k]               # sorted; the padding (a huge t_oe) sits at the end
+            t = t_ns[m]
+            hi = np.minimum(np.searchsorted(row, t), len(row) - 1)
+            lo = np.maximum(hi - 1, 0)
+            near = np.where(np.abs(row[lo] - t) <= np.abs(row[hi] - t), row[lo], row[hi])
+            j[m] = np.searchsorted(row, near)  # first record with that t_oe
+        return j
+
     def states(self, sats, t_ns, dt_s=0.0):
         sats = np.asarray(sats).astype(str)
         t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), sats.shape)
@@ -1106,8 +1122,7 @@ class KeplerEphemerides:
         bad = (si >= len(self.sats)) | (self._sats_arr[np.minimum(si, len(self.sats) - 1)] != sats)
         if np.any(bad):
             raise KeyError(f"no ephemeris records for {sorted(set(sats[bad].tolist()))[:5]}")
-        toe = self.toe_ns[si]  # (N, n_rec)
-        j = np.argmin(np.abs(toe - t_ns[..., None]), axis=-1)
+        j = self._nearest_record(si, t_ns)
         g = {k: v[si, j] for k, v in self.p.items()}
         tk = (t_ns - self.toe_ns[si, j]) / 1e9 + dt_s
         gm = self.gm[si]
