@@ -120,6 +120,7 @@ CREATE TABLE IF NOT EXISTS offsets (
     extra TEXT,
     PRIMARY KEY (pair, date, system, time_utc_ns)
 );
+CREATE INDEX IF NOT EXISTS offsets_pair_time ON offsets (pair, time_utc_ns);
 CREATE TABLE IF NOT EXISTS daily_values (
     pair TEXT NOT NULL,
     date TEXT NOT NULL,
@@ -379,6 +380,10 @@ class Archive:
                                  ).fetchone() is None:
                 stmt = _SCHEMA[_SCHEMA.index("CREATE TABLE IF NOT EXISTS daily_values"):]
                 self._con.execute(stmt[:stmt.index(";")])
+            if self._con.execute("SELECT name FROM sqlite_master WHERE type='index' AND name='offsets_pair_time'"
+                                 ).fetchone() is None:   # archives made before the index: add it once
+                stmt = _SCHEMA[_SCHEMA.index("CREATE INDEX IF NOT EXISTS offsets_pair_time"):]
+                self._con.execute(stmt[:stmt.index(";")])
 
     def _with_lock(self, what, fn, *args):
         deadline = time.monotonic() + self.timeout_s
@@ -541,11 +546,29 @@ class Archive:
         for c in ("mjd_utc", "offset_ns", "u_ns"):
             df[c] = df[c].astype(float)
         if extras and df["extra"].notna().any():
-            ext = pd.DataFrame.from_records([json.loads(e) if e else {} for e in df["extra"]], index=df.index)
+            # a day without extra columns reads back as missing (NaN under pandas' string dtype)
+            ext = pd.DataFrame.from_records([json.loads(e) if isinstance(e, str) and e else {} for e in df["extra"]],
+                                            index=df.index)
             df = pd.concat([df.drop(columns="extra"), ext], axis=1)
         else:
             df = df.drop(columns="extra")
         return df
+
+    @_guarded
+    def last_date(self, pair: str) -> str | None:
+        """The latest date holding offsets of ``pair`` (YYYY-MM-DD), or None (primary-key index)."""
+        row = self._con.execute("SELECT MAX(date) FROM offsets WHERE pair=?", (pair,)).fetchone()
+        return row[0] if row else None
+
+    @_guarded
+    def offsets_dated_before(self, pair: str, date, time_from_ns: int) -> bool:
+        """True when a row of ``pair`` dated before ``date`` has a time at or after ``time_from_ns``
+        (a day stored under a date far from its data); index on (pair, time_utc_ns), so only the
+        rows from ``time_from_ns`` on are looked at."""
+        row = self._con.execute("SELECT 1 FROM offsets INDEXED BY offsets_pair_time WHERE pair=? AND time_utc_ns >= ? AND date < ?"
+                                " LIMIT 1",
+                                (pair, int(time_from_ns), _date_text(date))).fetchone()
+        return row is not None
 
     @_guarded
     def load_daily_values(self, pair: str, date_from=None, date_to=None) -> pd.DataFrame:

@@ -33,6 +33,7 @@ import hashlib
 import json
 import logging
 import pathlib
+import time
 import traceback
 
 import numpy as np
@@ -61,6 +62,8 @@ class DayOutcome:
     out_dir: str = ""
     started: str = ""
     finished: str = ""
+    wall_s: float = 0.0               #: this day's computation in its worker: elapsed time
+    cpu_s: float = 0.0                #: ... and CPU time of that process (time.process_time)
 
 
 def _now() -> str:
@@ -132,6 +135,7 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
     from .config import load_pair
 
     started = _now()
+    t0, c0 = time.perf_counter(), time.process_time()
     out = DayOutcome(date=str(date), status="failed", started=started)
     try:
         pc = load_pair(pair_path)
@@ -139,6 +143,7 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         out.inputs, out.inputs_hash, out.config_hash = rec, ih, ch
         if known is not None and tuple(known) == (ih, ch) and not force:
             out.status, out.reason = "skipped", "already done with the same inputs and configuration"
+            out.wall_s, out.cpu_s = time.perf_counter() - t0, time.process_time() - c0
             return out
         from .pipeline import add_day_boundary, offset_table, pair_day_from_config, run_pair, write_pair_outputs
 
@@ -161,6 +166,7 @@ def compute_day(pair_path: str, date: str, known: tuple | None = None, force: bo
         if not is_user_error(exc):
             log.debug("day %s failed:\n%s", date, traceback.format_exc())
     out.finished = _now()
+    out.wall_s, out.cpu_s = time.perf_counter() - t0, time.process_time() - c0
     return out
 
 
@@ -276,20 +282,23 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
     Returns the report path, or None when it could not be made (logged)."""
     from .report import build_report
 
-    off = archive.load_offsets(pc.name)
-    if off is None or not len(off):
+    window = report_window(archive, pc.name, days)
+    if window is None:
         return None
-    from .commonview import main_series
-
-    off = main_series(off)
-    t = off["time_utc_ns"].to_numpy(np.int64) if "time_utc_ns" in off.columns else None
-    t_from = int(t.max()) - days * ts.NS_PER_DAY if t is not None and len(t) else None
+    off, t_from = window
     changes = hardware_changes(pc)
     summary = dict(summary or {})
-    summary["daily_values"] = archive.load_daily_values(pc.name).to_dict(orient="records")
+    # a daily value is shown from a day before the window on (ctt.report._daily_values); its
+    # epoch lies in its own date, so two dates of margin hold every one shown
+    dv_from = (_dt.date.fromisoformat(str(ts.to_iso(t_from))[:10]) - _dt.timedelta(days=2)).isoformat()
+    summary["daily_values"] = archive.load_daily_values(pc.name, dv_from).to_dict(orient="records")
     summary.setdefault("station_a", pc.station_a.id)
     summary.setdefault("station_b", pc.station_b.id)
     bounds = _day_boundaries(pc, off, t_from)
+    off = off[off["time_utc_ns"].to_numpy(np.int64) >= t_from]  # flag counts are the window's too
+    # one series already (a system per date): without the column, series_from_frame would keep
+    # only 'ALL' rows when some dates are GPS only, and drop those dates from the report
+    off = off.drop(columns="system")
     if bounds:
         summary = dict(summary or {}, day_boundaries=bounds)
     try:
@@ -300,6 +309,27 @@ def refresh_report(pc, archive, days: int = 30, summary: dict | None = None, sat
         log.warning("report not refreshed: %s", exc)
         return None
     return pathlib.Path(pc.report_path)
+
+
+def report_window(archive, pair: str, days: int = 30):
+    """(offsets, start ns) of the last ``days`` days of ``pair``'s main series (one system per
+    date, :func:`ctt.commonview.main_series`), loaded by date range, not the whole archive, so
+    a report costs the same at a month's archive as at a year's. The window ends at the last
+    point; the frame holds whole dates (each date's system choice needs all its rows) from two
+    days before the window's first on. None when the archive holds no offsets of the pair."""
+    from .commonview import main_series
+
+    last = archive.last_date(pair)
+    if last is None:
+        return None
+    first = (_dt.date.fromisoformat(last) - _dt.timedelta(days=int(days) + 2)).isoformat()
+    off = main_series(archive.load_offsets(pair, first))
+    t_from = int(off["time_utc_ns"].max()) - int(days) * ts.NS_PER_DAY
+    if archive.offsets_dated_before(pair, first, t_from):
+        # a day stored under a date far from its data: the window is not a date range; read all
+        off = main_series(archive.load_offsets(pair))
+        t_from = int(off["time_utc_ns"].max()) - int(days) * ts.NS_PER_DAY
+    return off, t_from
 
 
 def _day_boundaries(pc, off, t_from) -> list[dict]:

@@ -426,3 +426,46 @@ def test_read_only_archive_is_a_configuration_error(tmp_path, monkeypatch):
             a.store_day(PAIR, DAY, off, sat)
     assert str(p) in str(ei.value) and "writable" in str(ei.value)
     assert exit_code_for(ei.value) == 2
+
+
+def test_last_date_and_rows_dated_before_a_window(tmp_path):
+    """What the report's windowed read relies on (ctt.operations.report_window): the latest date
+    stored, and whether a row dated before the window's first date lies inside it. An archive made
+    before the time index gets it when opened."""
+    off, _ = make_day(0, n=100)
+    db = tmp_path / "a.sqlite"
+    with Archive(db) as a:
+        assert a.last_date(PAIR) is None
+        a.store_day(PAIR, DAY, off, None, {"messages": []})
+        late = off.assign(time_utc_ns=off["time_utc_ns"] + 9 * 86_400_000_000_000)   # data of 2021-01-10 ...
+        a.store_day(PAIR, "2021-01-03", late, None, {"messages": []})                # ... filed under 01-03
+        a.store_day(PAIR, "2021-01-10", off.assign(time_utc_ns=off["time_utc_ns"] + 9 * 86_400_000_000_000),
+                    None, {"messages": []})
+        assert a.last_date(PAIR) == "2021-01-10" and a.last_date("other") is None
+        t10 = T0 + 9 * 86_400_000_000_000
+        assert a.offsets_dated_before(PAIR, "2021-01-05", t10)          # the 01-03 rows are in 01-10
+        assert not a.offsets_dated_before(PAIR, "2021-01-03", t10)      # only 01-10 itself from there
+        assert not a.offsets_dated_before(PAIR, "2021-01-05", t10 + 100 * 30_000_000_000)  # after every row
+    con = sqlite3.connect(db)
+    con.execute("DROP INDEX offsets_pair_time")
+    con.commit()
+    con.close()
+    with Archive(db) as a:      # the query names the index (INDEXED BY): it fails if the index is absent
+        assert a.offsets_dated_before(PAIR, "2021-01-05", t10)
+    con = sqlite3.connect(db)
+    assert con.execute("SELECT sql FROM sqlite_master WHERE name='offsets_pair_time'").fetchone()[0].endswith(
+        "offsets (pair, time_utc_ns)")
+    con.close()
+
+
+def test_days_with_and_without_extra_columns_load_together(tmp_path):
+    """A span holding a day stored with an extra column (u_type_a_ns) and one without reads back
+    with the column, missing on the second day."""
+    off, _ = make_day(0, n=10)
+    with Archive(tmp_path / "a.sqlite") as a:
+        a.store_day(PAIR, DAY, off.assign(u_type_a_ns=0.25), None, {"messages": []})
+        a.store_day(PAIR, "2021-01-02", off.assign(time_utc_ns=off["time_utc_ns"] + 86_400_000_000_000), None,
+                    {"messages": []})
+        got = a.load_offsets(PAIR)
+    assert len(got) == 20
+    assert (got["u_type_a_ns"][:10] == 0.25).all() and got["u_type_a_ns"][10:].isna().all()

@@ -194,3 +194,125 @@ def test_rebuild_archive_from_run_folders_gives_back_the_days(demo, capsys):
     assert main(["rebuild-archive", "--config", str(pair)]) == 2
     assert main(["daily", "--config", str(pair), "--date", "2021-01-01", "--no-report"]) == 0
     assert "already done" in capsys.readouterr().out
+
+
+def _synthetic_archive(db, pair, first_day: str, n_days: int, bin_s: int = 960):
+    """Days stored with the archive's own ``store_day``: invented data (a random-walk offset, the
+    demo's G/E/ALL systems on most days, GPS alone on every fifth, flagged bins on every day,
+    a daily value at each noon). Returns {date: (times, flags)} of the main series' rows."""
+    import datetime as dt
+
+    import pandas as pd
+
+    from ctt import timescales as ts
+    from ctt.archive import Archive
+
+    rng = np.random.default_rng(15)
+    d0 = dt.date.fromisoformat(first_day)
+    main_rows = {}
+    with Archive(db) as arc:
+        for k in range(n_days):
+            date = (d0 + dt.timedelta(days=k)).isoformat()
+            t = ts.date_to_ns(date) + np.arange(0, 86400, bin_s, dtype=np.int64) * ts.NS_PER_S
+            systems = ["G"] if k % 5 == 0 else ["ALL", "E", "G"]
+            frames = []
+            for s in systems:
+                flag = np.where(rng.random(len(t)) < 0.05, "few_satellites", "ok")
+                frames.append(pd.DataFrame({
+                    "time_utc_ns": t, "offset_ns": 3.0 + np.cumsum(rng.normal(0, 0.1, len(t))) + k * 0.01,
+                    "u_ns": np.full(len(t), 1.2), "n_sat": rng.integers(4, 12, len(t)), "flag": flag,
+                    "system": s, "u_type_a_ns": np.full(len(t), 0.4)}))
+                if s == systems[0]:     # 'ALL' when present, else 'G': the main series (ctt.commonview)
+                    main_rows[date] = (t, flag)
+            dv = {"epoch_utc": f"{date}T12:00:00Z", "offset_ns": 3.0 + 0.01 * k, "u_a_ns": 1.0, "u_b_ns": 1.1,
+                  "u_ns": 1.5, "definition": "invented"}
+            arc.store_day(pair, date, pd.concat(frames, ignore_index=True), None, {"messages": []},
+                          daily_value=dv, stations="ALDR-BRKW")
+    return main_rows
+
+
+def _report_from_full_load(pc, arc, days, out_html):
+    """The report as refresh_report made it before the windowed load: every offset of the archive
+    read, the main series picked (one system per date), the window cut from its last point, every
+    daily value passed."""
+    from ctt import operations, timescales as ts
+    from ctt.commonview import main_series
+    from ctt.report import build_report
+
+    off = main_series(arc.load_offsets(pc.name))
+    t_from = int(off["time_utc_ns"].max()) - days * ts.NS_PER_DAY
+    summary = {"daily_values": arc.load_daily_values(pc.name).to_dict(orient="records"),
+               "station_a": pc.station_a.id, "station_b": pc.station_b.id}
+    bounds = operations._day_boundaries(pc, off, t_from)
+    if bounds:
+        summary["day_boundaries"] = bounds
+    off = off[off["time_utc_ns"] >= t_from].drop(columns="system")
+    return build_report(off, None, summary, operations.hardware_changes(pc), out_html=out_html,
+                        time_from_ns=t_from, title=f"{pc.name}: clock {pc.station_a.id} − clock {pc.station_b.id}",
+                        source=str(arc.path))
+
+
+def _record_reads(monkeypatch, arc) -> list:
+    """The (date_from, date_to) of every load_offsets call on ``arc`` from now on."""
+    asked, real = [], arc.load_offsets
+    monkeypatch.setattr(arc, "load_offsets", lambda *a, **k: asked.append(a[1:3]) or real(*a, **k))
+    return asked
+
+
+@pytest.mark.slow
+def test_report_refresh_reads_only_its_window_and_shows_what_the_full_load_shows(demo, tmp_path, monkeypatch):
+    """Issue 15: the refresh after each daily run read the whole archive (99 s at a year's size
+    against 35 s at a month's). It now reads a date range; the report it writes must hold the
+    same data as one made from every row of the archive, cut to the same window."""
+    import json
+
+    from ctt import timescales as ts
+    from ctt.archive import Archive
+    from ctt.config import load_pair
+    from ctt.operations import refresh_report
+
+    work, pair = demo
+    pc = load_pair(pair)
+    days, n_days = 30, 50
+    main_rows = _synthetic_archive(pc.archive_path, pc.name, "2021-02-01", n_days)
+    with Archive(pc.archive_path) as arc:
+        asked = _record_reads(monkeypatch, arc)
+        path = refresh_report(pc, arc, days=days)
+        # one date-range read: the last date stored is 2021-03-22, the window starts 30 days before
+        # its last bin (2021-02-20T23:44), the read two dates before that, not the 50 days stored
+        assert asked == [("2021-02-18",)]
+        got = json.loads(path.with_suffix(".json").read_text())
+        monkeypatch.undo()
+        _report_from_full_load(pc, arc, days, tmp_path / "full.html")
+    ref = json.loads((tmp_path / "full.json").read_text())
+    got.pop("generated_utc"), ref.pop("generated_utc")
+    assert got == ref
+    # the window's own numbers, counted from what was stored: its main-series bins and flagged bins
+    t_end = max(int(t.max()) for t, _ in main_rows.values())
+    t_from = t_end - days * ts.NS_PER_DAY
+    t_ok = np.concatenate([t[(t >= t_from) & (f == "ok")] for t, f in main_rows.values()])
+    n_flagged = sum(int(np.count_nonzero((t >= t_from) & (f != "ok"))) for t, f in main_rows.values())
+    assert got["series"]["n_flagged"] == n_flagged > 0
+    assert got["series"]["n_samples"] == len(t_ok)
+    assert got["series"]["start"] == ts.to_iso(int(t_ok.min()))
+    # daily values from a day before the window on (ctt.report._daily_values: epoch >= start - 1 day)
+    want = [d for d in main_rows if ts.parse_iso(f"{d}T12:00:00Z") >= t_from - ts.NS_PER_DAY]
+    assert [d["date"] for d in got["daily_values"]] == want and len(want) == days + 1
+
+    # a day filed under a date far from its data (2021-03-23's bins under 2021-02-02): the window is
+    # no longer a date range, so the whole archive is read, and the report is again the full load's
+    import pandas as pd
+
+    t_late = ts.date_to_ns("2021-03-23") + np.arange(0, 86400, 960, dtype=np.int64) * ts.NS_PER_S
+    late = pd.DataFrame({"time_utc_ns": t_late, "offset_ns": 3.5, "u_ns": 1.2, "n_sat": 7, "flag": "ok",
+                         "system": "G"})
+    with Archive(pc.archive_path) as arc:
+        arc.store_day(pc.name, "2021-02-02", late, None, {"messages": []})
+        asked = _record_reads(monkeypatch, arc)
+        got = json.loads(refresh_report(pc, arc, days=days).with_suffix(".json").read_text())
+        assert asked == [("2021-02-18",), ()]
+        monkeypatch.undo()
+        _report_from_full_load(pc, arc, days, tmp_path / "full.html")
+    ref = json.loads((tmp_path / "full.json").read_text())
+    got.pop("generated_utc"), ref.pop("generated_utc")
+    assert got == ref and got["series"]["end"] == ts.to_iso(int(t_late[-1]))
