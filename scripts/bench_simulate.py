@@ -1,7 +1,9 @@
 """Benchmark of the scenario simulator: the demo scenario (2 stations, 1 day at 30 s, GPS + Galileo).
 
 Prints measured times of the forward model and of the file writing, and the
-ratio per station-day. Run: ``python scripts/bench_simulate.py``.
+ratio per station-day: one run each, in a fresh process (cold: the first call, with
+its imports). No target in DESIGN.md and no baseline library: figures only, to
+watch for regressions. Run: ``python scripts/bench_simulate.py``.
 """
 
 from __future__ import annotations
@@ -29,7 +31,7 @@ def main() -> None:
     print(f"scenario {scn.name}: {n_st} stations x {scn.n_epochs} epochs, {n_obs} observation values")
     print(f"forward model   {t1 - t0:6.2f} s  ({(t1 - t0) / n_st:.2f} s per station-day)")
     print(f"writing files   {t2 - t1:6.2f} s  ({(t2 - t1) / n_st:.2f} s per station-day, {size / 1e6:.2f} MB)")
-    print(f"total           {t2 - t0:6.2f} s")
+    print(f"total           {t2 - t0:6.2f} s  (one cold run each; no target or baseline: figures only)")
 
 
 if __name__ == "__main__":

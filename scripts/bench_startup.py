@@ -47,7 +47,8 @@ def main() -> None:
                                       check=True)
 
     floor = timed(run([sys.executable, "-c", "pass"]), args.runs)
-    print(f"command: {' '.join(cmd)}")
+    print(f"command: {' '.join(cmd)}; each run a fresh process (cold), median of {args.runs}; "
+          f"against the {TARGET_S} s target and the bare interpreter")
     print(f"python -c pass     median {floor.median:.3f} s (best {floor.best:.3f} s)  [interpreter floor]")
     for extra in (["--version"], ["--help"]):
         t = timed(run(cmd + extra), args.runs)
