@@ -193,3 +193,21 @@ def test_backfill_check_lists_new_days(tmp_path, capsys):
     assert "3 day(s) not processed yet: 2020-12-30..2021-01-01" in out
     assert main(["report", str(tmp_path / "nothing.sqlite"), "--out", str(tmp_path / "r.html")]) in (2, 3)
     assert EXIT_USAGE == 2
+
+
+@pytest.mark.slow
+def test_readme_demo_figures_are_what_the_demo_day_gives(daily):
+    """The README quotes the demo's daily value and its cable-change step: they must be what
+    processing the shipped demo day gives today (a model change must update the README)."""
+    work, _ = daily
+    summary = json.loads(next((work / "out").rglob("summary.json")).read_text())
+    dv = summary["daily_value"]
+    readme = (ROOT / "README.md").read_text()
+    m = re.search(r"On the demo: ([0-9.]+) ns at (\d\d:\d\d:\d\d) UTC, u_a ([0-9.]+) ns", readme)
+    assert m, "README: the demo's daily value sentence is missing"
+    assert float(m.group(1)) == dv["offset_ns"] and float(m.group(3)) == dv["u_a_ns"]
+    assert dv["epoch_utc"][11:19] == m.group(2)
+    step = summary["daily_value_detail"]["changes"][0]
+    assert (step["n_before"], step["n_after"]) == (6, 6) and "(6 tracks each side)" in readme
+    m2 = re.search(r"change at 15:00 UTC comes out \+([0-9.]+) ± ([0-9.]+) ns", readme)
+    assert m2 and float(m2.group(1)) == round(step["size"], 2) and float(m2.group(2)) == round(step["u_size"], 2)
