@@ -157,8 +157,10 @@ class StationDay:
         by_label = {}
         for sat, lab in (self.info.get("codes") or {}).items():
             by_label.setdefault(lab, []).append(sat)
-        lines.append("  signals: " + "; ".join(f"{lab or 'none'} ({len(v)} satellites)"
-                                             for lab, v in sorted(by_label.items())))
+        # 'C1C+': iono-free asked for, the second code never present (those rows: missing_signal)
+        lines.append("  signals: " + "; ".join(
+            f"{(lab[:-1] + ' without a second code (not used)') if lab.endswith('+') else (lab or 'none')} "
+            f"({len(v)} satellites)" for lab, v in sorted(by_label.items())))
         return lines
 
 
