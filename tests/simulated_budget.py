@@ -28,7 +28,9 @@ JCGM 100:2008 §5.1.2) gives the variance of the white part at each point,
 and the multipath's contribution is the same linear function of the multipath term. The
 epochs fed to a track are those the simulator wrote for the satellite (code present in the
 file) inside the track window; ctt may flag a few more, which changes var by a few per cent
-at most, far inside the chi-square quantiles the tests use.
+at most, far inside the chi-square quantiles the tests use. Not modelled: the selection by
+ctt's outlier rejection (the satellites kept at an epoch are those near its median, which
+correlates their errors slightly; see the iono-free epoch case in test_against_simulation.py).
 """
 
 from __future__ import annotations
