@@ -81,6 +81,30 @@ Multi-GNSS
     over the bins); :func:`uncertainty_budget` carries it into the budget of
     'ALL'.
 
+GLONASS inter-frequency biases (``glonass_ifb='estimate'``, the default)
+    A receiver's GLONASS code delay depends on the FDMA channel k of the
+    satellite (up to tens of ns across the band, different from one receiver
+    type, firmware or antenna to another). In CV the difference of satellite i
+    holds ``b_A(k_i) − b_B(k_i)``, which does not cancel between two different
+    receivers, so the GLONASS mean moves as satellites of other channels rise
+    and set. Model of the GLONASS rows: ``d = c(t) + β_k + noise`` with one
+    constant β per channel over the day (satellites without a known channel:
+    one per satellite), fitted by :func:`ctt.measure.estimate_code_biases` on
+    the rows usable at both stations (weights 1/σ², uncertainty from hourly
+    batch means) and subtracted (``sat_df['channel_bias_ns']``, estimates in
+    ``CommonViewResult.channel_biases``). Only differences between channels
+    are observable: a part common to all channels cannot be told from c(t),
+    so the β are constrained to zero mean over the channels seen and that
+    common part, ``mean_k (b_A(k) − b_B(k))`` plus the GLONASS−GPS
+    inter-system bias difference of the receivers, stays in the GLONASS
+    series. GLONASS alone cannot separate it from the clock difference (it
+    needs a calibration of both receivers' GLONASS delays, e.g. ``isb_ns``);
+    in 'ALL' it is estimated as the inter-system bias against GPS, i.e. the
+    GLONASS delays are tied to the GPS calibration. In all-in-view the same
+    fit runs on each station's rows (``station`` 'A' / 'B'); there the β also
+    absorb what is constant per channel in the product's GLONASS clocks.
+    ``glonass_ifb='none'`` leaves the values as measured.
+
 All-in-view (``mode='all-in-view'``, both tables ``attrs['reference'] ==
 'precise'``)
     each station's values of a bin are combined, with the same weighting and
@@ -107,6 +131,9 @@ MAD_TO_SIGMA = 1.4826  # 1/Φ⁻¹(3/4): MAD of a normal sample → σ (common p
 #: Smallest uncertainty used as a weight 1/u² (1 fs): exact simulated data give u = 0.
 U_MIN_NS = 1e-6
 
+CHANNEL_BIAS_COLUMNS = ["station", "system", "channel", "label", "sats", "bias_ns", "u_ns", "n_points",
+                        "n_blocks"]
+
 OFFSET_COLUMNS = ["time", "time_utc", "mjd_utc", "system", "offset_ns", "u_ns", "u_apriori_ns",
                   "n_sat", "n_rejected", "scatter_ns", "chi2", "dof", "flag"]
 
@@ -119,7 +146,8 @@ class CommonViewResult:
     or per station and satellite (all-in-view), ``isb`` the inter-system biases
     used (columns station, system, reference_system, value_ns, u_ns, n_bins,
     source), ``sat_summary`` per satellite (n_used, n_outlier, median_residual_ns,
-    suspect).
+    suspect), ``channel_biases`` the GLONASS per-channel biases removed
+    (:func:`glonass_channel_biases`; empty without GLONASS).
     """
 
     offset_df: pd.DataFrame
@@ -128,6 +156,7 @@ class CommonViewResult:
     sat_summary: pd.DataFrame
     mode: str
     attrs: dict = field(default_factory=dict)
+    channel_biases: pd.DataFrame = field(default_factory=lambda: pd.DataFrame(columns=CHANNEL_BIAS_COLUMNS))
 
 
 # ---------------------------------------------------------------- group statistics
@@ -291,6 +320,43 @@ def _isb_config(isb_ns, station, system):
         if str(k).upper() == station and v is not None and system in v:
             return float(v[system])
     return None
+
+
+def glonass_channel_biases(time, sat, system, value, sigma, usable, channels=None, *, station="A-B"):
+    """Per-channel constants of the GLONASS rows (module docstring, "GLONASS inter-frequency biases").
+
+    ``value``/``sigma`` (ns) per row, ``usable`` rows to fit on, ``channels`` ``{sat: k}``.
+    Returns ``(correction_ns per row, table)``: the correction is the fitted β of the row's
+    channel (0 outside GLONASS and for channels not fitted); the table has one row per channel
+    (``CHANNEL_BIAS_COLUMNS``; ``u_ns`` the batch-means uncertainty, NaN under two hours of data).
+    """
+    from .measure import estimate_code_biases
+
+    sat = np.asarray(sat).astype(str)
+    is_r = np.asarray(system).astype(str) == "R"
+    corr = np.zeros(sat.size)
+    ch = channels or {}
+    kk = np.array([ch.get(s, np.nan) if r else np.nan for s, r in zip(sat, is_r)], dtype=float)
+    label = np.where(np.isfinite(kk), np.array([f"k={int(k):+d}" if np.isfinite(k) else "" for k in kk]), sat)
+    value = np.asarray(value, dtype=float)
+    sigma = np.asarray(sigma, dtype=float)
+    use = is_r & usable & np.isfinite(value) & np.isfinite(sigma) & (sigma > 0)
+    if not use.any():
+        return corr, pd.DataFrame(columns=CHANNEL_BIAS_COLUMNS)
+    tab = pd.DataFrame({"time": np.asarray(time, dtype=np.int64)[use], "sat": label[use], "system": "R",
+                        "clock_ns": value[use], "sigma_ns": sigma[use], "flag": "ok"})
+    est = estimate_code_biases(tab)
+    b = dict(zip(est["sat"].astype(str), est["bias_ns"].to_numpy(float)))
+    corr[is_r] = [b.get(lab, 0.0) for lab in label[is_r]]
+    members = pd.Series(sat[use]).groupby(label[use]).agg(lambda v: ",".join(sorted(set(v))))
+    labels = est["sat"].astype(str)
+    out = pd.DataFrame({
+        "station": station, "system": "R",
+        "channel": [int(x[2:]) if x.startswith("k=") else np.nan for x in labels],
+        "label": labels.to_numpy(), "sats": members.reindex(labels).to_numpy(),
+        "bias_ns": est["bias_ns"].to_numpy(float), "u_ns": est["u_ns"].to_numpy(float),
+        "n_points": est["n_points"].to_numpy(), "n_blocks": est["n_blocks"].to_numpy()})
+    return corr, out[CHANNEL_BIAS_COLUMNS]
 
 
 # ---------------------------------------------------------------- sampling
@@ -479,8 +545,12 @@ def _sat_summary(sat_df, flag_col="flag", resid_col="residual_ns", by=("sat",)):
 
 def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2el", mad_k: float = 3.5,
                 min_common: int = 1, mode: str = "cv", per_system: bool = True, isb_ns: dict | None = None,
-                max_iter: int = 10, scale_floor_ns: float = 0.01) -> CommonViewResult:
+                max_iter: int = 10, scale_floor_ns: float = 0.01, glonass_ifb: str = "estimate",
+                glonass_channels: dict | None = None) -> CommonViewResult:
     """Clock A − clock B per bin from two stations' track or epoch tables (see module docstring).
+
+    ``glonass_ifb``: 'estimate' (GLONASS per-channel biases fitted and removed) or 'none';
+    ``glonass_channels``: ``{sat: k}`` (without it, one constant per GLONASS satellite).
 
     Raises :class:`NoDataError` when nothing can be matched (no common
     satellite in CV mode, or no common bin in all-in-view).
@@ -489,6 +559,9 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
             "all_in_view": "all-in-view"}.get(str(mode).lower())
     if mode is None:
         raise ProcessingError("mode must be 'cv' or 'all-in-view'")
+    if glonass_ifb not in ("estimate", "none"):
+        raise ProcessingError(f"glonass_ifb must be 'estimate' or 'none', not {glonass_ifb!r}")
+    ifb = {"estimate": glonass_ifb == "estimate", "channels": glonass_channels}
     a = _check_table(a_df, "A")
     b = _check_table(b_df, "B")
     a, b, step = _align(a, b)
@@ -499,7 +572,7 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
                                   f"(reference 'precise'); got A {refs[0]!r}, B {refs[1]!r}")
         return _all_in_view(a, b, weights=weights, mad_k=mad_k, min_common=min_common,
                             per_system=per_system, isb_ns=isb_ns, max_iter=max_iter,
-                            scale_floor_ns=scale_floor_ns, step=step)
+                            scale_floor_ns=scale_floor_ns, step=step, ifb=ifb)
     refs = (a_df.attrs.get("reference", "broadcast"), b_df.attrs.get("reference", "broadcast"))
     if refs[0] != refs[1]:
         raise ProcessingError(f"station A is referred to {refs[0]!r} and B to {refs[1]!r}: their "
@@ -519,6 +592,11 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
     sig = np.hypot(u_a, u_b)
     time = j["mid_time"].to_numpy(np.int64)
     system = j["system"].astype(str).to_numpy(dtype=object)
+    channel_bias, ch_tab = np.zeros(diff.size), pd.DataFrame(columns=CHANNEL_BIAS_COLUMNS)
+    if ifb["estimate"]:
+        channel_bias, ch_tab = glonass_channel_biases(time, j["sat"].to_numpy(), system, diff, sig,
+                                                      both & np.isfinite(w), ifb["channels"])
+    diff_used = diff - channel_bias
 
     def isb_for(s, ref, tables):
         ca, cb = _isb_config(isb_ns, "A", s), _isb_config(isb_ns, "B", s)
@@ -528,7 +606,7 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
         return _estimate_isb(s, ref, tables, mad_k)
 
     tables, out, row_flag, acc_all, resid, isb_rows = _solve_systems(
-        time, system, diff, w, sig, mad_k=mad_k, max_iter=max_iter, scale_floor_ns=scale_floor_ns,
+        time, system, diff_used, w, sig, mad_k=mad_k, max_iter=max_iter, scale_floor_ns=scale_floor_ns,
         min_common=min_common, isb_for=isb_for, isb_label="A-B", want_all=True)
     if not per_system and "ALL" in tables:
         out = [tables["ALL"]]
@@ -540,7 +618,7 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
         "elevation_a_deg": el_a, "elevation_b_deg": el_b,
         "azimuth_a_deg": j["azimuth_deg_a"].to_numpy(float), "azimuth_b_deg": j["azimuth_deg_b"].to_numpy(float),
         "value_a_ns": va, "value_b_ns": vb, "u_a_ns": u_a, "u_b_ns": u_b,
-        "diff_ns": diff, "residual_ns": resid, "weight": w, "flag": flag,
+        "diff_ns": diff, "channel_bias_ns": channel_bias, "residual_ns": resid, "weight": w, "flag": flag,
     })
     if acc_all is not None:
         sat_df["flag_all"] = np.where(both & np.isfinite(w), np.where(acc_all, "ok", "outlier"),
@@ -555,11 +633,11 @@ def common_view(a_df: pd.DataFrame, b_df: pd.DataFrame, *, weights: str = "sin2e
              "n_unmatched_a": int(len(a) - len(j)), "n_unmatched_b": int(len(b) - len(j)),
              "reference": a_df.attrs.get("reference"), "table_mode": a_df.attrs.get("mode")}
     offset_df.attrs.update(attrs)
-    return CommonViewResult(offset_df, sat_df, isb, summary, "cv", attrs)
+    return CommonViewResult(offset_df, sat_df, isb, summary, "cv", attrs, ch_tab)
 
 
-def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_iter, scale_floor_ns, step):
-    sols, rows, isb_all = {}, [], []
+def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_iter, scale_floor_ns, step, ifb):
+    sols, rows, isb_all, ch_tabs = {}, [], [], []
     for name, df in (("A", a), ("B", b)):
         ok = df["flag"].astype(str).to_numpy(dtype=object) == "ok"
         el = df["elevation_deg"].to_numpy(float)
@@ -570,6 +648,11 @@ def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_it
         system = df["system"].astype(str).to_numpy(dtype=object)
         if not ok.any():
             raise NoDataError(f"station {name} has no usable value for all-in-view")
+        channel_bias = np.zeros(v.size)
+        if ifb["estimate"]:
+            channel_bias, tab = glonass_channel_biases(time, df["sat"].to_numpy(), system, v, u, ok & np.isfinite(w),
+                                                       ifb["channels"], station=name)
+            ch_tabs.append(tab)
 
         def isb_for(s, ref, tables, name=name):
             c, cr = _isb_config(isb_ns, name, s), _isb_config(isb_ns, name, ref)
@@ -578,7 +661,7 @@ def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_it
             return _estimate_isb(s, ref, tables, mad_k)
 
         tables, _, row_flag, acc_all, resid, isb_rows = _solve_systems(
-            time, system, v, w, u, mad_k=mad_k, max_iter=max_iter, scale_floor_ns=scale_floor_ns,
+            time, system, v - channel_bias, w, u, mad_k=mad_k, max_iter=max_iter, scale_floor_ns=scale_floor_ns,
             min_common=1, isb_for=isb_for, isb_label=name, want_all=True)
         sols[name] = tables
         isb_all += isb_rows
@@ -586,7 +669,8 @@ def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_it
         flag = np.where(ok & ~np.isfinite(w), "no_weight", flag).astype(object)
         r = pd.DataFrame({"time": time, "station": name, "sat": df["sat"].to_numpy(dtype=object),
                           "system": system, "elevation_deg": el, "azimuth_deg": df["azimuth_deg"].to_numpy(float),
-                          "value_ns": v, "u_ns": u, "residual_ns": resid, "weight": w, "flag": flag})
+                          "value_ns": v, "channel_bias_ns": channel_bias, "u_ns": u, "residual_ns": resid,
+                          "weight": w, "flag": flag})
         if acc_all is not None:
             r["flag_all"] = np.where(ok & np.isfinite(w), np.where(acc_all, "ok", "outlier"), flag).astype(object)
             no_isb = [x["system"] for x in isb_rows if not np.isfinite(x["value_ns"])]
@@ -630,7 +714,9 @@ def _all_in_view(a, b, *, weights, mad_k, min_common, per_system, isb_ns, max_it
     attrs = {"weights": weights, "mad_k": mad_k, "min_common": min_common, "window_s": step,
              "reference": "precise", "table_mode": a.attrs.get("mode")}
     offset_df.attrs.update(attrs)
-    return CommonViewResult(offset_df, sat_df, isb, summary, "all-in-view", attrs)
+    ch = [t for t in ch_tabs if len(t)]
+    ch_tab = pd.concat(ch, ignore_index=True) if ch else pd.DataFrame(columns=CHANNEL_BIAS_COLUMNS)
+    return CommonViewResult(offset_df, sat_df, isb, summary, "all-in-view", attrs, ch_tab)
 
 
 # ---------------------------------------------------------------- uncertainty budget
@@ -830,6 +916,38 @@ def isb_uncertainty_items(result: CommonViewResult) -> dict:
     return items
 
 
+def channel_bias_uncertainty_items(result: CommonViewResult, system: str) -> dict:
+    """Budget items (ns) from the uncertainty of the GLONASS per-channel biases removed.
+
+    An error ε_k in the bias of channel k shifts the day's mean of ``system`` ('R' or 'ALL') by
+    ε_k times channel k's share of the accepted weight; independent errors give
+    ``√Σ (share_k · u_k)²`` (the zero-mean constraint correlates them slightly; not modelled).
+    One item per station label ('A-B' in CV, 'A' and 'B' in all-in-view)."""
+    ch = result.channel_biases
+    s = result.sat_df
+    if ch is None or ch.empty or system not in ("R", "ALL"):
+        return {}
+    col = "flag_all" if system == "ALL" and "flag_all" in s.columns else "flag"
+    items = {}
+    for who, tab in ch.groupby("station"):
+        rows = s[s[col] == "ok"]
+        if system == "R":
+            rows = rows[rows["system"] == "R"]
+        if "station" in s.columns and who in ("A", "B"):
+            rows = rows[rows["station"] == who]
+        wsum = rows["weight"].sum()
+        if wsum <= 0:
+            continue
+        var = 0.0
+        for _, c in tab.iterrows():
+            sats = str(c["sats"]).split(",")
+            share = rows.loc[rows["sat"].isin(sats), "weight"].sum() / wsum
+            if np.isfinite(c["u_ns"]):
+                var += (share * float(c["u_ns"])) ** 2
+        items[f"GLONASS channel biases ({who})"] = float(np.sqrt(var))
+    return items
+
+
 def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = None,
                        tdev_ns_at_day: float | None = None, result: CommonViewResult | None = None,
                        coordinate_sigma_m: dict | None = None, system: str | None = None,
@@ -852,7 +970,8 @@ def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = N
       ...) plus, with ``result`` and ``coordinate_sigma_m`` (``{'A': (σE, σN, σU),
       'B': ...}`` in m), one item per station from
       :func:`coordinate_uncertainty_ns`, and for 'ALL' with ``result`` the
-      estimated inter-system biases (:func:`isb_uncertainty_items`); combined as
+      estimated inter-system biases (:func:`isb_uncertainty_items`), and for 'R' and
+      'ALL' the GLONASS channel biases (:func:`channel_bias_uncertainty_items`); combined as
       the root sum of squares (independent items).
     * total = √(type_A² + type_B²).
 
@@ -894,6 +1013,8 @@ def uncertainty_budget(offset_df: pd.DataFrame, *, type_b_items: dict | None = N
             items[f"coordinates {str(st).upper()}"] = day
     if result is not None and system == "ALL":
         items.update(isb_uncertainty_items(result))
+    if result is not None:
+        items.update(channel_bias_uncertainty_items(result, system))
     type_b = float(np.sqrt(sum(v * v for v in items.values()))) if items else 0.0
     return {"mean_offset_ns": mean, "type_a_ns": type_a, "type_b_ns": type_b,
             "total_ns": float(np.hypot(type_a, type_b)), "items": items, "system": system,

@@ -605,8 +605,8 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
 
     # --- signals per satellite (only the systems asked for)
     glo_info = {}
-    sel = select_signals(obs, sats_all, opt,
-                         glonass_k=_glonass_channels(obs, orbits, nav, glo_info) if "R" in opt.systems else None)
+    glo_k = _glonass_channels(obs, orbits, nav, glo_info) if "R" in opt.systems else None
+    sel = select_signals(obs, sats_all, opt, glonass_k=glo_k)
     if "E" in opt.systems and hasattr(orbits, "galileo_source"):
         # the broadcast records of each Galileo satellite must be those whose clocks refer to its
         # signals: F/NAV for E1/E5a, I/NAV for E1/E5b and E1 alone (OS SIS ICD §5.1.5)
@@ -802,7 +802,7 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
                             if opt.biases is not None and not isinstance(opt.biases, str)
                             else "none (C1C users carry each satellite's C1C-C1W bias)"), "u_hardware_ns": u_hw, "reference": reference,
             "position_m": [float(v) for v in rx], "position_check": pos_check,
-            "glonass_channels": glo_info or None}
+            "glonass_channels": glo_info or None, "glonass_k": dict(glo_k) if glo_k else None}
     if ref_sys is not None:
         info["receiver_clock"] = receiver_clock_character(t_tag, mean_sys[ref_sys][0])
     day = StationDay(table=table, epochs=epochs, station_id=station.id, reference=reference,

@@ -134,6 +134,9 @@ class PairOptions:
     #: configured inter-system biases {'A': {'E': ns}, 'B': {...}} (system minus GPS at that
     #: station); systems not given are estimated from the day (ctt.commonview)
     isb_ns: dict | None = None
+    #: GLONASS per-channel code biases in CV / all-in-view: 'estimate' (fitted per channel, zero
+    #: mean; ctt.commonview) or 'none'
+    glonass_ifb: str = "estimate"
     #: mode 'ppp': the estimator's options (ctt.ppp.PPPOptions); None = its defaults
     ppp: object | None = None
 
@@ -190,6 +193,12 @@ class PairResult:
                              f"{np.sqrt(np.mean(b ** 2)):.2f} ns, median u {np.nanmedian(u):.2f} ns (zero mean "
                              f"over the satellites: their common part is in the station clock; per satellite "
                              f"in summary.json)")
+        ch = s.get("glonass_channel_biases") or []
+        if ch:
+            b = np.array([e["bias_ns"] for e in ch], dtype=float)
+            lines.append(f"  GLONASS channel biases removed ({', '.join(sorted({e['station'] for e in ch}))}): "
+                         f"{len(b)} channels, RMS {np.sqrt(np.mean(b ** 2)):.2f} ns (zero mean: their common "
+                         f"part stays in the GLONASS series; per channel in summary.json)")
         for who, c in (s.get("coordinates") or {}).items():
             if c:
                 lines.append(f"  antenna position from the day's code data, {c['station']} ({who}): "
@@ -376,8 +385,12 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
     red_a, red_b = reduced
     _check_overlap(inputs, red_a, red_b)
     cv_mode = "all-in-view" if options.mode == "all-in-view" else "cv"
+    glo_k = {}
+    for day in days:
+        glo_k.update((day.info.get("glonass_k") or {}) if day is not None else {})
     cv = commonview.common_view(red_a, red_b, weights=options.weights, mad_k=options.mad_k,
-                                min_common=options.min_common, mode=cv_mode, isb_ns=options.isb_ns)
+                                min_common=options.min_common, mode=cv_mode, isb_ns=options.isb_ns,
+                                glonass_ifb=options.glonass_ifb, glonass_channels=glo_k or None)
     by_sys = cv.offset_df
     main_sys = commonview.main_system(by_sys["system"]) or sorted(set(by_sys["system"]))[0]
     offset = by_sys[by_sys["system"] == main_sys].reset_index(drop=True)
@@ -884,6 +897,8 @@ def _summary(inputs, station_a, station_b, options, day_a, day_b, cv, offset, bu
                    "measurements_b": int(len(day_b.table)) if day_b is not None else 0},
         "budget": {k: budget[k] for k in ("type_b_ns", "items", "system", "n_bins")},
         "isb": cv.isb.to_dict(orient="records") if len(cv.isb) else [],
+        "glonass_channel_biases": (cv.channel_biases.to_dict(orient="records") if len(cv.channel_biases)
+                                   else []),
         "rejected": rejected,
     }
 

@@ -363,7 +363,9 @@ NOISE_TYPES = {
     "random_walk_fm": (-2, 0.5),
 }
 
-DEFAULT_SIGNALS = {"G": ("C1C", "C2W", "C5Q"), "E": ("C1C", "C5Q", "C7Q")}
+DEFAULT_SIGNALS = {"G": ("C1C", "C2W", "C5Q"), "E": ("C1C", "C5Q", "C7Q"), "R": ("C1P", "C2P")}
+#: system letters the simulator writes, in the order of its satellite columns
+SYSTEMS = "GER"
 
 
 # ==================================================================== power-law noise
@@ -505,6 +507,7 @@ class StationSpec:
     delay_changes: tuple
     cycle_slips_per_h: float = 0.0
     slips: tuple = ()
+    glonass: dict | None = None   #: [stations.glonass]: isb_ns, ifb_ns_per_channel, ifb_ns, ifb_random_ns
 
 
 @dataclasses.dataclass(frozen=True)
@@ -625,12 +628,13 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
     if isinstance(state, bool) or not isinstance(state, int) or state < 0:
         r.fail("scenario.random_state", f"expected a non-negative integer, found {state!r}")
     systems = sc.get("systems", ["G"])
-    if not isinstance(systems, list) or not systems or any(s not in ("G", "E") for s in systems):
-        r.fail("scenario.systems", f"expected a list of 'G' and/or 'E', found {systems!r}")
+    if (not isinstance(systems, list) or not systems or any(s not in SYSTEMS for s in systems)
+            or len(set(systems)) != len(systems)):
+        r.fail("scenario.systems", f"expected a list of distinct 'G', 'E', 'R', found {systems!r}")
 
     sat = data.get("satellites", {})
-    r.keys(sat, {"source", "nav_file", "gps_count", "galileo_count", "klobuchar_alpha", "klobuchar_beta",
-                 "clock_error_ns", "orbit_error_m"}, "satellites")
+    r.keys(sat, {"source", "nav_file", "gps_count", "galileo_count", "glonass_count", "klobuchar_alpha",
+                 "klobuchar_beta", "clock_error_ns", "orbit_error_m"}, "satellites")
     source = r.text(sat, "source", "satellites", "synthetic")
     if source not in ("synthetic", "nav"):
         r.fail("satellites.source", f"expected 'synthetic' or 'nav', found {source!r}")
@@ -645,6 +649,7 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
     else:
         sat_out["gps_count"] = int(r.num(sat, "gps_count", "satellites", 31, lo=24, hi=32))
         sat_out["galileo_count"] = int(r.num(sat, "galileo_count", "satellites", 24, lo=1, hi=36))
+        sat_out["glonass_count"] = int(r.num(sat, "glonass_count", "satellites", 24, lo=1, hi=24))
         for k, dflt in (("klobuchar_alpha", [1.1e-8, 0.0, -6.0e-8, 0.0]),
                         ("klobuchar_beta", [9.0e4, 0.0, -2.0e5, 0.0])):
             v = sat.get(k, dflt)
@@ -701,7 +706,7 @@ def scenario_from_dict(data: dict, path=None, text: str = "") -> Scenario:
 _STATION_KEYS = {"id", "name", "position_m", "lat_deg", "lon_deg", "height_m", "antenna_type",
                  "antenna_delta_hen_m", "receiver_type", "elevation_mask_deg", "code_noise_m", "phase_noise_m",
                  "signals", "delays", "met", "multipath", "clock", "gaps", "resets", "delay_changes",
-                 "cycle_slips_per_h", "slips", "clock_jumps"}
+                 "cycle_slips_per_h", "slips", "clock_jumps", "glonass"}
 
 
 def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
@@ -729,8 +734,10 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
     for s in systems:
         codes = sig.get(s, list(DEFAULT_SIGNALS[s]))
         for c in codes:
-            if not (isinstance(c, str) and len(c) == 3 and c[0] == "C" and (s, c[1]) in F_HZ):
-                r.fail(f"{w}.signals.{s}", f"expected code names such as C1C, C2W, C5Q, C7Q, found {c!r}")
+            if not (isinstance(c, str) and len(c) == 3 and c[0] == "C"
+                    and ((s, c[1]) in F_HZ or (s == "R" and c[1] in GLO_FDMA_HZ))):
+                r.fail(f"{w}.signals.{s}", f"expected code names such as C1C, C2W, C5Q, C7Q (GLONASS: C1C, "
+                                           f"C1P, C2C, C2P), found {c!r}")
         signals[s] = tuple(codes)
     d = st.get("delays", {})
     r.keys(d, {"receiver_ns", "cable_ns", "reference_ns", "u_receiver_ns", "u_cable_ns", "u_reference_ns"},
@@ -833,6 +840,7 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
                                    r.num(g, "cable_ns", gw, 0.0), r.num(g, "reference_ns", gw, 0.0),
                                    r.text(g, "what", gw, "hardware delay change"),
                                    r.flag(g, "in_delays", gw, False)))
+    glo = _glonass_station(r, st.get("glonass"), f"{w}.glonass", signals.get("R", ()))
     return StationSpec(
         id=sid, name=r.text(st, "name", w, sid), marker_m=marker,
         antenna_type=r.text(st, "antenna_type", w, "INVENTED-ANT1"), antenna_delta_hen_m=delta,
@@ -847,7 +855,45 @@ def _station(r: _R, st: dict, i: int, systems) -> StationSpec:
         met=met_out, multipath=mp_out, clock=clock, gaps=tuple(gaps), resets=tuple(resets),
         delay_changes=tuple(sorted(changes, key=lambda c: c.time_utc_ns)),
         cycle_slips_per_h=r.num(st, "cycle_slips_per_h", w, 0.0, lo=0),
-        slips=tuple(sorted(slips, key=lambda v: v.time_utc_ns)))
+        slips=tuple(sorted(slips, key=lambda v: v.time_utc_ns)), glonass=glo)
+
+
+def _glonass_station(r: _R, g, where, codes):
+    """``[stations.glonass]``: the receiver's GLONASS code biases (truth, not in the station file).
+
+    The delay of GLONASS code c on channel k, on top of the station's ``receiver_ns[c]``, is
+    ``isb_ns + ifb_ns_per_channel[c]·k + ifb_ns[c][k] + a normal draw of rms ifb_random_ns``
+    (one draw per code and channel, from the GLONASS random stream)."""
+    if g is None:
+        return None
+    if not codes:
+        r.fail(where, "given, but the station has no GLONASS signals (scenario.systems lacks 'R')")
+    if not isinstance(g, dict):
+        r.fail(where, f"expected a table, found {g!r}")
+    r.keys(g, {"isb_ns", "ifb_ns_per_channel", "ifb_ns", "ifb_random_ns"}, where)
+    slope = g.get("ifb_ns_per_channel", {})
+    if (not isinstance(slope, dict) or any(c not in codes for c in slope)
+            or any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in slope.values())):
+        r.fail(f"{where}.ifb_ns_per_channel", f"expected {{code = ns per channel}} for codes among {list(codes)}, "
+                                              f"found {slope!r}")
+    extra = g.get("ifb_ns", {})
+    out_extra = {}
+    if not isinstance(extra, dict) or any(c not in codes or not isinstance(v, dict) for c, v in extra.items()):
+        r.fail(f"{where}.ifb_ns", f"expected {{code = {{channel = ns}}}} for codes among {list(codes)}, "
+                                  f"found {extra!r}")
+    for c, tab in extra.items():
+        out_extra[c] = {}
+        for kk, v in tab.items():
+            try:
+                k = int(kk)
+            except ValueError:
+                k = None
+            if k is None or not -7 <= k <= 6 or isinstance(v, bool) or not isinstance(v, (int, float)):
+                r.fail(f"{where}.ifb_ns.{c}", f"expected channel numbers -7..6 (quoted keys, e.g. \"-7\" = 1.5) "
+                                              f"with values in ns, found {kk!r} = {v!r}")
+            out_extra[c][k] = float(v)
+    return {"isb_ns": r.num(g, "isb_ns", where, 0.0), "slope": {c: float(v) for c, v in slope.items()},
+            "extra": out_extra, "random_ns": r.num(g, "ifb_random_ns", where, 0.0, lo=0)}
 
 
 # ==================================================================== clocks
@@ -1165,6 +1211,219 @@ class _States:
     status: np.ndarray
 
 
+# ==================================================================== GLONASS
+
+#: GLONASS ICD (edition 5.1, 2008) §3.1.3 and Appendix A.3.1.2: PZ-90 constants of the orbit model.
+GM_GLO = 3.9860044e14
+AE_GLO = 6378136.0
+J2_GLO = 1082625.75e-9
+OMEGA_GLO = 7.292115e-5
+#: GLONASS ICD §3.1.1 (orbital constellation): 24 slots in 3 planes 120° apart, 8 slots 45° apart
+#: in each plane, adjacent planes shifted by 15° in argument of latitude, inclination 64.8°, nominal
+#: draconic period 11 h 15 min 44 s, i.e. an altitude of 19 100 km (a ≈ 25 510 km).
+GLO_INCLINATION_DEG = 64.8
+GLO_PERIOD_S = 11 * 3600 + 15 * 60 + 44
+GLO_A_M = 25_510_000.0
+#: Frequency channel k of slot n: antipodal slots (n, n + 4 of one plane) share k. The allocation
+#: of 2020 as broadcast in ../shared/data/real-2020-177 (ESBC navigation file; slot 22 absent
+#: there and given -3 like its antipodal slot 18).
+GLO_CHANNELS = {1: 1, 2: -4, 3: 5, 4: 6, 5: 1, 6: -4, 7: 5, 8: 6, 9: -2, 10: -7, 11: 0, 12: -1,
+                13: -2, 14: -7, 15: 0, 16: -1, 17: 4, 18: -3, 19: 3, 20: 2, 21: 4, 22: -3, 23: 3, 24: 2}
+#: GLONASS ICD §3.3.1.4: G1 = 1602 + 0.5625·k MHz, G2 = 1246 + 0.4375·k MHz.
+GLO_FDMA_HZ = {"1": (1602.0e6, 0.5625e6), "2": (1246.0e6, 0.4375e6)}
+#: t_b: every 30 min at :15 and :45 (GLONASS ICD: t_b in 15-min units, records 30 min apart);
+#: t_k, the start of the frame, 15 min before t_b (as in the broadcast files of ../shared/data).
+GLO_RECORD_SPACING_S = 1800
+GLO_FRAME_LEAD_S = 900
+
+
+def glonass_frequency_hz(band: str, k):
+    """G1/G2 carrier frequency (Hz) of frequency channel ``k`` (GLONASS ICD §3.3.1.4)."""
+    base, step = GLO_FDMA_HZ[band]
+    return base + step * np.asarray(k, dtype=float)
+
+
+class GlonassTruth:
+    """True GLONASS orbits and clocks, and the broadcast records that describe them.
+
+    Orbits: numerical integration, here and on its own, of the central field and the J2 term with
+    the PZ-90 constants of the GLONASS ICD, in the inertial frame that coincides with the
+    Earth-fixed one at ``t0`` (the Earth turning at ω = 7.292115e-5 rad/s about z), by
+    ``scipy.integrate.solve_ivp`` (DOP853, rtol 1e-12, atol 1e-6 m; a library integrator rather
+    than a hand-written one, with dense output for any instant). No luni-solar perturbation is
+    simulated, so the broadcast accelerations are 0. The receiver's model
+    (:func:`ctt.orbits.glonass_propagate`: RK4 of the Earth-fixed equations from the nearest t_b)
+    then reproduces the truth to its integration error, which
+    ``tests/test_against_simulation_multignss.py`` measures.
+
+    Clocks: satellite clock − GLONASS time = a0 + γ·(t − t0) (γ ~ 1e-12), broadcast at each t_b
+    as −τ_n = a0 + γ·(t_b − t0) and γ_n = γ; the truth takes the record nearest in time as read
+    back from the file (D19.12). GLONASS time is UTC(SU) + 3 h with UTC(SU) = UTC and no
+    GLONASS − GPS offset beyond the leap seconds (header GLUT = 0), so the clock is also the
+    satellite clock minus GPS time on the GPS count. Periodic relativistic term: −2 r·v/c²
+    (the convention of :mod:`ctt.orbits`). No satellite group delay (τ_n refers to G1 and the
+    synthetic satellites have G2 − G1 = 0).
+    """
+
+    def __init__(self, start_gps_ns: int, end_gps_ns: int, rng: np.random.Generator, count: int = 24):
+        from scipy.integrate import solve_ivp
+
+        from .formats.rinex_writers import nav_field
+
+        spacing = GLO_RECORD_SPACING_S * NS
+        # t_b on the UTC count at hh:15 and hh:45, one spacing beyond each end
+        u0 = int(ts.convert(np.int64(start_gps_ns), "GPS", "UTC"))
+        u1 = int(ts.convert(np.int64(end_gps_ns), "GPS", "UTC"))
+        off = 900 * NS
+        first = ((u0 - off) // spacing) * spacing + off - spacing
+        last = -(-(u1 - off) // spacing) * spacing + off + spacing
+        tb_utc = np.arange(first, last + 1, spacing, dtype=np.int64)
+        tb_gps = ts.convert(tb_utc, "UTC", "GPS")
+        # the integration covers the records and 3 h more each side (SP3 files span the data ± 1 h)
+        self.t0 = int(tb_gps[0]) - 3 * 3600 * NS
+        span_s = (int(tb_gps[-1]) - self.t0) / 1e9 + 3 * 3600.0
+        slots = list(range(1, count + 1))
+        self.sats = [f"R{n:02d}" for n in slots]
+        self.channels = {f"R{n:02d}": GLO_CHANNELS[n] for n in slots}
+        y0 = []
+        self.a0 = {}
+        self.gamma = {}
+        for n in slots:
+            plane, slot = (n - 1) // 8, (n - 1) % 8
+            a = GLO_A_M + rng.normal(0, 300.0)
+            e = rng.uniform(2e-4, 1.5e-3)
+            inc = math.radians(GLO_INCLINATION_DEG) + rng.normal(0, 0.003)
+            raan = math.radians(120.0 * plane) + 0.7 + rng.normal(0, 0.002)
+            argp = rng.uniform(-math.pi, math.pi)
+            u = math.radians(45.0 * slot + 15.0 * plane) + rng.normal(0, 0.002)
+            y0.append(_kepler_to_inertial(a, e, inc, raan, argp, u - argp, GM_GLO))
+            self.a0[f"R{n:02d}"] = rng.uniform(-3e-4, 3e-4)
+            self.gamma[f"R{n:02d}"] = float(np.round(rng.normal(0, 1e-12) / 2 ** -40) * 2 ** -40)
+        self._n = len(slots)
+        sol = solve_ivp(_j2_rhs, (0.0, span_s), np.concatenate(y0), method="DOP853", rtol=1e-12, atol=1e-6,
+                        dense_output=True)
+        if not sol.success:  # pragma: no cover - a failure of the integrator is a bug here
+            raise RuntimeError(f"GLONASS truth integration failed: {sol.message}")
+        self._sol = sol.sol
+        self._span_s = span_s
+        self._index = {s: i for i, s in enumerate(self.sats)}
+        self._sats_arr = np.array(self.sats)
+        # broadcast records: the true state at t_b
+        recs = []
+        T = np.repeat(tb_gps, self._n)
+        S = np.tile(self._sats_arr, tb_gps.size)
+        pos, vel = self._ecef(S, T, 0.0)
+        for r, (sat, tg, tu) in enumerate(zip(S, T, np.repeat(tb_utc, self._n))):
+            week, sow_ns = ts.week_sow_ns(np.int64(tu - GLO_FRAME_LEAD_S * NS))
+            recs.append(dict(sat=str(sat), toc_ns=int(tu), toc_gps_ns=int(tg),
+                             minus_tau_n_s=self.a0[sat] + self.gamma[sat] * (int(tg) - self.t0) / 1e9,
+                             gamma_n=self.gamma[sat], tk_s=float(int(sow_ns) // NS),
+                             x_m=pos[r, 0], y_m=pos[r, 1], z_m=pos[r, 2],
+                             vx_mps=vel[r, 0], vy_mps=vel[r, 1], vz_mps=vel[r, 2],
+                             ax_mps2=0.0, ay_mps2=0.0, az_mps2=0.0, health=0.0,
+                             freq_num=float(self.channels[sat]), age_days=0.0))
+        self.records = recs
+        # clock truth from the records as read back
+        self.tb_gps = tb_gps
+        self._tau = np.array([[nav_field(rc["minus_tau_n_s"]) for rc in recs[i::self._n]] for i in range(self._n)])
+        self._gam = np.array([nav_field(self.gamma[s]) for s in self.sats])
+
+    def _ecef(self, sats, t_ns, dt_s):
+        i = self._index_of(sats)
+        t = (np.asarray(t_ns, dtype=np.int64) - self.t0) / 1e9 + dt_s
+        if t.size and (t.min() < 0 or t.max() > self._span_s):
+            raise ValueError("instant outside the span of the GLONASS truth integration")
+        y = self._sol(t)   # (6 n_sat, N)
+        cols = np.arange(y.shape[1])
+        r_i = np.stack([y[6 * i + c, cols] for c in range(3)], axis=-1)
+        v_i = np.stack([y[6 * i + 3 + c, cols] for c in range(3)], axis=-1)
+        th = OMEGA_GLO * t
+        c, s = np.cos(th), np.sin(th)
+        r = np.stack([c * r_i[:, 0] + s * r_i[:, 1], -s * r_i[:, 0] + c * r_i[:, 1], r_i[:, 2]], axis=-1)
+        v = np.stack([c * v_i[:, 0] + s * v_i[:, 1], -s * v_i[:, 0] + c * v_i[:, 1], v_i[:, 2]], axis=-1)
+        v = v + OMEGA_GLO * np.stack([r[:, 1], -r[:, 0], np.zeros(len(t))], axis=-1)   # − ω × r
+        return r, v
+
+    def _index_of(self, sats):
+        sats = np.asarray(sats).astype(str)
+        i = np.searchsorted(self._sats_arr, sats)
+        bad = (i >= len(self.sats)) | (self._sats_arr[np.minimum(i, len(self.sats) - 1)] != sats)
+        if np.any(bad):
+            raise KeyError(f"no GLONASS truth for {sorted(set(sats[bad].tolist()))[:5]}")
+        return i
+
+    def states(self, sats, t_ns, dt_s=0.0):
+        sats = np.asarray(sats).astype(str)
+        t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), sats.shape)
+        dt_s = np.broadcast_to(np.asarray(dt_s, dtype=float), sats.shape)
+        i = self._index_of(sats)
+        pos, vel = self._ecef(sats, t_ns, dt_s)
+        j = np.clip(np.rint((t_ns - self.tb_gps[0]) / (GLO_RECORD_SPACING_S * NS)).astype(np.int64), 0,
+                    self.tb_gps.size - 1)
+        dt_b = (t_ns - self.tb_gps[j]) / 1e9 + dt_s
+        clock = self._tau[i, j] + self._gam[i] * dt_b
+        rel = -2.0 * np.einsum("ij,ij->i", pos, vel) / C_MPS ** 2
+        nan = np.full(sats.shape, np.nan)
+        return _States(pos_m=pos, clock_s=clock, relativity_s=rel, tgd_s=nan, bgd_e5a_s=nan, bgd_e5b_s=nan,
+                       status=np.zeros(sats.shape, dtype=int))
+
+
+def _kepler_to_inertial(a, e, inc, raan, argp, nu, gm):
+    """Position and velocity (m, m/s) of Keplerian elements, true anomaly ``nu`` (two-body formulas)."""
+    p = a * (1 - e * e)
+    r = p / (1 + e * math.cos(nu))
+    rp = np.array([r * math.cos(nu), r * math.sin(nu), 0.0])
+    vp = math.sqrt(gm / p) * np.array([-math.sin(nu), e + math.cos(nu), 0.0])
+    cO, sO, ci, si, cw, sw = (math.cos(raan), math.sin(raan), math.cos(inc), math.sin(inc),
+                              math.cos(argp), math.sin(argp))
+    rot = np.array([[cO * cw - sO * sw * ci, -cO * sw - sO * cw * ci, sO * si],
+                    [sO * cw + cO * sw * ci, -sO * sw + cO * cw * ci, -cO * si],
+                    [sw * si, cw * si, ci]])
+    return np.concatenate([rot @ rp, rot @ vp])
+
+
+def _j2_rhs(_t, y):
+    """Inertial-frame derivative of stacked (r, v) states: central term plus J2 (PZ-90 constants)."""
+    s = y.reshape(-1, 6)
+    r, v = s[:, :3], s[:, 3:]
+    x, yy, z = r[:, 0], r[:, 1], r[:, 2]
+    r2 = x * x + yy * yy + z * z
+    rn = np.sqrt(r2)
+    f = -GM_GLO / (r2 * rn)
+    k = -1.5 * J2_GLO * GM_GLO * AE_GLO ** 2 / (r2 * r2 * rn)
+    q = 5.0 * z * z / r2
+    acc = np.stack([f * x + k * x * (1 - q), f * yy + k * yy * (1 - q), f * z + k * z * (3 - q)], axis=-1)
+    return np.concatenate([v, acc], axis=1).ravel()
+
+
+class _ModelBySystem:
+    """One ``states`` over several truth models (rows split by system letter, put back in order)."""
+
+    def __init__(self, models: dict):
+        self.models = models
+        self.sats = sorted(s for m in models.values() for s in m.sats)
+
+    def states(self, sats, t_ns, dt_s=0.0):
+        sats = np.asarray(sats).astype(str)
+        t_ns = np.broadcast_to(np.asarray(t_ns, dtype=np.int64), sats.shape)
+        dt_s = np.broadcast_to(np.asarray(dt_s, dtype=float), sats.shape)
+        letters = np.array([s[:1] for s in sats]) if sats.size else np.zeros(0, dtype="U1")
+        out = None
+        for key, model in self.models.items():
+            rows = np.isin(letters, list(key))
+            if not rows.any():
+                continue
+            st = model.states(sats[rows], t_ns[rows], dt_s[rows])
+            if out is None:
+                out = _States(pos_m=np.full(sats.shape + (3,), np.nan),
+                              **{f.name: np.full(sats.shape, np.nan) for f in dataclasses.fields(_States)
+                                 if f.name not in ("pos_m", "status")},
+                              status=np.zeros(sats.shape, dtype=int))
+            for f in dataclasses.fields(_States):
+                getattr(out, f.name)[rows] = getattr(st, f.name)
+        return out
+
+
 class _OrbitError:
     """Truth satellite model: a broadcast model plus a per-satellite orbit error (module docstring).
 
@@ -1242,6 +1501,8 @@ class StationResult:
     parts: dict                  # per-code itemised terms (m) for checks
     windup_cycles: np.ndarray | None = None   # phase wind-up added to every band (n_epoch, n_sat)
     events: list = dataclasses.field(default_factory=list)   # carrier-phase events (truth_events.csv rows)
+    glonass_bias_ns: dict = dataclasses.field(default_factory=dict)   # code -> {channel k: receiver bias, ns}
+    glonass_channels: dict = dataclasses.field(default_factory=dict)  # GLONASS sat -> channel k
 
 
 @dataclasses.dataclass
@@ -1281,21 +1542,36 @@ def _hardware_ns(spec: StationSpec, code: str, time_utc_ns, documented_only=Fals
     return hw
 
 
-def _satellite_model(scn: Scenario, rng):
-    """(model, sats, records or None, alpha, beta, nav path or None)."""
+def glonass_random_stream(random_state: int) -> np.random.Generator:
+    """The GLONASS generator of a scenario: a child of ``random_state`` of its own (spawn key 82,
+    'R'), so adding GLONASS changes no draw of the GPS and Galileo streams."""
+    return np.random.default_rng(np.random.SeedSequence(random_state, spawn_key=(82,)))
+
+
+def _satellite_model(scn: Scenario, rng, rng_glo=None):
+    """(model, sats, records or None, alpha, beta, nav path or None, GLONASS channels {sat: k})."""
     if scn.satellites["source"] == "synthetic":
         t = scn.time_ns
-        recs = synthetic_constellation(int(t[0]), int(t[-1]), scn.systems, rng,
+        kepler = [s for s in scn.systems if s != "R"]
+        recs = synthetic_constellation(int(t[0]), int(t[-1]), kepler, rng,
                                        gps_count=scn.satellites["gps_count"],
-                                       galileo_count=scn.satellites["galileo_count"])
-        model = KeplerEphemerides(recs)
+                                       galileo_count=scn.satellites["galileo_count"]) if kepler else []
+        models = {"GE": KeplerEphemerides(recs)} if recs else {}
+        channels = {}
+        if "R" in scn.systems:
+            glo = GlonassTruth(int(t[0]), int(t[-1]), rng_glo if rng_glo is not None else
+                               glonass_random_stream(scn.random_state), scn.satellites["glonass_count"])
+            models["R"] = glo
+            recs = recs + glo.records
+            channels = dict(glo.channels)
+        model = models["GE"] if list(models) == ["GE"] else _ModelBySystem(models)
         from .formats.rinex_writers import nav_field
 
         alpha = nav_field(np.array(scn.satellites["klobuchar_alpha"]))
         beta = nav_field(np.array(scn.satellites["klobuchar_beta"]))
         alpha = np.array([float(f"{v:.4E}") for v in alpha])  # the header's D12.4 fields
         beta = np.array([float(f"{v:.4E}") for v in beta])
-        return model, list(model.sats), recs, alpha, beta, None
+        return model, list(model.sats), recs, alpha, beta, None, channels
     from .orbits import BroadcastOrbits
     from .formats.rinex_nav import read_nav
 
@@ -1310,7 +1586,23 @@ def _satellite_model(scn: Scenario, rng):
     iono = nav.header.iono
     alpha = np.asarray(iono.get("GPSA", [0.0] * 4), dtype=float)
     beta = np.asarray(iono.get("GPSB", [0.0] * 4), dtype=float)
-    return model, sats, None, alpha, beta, nav_path
+    rec_r = nav.records.get("R")
+    channels = ({} if rec_r is None or not len(rec_r) else
+                {str(k): int(v) for k, v in rec_r.groupby("sat")["freq_num"].agg(lambda v: v.mode().iloc[0]).items()})
+    return model, sats, None, alpha, beta, nav_path, channels
+
+
+def _glonass_code_biases(spec: StationSpec, rng: np.random.Generator) -> dict:
+    """{code: {k: ns}} for k = −7..6: the station's GLONASS receiver code biases (``_glonass_station``)."""
+    g = spec.glonass
+    if not g:
+        return {}
+    out = {}
+    for code in spec.signals.get("R", ()):
+        draws = rng.standard_normal(14) * g["random_ns"] if g["random_ns"] > 0 else np.zeros(14)
+        out[code] = {k: g["isb_ns"] + g["slope"].get(code, 0.0) * k + g["extra"].get(code, {}).get(k, 0.0)
+                     + float(draws[k + 7]) for k in range(-7, 7)}
+    return out
 
 
 def _gps_sow_s(t_ns):
@@ -1325,8 +1617,9 @@ def simulate(scn: Scenario) -> SimulationResult:
 
     rng = np.random.default_rng(scn.random_state)
     rng_sats, rng_clocks, rng_obs = (np.random.default_rng(s) for s in rng.integers(0, 2 ** 63, 3))
-    model, sats, recs, alpha, beta, _ = _satellite_model(scn, rng_sats)
-    sats = sorted((s for s in sats if s[0] in scn.systems), key=lambda s: ("GE".index(s[0]), s))
+    rng_glo = glonass_random_stream(scn.random_state)
+    model, sats, recs, alpha, beta, _, channels = _satellite_model(scn, rng_sats, rng_glo)
+    sats = sorted((s for s in sats if s[0] in scn.systems), key=lambda s: (SYSTEMS.index(s[0]), s))
     t_tag = scn.time_ns
     n_ep, n_sat = t_tag.size, len(sats)
     tau0 = scn.interval_s
@@ -1430,17 +1723,27 @@ def simulate(scn: Scenario) -> SimulationResult:
                   for k in np.flatnonzero(reset_flag)]
         events += [(k, "clock_jump", "", "", np.nan, float(ms), False, src) for k, ms, src in jump_events]
         random_slip = start_arc & prev & ~reset_flag[:, None]
+        glo_bias = _glonass_code_biases(spec, rng_glo) if "R" in spec.signals else {}
+        k_col = np.array([channels.get(s, 0) if s[0] == "R" else 0 for s in sats], dtype=float)
         for s_letter in scn.systems:
             cols = sys_of == s_letter
             for code in spec.signals.get(s_letter, ()):
                 band = code[1]
-                f = F_HZ[(s_letter, band)]
+                # GLONASS FDMA: one frequency per column (channel k of the satellite)
+                f = glonass_frequency_hz(band, k_col) if s_letter == "R" else F_HZ[(s_letter, band)]
                 lam = C_MPS / f
                 k_iono = (F_L1 / f) ** 2
                 hw_m = C_MPS * 1e-9 * _hardware_ns(spec, code, t_utc)[:, None]
+                # receiver code biases of GLONASS (inter-system + per channel): code only, a constant
+                # carrier-phase bias would go into the ambiguity
+                cb_m = 0.0
+                if s_letter == "R" and code in glo_bias:
+                    cb_m = C_MPS * 1e-9 * np.array([glo_bias[code].get(int(k), 0.0) for k in k_col])[None, :]
                 if s_letter == "G":
                     g = {"1": 1.0, "2": (F_L1 / F_HZ[("G", "2")]) ** 2, "5": (F_L1 / F_HZ[("G", "5")]) ** 2}[band]
                     gd = g * st.tgd_s.reshape(n_ep, n_sat)
+                elif s_letter == "R":
+                    gd = np.zeros((n_ep, n_sat))   # τ_n refers to G1; no G2 − G1 delay simulated
                 else:
                     if band == "1":
                         gd = st.bgd_e5b_s.reshape(n_ep, n_sat)
@@ -1460,7 +1763,7 @@ def simulate(scn: Scenario) -> SimulationResult:
                     mpm = np.zeros((n_ep, n_sat))
                 code_noise = orng.standard_normal((n_ep, n_sat)) * spec.code_noise_m / sin_el
                 phase_noise = orng.standard_normal((n_ep, n_sat)) * spec.phase_noise_m / sin_el
-                P = base_range + trop + k_iono * iono_l1 + hw_m + gd_m + mpm + code_noise
+                P = base_range + trop + k_iono * iono_l1 + hw_m + cb_m + gd_m + mpm + code_noise
                 amb = orng.integers(-200, 200, size=(int(arc_id.max()) + 2, n_sat))
                 N = np.take_along_axis(amb, arc_id, axis=0)
                 lname = "L" + code[1:]
@@ -1493,7 +1796,8 @@ def simulate(scn: Scenario) -> SimulationResult:
                         ssi[name] = np.where(m, sig, ssi[name]).astype(np.int8)
                     if kind == "L":
                         lli[name] = np.where(m & (start_arc | slip_lli), 1, lli[name]).astype(np.int8)
-                parts[(s_letter, code)] = dict(trop=trop, iono=k_iono * iono_l1, hw=hw_m, gd=gd_m, mp=mpm)
+                parts[(s_letter, code)] = dict(trop=trop, iono=k_iono * iono_l1, hw=hw_m, gd=gd_m, mp=mpm,
+                                               code_bias=cb_m)
         first_code = next(iter(spec.signals.get("G", spec.signals.get("E", ("C1C",)))))
         undocumented = (_hardware_ns(spec, first_code, t_utc) - _hardware_ns(spec, first_code, t_utc, True)) * 1e-9
         results[spec.id] = StationResult(
@@ -1501,7 +1805,8 @@ def simulate(scn: Scenario) -> SimulationResult:
             apparent_s=x + undocumented, tau_s=tau, sat_clock_s=dts, rx_m=rx, elevation_rad=el, azimuth_rad=az,
             epoch_kept=kept, epoch_flag=reset_flag.astype(int),
             met=dict(p=met_p, t=met_t, rh=met_rh), noise_levels=levels, parts=parts,
-            windup_cycles=windup, events=sorted(events, key=lambda e: (e[0], e[1], e[2], e[3])))
+            windup_cycles=windup, events=sorted(events, key=lambda e: (e[0], e[1], e[2], e[3])),
+            glonass_bias_ns=glo_bias, glonass_channels=dict(channels))
     truth, steps = _truth_tables(scn, results)
     return SimulationResult(scenario=scn, stations=results, nav_records=recs or [], iono_alpha=alpha,
                             iono_beta=beta, truth=truth, steps=steps, files={}, model=model,
@@ -1523,6 +1828,27 @@ def events_table(res: "SimulationResult") -> pd.DataFrame:
                              time_gps=ts.to_iso(np.int64(tg), 0, ""), time_gps_ns=tg, station=sid, kind=kind,
                              sat=sat, obs=obs_name, cycles=cycles, jump_ms=jump_ms, lli=bool(lli_set), source=src))
     return pd.DataFrame(rows, columns=EVENT_COLUMNS)
+
+
+def glonass_bias_table(res: "SimulationResult") -> pd.DataFrame:
+    """``truth_glonass_biases.csv``: each station's GLONASS receiver code bias per code and
+    channel (ns, on top of the station file's delays), and for a station with two GLONASS codes on
+    G1 and G2 their iono-free combination ``(f1²·b1 − f2²·b2)/(f1² − f2²)``: with
+    f1/f2 = 9/7 on every channel (GLONASS ICD §3.3.1.4) the coefficients are 81/32 and −49/32."""
+    rows = []
+    for sid, r in res.stations.items():
+        codes = list(r.glonass_bias_ns)
+        for code in codes:
+            for k, v in r.glonass_bias_ns[code].items():
+                rows.append(dict(station=sid, code=code, channel=k, bias_ns=v))
+        c1 = [c for c in codes if c[1] == "1"]
+        c2 = [c for c in codes if c[1] == "2"]
+        if c1 and c2:
+            for k in range(-7, 7):
+                f1, f2 = glonass_frequency_hz("1", k), glonass_frequency_hz("2", k)
+                b = (f1 ** 2 * r.glonass_bias_ns[c1[0]][k] - f2 ** 2 * r.glonass_bias_ns[c2[0]][k]) / (f1 ** 2 - f2 ** 2)
+                rows.append(dict(station=sid, code=f"{c1[0]}+{c2[0]}", channel=k, bias_ns=float(b)))
+    return pd.DataFrame(rows, columns=["station", "code", "channel", "bias_ns"])
 
 
 def _truth_tables(scn: Scenario, results: dict):
@@ -1694,10 +2020,13 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
             margin = 4 * 3600 * NS
             recs = [rc for rc in res.nav_records if ts0 - margin <= rc["toc_ns"] <= ts1 + margin]
             nav_path = out / nav_file_name(ts0, seg_s, gz)
+            corr = {"GPUT": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week)),
+                    "GAGP": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week))}
+            if "R" in scn.systems:
+                corr["GLUT"] = (0.0, 0.0, 0, 0)   # GLONASS time − UTC(SU) − 3 h = τ_c = 0 (no reference time)
             write_nav3(nav_path, recs,
                        iono={"GPSA": res.iono_alpha, "GPSB": res.iono_beta, "GAL": [60.0, 0.2, 0.003]},
-                       time_corrections={"GPUT": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week)),
-                                         "GAGP": (0.0, 0.0, int(sow) - int(sow) % 4096, int(week))},
+                       time_corrections=corr,
                        leap_seconds=leap, run_ns=int(t[0]), comments=comments[:1])
             files["nav"].append(nav_path)
         elif not files["nav"]:
@@ -1721,7 +2050,9 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
                            antenna_delta_hen_m=spec.antenna_delta_hen_m, receiver_type=spec.receiver_type,
                            receiver_number=f"{sid}-RX1", receiver_version="1.0", antenna_type=spec.antenna_type,
                            antenna_number=f"{sid}-ANT1", observer="ctt simulate", agency=spec.name,
-                           leap_seconds=leap, run_ns=int(t[0]), comments=comments, epoch_flags=r.epoch_flag[seg])
+                           leap_seconds=leap, run_ns=int(t[0]), comments=comments, epoch_flags=r.epoch_flag[seg],
+                           glonass_slots={s: k for s, k in r.glonass_channels.items()
+                                          if s in r.sats and "R" in spec.signals})
             files["obs"].append(p)
             if scn.output["rinex2"] and "G" in spec.signals:
                 y = int(ts.ns_to_civil(np.int64(ts0))[0])
@@ -1808,6 +2139,11 @@ def write_outputs(res: SimulationResult, out_dir) -> dict:
     ep = out / "truth_events.csv"
     events_table(res).to_csv(ep, index=False, float_format="%.0f")
     files["truth"] += [tp, sp, ep]
+    gb = glonass_bias_table(res)
+    if len(gb):
+        gp = out / "truth_glonass_biases.csv"
+        gb.to_csv(gp, index=False, float_format="%.6f")
+        files["truth"].append(gp)
     res.files = files
     return files
 

@@ -7,9 +7,12 @@
   record per satellite (RINEX 3.04 tables A2/A3).
 * :func:`write_obs2` — RINEX 2.11 observation file (GPS only, two-letter
   codes, 5 values per 80-column line; RINEX 2.11 table A1).
-* :func:`write_nav3` — RINEX 3.04 navigation file with GPS LNAV and Galileo
-  records (``A1,I2.2,1X,I4,5(1X,I2.2),3D19.12`` then ``4X,4D19.12`` lines;
-  RINEX 3.04 tables A6/A8), IONOSPHERIC CORR, TIME SYSTEM CORR, LEAP SECONDS.
+* :func:`write_nav3` — RINEX 3.04 navigation file with GPS LNAV, Galileo and
+  GLONASS FDMA records (``A1,I2.2,1X,I4,5(1X,I2.2),3D19.12`` then
+  ``4X,4D19.12`` lines; RINEX 3.04 tables A6/A8/A10: GLONASS −τ_n, +γ_n, t_k
+  then three lines of position, velocity, luni-solar acceleration in km, km/s,
+  km/s² with health, frequency number and age), IONOSPHERIC CORR, TIME SYSTEM
+  CORR, LEAP SECONDS.
 * :func:`write_met2` — RINEX 2.11 meteorological file (PR, TD, HR; table A9).
 * :func:`write_sp3` — SP3-c orbit and clock file (positions in km with
   ``F14.6``, clocks in µs with ``F14.6``; header lines as in the SP3-c
@@ -129,14 +132,16 @@ def write_obs3(path, *, marker: str, time_ns, sats, obs: dict, types: dict, lli:
                receiver_type: str = "", receiver_number: str = "", receiver_version: str = "",
                antenna_type: str = "", antenna_number: str = "", observer: str = "", agency: str = "",
                leap_seconds: int | None = None, run_ns=None, comments=(), epoch_flags=None,
-               marker_number: str = "") -> pathlib.Path:
+               marker_number: str = "", glonass_slots: dict | None = None) -> pathlib.Path:
     """Write a RINEX 3.04 observation file.
 
     ``time_ns``: int64 epochs (GPS time calendar count), ``sats``: list of RINEX
     3 ids, ``obs[code]``: float64 ``(n_epoch, n_sat)`` (NaN = absent),
     ``types[system]``: ordered list of codes written for that system,
     ``lli``/``ssi``: int arrays like ``obs`` (0 or negative = blank).
-    ``epoch_flags``: optional int array per epoch (default 0). Epochs with no
+    ``epoch_flags``: optional int array per epoch (default 0). ``glonass_slots``:
+    ``{'R01': k}`` written as GLONASS SLOT / FRQ # (RINEX 3.04 table A2: I3, 1X,
+    then 8 × (A3, 1X, I2, 1X) per line, continuation lines indented by 4). Epochs with no
     satellite are not written. Returns the path.
     """
     time_ns = np.asarray(time_ns, dtype=np.int64)
@@ -167,6 +172,11 @@ def write_obs3(path, *, marker: str, time_ns, sats, obs: dict, types: dict, lli:
             w(header_line(head + "".join(f" {c}" for c in chunk), "SYS / # / OBS TYPES"))
     w(header_line(" DBHZ", "SIGNAL STRENGTH UNIT"))
     w(header_line(f"{interval_s:10.3f}", "INTERVAL"))
+    if glonass_slots:
+        items = sorted(glonass_slots.items())
+        for k in range(0, len(items), 8):
+            head = f"{len(items):3d} " if k == 0 else " " * 4
+            w(header_line(head + "".join(f"{sat} {int(v):2d} " for sat, v in items[k:k + 8]), "GLONASS SLOT / FRQ #"))
     sat_sys = np.array([s[0] for s in sats])
     present = np.zeros((n_ep, len(sats)), dtype=bool)
     for s in systems:
@@ -327,6 +337,14 @@ _GAL_FIELDS = [
     ["ura_m", "health", "bgd_e5a_s", "bgd_e5b_s"],
     ["ttm_sow_s", None, None, None],
 ]
+#: RINEX 3.04 table A10 (GLONASS): the epoch line holds −τ_n, +γ_n, t_k (s of the UTC week);
+#: positions, velocities and accelerations are written in km, km/s, km/s² (the record keeps metres).
+_GLO_FIELDS = [
+    ["x_m", "vx_mps", "ax_mps2", "health"],
+    ["y_m", "vy_mps", "ay_mps2", "freq_num"],
+    ["z_m", "vz_mps", "az_mps2", "age_days"],
+]
+_GLO_KM = {"x_m", "vx_mps", "ax_mps2", "y_m", "vy_mps", "ay_mps2", "z_m", "vz_mps", "az_mps2"}
 
 
 def write_nav3(path, records: list, *, iono: dict | None = None, time_corrections: dict | None = None,
@@ -338,6 +356,10 @@ def write_nav3(path, records: list, *, iono: dict | None = None, time_correction
     ``af2_sps2`` and the orbit fields named as in :mod:`ctt.formats.rinex_nav`
     (``iode``, ``crs_m``, ... ``tgd_s`` for GPS, ``bgd_e5a_s``/``bgd_e5b_s``
     and ``data_source`` for Galileo; ``fit_h`` the GPS fit interval in hours).
+    GLONASS (``R``) records: ``toc_ns`` is t_b on the **UTC** calendar count (RINEX
+    writes GLONASS epochs in UTC), ``minus_tau_n_s``, ``gamma_n``, ``tk_s``,
+    ``x_m`` .. ``az_mps2`` in metres (written in km), ``health``, ``freq_num``,
+    ``age_days``.
     ``iono``: ``{'GPSA': [4], 'GPSB': [4], 'GAL': [3]}``;
     ``time_corrections``: ``{'GPUT': (a0_s, a1_sps, t_ref_sow, week)}``.
     """
@@ -361,6 +383,13 @@ def write_nav3(path, records: list, *, iono: dict | None = None, time_correction
     w(header_line("", "END OF HEADER"))
     for r in sorted(records, key=lambda r: (r["sat"], r["toc_ns"])):
         y, mo, d, h, mi, s, _ = _civil(r["toc_ns"])
+        if r["sat"][0] == "R":
+            w(f"{r['sat']} {y:4d} {mo:02d} {d:02d} {h:02d} {mi:02d} {s:02d}"
+              f"{_d19(r['minus_tau_n_s'])}{_d19(r['gamma_n'])}{_d19(r['tk_s'])}\n")
+            for names in _GLO_FIELDS:
+                w("    " + "".join(_d19(r.get(n, 0.0) / (1000.0 if n in _GLO_KM else 1.0))
+                                   for n in names).rstrip() + "\n")
+            continue
         w(f"{r['sat']} {y:4d} {mo:02d} {d:02d} {h:02d} {mi:02d} {s:02d}"
           f"{_d19(r['af0_s'])}{_d19(r['af1_sps'])}{_d19(r['af2_sps2'])}\n")
         layout = _GPS_FIELDS if r["sat"][0] == "G" else _GAL_FIELDS
