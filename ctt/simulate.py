@@ -1220,10 +1220,12 @@ J2_GLO = 1082625.75e-9
 OMEGA_GLO = 7.292115e-5
 #: GLONASS ICD §3.1.1 (orbital constellation): 24 slots in 3 planes 120° apart, 8 slots 45° apart
 #: in each plane, adjacent planes shifted by 15° in argument of latitude, inclination 64.8°, nominal
-#: draconic period 11 h 15 min 44 s, i.e. an altitude of 19 100 km (a ≈ 25 510 km).
+#: draconic period 11 h 15 min 44 s, altitude 19 100 km (a ≈ 25 510 km). The mean semi-major axis
+#: used, 25 507.55 km, is the one whose integrated orbits (central term + J2) have that node-to-node
+#: period: a Keplerian 25 510 km gives 5.85 s more (measured here, mean of 28 revolutions).
 GLO_INCLINATION_DEG = 64.8
 GLO_PERIOD_S = 11 * 3600 + 15 * 60 + 44
-GLO_A_M = 25_510_000.0
+GLO_A_M = 25_507_550.0
 #: Frequency channel k of slot n: antipodal slots (n, n + 4 of one plane) share k. The allocation
 #: of 2020 as broadcast in ../shared/data/real-2020-177 (ESBC navigation file; slot 22 absent
 #: there and given -3 like its antipodal slot 18).
@@ -1290,12 +1292,16 @@ class GlonassTruth:
         self.gamma = {}
         for n in slots:
             plane, slot = (n - 1) // 8, (n - 1) % 8
-            a = GLO_A_M + rng.normal(0, 300.0)
+            a = GLO_A_M + rng.normal(0, 100.0)
             e = rng.uniform(2e-4, 1.5e-3)
             inc = math.radians(GLO_INCLINATION_DEG) + rng.normal(0, 0.003)
             raan = math.radians(120.0 * plane) + 0.7 + rng.normal(0, 0.002)
             argp = rng.uniform(-math.pi, math.pi)
             u = math.radians(45.0 * slot + 15.0 * plane) + rng.normal(0, 0.002)
+            # osculating from mean semi-major axis: first-order short-period J2 term of a near-circular
+            # orbit, (3/2)·J2·(a_e²/a)·sin²i·cos 2u (Kozai 1959, e → 0; ~2 km here), so that every
+            # satellite has the same mean period whatever its starting argument of latitude
+            a = a + 1.5 * J2_GLO * AE_GLO ** 2 / a * math.sin(inc) ** 2 * math.cos(2 * u)
             y0.append(_kepler_to_inertial(a, e, inc, raan, argp, u - argp, GM_GLO))
             self.a0[f"R{n:02d}"] = rng.uniform(-3e-4, 3e-4)
             self.gamma[f"R{n:02d}"] = float(np.round(rng.normal(0, 1e-12) / 2 ** -40) * 2 ** -40)
