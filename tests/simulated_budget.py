@@ -39,8 +39,11 @@ import numpy as np
 import pandas as pd
 
 C_MPS = 299_792_458.0  # SI definition of the metre
-#: carrier frequencies (Hz) as published: IS-GPS-200 (GPS L1, L2), Galileo OS SIS ICD (E1, E5b)
-FREQ_HZ = {("G", "1"): 1575.42e6, ("G", "2"): 1227.60e6, ("E", "1"): 1575.42e6, ("E", "7"): 1207.14e6}
+#: carrier frequencies (Hz) as published: IS-GPS-200 (GPS L1, L2), Galileo OS SIS ICD (E1, E5a,
+#: E5b), GLONASS ICD §3.3.1.4 (G1 = 1602 + 0.5625 k MHz, G2 = 1246 + 0.4375 k MHz: G1/G2 = 9/7 on
+#: every channel, so channel k = 0 gives every channel's iono-free coefficients)
+FREQ_HZ = {("G", "1"): 1575.42e6, ("G", "2"): 1227.60e6, ("E", "1"): 1575.42e6, ("E", "5"): 1176.45e6,
+           ("E", "7"): 1207.14e6, ("R", "1"): 1602.0e6, ("R", "2"): 1246.0e6}
 #: standard CV track length (CGGTTS, the time community's open CV standard): 780 s
 TRACK_S = 780.0
 
