@@ -1054,6 +1054,7 @@ class Processing:
     no_sagnac: bool = False
     no_relativity: bool = False
     bias: str | None = None      #: 'estimate': satellite code biases fitted on each day's residuals
+    glonass_ifb: str = "estimate"  #: GLONASS per-channel code biases in CV: 'estimate' or 'none' (ctt.commonview)
 
 
 _SWITCHES = ("no_troposphere", "no_ionosphere", "no_tide", "no_sagnac", "no_relativity")
@@ -1189,7 +1190,7 @@ _PAIR_TOP = {"pair", "inputs", "processing", "output", "events"}
 _PAIR_KEYS = {"name", "station_a", "station_b", "data_root"}
 WEIGHTS = ("sin2el", "equal", "sigma")
 _PROC_KEYS = {"mode", "signals", "systems", "codes", "orbits", "bin_s", "elevation_mask_deg",
-              "min_common_sats", "mad_k", "weights", "smoothing_s", "bias", *_SWITCHES}
+              "min_common_sats", "mad_k", "weights", "smoothing_s", "bias", "glonass_ifb", *_SWITCHES}
 
 
 #: The processing options a pair file's [processing] table and the command line share: one
@@ -1389,6 +1390,7 @@ def load_pair(path) -> PairConfig:
     if bias is not None and bias != "estimate":
         r.fail("processing.bias", f"expected \"estimate\" (satellite code biases fitted on the day), found {bias!r}")
     kw["bias"] = "estimate" if bias == "estimate" else None
+    kw["glonass_ifb"] = r.choice(proc, "glonass_ifb", "processing.glonass_ifb", ("estimate", "none"), "estimate")
     defaults = Processing()
     kw = {k: (getattr(defaults, k) if v is None and k != "elevation_mask_deg" else v) for k, v in kw.items()}
     kw["systems"], kw["codes"] = tuple(kw["systems"]), tuple(kw["codes"])

@@ -105,7 +105,10 @@ def day_config_hash(pc, date) -> str:
                         "reference": d.reference_ns, "u_reference": d.u_reference_ns} for d in sets],
         }
 
-    blob = {"processing": dataclasses.asdict(pc.processing), "a": station(pc.station_a),
+    proc = dataclasses.asdict(pc.processing)
+    if "R" not in proc.get("systems", ()):
+        proc.pop("glonass_ifb", None)   # no effect without GLONASS: existing days keep their hash
+    blob = {"processing": proc, "a": station(pc.station_a),
             "b": station(pc.station_b), "version": __version__.split(".")[0]}
     text = json.dumps(blob, sort_keys=True, default=str)
     return hashlib.sha256(text.encode()).hexdigest()

@@ -1031,6 +1031,7 @@ def options_from_processing(proc) -> PairOptions:
     bin_s = proc.bin_s if proc.mode not in ("tracks", "ppp") else None
     return PairOptions(mode=proc.mode, bin_s=bin_s, orbits=proc.orbits, mad_k=float(proc.mad_k),
                        min_common=int(proc.min_common_sats), measure=m,
+                       glonass_ifb=getattr(proc, "glonass_ifb", "estimate"),
                        weights=proc.weights)
 
 

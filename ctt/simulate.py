@@ -59,6 +59,25 @@ Code pseudorange of code ``k`` on frequency ``f``::
   orbit error (``[satellites] orbit_error_m``: per satellite and axis a
   constant and a once-per-revolution term, together of that rms), which a
   user of the broadcast file cannot see.
+* GLONASS (``systems`` with ``"R"``; with ``source = "nav"`` the file's
+  GLONASS records are the truth and their frequency numbers the channels). The
+  synthetic orbits are integrated here (central term + J2, PZ-90 constants of the
+  GLONASS ICD; :class:`GlonassTruth`) and written as RINEX 3 GLONASS records
+  every 30 min (t_b at hh:15/hh:45 UTC, t_k 15 min earlier, the true state at
+  t_b, no luni-solar acceleration, −τ_n and γ_n of a linear clock, channel
+  k); ctt's reader and RK4 propagator reproduce the truth within 1 mm.
+  Each satellite transmits on its FDMA channel k (24 slots, antipodal slots
+  sharing k as in the 2020 allocation): G1 = 1602 + 0.5625·k MHz, G2 = 1246 +
+  0.4375·k MHz (GLONASS ICD), so wavelength and ionosphere (∝ 1/f²) follow k.
+  GLONASS time = UTC(SU) + 3 h = UTC + 3 h (header GLUT 0): with GPS-time
+  tags the satellite clock enters like a GPS one. The receiver's GLONASS
+  code delay, on top of ``receiver_ns``, is per code and channel
+  (``[stations.glonass]``: an inter-system part, a part linear in k, and
+  per-channel departures), on code only (a constant carrier-phase bias would
+  go into the ambiguity); ``truth_glonass_biases.csv`` holds it. All GLONASS
+  draws come from a random stream of their own (:func:`glonass_random_stream`),
+  so adding ``"R"`` leaves the GPS and Galileo constellation and the clocks
+  of a scenario unchanged.
 * Satellite group delays as broadcast (IS-GPS-200 §20.3.3.3.3.2: an L1 P(Y)
   user subtracts T_GD from the clock, i.e. the L1 code is late by T_GD
   relative to the iono-free clock reference): GPS ``g = T_GD`` on L1 (C1C
@@ -191,13 +210,14 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     duration_h = 24.0
     interval_s = 30.0
     random_state = 20210101             # makes every run identical
-    systems = ["G", "E"]
+    systems = ["G", "E", "R"]           # GPS, Galileo, GLONASS
 
     [satellites]
     source = "synthetic"                # or "nav": a real broadcast file
     nav_file = "brdc0010.21n"           # source = "nav": path, relative to the scenario file
     gps_count = 31                      # synthetic: 24..32 in 6 planes (55°, half-sidereal-day orbit)
     galileo_count = 24                  # synthetic: Walker 24/3/1, 56°, a = 29 600 km
+    glonass_count = 24                  # synthetic: slots 1..n of 24 in 3 planes, 64.8°, 11 h 15 min 44 s
     klobuchar_alpha = [1.1e-8, 0.0, -6.0e-8, 0.0]   # synthetic nav header (GPSA)
     klobuchar_beta = [9.0e4, 0.0, -2.0e5, 0.0]      # (GPSB)
     clock_error_ns = 0.0                # true minus broadcast satellite clock, rms (random walk)
@@ -232,7 +252,7 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     elevation_mask_deg = 10.0
     code_noise_m = 0.3                  # sigma0 of sigma(el) = sigma0 / sin(el)
     phase_noise_m = 0.002
-    signals = { G = ["C1C", "C2W", "C5Q"], E = ["C1C", "C5Q", "C7Q"] }
+    signals = { G = ["C1C", "C2W", "C5Q"], E = ["C1C", "C5Q", "C7Q"], R = ["C1P", "C2P"] }
     cycle_slips_per_h = 0.0             # random carrier-phase slips per satellite-hour (LLI set)
     [[stations.slips]]                  # a cycle slip at a configured epoch
     time = 2021-01-01T06:00:00Z         # first epoch at or after it
@@ -244,12 +264,17 @@ RINEX files start at 00:00:00 GPS). Unknown keys are refused.
     time = 2021-01-01T09:00:00Z
     ms = 1
     [stations.delays]
-    receiver_ns = { C1C = 25.1, C2W = 27.0, C5Q = 24.0, C7Q = 24.5 }
+    receiver_ns = { C1C = 25.1, C2W = 27.0, C5Q = 24.0, C7Q = 24.5, C1P = 30.0, C2P = 31.5 }
     cable_ns = 152.4
     reference_ns = 11.8
     u_receiver_ns = 1.0
     u_cable_ns = 0.2
     u_reference_ns = 0.3
+    [stations.glonass]                  # receiver GLONASS code biases (truth; not in the station file)
+    isb_ns = 12.0                       # on every GLONASS code: GLONASS − GPS inter-system part
+    ifb_ns_per_channel = { C1P = 0.8, C2P = 0.5 }   # + value · k
+    ifb_ns = { C1P = { "-7" = 4.0 } }   # + per code and channel (quoted channel keys −7..6)
+    ifb_random_ns = 0.5                 # + N(0, value²) per code and channel (GLONASS stream)
     [stations.met]                      # truth: mean values and daily amplitudes
     pressure_hpa = 1005.0
     temperature_c = 12.0
@@ -306,6 +331,9 @@ phase observable, per receiver clock jump and per receiver reset:
 receiver_reset), sat, obs (e.g. L1C), cycles, jump_ms, lli, source
 (configured | random | threshold)``. A random slip (``cycle_slips_per_h``)
 starts a new arc: its ``cycles`` is the change of that arc's ambiguity.
+``truth_glonass_biases.csv`` (with GLONASS): ``station, code, channel, bias_ns``,
+each station's GLONASS code bias per code and channel k = −7..6, and for two
+codes on G1 and G2 their iono-free combination (code ``C1P+C2P``).
 With ``products = true``: ``SIMU{week}{dow}.sp3`` (SP3-c) and
 ``SIMU{week}{dow}.clk`` (RINEX clock 3.00) per GPS day hold the true
 satellite positions and the true satellite clocks *without* the periodic

@@ -17,6 +17,7 @@ remaining common part is estimated as the GLONASS−GPS inter-system bias in 'AL
 """
 
 import copy
+import datetime as dt
 
 import numpy as np
 import pandas as pd
@@ -260,10 +261,13 @@ def _against_budget(world, name, mode, signals, **kw):
 @pytest.mark.parametrize("mode", ["epochs", "tracks"])
 @pytest.mark.parametrize("signals", ["iono-free", "single"])
 def test_multignss_realistic_code_noise_bias(world, signals, mode):
-    """σ0 = 0.3 m / sin(el), 24 h (the GPS test's day): the bias of 'ALL' within 3.29 SE."""
-    resid, bound, *_ = _against_budget(world, "day", mode, signals, sigma0=0.3, hours=24.0)
+    """σ0 = 0.3 m / sin(el), 24 h (the GPS test's day): the bias of 'ALL' within 3.29 SE and its
+    scatter within the chi-square quantiles (measured on 'ALL' in all four cases, also iono-free
+    epochs, chi2/n 1.035, where the GPS-only series exceeds them: see that test's xfail)."""
+    resid, bound, chi2, lo, hi = _against_budget(world, "day", mode, signals, sigma0=0.3, hours=24.0)
     assert resid.size >= (2800 if mode == "epochs" else 85)
     assert abs(resid.mean()) <= bound
+    assert lo <= chi2 <= hi
 
 
 # ------------------------------------------------------------------ the GLONASS channel biases
@@ -350,3 +354,42 @@ def test_multignss_exactness_within_the_configured_noise(world, signals, mode):
     assert resid.size >= (700 if mode == "epochs" else 21)
     assert abs(resid.mean()) <= bound
     assert lo <= chi2 <= hi
+
+
+def test_glonass_from_a_real_navigation_file(shared_set, tmp_path):
+    """``source = "nav"`` with GLONASS: the real broadcast records (ESBC, 2020-06-25, in
+    ../shared/data) are the truth and their frequency numbers the channels; 'ALL' meets the GPS
+    test's nearly-noiseless bounds there too."""
+    nav = shared_set("real-2020-177") / "ESBC00DNK_R_20201770000_01D_MN.rnx.gz"
+    d = _scenario(0.01)
+    d["scenario"]["start_gps"] = dt.datetime(2020, 6, 25, 0, 0, 0)
+    d["satellites"] = {"source": "nav", "nav_file": str(nav)}
+    res = simulate(scenario_from_dict(d))
+    write_outputs(res, tmp_path)
+    # channels as broadcast in that file (R01 +1, R10 −7: ../shared/data/real-2020-177)
+    assert res.stations["TSTA"].glonass_channels["R01"] == 1 and res.stations["TSTA"].glonass_channels["R10"] == -7
+    inputs, a, b, _ = pair_day_from_config(tmp_path / "tsta-tstb.toml", "2020-06-25")
+    r = run_pair(inputs, a, b, PairOptions(mode="epochs", orbits="broadcast", measure=MeasureOptions(systems=SYSTEMS)))
+    e, _ = _errors(tmp_path, r, "ALL")
+    print(f"real GLONASS records: ALL {e.size} epochs, mean {e.mean():+.4f} ns, RMS {_rms(e):.4f} ns")
+    assert e.size > 600 and abs(e.mean()) <= EXACT_MEAN_NS and _rms(e) <= EXACT_RMS_NS
+
+
+@pytest.mark.parametrize("change, key", [
+    (lambda st: st["glonass"].update(ifb_ns={"C1P": {"9": 1.0}}), r"stations\[1\]\.glonass\.ifb_ns\.C1P"),
+    (lambda st: st["glonass"].update(ifb_ns_per_channel={"C1C": 1.0}), r"stations\[1\]\.glonass\.ifb_ns_per_channel"),
+    (lambda st: st["glonass"].update(colour=1), r"stations\[1\]\.glonass"),
+    (lambda st: st["signals"].update(R=["C5Q"]), r"stations\[1\]\.signals\.R"),
+])
+def test_bad_glonass_scenario_keys_are_named(change, key):
+    from ctt.errors import ConfigError
+
+    d = _scenario(0.3)
+    change(d["stations"][0])
+    with pytest.raises(ConfigError, match=key):
+        scenario_from_dict(d)
+    d = _scenario(0.3)
+    d["scenario"]["systems"] = ["G", "E"]          # a glonass table without GLONASS signals
+    d["stations"][0]["signals"].pop("R")
+    with pytest.raises(ConfigError, match=r"stations\[1\]\.glonass"):
+        scenario_from_dict(d)

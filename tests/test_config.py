@@ -339,6 +339,7 @@ def test_paths_cannot_escape_data_root(pair_dir, tmp_path_factory):
     ('data_root = "data"', 'data_root = "nodata"', "pair.data_root"),
     ('mode = "tracks"', 'mode = "track"', "processing.mode"),
     ("min_common_sats = 3", "min_common_sats = 0", "processing.min_common_sats"),
+    ('mode = "tracks"', 'mode = "tracks"\nglonass_ifb = "maybe"', "processing.glonass_ifb"),
     ("max_gap_s = 1800.0", "max_gap_s = -1.0", "events.max_gap_s"),
     ('nav = "brdc{doy:03d}', 'nav = "brdc{day:03d}', "inputs.nav"),
     ('optional = ["met", "sp3"]', 'optional = ["obs"]', "inputs.optional"),

@@ -50,6 +50,9 @@ def register(sub) -> None:
                       help="configured inter-system bias of station A, e.g. E=12.5 (Galileo minus GPS, ns); "
                            "repeatable; systems not given are estimated from the day")
     proc.add_argument("--isb-b", action="append", default=[], metavar="SYS=NS", help="the same for station B")
+    proc.add_argument("--glonass-ifb", choices=("estimate", "none"), default=None,
+                      help="GLONASS per-channel code biases: fit one per channel and remove it (estimate, the "
+                           "default) or leave the values as measured (none)")
     add_model_arguments(p)
     p.add_argument("--force-inputs", action="store_true",
                    help="process files whose marker name or position does not match their station file (a warning instead of exit 2)")
@@ -84,6 +87,8 @@ def options_from_args(args, base=None):
                 raise UsageError(f"--isb-{who.lower()} {item!r}: expected SYS=NS, e.g. E=12.5") from None
     if isb:
         kw["isb_ns"] = isb
+    if getattr(args, "glonass_ifb", None):
+        kw["glonass_ifb"] = args.glonass_ifb
     return dataclasses.replace(base, **kw)
 
 
