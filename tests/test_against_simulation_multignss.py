@@ -18,6 +18,7 @@ remaining common part is estimated as the GLONASS−GPS inter-system bias in 'AL
 
 import copy
 import datetime as dt
+import functools
 
 import numpy as np
 import pandas as pd
@@ -64,15 +65,13 @@ def _scenario(sigma0, state=7, products=False, hours=6.0):
 
 @pytest.fixture(scope="module")
 def world(tmp_path_factory):
-    made = {}
-
+    """world(name, **scenario keywords) -> (folder with the written files, SimulationResult), once each."""
+    @functools.cache
     def get(name, **kw):
-        if name not in made:
-            out = tmp_path_factory.mktemp(name)
-            res = simulate(scenario_from_dict(_scenario(**kw)))
-            write_outputs(res, out)
-            made[name] = (out, res)
-        return made[name]
+        folder = tmp_path_factory.mktemp(name)
+        res = simulate(scenario_from_dict(_scenario(**kw)))
+        write_outputs(res, folder)
+        return folder, res
 
     return get
 
