@@ -253,6 +253,16 @@ def test_ionosphere_stronger_than_broadcast(world):
     assert np.sqrt(np.mean(e_if**2)) <= 0.15 and abs(e_if.mean()) <= 0.05
     # what is left after the predicted ionospheric error is the exactness floor above
     assert np.sqrt(np.nanmean(resid**2)) <= 0.15 and abs(np.nanmean(resid)) <= 0.05
+    # ... and, finer, the configured code noise propagated (tests/simulated_budget.py): bias within
+    # 3.29 standard errors of the mean (3 ps here), scatter within the chi-square 99.9 % range
+    var = point_budget(world.results["iono13"], r.satellites, ("TSTA", "TSTB"), "single", "epochs").reindex(
+        o["time"].to_numpy())["var_ns2"].to_numpy()
+    assert np.isfinite(resid).all() and np.isfinite(var).all()
+    bound, chi2, lo, hi = _statistics(resid, var, "iono x1.3 single less the predicted error")
+    assert abs(resid.mean()) <= bound and lo <= chi2 <= hi
+    r_if, var_if = _against_budget(world, "iono13", "epochs", "iono-free")
+    bound, chi2, lo, hi = _statistics(r_if, var_if, "iono x1.3 iono-free")
+    assert abs(r_if.mean()) <= bound and lo <= chi2 <= hi
     # and the predicted error is really there (it is not zero for this geometry)
     assert np.sqrt(np.nanmean(pred**2)) > 0.02
 
@@ -263,6 +273,10 @@ def test_step_appears_at_the_right_epoch(world):
                                                 "phase_ns": 8.0, "what": "test step"}])
     err, o, _ = _errors(folder)
     assert np.sqrt(np.mean(err**2)) <= 0.15  # the step itself is followed exactly
+    # to within the configured code noise propagated (bias 3.29 SE, scatter chi-square 99.9 %)
+    r, var = _against_budget(world, "step", "epochs", "iono-free")
+    bound, chi2, lo, hi = _statistics(r, var, "step")
+    assert abs(r.mean()) <= bound and lo <= chi2 <= hi
     # the first epoch whose offset has risen by more than half the step, +-1 bin
     x = o["offset_ns"].to_numpy()
     t_utc = ts.convert(o["time"].to_numpy(np.int64), "GPS", "UTC")
