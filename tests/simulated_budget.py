@@ -37,6 +37,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
+from scipy import stats
 
 C_MPS = 299_792_458.0  # SI definition of the metre
 #: carrier frequencies (Hz) as published: IS-GPS-200 (GPS L1, L2), Galileo OS SIS ICD (E1, E5a,
@@ -134,3 +135,26 @@ def point_budget(res, satellites: pd.DataFrame, ids, signals: str, mode: str) ->
     d = pd.DataFrame({"t": t, "w": w, "w2v": w * w * (va + vb), "wm": w * (ma - mb), "wc": w * (ca - cb)})
     g = d.groupby("t").sum()
     return pd.DataFrame({"var_ns2": g["w2v"] / g["w"] ** 2, "mp_ns": g["wm"] / g["w"], "clock_ns": g["wc"] / g["w"]})
+
+
+#: two-sided 99.9 % quantile of the standard normal (scipy.stats): the bound on a mean, in standard errors
+Z999 = float(stats.norm.ppf(0.9995))
+
+
+def statistics(r, var, label):
+    """Figures of ``r`` (error less what the truth explains) against its predicted variance ``var``:
+    (bound on |mean|, Σ r²/var, and that sum's chi-square(n) 0.05 % and 99.95 % quantiles).
+
+    The bound is 3.29 standard errors of the mean of independent points, √(Σ var)/n; Σ r²/var
+    follows chi-square with n degrees of freedom when r is N(0, var) (quantiles from scipy.stats).
+    Printed with the measured figures.
+    """
+    r = np.asarray(r, dtype=float)
+    n = r.size
+    se = np.sqrt(np.sum(var)) / n
+    chi2 = float(np.sum(r * r / var))
+    lo, hi = stats.chi2.ppf([0.0005, 0.9995], n)
+    print(f"{label}: {n} points, mean {r.mean():+.4f} ns (bound {Z999 * se:.4f} = 3.29 SE), RMS "
+          f"{np.sqrt(np.mean(r * r)):.4f} ns, predicted {np.sqrt(np.mean(var)):.4f} ns; chi2/n {chi2 / n:.3f} "
+          f"in [{lo / n:.3f}, {hi / n:.3f}]")
+    return Z999 * se, chi2, lo, hi

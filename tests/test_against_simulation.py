@@ -21,9 +21,8 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 import pytest
-from scipy import stats
 
-from simulated_budget import point_budget
+from simulated_budget import point_budget, statistics
 
 from ctt import timescales as ts
 from ctt.pipeline import PairOptions, pair_day_from_config, run_pair
@@ -104,10 +103,6 @@ def _errors(folder, mode="epochs", signals="iono-free", smoothing_s=0.0):
     return err, o, r
 
 
-#: two-sided 99.9 % quantile of the standard normal (scipy.stats): the mean's bound in standard errors
-Z999 = stats.norm.ppf(0.9995)
-
-
 def _against_budget(world, name, mode, signals, **kw):
     """Error against the truth, less the parts the truth explains, and the white noise it should have.
 
@@ -124,19 +119,6 @@ def _against_budget(world, name, mode, signals, **kw):
         assert b.notna().all().all()
         world.budgets[key] = (err - b["mp_ns"].to_numpy() - b["clock_ns"].to_numpy(), b["var_ns2"].to_numpy())
     return world.budgets[key]
-
-
-def _statistics(r, var, label):
-    """(bound on |mean|: 3.29 standard errors of the mean, Σ r²/var, its chi-square(n) 0.05 % and
-    99.95 % quantiles), printed with the measured figures."""
-    n = r.size
-    se = np.sqrt(var.sum()) / n            # standard error of the mean of independent points
-    chi2 = float(np.sum(r * r / var))      # ~ chi-square with n degrees of freedom
-    lo, hi = stats.chi2.ppf([0.0005, 0.9995], n)
-    print(f"{label}: {n} points, mean {r.mean():+.4f} ns (bound {Z999 * se:.4f} = 3.29 SE), RMS "
-          f"{np.sqrt(np.mean(r * r)):.4f} ns, predicted {np.sqrt(var.mean()):.4f} ns; chi2/n {chi2 / n:.3f} "
-          f"in [{lo / n:.3f}, {hi / n:.3f}]")
-    return Z999 * se, chi2, lo, hi
 
 
 @pytest.mark.parametrize("signals", ["iono-free", "single"])
@@ -164,7 +146,7 @@ def test_physics_exactness_within_the_configured_noise(world, signals, mode):
     """
     r, var = _against_budget(world, "exact", mode, signals, sigma0=0.01)
     assert r.size >= (700 if mode == "epochs" else 21)
-    bound, chi2, lo, hi = _statistics(r, var, f"exact {signals} {mode}")
+    bound, chi2, lo, hi = statistics(r, var, f"exact {signals} {mode}")
     assert abs(r.mean()) <= bound, "bias against the truth beyond 3.29 standard errors"
     assert lo <= chi2 <= hi, "scatter against the truth outside what the configured noise gives (99.9 %)"
 
@@ -194,7 +176,7 @@ def test_realistic_code_noise_bias(world, signals, mode):
     max(0.05, 3 × sample SE) = 0.27 ns for a measured −0.12 ns)."""
     r, var = _against_budget(world, "day", mode, signals, sigma0=0.3, hours=24.0)
     assert r.size >= (2800 if mode == "epochs" else 85)
-    bound, *_ = _statistics(r, var, f"realistic {signals} {mode}")
+    bound, *_ = statistics(r, var, f"realistic {signals} {mode}")
     assert abs(r.mean()) <= bound
 
 
@@ -216,7 +198,7 @@ def test_realistic_code_noise_scatter(world, signals, mode):
     for 88 tracks the RMS within 0.76-1.25 times the prediction (0.55 ns iono-free, 0.18 ns
     single on this day), for 2860 epochs 0.96-1.04 times it (2.85 / 0.97 ns)."""
     r, var = _against_budget(world, "day", mode, signals, sigma0=0.3, hours=24.0)
-    _, chi2, lo, hi = _statistics(r, var, f"realistic {signals} {mode}")
+    _, chi2, lo, hi = statistics(r, var, f"realistic {signals} {mode}")
     assert lo <= chi2 <= hi
 
 
@@ -258,10 +240,10 @@ def test_ionosphere_stronger_than_broadcast(world):
     var = point_budget(world.results["iono13"], r.satellites, ("TSTA", "TSTB"), "single", "epochs").reindex(
         o["time"].to_numpy())["var_ns2"].to_numpy()
     assert np.isfinite(resid).all() and np.isfinite(var).all()
-    bound, chi2, lo, hi = _statistics(resid, var, "iono x1.3 single less the predicted error")
+    bound, chi2, lo, hi = statistics(resid, var, "iono x1.3 single less the predicted error")
     assert abs(resid.mean()) <= bound and lo <= chi2 <= hi
     r_if, var_if = _against_budget(world, "iono13", "epochs", "iono-free")
-    bound, chi2, lo, hi = _statistics(r_if, var_if, "iono x1.3 iono-free")
+    bound, chi2, lo, hi = statistics(r_if, var_if, "iono x1.3 iono-free")
     assert abs(r_if.mean()) <= bound and lo <= chi2 <= hi
     # and the predicted error is really there (it is not zero for this geometry)
     assert np.sqrt(np.nanmean(pred**2)) > 0.02
@@ -275,7 +257,7 @@ def test_step_appears_at_the_right_epoch(world):
     assert np.sqrt(np.mean(err**2)) <= 0.15  # the step itself is followed exactly
     # to within the configured code noise propagated (bias 3.29 SE, scatter chi-square 99.9 %)
     r, var = _against_budget(world, "step", "epochs", "iono-free")
-    bound, chi2, lo, hi = _statistics(r, var, "step")
+    bound, chi2, lo, hi = statistics(r, var, "step")
     assert abs(r.mean()) <= bound and lo <= chi2 <= hi
     # the first epoch whose offset has risen by more than half the step, +-1 bin
     x = o["offset_ns"].to_numpy()
