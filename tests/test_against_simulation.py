@@ -140,8 +140,8 @@ def test_physics_exactness_within_the_configured_noise(world, signals, mode):
     The issue's targets above allow 0.05 ns of bias; the noise itself resolves far less: over
     720 epochs (iono-free) the standard error of the mean is 2.6 ps, over 22 tracks 3.1 ps (1.1 ps
     single), so a modelling difference of ~0.01 ns between ctt and the simulator shows here.
-    Tracks: the line fitted over 13 minutes misses the true clock at the midpoint by up to 0.2 ns
-    (clock A is white FM at 1e-11 over 1 s); that miss is computed from the true clocks and
+    Tracks: the line fitted over 13 minutes misses the true clock at the midpoint by 0.08 ns RMS,
+    0.22 ns at most (clock A is white FM at 1e-11 over 1 s); that miss is computed from the true clocks and
     taken out (tests/simulated_budget.py), it is not an error of ctt.
     """
     r, var = _against_budget(world, "exact", mode, signals, sigma0=0.01)
