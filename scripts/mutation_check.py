@@ -54,7 +54,8 @@ TESTS = {
     "orbits": ["test_orbits.py", "test_against_is_gps_200.py", "test_against_igs_products.py"],
     "measure": ["test_measure.py", "test_against_real_data.py", "test_against_simulation.py"],
     "tracks": ["test_tracks.py", "test_against_cggtts_v2e.py", "test_against_simulation.py"],
-    "commonview": ["test_commonview.py", "test_against_real_pair.py", "test_against_simulation.py"],
+    "commonview": ["test_commonview.py", "test_against_real_pair.py", "test_against_simulation.py",
+                   "test_against_simulation_multignss.py"],
     "stability": ["test_stability.py", "test_against_nist_sp1065.py", "test_against_kasdin_walter.py"],
 }
 
