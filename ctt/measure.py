@@ -1077,7 +1077,7 @@ def select_signals(obs, sats, opt: MeasureOptions, glonass_k=None) -> SignalSele
 def _met_at_epochs(met, t_gps_ns, h_m):
     """Pressure, temperature, humidity at each epoch from a met file; the standard atmosphere
     (ctt.atmosphere) where the file does not cover an epoch (before/after it by more than one
-    sample, or inside a gap of more than four samples). Returns (p, t, rh, n_standard)."""
+    sample, or inside a gap longer than four sampling intervals). Returns (p, t, rh, n_standard)."""
     from .formats.rinex_met import interpolate_met
 
     t = np.asarray(t_gps_ns, dtype=np.int64)

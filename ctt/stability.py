@@ -206,21 +206,23 @@ def _raw(kind, x, rate, m):
     """Deviation values and term counts for integer factors m (phase x in s)."""
     base = "mdev" if kind == "tdev" else kind
     taus = m / rate
+    out_d = np.full(len(m), np.nan)
+    out_n = np.zeros(len(m), dtype=np.int64)
     if not np.isnan(x).any():
         fn = getattr(allantools, base)
-        t, dev, _, n = fn(x, rate=rate, data_type="phase", taus=taus)
-        # allantools drops τ with too few terms; map back onto our list
-        out_d = np.full(len(m), np.nan)
-        out_n = np.zeros(len(m), dtype=np.int64)
+        try:
+            t, dev, _, n = fn(x, rate=rate, data_type="phase", taus=taus)
+        except UserWarning:  # allantools raises it when no τ has more than one term
+            t, dev, n = np.zeros(0), np.zeros(0), np.zeros(0, dtype=np.int64)
+        # allantools drops τ with a single term (or none); map back onto our list
         idx = np.searchsorted(taus, t)
         out_d[idx] = dev
         out_n[idx] = n
     else:
-        out_d = np.empty(len(m))
-        out_n = np.empty(len(m), dtype=np.int64)
         for i, mi in enumerate(m):
-            out_d[i], out_n[i] = _nan_dev(x, int(mi), base)
-        out_d = out_d * rate  # per-τ0 units -> per second
+            d_i, n_i = _nan_dev(x, int(mi), base)
+            if n_i > 1:  # a single term is no estimate, as in allantools (above)
+                out_d[i], out_n[i] = d_i * rate, n_i  # per-τ0 units -> per second
     if kind == "tdev":
         out_d = out_d * taus / math.sqrt(3.0)
     return out_d, out_n

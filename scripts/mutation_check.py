@@ -12,7 +12,19 @@ Two modes:
   killed by a value test. Prints the test that kills it.
 * default (broad): an automatic sample over the modules. ``--max N`` mutants in
   all (spread over the modules, chosen at random with ``--seed``), ``--modules``
-  to restrict. Prints each survivor and the survival rate.
+  to restrict. Prints each mutant's outcome and the test that killed it, the survival
+  rate overall and per module, and each survivor; ``--json PATH`` writes the same to
+  a file, and ``--replay PATH`` runs that file's survivors again (after adding a test).
+  The sample is drawn from the current source, so the same seed gives the same
+  mutants only while the modules' source is unchanged.
+
+The survivors that remain, each with the reason no test can see it (an equivalent
+mutation, or an effect below what any test can resolve), are listed in
+``scripts/mutation_survivors.md``.
+
+A module's test files are its own tests and every external-reference file that
+exercises it (``TESTS`` below). ``--fast`` deselects the tests marked slow: quicker,
+but a term checked only by a slow test then shows as a survivor.
 
 Why a script of our own and not a mutation-testing package: it needs to work on a
 copy of the tree (tests find ``../shared/data`` relative to the repository root, so
@@ -24,7 +36,8 @@ original in one token.
 
 Run from the repository root:
     python scripts/mutation_check.py --table
-    python scripts/mutation_check.py --max 80 --seed 1
+    python scripts/mutation_check.py --max 80 --seed 1 --fast --json mutants.json
+    python scripts/mutation_check.py --replay mutants.json --fast
 The copy is made in a temporary folder beside the repository and removed at the end.
 """
 
@@ -32,6 +45,7 @@ from __future__ import annotations
 
 import argparse
 import ast
+import json
 import os
 import pathlib
 import random
@@ -47,12 +61,15 @@ ROOT = pathlib.Path(__file__).resolve().parents[1]
 #: Test files run for a mutant of each module (its own tests and the external references).
 TESTS = {
     "atmosphere": ["test_atmosphere.py", "test_against_iers_conventions.py", "test_against_niell_1996.py",
-                   "test_against_is_gps_200.py", "test_measure.py", "test_rinex_met.py"],
+                   "test_against_is_gps_200.py", "test_against_pyproj.py", "test_measure.py", "test_rinex_met.py"],
     "geodesy": ["test_geodesy.py", "test_against_pyproj.py", "test_against_iers_conventions.py",
-                "test_against_astropy.py"],
-    "signals": ["test_signals.py", "test_against_is_gps_200.py", "test_measure.py"],
-    "orbits": ["test_orbits.py", "test_against_is_gps_200.py", "test_against_igs_products.py"],
-    "measure": ["test_measure.py", "test_against_real_data.py", "test_against_simulation.py"],
+                "test_against_astropy.py", "test_against_iers_phase_terms.py", "test_against_igs_antex.py"],
+    "signals": ["test_signals.py", "test_against_is_gps_200.py", "test_measure.py",
+                "test_against_iers_phase_terms.py", "test_against_igs_antex.py"],
+    "orbits": ["test_orbits.py", "test_against_is_gps_200.py", "test_against_igs_products.py",
+               "test_against_iers_phase_terms.py"],
+    "measure": ["test_measure.py", "test_against_real_data.py", "test_against_simulation.py",
+                "test_against_iers_phase_terms.py", "test_against_igs_coordinates.py"],
     "tracks": ["test_tracks.py", "test_against_cggtts_v2e.py", "test_against_simulation.py"],
     "commonview": ["test_commonview.py", "test_against_real_pair.py", "test_against_simulation.py",
                    "test_against_simulation_multignss.py"],
@@ -203,6 +220,10 @@ def main(argv=None):
                     help="seconds per mutant; a mutant that runs out of time is counted apart (neither killed "
                          "nor survived: on a loaded machine it says nothing)")
     ap.add_argument("--list", action="store_true", help="only count the candidate mutations per module")
+    ap.add_argument("--json", metavar="PATH", help="also write every mutant's outcome and the totals to PATH")
+    ap.add_argument("--replay", metavar="PATH",
+                    help="instead of a new sample, run again the survivors listed in a --json file (same "
+                         "module, line and mutation; one whose source line has changed is reported as not found)")
     a = ap.parse_args(argv)
     extra = ["-m", "not slow"] if a.fast else []
     modules = [m for m in a.modules.split(",") if m]
@@ -246,6 +267,20 @@ def main(argv=None):
             sample += rng.sample(pool, min(k, len(pool)))
         print(f"{n_pool} candidate mutations in {', '.join(modules)}; sampling {len(sample)}, "
               f"stratified by module (seed {a.seed})")
+        if a.replay:
+            wanted = [(r["module"], r["line"], r["mutation"], r.get("column"))
+                      for r in json.loads(pathlib.Path(a.replay).read_text())["mutants"] if r["result"] == "survived"]
+            sample = []
+            for m, line, desc, col in wanted:
+                src = (copy / "ctt" / f"{m}.py").read_text()
+                starts = _offsets(src)
+                hits = [(m, *c) for c in candidate_mutations(src) if c[4] == line and c[0] == desc
+                        and (col is None or c[1] - starts[line] == col)]
+                if hits:
+                    sample.append(hits[0])
+                else:
+                    print(f"  ?? ctt/{m}.py:{line}: {desc}: not found in the current source")
+            print(f"replaying the {len(sample)} survivors of {a.replay}")
         # round-robin over the modules, so that a run cut short still covers each of them
         per_mod = {}
         for r in sorted(sample, key=lambda r: (r[0], r[2])):
@@ -253,18 +288,33 @@ def main(argv=None):
         sample = [r for k in range(max(map(len, per_mod.values()), default=0))
                   for m in modules if k < len(per_mod.get(m, [])) for r in [per_mod[m][k]]]
         t0 = time.perf_counter()
+        line_starts = {m: _offsets((copy / "ctt" / f"{m}.py").read_text()) for m in modules}
         for m, desc, start, end, repl, line in sample:
             res, dt, by = mutate_and_run(copy, m, start, end, repl, a.timeout, extra)
-            rows.append((m, line, desc, res, dt, by))
+            rows.append((m, line, desc, res, dt, by, start - line_starts[m][line]))
             print(f"  {res:16s} {dt:6.1f} s  ctt/{m}.py:{line}: {desc}" + (f"  <- {by}" if by else ""), flush=True)
+        wall = time.perf_counter() - t0
         valid = [r for r in rows if r[3] in ("killed", "survived")]
         surv = [r for r in valid if r[3] == "survived"]
         n_to = sum(r[3] == "timeout" for r in rows)
         print(f"\n{len(valid)} decided mutants ({len(rows) - len(valid) - n_to} invalid, {n_to} timed out), "
               f"{len(surv)} survived: survival rate {100.0 * len(surv) / max(1, len(valid)):.1f} %  "
-              f"({time.perf_counter() - t0:.0f} s wall)")
+              f"({wall:.0f} s wall)")
+        per_module = {}
+        for m in modules:
+            dec = [r for r in valid if r[0] == m]
+            per_module[m] = {"decided": len(dec), "survived": sum(r[3] == "survived" for r in dec)}
+            print(f"  {m:12s} {per_module[m]['survived']:3d} of {len(dec):3d} survived")
         for m, line, desc, *_ in surv:
             print(f"  SURVIVOR ctt/{m}.py:{line}: {desc}")
+        if a.json:
+            pathlib.Path(a.json).write_text(json.dumps({
+                "seed": a.seed, "max": a.max, "fast": a.fast, "modules": modules, "wall_s": round(wall, 1),
+                "decided": len(valid), "survived": len(surv), "timed_out": n_to,
+                "survival_rate": len(surv) / max(1, len(valid)), "per_module": per_module,
+                "mutants": [{"module": m, "line": line, "column": col, "mutation": desc, "result": res,
+                             "seconds": round(dt, 1), "killed_by": by if isinstance(by, str) else " ".join(by)}
+                            for m, line, desc, res, dt, by, col in rows]}, indent=1, ensure_ascii=False) + "\n")
         return 0
     finally:
         shutil.rmtree(copy, ignore_errors=True)

@@ -87,6 +87,16 @@ def test_real_orbits_are_gps_like(sp3):
     assert np.all(np.abs(inc - 55.0) < 3.0)  # GPS planes are inclined 55 deg (common practice)
 
 
+def test_precise_status_of_a_missing_satellite_and_an_instant_outside(sp3):
+    # the IGS final SP3 of GPS week 2138 day 5 carries GPS only (its header); the day is 2021-01-01
+    po = P.PreciseOrbits(sp3)
+    st = po.states(np.array(["E11", "G05", "G05"]),
+                   np.array([civil_to_ns(2021, 1, 1, 12), civil_to_ns(2021, 1, 1, 12), civil_to_ns(2021, 1, 3)]))
+    assert [P.PRECISE_STATUS_NAMES[s] for s in st.status] == ["NO_DATA", "OK", "OUT_OF_SPAN"]
+    # codes 0-2 keep the broadcast codes' values (ctt.orbits' status comment)
+    assert (P.STATUS_OK, P.STATUS_NO_DATA) == (P.OK, P.NO_EPHEMERIS)
+
+
 def test_leave_one_out_interpolation_error_on_igs_final(sp3):
     pe, ce, ep = P.leave_one_out(sp3)
     e3 = np.linalg.norm(pe, axis=-1)

@@ -44,7 +44,7 @@ def _ion_coefficients(nav_path):
 def test_klobuchar_daytime_by_hand_from_real_broadcast(shared_data):
     # Broadcast coefficients of the IGS merged file for 2021-01-01 (real data).
     alpha, beta = _ion_coefficients(shared_data / "brdc0010.21n")
-    assert alpha == pytest.approx([7.4510e-09, -1.4900e-08, -5.9600e-08, 1.1920e-07])
+    assert alpha == pytest.approx([7.4510e-09, -1.4900e-08, -5.9600e-08, 1.1920e-07], rel=1e-12, abs=0)
     # Place, time, direction: 46.877°N 7.465°E, satellite at azimuth 150°,
     # elevation 35°, GPS time 2021-01-01 12:00:00 (Friday: sow = 5·86400 + 43200).
     lat_deg, lon_deg, az_deg, el_deg, sow = 46.877, 7.465, 150.0, 35.0, 5 * 86400 + 43200.0
@@ -67,7 +67,7 @@ def test_klobuchar_daytime_by_hand_from_real_broadcast(shared_data):
     got = atm.klobuchar_delay_s(alpha, beta, math.radians(lat_deg), math.radians(lon_deg),
                                 math.radians(az_deg), math.radians(el_deg), sow)
     # same equations, independent scalar evaluation: agreement to float rounding
-    assert got == pytest.approx(expected, rel=1e-12)
+    assert got == pytest.approx(expected, rel=1e-12, abs=0)
     # plausibility: winter-noon mid-latitude vertical L1 delay of a few ns (common practice: 2-10 ns)
     assert 2e-9 < got / F < 10e-9
     assert got > F * 5e-9  # the day term adds to the night floor
@@ -113,7 +113,7 @@ def test_gps_tgd_factors():
     assert sig.group_delay_factor("G", ("C1C", "C2W")).terms == ()
     # applying it: sat_clock -= factor * T_GD
     assert sig.group_delay_factor("G", "C2W").correction_s({"tgd_s": -1.2e-8}) == pytest.approx(
-        -(77 / 60) ** 2 * 1.2e-8)
+        -(77 / 60) ** 2 * 1.2e-8, rel=1e-14, abs=0)
 
 
 def test_iono_free_dcb_factor_l1l2():

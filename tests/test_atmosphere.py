@@ -282,6 +282,10 @@ def test_ionex_slant_delay(test_data):
     assert m.vtec_tecu(t, lat, lon) == pytest.approx(vtec, rel=1e-12)
     d30, s30 = atm.ionex_slant_delay_m(m, t, lat, lon, np.radians(180.0), np.radians(30.0), 1227.60e6)
     lat_i, lon_i, z = atm.pierce_point(lat, lon, np.radians(180.0), np.radians(30.0), 450e3, 6371e3)
+    # the defaults are IONEX 1.0's: base radius 6371 km, and a 450 km shell (common practice)
+    assert atm.pierce_point(lat, lon, np.radians(180.0), np.radians(30.0)) == (lat_i, lon_i, z)
+    # sin z' = R/(R+H) cos E (single-layer model, IONEX 1.0 mapping), R and H as written there
+    assert np.sin(z) == pytest.approx(6371.0 / (6371.0 + 450.0) * np.cos(np.radians(30.0)), rel=1e-14, abs=0)
     assert np.degrees(lat_i) < 45.0 and lon_i == pytest.approx(lon, abs=1e-12)  # due south
     v_ipp = 10 + 0.2 * np.degrees(lat_i) + 0.1 * 2 + 1
     assert s30 == pytest.approx(v_ipp * atm.single_layer_mapping(np.radians(30.0)), rel=1e-9)

@@ -539,3 +539,39 @@ def test_two_value_points_are_tested_against_their_apriori_sigma():
     np.testing.assert_allclose(per["chi2"], dd ** 2 / (s1 ** 2 + s2 ** 2), rtol=1e-9)
     flags = cv._bin_flags(per, min_common=2)
     assert flags.tolist() == ["ok", "high_scatter", "ok", "high_scatter"]
+
+
+# ---------------------------------------------------------------- resampling, match counts
+
+def test_finer_table_resampled_by_the_documented_rules():
+    # Module docstring: each fine row goes to the nearest coarse instant with −Δ/2 ≤ dt < Δ/2; the
+    # usable rows of a cell are averaged: value, a-priori u as √Σu²/n (error propagation of a mean
+    # of independent values), azimuth through sine/cosine (350°, 10°, 0° average to 0°).
+    t0 = int(convert(from_mjd(MJD0), "UTC", "GPS"))
+    dt_s = np.array([-150, 0, 120, 150, 60, 60])
+    fine = pd.DataFrame({
+        "mid_time": t0 + dt_s * NS_PER_S, "sat": ["G01"] * 4 + ["G02", "G03"], "system": "G", "signal": "C1C",
+        "value_ns": [1.0, 2.0, 3.0, 50.0, 7.0, 8.0], "u_ns": [2.0, 2.0, 4.0, 1.0, np.nan, 1.0],
+        "elevation_deg": [30.0, 40.0, 50.0, 60.0, 20.0, 20.0], "azimuth_deg": [350.0, 10.0, 0.0, 90.0, 5.0, 5.0],
+        "n_points": 1, "troposphere_m": 2.4, "ionosphere_m": 3.0,
+        "flag": ["ok", "ok", "ok", "ok", "ok", "outlier"]})
+    out = cv.resample_to(fine, np.array([t0, t0 + 300 * NS_PER_S]), 300.0)
+    g1 = out[(out["sat"] == "G01") & (out["mid_time"] == t0)].iloc[0]
+    assert g1["n_points"] == 3 and g1["value_ns"] == pytest.approx(2.0, rel=1e-15, abs=0)
+    assert g1["u_ns"] == pytest.approx(np.sqrt(4.0 + 4.0 + 16.0) / 3.0, rel=1e-15, abs=0)
+    assert g1["elevation_deg"] == pytest.approx(40.0, rel=1e-15, abs=0)
+    assert min(g1["azimuth_deg"], 360.0 - g1["azimuth_deg"]) < 1e-9
+    # +150 s belongs to the next instant; a u that is not known makes the cell's u unknown;
+    # the only row of G03 is not usable: no cell
+    nxt = out[(out["sat"] == "G01") & (out["mid_time"] == t0 + 300 * NS_PER_S)].iloc[0]
+    assert nxt["value_ns"] == 50.0 and nxt["u_ns"] == 1.0
+    assert np.isnan(out[out["sat"] == "G02"].iloc[0]["u_ns"])
+    assert "G03" not in set(out["sat"])
+
+
+def test_unmatched_rows_are_counted_per_station():
+    # A sees G01-G04, B sees G03-G07, 10 epochs each: 20 common rows, 40 − 20 and 50 − 20 unmatched
+    a = tracks.bin_epochs(station(lambda ts: 5.0 + 0 * ts, GPS10[:4], n_ep=10))
+    b = tracks.bin_epochs(station(lambda ts: 0 * ts, GPS10[2:7], n_ep=10, phase=0.4))
+    attrs = cv.common_view(a, b).offset_df.attrs
+    assert (attrs["n_unmatched_a"], attrs["n_unmatched_b"]) == (20, 30)

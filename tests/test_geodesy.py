@@ -71,7 +71,7 @@ def test_baseline_chord_light_time_and_uncertainty():
     # direction (0.6, 0.8, 0): σ² = 2 (0.36·1e-4 + 0.64·4e-4) (first-order propagation)
     expect = np.sqrt(2 * (0.36e-4 + 0.64 * 4e-4))
     assert bl.chord_sigma_m == pytest.approx(expect, rel=1e-12)
-    assert bl.light_time_sigma_s == pytest.approx(expect / 299_792_458.0, rel=1e-12)
+    assert bl.light_time_sigma_s == pytest.approx(expect / 299_792_458.0, rel=1e-12, abs=0)
     # full covariances agree with the per-axis form, and correlations matter
     cov = np.diag([1e-4, 4e-4, 9e-4])
     assert g.baseline(a, b, cov_a=cov, cov_b=cov).chord_sigma_m == pytest.approx(expect, rel=1e-12)
@@ -85,6 +85,10 @@ def test_baseline_chord_light_time_and_uncertainty():
     db = rng.normal(0, [0.01, 0.02, 0.03], (5000, 3))
     chords = np.linalg.norm((b + db) - (a + da), axis=1)
     assert np.std(chords) == pytest.approx(expect, rel=0.05)
+    # coincident stations: no direction; each station isotropic σ = 1 cm gives σ² = 2·(1 cm)² along
+    # any direction, which the mean of the three axis variances (trace/3) reproduces
+    same = g.baseline(a, a, sigma_a_m=[0.01] * 3, sigma_b_m=[0.01] * 3)
+    assert same.chord_m == 0.0 and same.chord_sigma_m == pytest.approx(0.01 * np.sqrt(2.0), rel=1e-12, abs=0)
 
 
 def test_tide_vectorised_and_magnitude():

@@ -320,6 +320,39 @@ def test_epoch_of_exactly_three_satellites_rejects_its_spike():
     assert mean[1] == pytest.approx(15.0, abs=1e-12) and n_used[1] == 2 and not rej[1].any()
 
 
+def test_epoch_of_ten_satellites_uses_the_large_sample_mad_factor():
+    # Croux & Rousseeuw (1992) small-sample factor of the MAD for n > 9: b_n = n/(n − 0.8)
+    # (from memory, as in the module docstring): b₁₀ = 10/9.2. Nine values with median 0 and
+    # MAD 1 whatever the tenth: limit = 3.5 · 1.4826 · 10/9.2 = 5.640 (floor 0.1 ns, σ not given).
+    # A tenth value at 5.70 is rejected, one at 5.20 kept; the tabulated b₉ = 1.107 (limit 5.744)
+    # or n/(n + 0.8) (limit 4.805) would decide the other way for one of them.
+    from ctt.measure import robust_epoch_mean
+
+    base = [-1.2, -1.0, -1.0, -0.5, 0.0, 0.0, 0.5, 1.0, 1.0]
+    assert 3.5 * 1.4826 * 10 / 9.2 == pytest.approx(5.6404, abs=1e-4)
+    v = np.array([base + [5.70], base + [5.20]])
+    _, _, n_used, rej = robust_epoch_mean(v, np.ones_like(v), 3.5)
+    assert list(n_used) == [9, 10] and rej[0, 9] and not rej[1].any()
+
+
+def test_met_gap_longer_than_four_intervals_falls_back_to_the_standard_atmosphere():
+    # _met_at_epochs: inside a gap longer than four sampling intervals the file is not used
+    # (standard atmosphere instead). 10-min records with a 4-interval and a 5-interval gap.
+    from ctt import atmosphere
+    from ctt.formats.rinex_met import MetData
+    from ctt.measure import _met_at_epochs
+
+    step = 600 * 10**9
+    k = np.concatenate([np.arange(0, 6), np.arange(9, 15), np.arange(20, 26)])  # gaps of 4 and 5 intervals
+    tt = k.astype(np.int64) * step
+    met = MetData(path="invented.21m", version=3.05, marker="TEST", obs_types=("PR", "TD", "HR"), time_ns=tt,
+                  values={"PR": np.full(k.size, 950.0), "TD": np.full(k.size, 10.0), "HR": np.full(k.size, 50.0)})
+    q = np.array([7 * step, 17 * step])                       # the middle of each gap
+    p, _, _, n_std = _met_at_epochs(met, q, 500.0)
+    assert p[0] == 950.0 and n_std == 1
+    assert p[1] == pytest.approx(atmosphere.standard_atmosphere(500.0)[0], rel=1e-15, abs=0)
+
+
 def test_glonass_without_channel_numbers_does_not_stop_a_gps_day(tmp_path):
     rx = _geodetic_xyz(46.0, 7.0, 500.0)
     obs = _simulate(rx, lambda t: 1e-6 + 0 * t, 0.0, n_ep=20)

@@ -257,6 +257,19 @@ def test_glonass_states_clock_and_time_scales(mixed):
     assert np.all(np.abs(st.relativity_s) < 50e-9)
     # GLONASS - GPS fraction from the header GLGP line (a0 = -3.2875686884e-07 as printed)
     np.testing.assert_array_equal(st.system_time_offset_s, -3.2875686884e-07)
+    # the instant is t_ns + dt_s (the states() contract): a quarter second carried in dt_s gives
+    # the state of the instant a quarter second later (GLONASS moves ~3.9 km/s: 1 km apart)
+    late = o.states(np.array(["R01", "R02"]), t - 250_000_000, dt_s=0.25)
+    np.testing.assert_allclose(late.pos_m, st.pos_m, rtol=0, atol=1e-6)
+    np.testing.assert_allclose(late.clock_s, st.clock_s, rtol=0, atol=1e-18)
+
+
+def test_glonass_pz90_constants():
+    # GLONASS ICD (2008) Appendix A.3.1.2, PZ-90 (from memory): a_e = 6 378 136 m,
+    # J2⁰ = 1 082 625.75e-9, ω_E = 7.292115e-5 rad/s
+    assert orbits.AE_GLO == 6378136.0
+    assert orbits.J2_GLO == pytest.approx(1082625.75e-9, rel=1e-15, abs=0)
+    assert orbits.OMEGA_E_GLO == 7.292115e-5
 
 
 def test_beidou_geo_is_geostationary_and_records_join(mixed):
@@ -306,7 +319,7 @@ def test_galileo_source_selection_and_bgd(mixed):
     assert o_f.group_delay_s(np.array(["E24"]), "C1C", states=fnav)[0] == -4.540197551250e-08
     k5a = (1575.42 / 1176.45) ** 2
     assert o_f.group_delay_s(np.array(["E24"]), "C5Q", states=fnav)[0] == pytest.approx(
-        -k5a * 4.540197551250e-08, rel=1e-14)
+        -k5a * 4.540197551250e-08, rel=1e-14, abs=0)
     # iono-free pair the clock refers to needs no BGD (ICD)
     assert abs(o_i.group_delay_s(np.array(["E24"]), ("C1C", "C7Q"), states=inav)[0]) < 1e-21
     assert np.isnan(o_i.group_delay_s(np.array(["E24"]), "C5Q", states=inav)[0])
@@ -328,7 +341,7 @@ def test_beidou_group_delays(mixed):
     assert o.group_delay_s(np.array(["C01"]), "C6I", states=st)[0] == 0.0
     f1, f3 = 1561.098, 1268.52
     assert o.group_delay_s(np.array(["C01"]), ("C2I", "C6I"), states=st)[0] == pytest.approx(
-        f1**2 * 5.8e-09 / (f1**2 - f3**2), rel=1e-14)
+        f1**2 * 5.8e-09 / (f1**2 - f3**2), rel=1e-14, abs=0)
 
 
 def test_qzss_unhealthy_and_iod_mismatch(mixed):

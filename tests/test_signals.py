@@ -76,6 +76,13 @@ def test_select_codes_priorities_and_coverage():
     ch2 = sig.select_codes(obs2, sats, "dual")
     assert ch2.code2[2] == "" and not ch2.usable[2]
     assert ch2.code2[1] == "C2W"  # the sparse code is all there is now
+    # "at least min_fraction of the best-covered code" (docstring): exactly 80 of 100 epochs
+    # with min_fraction 0.8 keeps the preferred C2W
+    obs3 = dict(obs)
+    obs3["C2W"] = obs["C2W"].copy()
+    obs3["C2W"][:80, 1] = obs["C2L"][:80, 1]
+    assert np.count_nonzero(np.isfinite(obs3["C2L"][:, 1])) == 100
+    assert sig.select_codes(obs3, sats, "dual", min_fraction=0.8).code2[1] == "C2W"
 
 
 def test_processing_pseudorange_iono_free_and_single():
@@ -153,15 +160,17 @@ def test_bias_sinex_reader(tmp_path):
     b = read_bias_sinex(p)
     assert b.skipped == 1  # the phase bias (Bias-SINEX 1.00: unit cyc)
     assert list(b.kind) == ["DSB", "DSB", "OSB", "OSB"]
-    assert b.value_s[0] == pytest.approx(-1.234e-9)
+    assert b.value_s[0] == pytest.approx(-1.234e-9, rel=1e-12, abs=0)
     t = ts.civil_to_ns(2021, 1, 1, 12)
     # DSB = B(OBS1) − B(OBS2) (Bias-SINEX 1.00); either order is used with its sign
     v, found = sig.code_bias_s(b, ["G01", "G02", "G03"], "C1C", t, reference="C1W")
     assert found.tolist() == [True, True, False]
-    assert v[0] == pytest.approx(-1.234e-9) and v[1] == pytest.approx(-0.5e-9) and v[2] == 0.0
+    # (abs=0: pytest.approx's default abs of 1e-12 would swamp a nanosecond-level value)
+    assert v[0] == pytest.approx(-1.234e-9, rel=1e-12, abs=0) and v[2] == 0.0
+    assert v[1] == pytest.approx(-0.5e-9, rel=1e-12, abs=0)
     # OSB lookup
     v, found = sig.code_bias_s(b, ["G01"], "C1W", t)
-    assert found[0] and v[0] == pytest.approx(4.234e-9)
+    assert found[0] and v[0] == pytest.approx(4.234e-9, rel=1e-12, abs=0)
     # outside the window: nothing
     _, found = sig.code_bias_s(b, ["G01"], "C1W", ts.civil_to_ns(2021, 1, 3))
     assert not found[0]

@@ -47,6 +47,19 @@ def test_gap_aware_path_matches_allantools_without_gaps(kind, monkeypatch):
     np.testing.assert_allclose(d.dev, ref, rtol=1e-12)
 
 
+@pytest.mark.parametrize("kind", ["adev", "hdev"])
+def test_a_tau_with_a_single_term_is_no_estimate_on_either_path(kind):
+    # 64 phase points, m = 16: the non-overlapping ADEV has 64/16 − 2 = 2 terms, HDEV 64/16 − 3 = 1.
+    # allantools (reference library) drops a τ with a single term (remove_small_ns: n > 1 kept)
+    # and raises when none is left; the gap-aware path must agree, and neither may stop a run.
+    x = np.cumsum(np.random.default_rng(3).normal(size=64)) * 1e-9
+    n_terms = {"adev": 2, "hdev": 1}[kind]
+    for series in (x, np.append(x, np.nan)):      # allantools path, gap-aware path
+        d = stability.deviation(kind, series, 1.0, taus=[16])
+        assert d.n[0] == (n_terms if n_terms > 1 else 0)
+        assert np.isfinite(d.dev[0]) == (n_terms > 1) and np.isfinite(d.edf[0]) == (n_terms > 1)
+
+
 def test_gaps_are_skipped_not_interpolated():
     # A gap removes exactly the terms that touch it and leaves the estimate unbiased:
     # white PM of σ has ADEV(τ) = √3·σ/τ (E[(x2 − 2x1 + x0)²] = 6σ², common practice);
@@ -140,8 +153,8 @@ def test_edf_and_ci_against_greenhall_riley_and_chi_square(kind, b):
         ref = allantools.edf_greenhall(alpha=int(d.alpha_int[i]), d=dd, m=m, N=2 ** 12, overlapping=ov, modified=mo)
         assert d.edf[i] == pytest.approx(ref, rel=1e-12)
         nu, p = d.edf[i], math.erf(1 / math.sqrt(2)) / 2
-        assert d.ci_low[i] == pytest.approx(d.dev[i] * math.sqrt(nu / stats.chi2.ppf(0.5 + p, nu)), rel=1e-9)
-        assert d.ci_high[i] == pytest.approx(d.dev[i] * math.sqrt(nu / stats.chi2.ppf(0.5 - p, nu)), rel=1e-9)
+        assert d.ci_low[i] == pytest.approx(d.dev[i] * math.sqrt(nu / stats.chi2.ppf(0.5 + p, nu)), rel=1e-9, abs=0)
+        assert d.ci_high[i] == pytest.approx(d.dev[i] * math.sqrt(nu / stats.chi2.ppf(0.5 - p, nu)), rel=1e-9, abs=0)
     # TDEV's relative CI is MDEV's (same EDF), in the direct and the shared-pass paths
     if kind == "tdev":
         md = stability.deviation("mdev", x, 1.0, taus=[4, 16, 64])
@@ -304,6 +317,34 @@ def test_detects_logged_step_and_unlogged_frequency_change():
     assert abs(rep.undetected_log[0]["fitted_step_ns"]) < 1.0
 
 
+def test_unlogged_step_is_dated_midway_between_the_samples_around_it():
+    # Change.time_ns of an unlogged change: the break lies between the last sample of the old
+    # segment and the first of the new one; the estimate refers to the middle of that interval.
+    # A 20σ step is found at its exact sample (1000 samples: no block averaging).
+    rng = np.random.default_rng(12)
+    t = (np.arange(1000) * 30 * NS).astype(np.int64)
+    x = rng.normal(scale=0.5, size=1000)
+    x[600:] += 10.0
+    (ch,) = stability.detect_changes(t, x).changes
+    assert ch.kind == "phase step" and ch.found_time_ns in (t[599], t[600])
+    assert ch.time_ns == t[599] + 15 * NS
+    assert abs(ch.size - 10.0) < 4 * ch.u_size
+
+
+def test_step_window_reaches_max_window_on_white_noise():
+    # estimate_step: k goes up to max_window (inclusive, docstring). On white phase noise the
+    # two-sided line fit's variance falls as 1/k (least-squares error propagation), so the scan
+    # spread is smallest at the largest allowed k: 16 here (11 → 16 is a factor √(16/11) = 1.2,
+    # far beyond the MAD's sampling error over ~2000 positions).
+    rng = np.random.default_rng(21)
+    t_s = np.arange(2000) * 30.0
+    x = rng.normal(scale=1.0, size=2000)
+    x[1000:] += 5.0
+    est = stability.estimate_step(t_s, x, 0.5 * (t_s[999] + t_s[1000]), 30.0, max_window=16)
+    assert est["window"] == 16 and est["n_before"] == est["n_after"] == 16
+    assert abs(est["size_ns"] - 5.0) < 4 * est["u_ns"]
+
+
 def test_no_changes_in_pure_white_noise():
     # False alarms: the BIC-like penalty plus the 5σ local test keep white PM clean.
     for draw in range(5):
@@ -366,6 +407,21 @@ def test_compare_periods_finds_step_and_not_noise():
     assert moved.step_significant and abs(moved.step_at_boundary_ns - 1.0) < 3 * moved.u_step_at_boundary_ns
     assert not same.step_significant
     assert not any(r["significant"] for r in moved.adev_ratio[:3])
+
+
+def test_compare_periods_uses_the_two_sided_critical_value():
+    # level 0.05, two-sided: |z| > 1.95996 (standard normal table; any statistics text). The after
+    # period is shifted so that z = 1.6 and then 2.2 (a constant shift leaves each period's u alone).
+    rng = np.random.default_rng(7)
+    n = 2880 * 2
+    t = (np.arange(n) * 30 * NS).astype(np.int64)
+    x = rng.normal(scale=1.0, size=n)
+    base = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
+    for z_want, sig in ((1.6, False), (2.2, True)):
+        y = x.copy()
+        y[2880:] += z_want * base.u_delta_mean_ns - base.delta_mean_ns
+        c = stability.compare_periods(t, y, (t[0], t[2879]), (t[2880], t[-1]))
+        assert c.z == pytest.approx(z_want, rel=1e-9, abs=0) and c.significant is sig
 
 
 def test_compare_periods_step_at_boundary_ignores_frequency_offset():

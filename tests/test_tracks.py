@@ -251,6 +251,23 @@ def test_bin_epochs_single_and_300s():
     assert abs(ratio - 1) < 4 * np.sqrt(2 / err.size)
 
 
+
+def test_bin_few_points_threshold_and_bad_bin_length():
+    # bin_epochs docstring: a bin is few_points below 2/3 of the nominal count (at least 1); 300-s
+    # bins of 30-s data hold 10 points, so 7 points pass and 6 do not
+    df = station_table(lambda ts: 3.0 + 0 * ts, n_ep=600, sats=("G01",))
+    k = df["time"].to_numpy() // (300 * NS_PER_S)
+    full = [kk for kk in np.unique(k) if np.count_nonzero(k == kk) == 10]
+    cut = np.concatenate([np.flatnonzero(k == full[1])[:3], np.flatnonzero(k == full[2])[:4]])
+    b = tracks.bin_epochs(df.drop(index=cut), 300).set_index("mid_time")
+    mids = [kk * 300 * NS_PER_S + 150 * NS_PER_S for kk in full[1:3]]
+    assert list(b.loc[mids, "n_points"]) == [7, 6]
+    assert list(b.loc[mids, "flag"]) == ["ok", "few_points"]
+    for bad in (0.0, -300.0):
+        with pytest.raises(ProcessingError, match="bin length must be positive"):
+            tracks.bin_epochs(df, bad)
+
+
 def test_empty_and_missing_columns():
     df = station_table(lambda ts: ts * 0, n_ep=4)
     assert len(tracks.fit_tracks(df.iloc[0:0])) == 0
