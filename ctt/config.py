@@ -95,6 +95,8 @@ not a plain folder name, are configuration errors naming the key.
     clk = "prod/igs{gpsweek}{gpsdow}.clk.Z"     # optional
     ionex = "prod/igsg{doy:03d}0.{yy:02d}i.Z"   # optional
     met = "{station}{doy:03d}0.{yy:02d}m"       # optional (else each station's met pattern)
+    erp = ["prod/igs{gpsweek-1}7.erp", "prod/igs{gpsweek}7.erp",   # optional: IGS ERP files for
+           "prod/igs{gpsweek+1}7.erp"]                          # the pole tide (mode ppp)
     optional = ["met"]               # kinds whose absence is not an error (default ["met"])
 
     [inputs.a]                       # optional per-station overrides: obs, met
@@ -142,7 +144,17 @@ result contains ``*`` or ``?`` is matched as a glob inside its folder and the
 first match in sorted order is taken. Every resolved path is checked to stay
 inside ``data_root`` after ``..`` and symbolic links are resolved.
 
-Neighbouring days (``sp3`` and ``clk`` only): a date placeholder may carry a
+``erp`` (IGS ERP files, version 2) gives the pole coordinates for the solid Earth
+pole tide of mode ``ppp`` (IERS 2010 §7.1.4, :func:`ctt.ppp.run_ppp`); the code modes
+do not model the pole tide (a few mm, far below the code noise) and ignore it with a
+warning in the summary. Without an ``erp`` pattern the PPP summary says "not applied
+(no ERP file given)"; with one, the file is required unless ``erp`` is listed in
+``optional``. The ERP epochs must cover every epoch of the day (they are never
+extrapolated): a weekly file's epochs are at noon, so the week's first day needs the
+previous week's file as well and its last day the next week's, hence the three
+patterns above (merged; on the other days all three name the same file).
+
+Neighbouring days (``sp3``, ``clk`` and ``erp``): a date placeholder may carry a
 day offset of 1 to 9 days, ``{doy-1}``, ``{gpsweek+1}``, ``{yy-1:02d}``. The
 offset moves the *date*, and the field is read from that date: on 2011-01-01,
 ``{yyyy-1}{doy-1:03d}`` gives ``2010365`` and on a Sunday
@@ -202,7 +214,7 @@ NS_PER_DAY = 86_400 * 1_000_000_000
 MODES = ("tracks", "epochs", "all-in-view", "ppp")
 SIGNALS = ("iono-free", "single")
 ORBITS = ("auto", "broadcast", "precise")
-INPUT_KINDS = ("obs", "nav", "sp3", "clk", "ionex", "met")
+INPUT_KINDS = ("obs", "nav", "sp3", "clk", "ionex", "met", "erp")
 STATION_INPUT_KINDS = ("obs", "met")
 
 
@@ -640,7 +652,7 @@ def pattern_fields(station_id: str, date) -> dict:
 #: A placeholder with a day offset: ``{doy-1}``, ``{gpsweek+1}`` (1 to 9 days; see the module docstring).
 _DAY_OFFSET_RE = re.compile(r"^(\w+?)([+-][1-9])$")
 #: Input kinds whose patterns may carry a day offset (several files merged into one product).
-DAY_OFFSET_KINDS = ("sp3", "clk")
+DAY_OFFSET_KINDS = ("sp3", "clk", "erp")
 
 
 def _split_offset(name: str) -> tuple[str, int]:
@@ -1148,14 +1160,15 @@ class PairConfig:
     def resolve_inputs(self, date) -> dict:
         """Input paths for one UTC date.
 
-        Keys: ``obs_a``, ``obs_b``, ``nav``, ``sp3``, ``clk``, ``ionex``, ``met_a``, ``met_b``;
+        Keys: ``obs_a``, ``obs_b``, ``nav``, ``sp3``, ``clk``, ``ionex``, ``met_a``, ``met_b``, ``erp``;
         values are resolved :class:`pathlib.Path` or ``None`` for kinds that are not
         configured or are listed as optional and absent. A missing required file
         raises :class:`MissingInputError` naming the patterns and the paths tried.
         """
         out = {}
         wanted = [("obs_a", "obs", "a"), ("obs_b", "obs", "b"), ("nav", "nav", None), ("sp3", "sp3", None),
-                  ("clk", "clk", None), ("ionex", "ionex", None), ("met_a", "met", "a"), ("met_b", "met", "b")]
+                  ("clk", "clk", None), ("ionex", "ionex", None), ("met_a", "met", "a"), ("met_b", "met", "b"),
+                  ("erp", "erp", None)]
         for name, kind, which in wanted:
             pats = self.patterns_for(kind, which)
             if not pats:
@@ -1181,8 +1194,10 @@ class PairConfig:
                                     "; ".join(c for _, c in tried))
                     else:
                         files[off] = f_off
-                if len(files) > 1:
-                    out[name] = tuple(files[k] for k in sorted(files))
+                # one file may serve several offsets (a weekly ERP file on most days of its week)
+                distinct = tuple(dict.fromkeys(files[k] for k in sorted(files)))
+                if len(distinct) > 1:
+                    out[name] = distinct
         return out
 
 

@@ -32,8 +32,9 @@ Output files
 Mode ``ppp`` (carrier-phase time transfer with precise products)
 ----------------------------------------------------------------
 Each station's observation file goes through :func:`ctt.ppp.run_ppp` with the
-same precise orbits and clocks; A − B is the difference of the two stations'
-PPP clocks (``clock_ns``: local clock − the product's time scale, delays
+same precise orbits and clocks (and, when ``PairInputs.erp`` names IGS ERP files,
+the solid Earth pole tide; the code modes ignore them with a warning); A − B is
+the difference of the two stations' PPP clocks (``clock_ns``: local clock − the product's time scale, delays
 applied) on their common epochs (:func:`ppp_difference`): ``u_ns`` is the
 root sum of squares of the two formal uncertainties, ``n_sat`` the smaller of
 the two stations' satellite counts (``n_sat_a``/``n_sat_b`` give both), and a
@@ -96,9 +97,11 @@ class PairInputs:
     antex: str | None = None
     tracks_a: str | None = None   #: a partner's CGGTTS track file in place of obs_a
     tracks_b: str | None = None   #: ... in place of obs_b
+    #: IGS ERP file(s) for the pole tide of mode 'ppp' (several: merged); unused by the code modes
+    erp: str | tuple[str, ...] | None = None
 
     def __post_init__(self):
-        for name in ("sp3", "clk"):
+        for name in ("sp3", "clk", "erp"):
             v = getattr(self, name)
             if v is not None and not isinstance(v, (str, pathlib.PurePath)):
                 v = tuple(str(p) for p in v)
@@ -236,6 +239,21 @@ def _several(v) -> list:
     return list(v)
 
 
+def load_erp(paths):
+    """IGS ERP file(s) -> one :class:`ctt.formats.erp.ErpData` (several merged), None without any."""
+    paths = _several(paths)
+    if not paths:
+        return None
+    from .formats.erp import merge_erp, read_erp
+
+    return merge_erp([read_erp(_need(p, "ERP file")) for p in paths])
+
+
+#: Why the code modes do not use an ERP file (the pole tide is modelled by mode 'ppp' only).
+ERP_UNUSED = ("ERP file not used: mode {mode} (code) does not model the solid Earth pole tide "
+              "(a few mm, far below the code noise); only mode ppp applies it")
+
+
 def load_orbits(inputs: PairInputs, choice: str = "auto", galileo_source: str = "inav"):
     """The satellite source for a day: (orbits, nav header or None, 'broadcast'|'precise')."""
     from .orbits import BroadcastOrbits
@@ -363,6 +381,9 @@ def run_pair(inputs: PairInputs, station_a, station_b, options: PairOptions = Pa
 
         ionex = read_ionex(_need(inputs.ionex, "IONEX file"))
     input_warnings = _check_inputs(inputs, station_a, station_b, force_inputs)
+    if inputs.erp:
+        input_warnings.append(ERP_UNUSED.format(mode=options.mode))
+        log.warning("%s", input_warnings[-1])
     days, reduced = [], []
     for obs_path, trk_path, met_path, station in ((inputs.obs_a, inputs.tracks_a, inputs.met_a, station_a),
                                                    (inputs.obs_b, inputs.tracks_b, inputs.met_b, station_b)):
@@ -704,6 +725,7 @@ def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions,
 
     if inputs.obs_a is None or inputs.obs_b is None or inputs.tracks_a or inputs.tracks_b:
         raise MissingInputError("mode ppp needs both stations' observation files (track files cannot be used)")
+    erp = load_erp(inputs.erp)     # pole tide (ctt.ppp); a bad file fails here, before the long reads
     if orbits_bundle is None:
         if not inputs.sp3:
             raise MissingInputError("mode ppp needs precise orbits and clocks (--sp3, and --clk where the "
@@ -730,7 +752,7 @@ def run_pair_ppp(inputs: PairInputs, station_a, station_b, options: PairOptions,
 
             met = metmod.read_met(_need(met_path, "meteorological file"))
         # receiver antennas from the ANTEX file the orbits were loaded with (inputs.antex)
-        res[who] = run_ppp(obs, orbits, st, popt, met=met, biases=biases)
+        res[who] = run_ppp(obs, orbits, st, popt, met=met, biases=biases, erp=erp)
     systems = sorted({str(s) for s in getattr(popt, "systems", options.measure.systems)})
     system = systems[0] if len(systems) == 1 else "ALL"
     offset = ppp_difference(res["A"].clock, res["B"].clock, system=system)
@@ -1044,7 +1066,10 @@ def pair_day_from_config(config, date):
     inputs = PairInputs(obs_a=str(found["obs_a"]), obs_b=str(found["obs_b"]),
                         nav=_s(found.get("nav")), sp3=_s(found.get("sp3")), clk=_s(found.get("clk")),
                         ionex=_s(found.get("ionex")), met_a=_s(found.get("met_a")), met_b=_s(found.get("met_b")),
-                        antex=_s(found.get("antex")))
+                        antex=_s(found.get("antex")), erp=_s(found.get("erp")))
+    if pc.patterns.get("erp") and found.get("erp") is None:
+        log.warning("%s: no ERP file for %s (erp is optional): the PPP solid Earth pole tide is not applied "
+                    "that day", pc.path, date)
     options = options_from_processing(pc.processing)
     if options.measure.elevation_mask_deg is None:
         # the pair file's documented default: the larger of the two stations' masks, at both
@@ -1068,11 +1093,11 @@ def _s(p):
 PPP_CLOCK_COLUMNS = ["time_utc", "time_gps_ns", "clock_ns", "u_ns", "n_sat", "flag", "ztd_m"]
 
 
-def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None, options=None,
+def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None, erp=(), options=None,
               out_dir=None, force_inputs: bool = False):
     """Read one station-day's files (the observation file checked against the station file as
     for every command, :func:`check_obs_file`), run :func:`ctt.ppp.run_ppp`, write the
-    outputs when ``out_dir`` is given. ``sp3``/``clk`` may name several files (merged).
+    outputs when ``out_dir`` is given. ``sp3``/``clk``/``erp`` may name several files (merged).
     Returns (PPPResult, {name: path})."""
     from .config import load_station
     from .formats.rinex_obs import read_obs
@@ -1080,6 +1105,7 @@ def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None
 
     opts = options or PPPOptions()
     st = station if hasattr(station, "arp_m") else load_station(_need(station, "station file"))
+    erp_data = load_erp(erp)      # before the long reads: a bad ERP file is reported at once
     obs = read_obs(_need(obs_path, "observation file"), on_error="skip", systems=tuple(opts.systems))
     if obs.dropped:
         log.warning("%s: %d bad epochs skipped (first: line %s, %s)", obs_path, len(obs.dropped),
@@ -1099,7 +1125,7 @@ def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None
         from .formats.bias_sinex import read_code_biases
 
         biases = read_code_biases(_need(bias, "code-bias file"))     # Bias-SINEX or a monthly DCB file
-    result = run_ppp(obs, orbits, st, opts, met=met_data, biases=biases)
+    result = run_ppp(obs, orbits, st, opts, met=met_data, biases=biases, erp=erp_data)
     if warns:
         result.summary["input_warnings"] = warns
     paths = {}
@@ -1111,6 +1137,8 @@ def ppp_files(obs_path, station, *, sp3, clk=(), antex=None, bias=None, met=None
                  "bias": bias, "met": met}
         named.update({f"sp3_{k + 1}": p for k, p in enumerate(sp3_l)})
         named.update({f"clk_{k + 1}": p for k, p in enumerate(clk_l)})
+        erp_l = _several(erp)
+        named.update({"erp" if len(erp_l) == 1 else f"erp_{k + 1}": p for k, p in enumerate(erp_l)})
         result.summary["inputs"] = inputs_record(named)
         paths = write_ppp_outputs(result, out_dir)
     return result, paths

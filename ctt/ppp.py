@@ -23,9 +23,17 @@ between nodes; ``tide`` the solid Earth tide (IERS 2010 §7.1.1, :mod:`ctt.geode
 same term as ctt.measure; ``antenna_rx`` the receiver antenna's iono-free phase-centre
 offset and variation along the line of sight and ``satellite_pcv`` the satellite antenna's
 nadir-dependent variation (ANTEX 1.4, through ctt.signals, when the ANTEX reader has the
-station's antenna; otherwise 0 and said so in the summary); the pole tide (IERS 2010
-§7.1.4, a few mm, nearly constant over a day and absorbed by the position) is not yet
-applied and the summary says so; ``windup`` the carrier phase wind-up
+station's antenna; otherwise 0 and said so in the summary); ``tide`` also carries the
+solid Earth pole tide (IERS 2010 §7.1.4, eq. 7.26, :func:`ctt.geodesy.pole_tide_displacement_enu`)
+when an IGS ERP file is given (``erp``): the pole (xp, yp) interpolated linearly at each
+epoch's UTC MJD, the displacement rotated from E/N/U to ECEF and added to the solid tide's
+(its own column ``pole_tide_m`` too; :func:`pole_tide_ecef`). A few mm, nearly constant
+over a day: with the position estimated it goes into the position, with the position held
+fixed into the clock (≈ ΔU·sin(el)/c, a few ps to tens of ps). Without an ERP file the
+summary says "not applied (no ERP file given)"; an ERP file that does not cover every epoch
+of the day is refused (``MissingInputError``), never extrapolated nor skipped, so a day's
+clock never silently depends on which ERP file happened to be at hand (a day-to-day step
+of tens of ps in a fixed-position series); ``windup`` the carrier phase wind-up
 (Wu et al. 1993) with the nominal yaw-steering attitude; ``hw`` the station file's
 hardware delays of the codes used, applied exactly as in ctt.measure (so ``δt_r`` is
 *local reference clock minus the product's time scale*); ``A`` a float ambiguity (metres)
@@ -78,6 +86,7 @@ from __future__ import annotations
 
 import dataclasses
 import logging
+import pathlib
 import warnings
 
 import numpy as np
@@ -87,7 +96,7 @@ import scipy.sparse as sp
 
 from . import atmosphere, geodesy, measure, signals
 from . import timescales as ts
-from .errors import NoDataError
+from .errors import MissingInputError, NoDataError
 from .orbits import in_earth_shadow, sun_position_ecef
 
 log = logging.getLogger(__name__)
@@ -158,6 +167,9 @@ class PPPResult:
                  f"  residual RMS: code {s['code_rms_m']:.3f} m, phase {s['phase_rms_m'] * 1000:.1f} mm",
                  f"  position ({s['position_mode']}): dE {d[0]:+.4f} m, dN {d[1]:+.4f} m, dU {d[2]:+.4f} m "
                  "from the station file"]
+        pt = s.get("pole_tide")
+        lines.append(f"  pole tide: {pt['model']}, mean up {pt['mean_enu_mm'][2]:+.1f} mm" if pt else
+                     f"  pole tide: {s.get('models', {}).get('pole_tide', 'not applied')}")
         for k, v in sorted(s["rejected"].items(), key=lambda kv: -kv[1]):
             lines.append(f"  not used, {k}: {v}")
         return lines
@@ -452,15 +464,56 @@ def _antenna_terms(antex, station, sats, el, az, sat_pos, rx, t_ns):
     return rx_m, sat_m, notes
 
 
+def pole_tide_ecef(erp, station_ecef_m, t_gps_ns):
+    """Solid Earth pole tide displacement of a station at GPS instants, ECEF metres ``(N, 3)``.
+
+    IERS Conventions (2010) §7.1.4, eq. 7.26 (:func:`ctt.geodesy.pole_tide_displacement_enu`,
+    mean pole of Table 7.7), with the pole (xp, yp) of ``erp`` (:class:`ctt.formats.erp.ErpData`)
+    interpolated linearly at each instant's UTC MJD; latitude and longitude geodetic (the
+    geocentric colatitude of eq. 7.26 differs by 0.2° at most: below 0.02 mm here).
+    Returns (ecef (N, 3), enu (N, 3), xp_arcsec (N,), yp_arcsec (N,)).
+    Raises :class:`MissingInputError` naming the file and the day when an instant lies outside
+    the ERP file's epochs (the reader never extrapolates; see the module docstring).
+    """
+    t = np.asarray(t_gps_ns, dtype=np.int64)
+    utc = ts.convert(t, "GPS", "UTC")
+    mjd = np.asarray(ts.to_mjd_float(utc), dtype=float)
+    xp, yp = erp.pole_arcsec(mjd)
+    out = ~(np.isfinite(xp) & np.isfinite(yp))
+    if out.any():
+        first, last = ts.to_iso(int(utc[0])), ts.to_iso(int(utc[-1]))
+        raise MissingInputError(
+            f"{erp.path}: ERP epochs MJD {erp.mjd[0]:.2f}-{erp.mjd[-1]:.2f} do not cover the day "
+            f"{first[:10]} ({int(out.sum())} of {len(t)} epochs outside, {first} to {last} UTC is MJD "
+            f"{mjd[0]:.4f}-{mjd[-1]:.4f}); the pole tide needs the pole at every epoch and ERP values are "
+            "never extrapolated: give the neighbouring ERP file too (e.g. the previous week's for the "
+            "hours before a weekly file's first noon epoch)")
+    lat, lon, _ = geodesy.ecef_to_geodetic(np.asarray(station_ecef_m, dtype=float))
+    decimal_year = 2000.0 + (mjd - 51544.5) / 365.25           # Julian years from J2000.0
+    enu = geodesy.pole_tide_displacement_enu(lat, lon, xp, yp, decimal_year)
+    return geodesy.enu_to_ecef(enu, lat, lon), enu, xp, yp
+
+
+def _pole_tide_summary(erp, enu, xp, yp) -> dict:
+    name = " + ".join(pathlib.Path(p).name for p in str(erp.path).split("+"))
+    return {"model": f"IERS 2010 §7.1.4 with {name}", "erp": str(erp.path),
+            "xp_arcsec": float(np.mean(xp)), "yp_arcsec": float(np.mean(yp)),
+            "mean_enu_mm": [float(v) * 1e3 for v in np.mean(enu, axis=0)],
+            "max_abs_up_mm": float(np.max(np.abs(enu[:, 2])) * 1e3),
+            "max_abs_horizontal_mm": float(np.max(np.hypot(enu[:, 0], enu[:, 1])) * 1e3)}
+
+
 def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=None, biases=None,
-            antex=None) -> PPPResult:
+            antex=None, erp=None) -> PPPResult:
     """PPP of one station's observation file against a precise product (module docstring).
 
     ``obs``: :class:`ctt.formats.rinex_obs.ObsData`; ``orbits``: :class:`ctt.orbits.PreciseOrbits`
     (with its RINEX clock file and ANTEX); ``station``: :class:`ctt.config.StationConfig`;
     ``met``: RINEX met data or None (standard atmosphere); ``biases``: a code-bias set
     (ctt.signals) mapping C1C onto C1W where P1 is absent; ``antex``: ANTEX data for the
-    receiver antenna (defaults to the one the orbits carry).
+    receiver antenna (defaults to the one the orbits carry); ``erp``:
+    :class:`ctt.formats.erp.ErpData` (:func:`ctt.formats.erp.read_erp`, several files joined by
+    :func:`ctt.formats.erp.merge_erp`) for the pole tide (with ``options.tide``), or None.
     """
     opt = options
     if antex is None:
@@ -511,9 +564,16 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     hydro_m = np.broadcast_to(trop.zhd_m, el.shape) * trop.mh
     wet_m = np.broadcast_to(trop.zwd_m, el.shape) * trop.mw
     mw_map = np.asarray(trop.mw, dtype=float)
+    pole_m = np.zeros(len(ie))
+    pole_note = "off" if not opt.tide else "not applied (no ERP file given)"
     if opt.tide:
         disp_ep = np.asarray(geodesy.solid_tide_displacement(rx0, t_tag, time_scale="GPS"))
-        tide_m = -np.einsum("ij,ij->i", geo.los, disp_ep[ie])
+        if erp is not None:
+            pole_ecef, pole_enu, xp, yp = pole_tide_ecef(erp, rx0, t_tag)
+            pole_m = -np.einsum("ij,ij->i", geo.los, pole_ecef[ie])
+            disp_ep = disp_ep + pole_ecef
+            pole_note = _pole_tide_summary(erp, pole_enu, xp, yp)
+        tide_m = -np.einsum("ij,ij->i", geo.los, disp_ep[ie])   # solid tide + pole tide
     else:
         tide_m = np.zeros(len(ie))
     ant_m, sat_pcv_m, ant_notes = _antenna_terms(antex, station, sats, el, az, geo.sat_rotated_m, rx0, t_rx)
@@ -749,7 +809,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
         "sigma_code_m": sig_c, "sigma_phase_m": sig_p,
         "geometry_m": geo.geometry_m, "sagnac_m": geo.sagnac_m, "sat_clock_m": sat_clock_m,
         "relativity_m": relativity_m, "shapiro_m": shap, "tropo_hydro_m": hydro_m,
-        "tropo_wet_apriori_m": wet_m, "tropo_wet_est_m": mw_map * zw, "tide_m": tide_m,
+        "tropo_wet_apriori_m": wet_m, "tropo_wet_est_m": mw_map * zw, "tide_m": tide_m, "pole_tide_m": pole_m,
         "antenna_rx_m": ant_m, "satellite_pcv_m": sat_pcv_m, "windup_m": windup_m, "hardware_ns": hw_ns,
         "eclipse": eclipse, "slip": slip[ie, js],
     })
@@ -808,7 +868,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
             "windup": "Wu et al. 1993, nominal yaw" if opt.windup else "off",
             "shapiro": "IERS 2010 eq. 11.17" if opt.shapiro else "off",
             "solid_tide": "IERS 2010 §7.1.1" if opt.tide else "off",
-            "pole_tide": "not applied",
+            "pole_tide": pole_note["model"] if isinstance(pole_note, dict) else pole_note,
             "eclipse": f"cylindrical shadow + {opt.eclipse_margin_s:.0f} s flagged",
             "code_biases": "bias file" if biases is not None else "none",
             "satellite_clock_interpolation_sigma": ci_note,
@@ -819,4 +879,6 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     okc = clock["flag"].to_numpy() == "ok"
     summary["receiver_clock"] = measure.receiver_clock_character(clock["time_gps_ns"].to_numpy(np.int64)[okc],
                                                                  clock["clock_ns"].to_numpy(float)[okc])
+    if isinstance(pole_note, dict):
+        summary["pole_tide"] = pole_note
     return PPPResult(clock=clock, residuals=res, summary=summary, options=opt)

@@ -85,11 +85,20 @@ def test_ppp_pair_follows_the_igs_station_clocks(day_2011):
     constant (PPP issue target; IGS AR clocks carry 0.01-0.03 ns formal sigmas, data README).
 
     CAGZ resets its clock by +1 ms 26 times in the day (data README); the AR clocks and the PPP clock both
-    follow the receiver clock, so the difference has no jump."""
+    follow the receiver clock, so the difference has no jump. With the week's IGS ERP file both
+    stations get the solid Earth pole tide (IERS 2010 §7.1.4), as the IGS analysis centres' solutions
+    behind the AR clocks model it (IERS Conventions; common practice)."""
+    import dataclasses
+    import pathlib
+
     from ctt.pipeline import PairOptions, run_pair, write_pair_outputs
 
     inputs, a, b, ar, folder = day_2011
-    res = run_pair(inputs, a, b, PairOptions(mode="ppp"))
+    erp = pathlib.Path(inputs.clk).with_name("igs16577.erp")
+    res = run_pair(dataclasses.replace(inputs, erp=str(erp)), a, b, PairOptions(mode="ppp"))
+    for who in ("A", "B"):       # the pair wiring hands the ERP data to both stations' PPP
+        assert res.summary["models"][who]["models"]["pole_tide"] == "IERS 2010 §7.1.4 with igs16577.erp"
+    assert res.summary["inputs"]["erp"]["path"] == str(erp)
     write_pair_outputs(res, folder / "ppp")
     d, n = _against_ar(res.offset, ar)
     rms = _rms_about_mean(d)

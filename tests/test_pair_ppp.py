@@ -74,3 +74,80 @@ def test_pair_file_mode_ppp_needs_products(tmp_path):
     # an SP3 file with its own clocks serves alone (5-min clocks: the real-2016-001 products)
     (tmp_path / "p.toml").write_text(base.format(extra="sp3 = \"x.sp3\"\n"))
     assert load_pair(tmp_path / "p.toml").processing.mode == "ppp"
+
+
+def test_pair_file_erp_key_required_or_optional(shared_set, tmp_path, caplog):
+    """The ``erp`` input (ctt.config, README "Station and pair files"): weekly IGS ERP file names
+    (igs<week>7.erp) with the neighbouring weeks' patterns; required unless listed in optional."""
+    import shutil
+
+    from ctt.config import load_pair
+    from ctt.errors import MissingInputError
+    from ctt.pipeline import pair_day_from_config
+
+    st = ("[station]\nid = \"{id}\"\n[station.position]\nx_m = {x}\ny_m = 500000.0\nz_m = 4600000.0\n"
+          "sigma_m = 0.01\n[[delays]]\nvalid_from = 2010-01-01T00:00:00Z\nreceiver_ns = {{ C1W = 0.0 }}\n"
+          "u_receiver_ns = 1.0\ncable_ns = 0.0\nu_cable_ns = 0.1\nreference_ns = 0.0\nu_reference_ns = 0.1\n")
+    (tmp_path / "a.toml").write_text(st.format(id="LABA", x=4400000.0))
+    (tmp_path / "b.toml").write_text(st.format(id="LABB", x=4400100.0))
+    data = tmp_path / "data"
+    data.mkdir()
+    # the ERP file of GPS week 1657 (2011-10-09..15; real-2011-283); the other files are only
+    # looked up here (resolve_inputs checks that they exist), so empty ones serve
+    shutil.copy(shared_set("real-2011-283") / "igs16577.erp", data / "igs16577.erp")
+    for doy, week_day in ((283, "16571"), (288, "16576"), (289, "16580")):
+        (data / f"igs{week_day}.sp3").write_text("")
+        for sid in ("laba", "labb"):
+            (data / f"{sid}{doy}0.11o").write_text("")
+    base = ("[pair]\nname = \"ab\"\nstation_a = \"a.toml\"\nstation_b = \"b.toml\"\ndata_root = \"data\"\n"
+            "[inputs]\nobs = \"{{station}}{{doy:03d}}0.{{yy:02d}}o\"\nnav = \"brdc{{doy:03d}}0.{{yy:02d}}n\"\n"
+            "sp3 = \"igs{{gpsweek}}{{gpsdow}}.sp3\"\n"
+            "erp = [\"igs{{gpsweek-1}}7.erp\", \"igs{{gpsweek}}7.erp\", \"igs{{gpsweek+1}}7.erp\"]\n"
+            "optional = {optional}\n[processing]\nmode = \"ppp\"\n")
+    (tmp_path / "p.toml").write_text(base.format(optional='["met", "nav"]'))
+    pc = load_pair(tmp_path / "p.toml")
+    erp = (data / "igs16577.erp").resolve()
+    # 2011-10-10 (week 1657, day 1): all three patterns name the week's file, used once
+    assert pc.resolve_inputs("2011-10-10")["erp"] == erp
+    inputs, *_ = pair_day_from_config(pc, "2011-10-10")
+    assert inputs.erp == str(erp)
+    # 2011-10-15 (Saturday, day 6): the next week's file is missing: logged, the week's own is used
+    # (ctt.ppp then refuses the hours after its last noon epoch: tests/test_ppp.py)
+    assert pc.resolve_inputs("2011-10-15")["erp"] == erp
+    assert "igs16587.erp" in caplog.text
+    # 2011-10-16 (week 1658): its own file is missing: required by default ...
+    with pytest.raises(MissingInputError, match=r"no erp file for 2011-10-16.*igs16587\.erp"):
+        pc.resolve_inputs("2011-10-16")
+    # ... absent, logged and the day processed without the pole tide when listed in optional
+    (tmp_path / "p.toml").write_text(base.format(optional='["met", "nav", "erp"]'))
+    pc = load_pair(tmp_path / "p.toml")
+    caplog.clear()
+    inputs, *_ = pair_day_from_config(pc, "2011-10-16")
+    assert inputs.erp is None and "pole tide is not applied" in caplog.text
+    # a day offset stays reserved to the kinds that merge several files: not ionex
+    (tmp_path / "p.toml").write_text(base.format(optional='["met", "nav"]').replace(
+        "sp3 = ", "ionex = \"igsg{doy-1:03d}0.{yy:02d}i\"\nsp3 = "))
+    with pytest.raises(ConfigError, match=r"inputs\.ionex"):
+        load_pair(tmp_path / "p.toml")
+
+
+@pytest.mark.slow
+def test_code_modes_record_an_erp_file_but_do_not_use_it(shared_set, tmp_path):
+    """``ctt pair --erp`` in a code mode (the demo pair, tracks): the pole tide (a few mm) is
+    modelled by mode ppp only; the file is recorded with its SHA-256 and a warning says so."""
+    import hashlib
+    import json
+    import pathlib
+
+    from ctt.cli import main
+
+    demo = pathlib.Path(__file__).resolve().parents[1] / "data_demo"
+    erp = shared_set("real-2011-283") / "igs16577.erp"
+    rc = main(["pair", "--obs-a", str(demo / "ALDR00XXX_R_20210010000_01D_30S_MO.crx"),
+               "--obs-b", str(demo / "BRKW00XXX_R_20210010000_01D_30S_MO.crx"),
+               "--nav", str(demo / "BRDC00XXX_R_20210010000_01D_MN.rnx"), "--station-a", str(demo / "aldr.toml"),
+               "--station-b", str(demo / "brkw.toml"), "--erp", str(erp), "--out", str(tmp_path / "run")])
+    assert rc == 0
+    s = json.loads((tmp_path / "run" / "summary.json").read_text())
+    assert any(w.startswith("ERP file not used: mode tracks") for w in s["warnings"])
+    assert s["inputs"]["erp"]["sha256"] == hashlib.sha256(erp.read_bytes()).hexdigest()

@@ -27,6 +27,9 @@ def register(sub) -> None:
     add_product_arguments(src)
     src.add_argument("--met-a", help="meteorological file of station A")
     src.add_argument("--met-b", help="meteorological file of station B")
+    src.add_argument("--erp", action="append", default=[], metavar="FILE",
+                     help="IGS ERP file for the solid Earth pole tide of --mode ppp (repeatable, merged; "
+                          "its epochs must cover the day); the code modes ignore it with a warning")
     src.add_argument("--station-a", help="station TOML file of A")
     src.add_argument("--station-b", help="station TOML file of B")
     cfg = p.add_argument_group("inputs (pair file)")
@@ -98,12 +101,12 @@ def run(args) -> int:
     # option values and input files first: a mistake is reported before the processing modules load
     check_options(args)
     check_input_files(args, ("obs_a", "obs_b", "tracks_a", "tracks_b", "nav", "sp3", "clk", "ionex", "antex",
-                             "met_a", "met_b", "bias"))
+                             "met_a", "met_b", "bias", "erp"))
     if args.config:
         if not args.date:
             raise UsageError("--config needs --date YYYY-MM-DD")
         given = [n for n in ("obs_a", "obs_b", "tracks_a", "tracks_b", "nav", "sp3", "clk", "ionex", "antex",
-                             "met_a", "met_b", "station_a", "station_b") if getattr(args, n)]
+                             "met_a", "met_b", "erp", "station_a", "station_b") if getattr(args, n)]
         if given:
             raise UsageError("with --config the files come from the pair file; drop "
                              + ", ".join("--" + g.replace("_", "-") for g in given))
@@ -130,7 +133,7 @@ def run(args) -> int:
 
         inputs = PairInputs(obs_a=args.obs_a, obs_b=args.obs_b, nav=args.nav, sp3=args.sp3, clk=args.clk,
                             ionex=args.ionex, met_a=args.met_a, met_b=args.met_b, antex=args.antex,
-                            tracks_a=args.tracks_a, tracks_b=args.tracks_b)
+                            tracks_a=args.tracks_a, tracks_b=args.tracks_b, erp=args.erp)
         sta, stb = load_station(args.station_a), load_station(args.station_b)
         options = options_from_args(args)
     from ..pipeline import run_pair, write_pair_outputs

@@ -26,6 +26,9 @@ def register(sub) -> None:
     p.add_argument("--antex", help="ANTEX file (satellite and receiver antennas)")
     p.add_argument("--bias", help="code-bias file (Bias-SINEX) mapping C1C onto C1W where P1 is absent")
     p.add_argument("--met", help="RINEX meteorological file of the station")
+    p.add_argument("--erp", action="append", default=[], metavar="FILE",
+                   help="IGS ERP file (pole coordinates) for the solid Earth pole tide (IERS 2010); its "
+                        "epochs must cover the day: repeat for the neighbouring week's file (merged)")
     p.add_argument("--out", type=out_dir, required=True, help="output folder")
     p.add_argument("--force-inputs", action="store_true",
                    help="process an observation file whose marker name or position does not match the "
@@ -73,9 +76,9 @@ def run(args) -> int:
     from ..pipeline import ppp_files
 
     opts = options_from_args(args)
-    check_input_files(args, ("obs", "sp3", "clk", "antex", "bias", "met"))
+    check_input_files(args, ("obs", "sp3", "clk", "antex", "bias", "met", "erp"))
     result, paths = ppp_files(args.obs, args.station, sp3=args.sp3, clk=args.clk, antex=args.antex,
-                              bias=args.bias, met=args.met, options=opts, out_dir=args.out,
+                              bias=args.bias, met=args.met, erp=args.erp, options=opts, out_dir=args.out,
                               force_inputs=args.force_inputs)
     print("\n".join(result.summary_lines()))
     for p in paths.values():

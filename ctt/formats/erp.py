@@ -6,7 +6,9 @@ MJD, Xpole and Ypole in 1e-6 arcsec, UT1−UTC in 1e-7 s, LOD in 1e-7 s/day,
 their sigmas, and further columns not used here. Values are read as
 whitespace-separated numbers; a data line is any line whose first field is
 a number. Interpolation to an instant is linear (:meth:`ErpData.pole_arcsec`);
-instants outside the file's epochs give NaN (never extrapolated).
+instants outside the file's epochs give NaN (never extrapolated). :func:`merge_erp`
+joins several files (e.g. two weekly files, so the first half of a week's first
+day, before its first noon epoch, is covered too).
 """
 
 from __future__ import annotations
@@ -70,3 +72,21 @@ def read_erp(path) -> ErpData:
     if np.any(np.diff(a[:, 0]) <= 0):
         raise ProductFormatError(path, None, "epochs that increase", "a repeated MJD")
     return ErpData(str(path), a[:, 0], a[:, 1], a[:, 2], a[:, 3], a[:, 4])
+
+
+def merge_erp(items) -> ErpData:
+    """One :class:`ErpData` from several (e.g. consecutive weekly files), epochs in order.
+
+    An epoch given by more than one file is taken from the first file that gives it (the
+    files' values of one epoch are the same product's; a later file does not override).
+    ``path`` joins the files' paths with ``"+"``.
+    """
+    items = list(items)
+    if len(items) == 1:
+        return items[0]
+    if not items:
+        raise ValueError("no ERP data to merge")
+    cols = ("mjd", "xp_arcsec", "yp_arcsec", "ut1_utc_s", "lod_s")
+    stacked = {c: np.concatenate([getattr(e, c) for e in items]) for c in cols}
+    _, first = np.unique(stacked["mjd"], return_index=True)   # sorted epochs, first occurrence
+    return ErpData("+".join(e.path for e in items), *(stacked[c][first] for c in cols))
