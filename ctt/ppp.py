@@ -27,7 +27,7 @@ station's antenna; otherwise 0 and said so in the summary); ``tide`` also carrie
 solid Earth pole tide (IERS 2010 §7.1.4, eq. 7.26, :func:`ctt.geodesy.pole_tide_displacement_enu`)
 when an IGS ERP file is given (``erp``): the pole (xp, yp) interpolated linearly at each
 epoch's UTC MJD, the displacement rotated from E/N/U to ECEF and added to the solid tide's
-(its own column ``pole_tide_m`` too; :func:`pole_tide_ecef`). A few mm, nearly constant
+(its own column ``pole_tide_m`` too; :func:`ctt.geodesy.pole_tide_ecef`). A few mm, nearly constant
 over a day: with the position estimated it goes into the position, with the position held
 fixed into the clock (≈ ΔU·sin(el)/c, a few ps to tens of ps). Without an ERP file the
 summary says "not applied (no ERP file given)"; an ERP file that does not cover every epoch
@@ -96,7 +96,7 @@ import scipy.sparse as sp
 
 from . import atmosphere, geodesy, measure, signals
 from . import timescales as ts
-from .errors import MissingInputError, NoDataError
+from .errors import NoDataError
 from .orbits import in_earth_shadow, sun_position_ecef
 
 log = logging.getLogger(__name__)
@@ -464,36 +464,6 @@ def _antenna_terms(antex, station, sats, el, az, sat_pos, rx, t_ns):
     return rx_m, sat_m, notes
 
 
-def pole_tide_ecef(erp, station_ecef_m, t_gps_ns):
-    """Solid Earth pole tide displacement of a station at GPS instants, ECEF metres ``(N, 3)``.
-
-    IERS Conventions (2010) §7.1.4, eq. 7.26 (:func:`ctt.geodesy.pole_tide_displacement_enu`,
-    mean pole of Table 7.7), with the pole (xp, yp) of ``erp`` (:class:`ctt.formats.erp.ErpData`)
-    interpolated linearly at each instant's UTC MJD; latitude and longitude geodetic (the
-    geocentric colatitude of eq. 7.26 differs by 0.2° at most: below 0.02 mm here).
-    Returns (ecef (N, 3), enu (N, 3), xp_arcsec (N,), yp_arcsec (N,)).
-    Raises :class:`MissingInputError` naming the file and the day when an instant lies outside
-    the ERP file's epochs (the reader never extrapolates; see the module docstring).
-    """
-    t = np.asarray(t_gps_ns, dtype=np.int64)
-    utc = ts.convert(t, "GPS", "UTC")
-    mjd = np.asarray(ts.to_mjd_float(utc), dtype=float)
-    xp, yp = erp.pole_arcsec(mjd)
-    out = ~(np.isfinite(xp) & np.isfinite(yp))
-    if out.any():
-        first, last = ts.to_iso(int(utc[0])), ts.to_iso(int(utc[-1]))
-        raise MissingInputError(
-            f"{erp.path}: ERP epochs MJD {erp.mjd[0]:.2f}-{erp.mjd[-1]:.2f} do not cover the day "
-            f"{first[:10]} ({int(out.sum())} of {len(t)} epochs outside, {first} to {last} UTC is MJD "
-            f"{mjd[0]:.4f}-{mjd[-1]:.4f}); the pole tide needs the pole at every epoch and ERP values are "
-            "never extrapolated: give the neighbouring ERP file too (e.g. the previous week's for the "
-            "hours before a weekly file's first noon epoch)")
-    lat, lon, _ = geodesy.ecef_to_geodetic(np.asarray(station_ecef_m, dtype=float))
-    decimal_year = 2000.0 + (mjd - 51544.5) / 365.25           # Julian years from J2000.0
-    enu = geodesy.pole_tide_displacement_enu(lat, lon, xp, yp, decimal_year)
-    return geodesy.enu_to_ecef(enu, lat, lon), enu, xp, yp
-
-
 def _pole_tide_summary(erp, enu, xp, yp) -> dict:
     name = " + ".join(pathlib.Path(p).name for p in str(erp.path).split("+"))
     return {"model": f"IERS 2010 §7.1.4 with {name}", "erp": str(erp.path),
@@ -569,7 +539,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
     if opt.tide:
         disp_ep = np.asarray(geodesy.solid_tide_displacement(rx0, t_tag, time_scale="GPS"))
         if erp is not None:
-            pole_ecef, pole_enu, xp, yp = pole_tide_ecef(erp, rx0, t_tag)
+            pole_ecef, pole_enu, xp, yp = geodesy.pole_tide_ecef(erp, rx0, t_tag)
             pole_m = -np.einsum("ij,ij->i", geo.los, pole_ecef[ie])
             disp_ep = disp_ep + pole_ecef
             pole_note = _pole_tide_summary(erp, pole_enu, xp, yp)

@@ -103,3 +103,36 @@ def test_tide_vectorised_and_magnitude():
     assert 0.05 < np.ptp(up) < 0.8
     # each epoch alone gives the same (epochs do not leak into one another in the vectorisation)
     assert np.allclose(g.solid_tide_displacement(sta, t[5:6]), d[5:6], atol=1e-12)
+
+
+def test_pole_tide_needs_erp_epochs_around_every_epoch(shared_set, tmp_path):
+    # igs16577.erp (real-2011-283) has one epoch at 12:00 UTC of each day, MJD 55843.5-55849.5
+    # (the file's lines): 2011-10-09 before noon is outside; the reader never extrapolates, so
+    # the day is refused (exit 3, naming the file and the day) rather than skip the term
+    from ctt import timescales as ts
+    from ctt.errors import MissingInputError, exit_code_for
+    from ctt.formats.erp import merge_erp, read_erp
+    from ctt.geodesy import pole_tide_ecef
+
+    path = shared_set("real-2011-283") / "igs16577.erp"
+    erp = read_erp(path)
+    brus = np.array([4027893.658, 307045.945, 4919475.187])      # IGS weekly SINEX igs11P1657, rounded
+    day = ts.parse_iso("2011-10-09T00:00:00") + 30 * ts.NS_PER_S * np.arange(2880)
+    with pytest.raises(MissingInputError, match=r"igs16577\.erp.*2011-10-09") as e:
+        pole_tide_ecef(erp, brus, day)
+    assert exit_code_for(e.value) == 3
+    assert "1440 of 2880 epochs" in str(e.value) or "1441 of 2880 epochs" in str(e.value)
+    ecef, enu, xp, yp = pole_tide_ecef(erp, brus, day + 86_400 * ts.NS_PER_S)    # 2011-10-10: covered
+    assert ecef.shape == (2880, 3) and np.isfinite(ecef).all()
+    # the rotation to ECEF keeps the length (a rotation, ctt.geodesy.enu_to_ecef)
+    np.testing.assert_allclose(np.linalg.norm(ecef, axis=1), np.linalg.norm(enu, axis=1), rtol=1e-12)
+    # two parts of the real file (first 3 and last 5 data lines, one epoch in both), merged, give
+    # the whole file back: what two consecutive weekly files give around a week's first morning
+    lines = path.read_text().splitlines()
+    head, data = lines[:4], lines[4:]
+    (tmp_path / "a.erp").write_text("\n".join(head + data[:3]) + "\n")
+    (tmp_path / "b.erp").write_text("\n".join(head + data[2:]) + "\n")
+    merged = merge_erp([read_erp(tmp_path / "a.erp"), read_erp(tmp_path / "b.erp")])
+    for name in ("mjd", "xp_arcsec", "yp_arcsec", "ut1_utc_s", "lod_s"):
+        np.testing.assert_array_equal(getattr(merged, name), getattr(erp, name))
+    assert merged.path.endswith("a.erp+" + str(tmp_path / "b.erp"))

@@ -76,11 +76,12 @@ def test_pair_file_mode_ppp_needs_products(tmp_path):
     assert load_pair(tmp_path / "p.toml").processing.mode == "ppp"
 
 
-def test_pair_file_erp_key_required_or_optional(shared_set, tmp_path, caplog):
+def test_pair_file_erp_key_required_or_optional(shared_set, tmp_path, caplog, capsys):
     """The ``erp`` input (ctt.config, README "Station and pair files"): weekly IGS ERP file names
     (igs<week>7.erp) with the neighbouring weeks' patterns; required unless listed in optional."""
     import shutil
 
+    from ctt.cli import main
     from ctt.config import load_pair
     from ctt.errors import MissingInputError
     from ctt.pipeline import pair_day_from_config
@@ -95,7 +96,8 @@ def test_pair_file_erp_key_required_or_optional(shared_set, tmp_path, caplog):
     # the ERP file of GPS week 1657 (2011-10-09..15; real-2011-283); the other files are only
     # looked up here (resolve_inputs checks that they exist), so empty ones serve
     shutil.copy(shared_set("real-2011-283") / "igs16577.erp", data / "igs16577.erp")
-    for doy, week_day in ((283, "16571"), (288, "16576"), (289, "16580")):
+    (data / "igs16567.erp").write_text("")     # the previous week's name, only looked up here
+    for doy, week_day in ((282, "16570"), (283, "16571"), (288, "16576"), (289, "16580")):
         (data / f"igs{week_day}.sp3").write_text("")
         for sid in ("laba", "labb"):
             (data / f"{sid}{doy}0.11o").write_text("")
@@ -111,6 +113,8 @@ def test_pair_file_erp_key_required_or_optional(shared_set, tmp_path, caplog):
     assert pc.resolve_inputs("2011-10-10")["erp"] == erp
     inputs, *_ = pair_day_from_config(pc, "2011-10-10")
     assert inputs.erp == str(erp)
+    # 2011-10-09 (Sunday, day 0): the previous week's file too, both in order (merged by ctt.pipeline)
+    assert pc.resolve_inputs("2011-10-09")["erp"] == ((data / "igs16567.erp").resolve(), erp)
     # 2011-10-15 (Saturday, day 6): the next week's file is missing: logged, the week's own is used
     # (ctt.ppp then refuses the hours after its last noon epoch: tests/test_ppp.py)
     assert pc.resolve_inputs("2011-10-15")["erp"] == erp
@@ -129,6 +133,10 @@ def test_pair_file_erp_key_required_or_optional(shared_set, tmp_path, caplog):
         "sp3 = ", "ionex = \"igsg{doy-1:03d}0.{yy:02d}i\"\nsp3 = "))
     with pytest.raises(ConfigError, match=r"inputs\.ionex"):
         load_pair(tmp_path / "p.toml")
+    # check-config lists the merged files of a kind (last: ctt.cli sets up its own log handler)
+    (tmp_path / "p.toml").write_text(base.format(optional='["met", "nav"]'))
+    assert main(["check-config", str(tmp_path / "p.toml"), "--date", "2011-10-09"]) in (0, 2)
+    assert "erp=igs16567.erp+igs16577.erp" in capsys.readouterr().out
 
 
 @pytest.mark.slow

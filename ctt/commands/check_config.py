@@ -164,7 +164,9 @@ def check(pair_path, dates=None, today=None) -> tuple[list[str], list[str]]:
     for d in dates:
         try:
             got = pair.resolve_inputs(d)
-            found = ", ".join(f"{k}={v.name}" for k, v in got.items() if v is not None)
+            # several files of one kind (sp3/clk/erp with neighbouring days) are joined with '+'
+            found = ", ".join(f"{k}=" + "+".join(p.name for p in (v if isinstance(v, tuple) else (v,)))
+                              for k, v in got.items() if v is not None)
             oks.append(f"ok: {d}: inputs {found}")
             problems += _headers_match(got, a, b, oks, d)
         except (MissingInputError, ConfigError) as exc:
