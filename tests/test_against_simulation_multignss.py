@@ -29,7 +29,8 @@ from ctt.measure import MeasureOptions
 from ctt.pipeline import PairOptions, pair_day_from_config, run_pair
 from ctt.simulate import (GLO_PERIOD_S, GlonassTruth, glonass_frequency_hz, glonass_random_stream,
                           scenario_from_dict, simulate, write_outputs)
-from test_against_simulation import BASE, Z999, _station
+from simulated_budget import point_budget, statistics
+from test_against_simulation import BASE, _station
 
 C = 299_792_458.0  # SI
 #: Bounds of the GPS truth test (tests/test_against_simulation.py: the common-view issue's targets).
@@ -231,12 +232,9 @@ def test_multignss_realistic_code_noise(world, signals, mode):
 
 
 def _against_budget(world, name, mode, signals, **kw):
-    """'ALL' − truth less the parts the truth explains, and the variance the configured noise
-    gives each point (tests/simulated_budget.py); bound on |mean| (3.29 SE) and chi-square."""
-    from scipy import stats
-
-    from simulated_budget import point_budget
-
+    """'ALL' − truth less the parts the truth explains, against the variance the configured noise
+    gives each point (tests/simulated_budget.py): (residuals, bound on |mean| = 3.29 SE, Σ r²/var
+    and its chi-square quantiles), the GPS test's statistics."""
     folder, res = world(name, **kw)
     r = _run(folder, mode=mode, signals=signals)
     e, o = _errors(folder, r, "ALL")
@@ -245,15 +243,7 @@ def _against_budget(world, name, mode, signals, **kw):
     b = point_budget(res, sat, ("TSTA", "TSTB"), signals, mode).reindex(o["time"].to_numpy())
     assert b.notna().all().all()
     resid = e - b["mp_ns"].to_numpy() - b["clock_ns"].to_numpy()
-    var = b["var_ns2"].to_numpy()
-    n = resid.size
-    bound = Z999 * np.sqrt(var.sum()) / n
-    chi2 = float(np.sum(resid ** 2 / var))
-    lo, hi = stats.chi2.ppf([0.0005, 0.9995], n)
-    print(f"ALL {name} {signals} {mode}: {n} points, mean {resid.mean():+.4f} ns (bound {bound:.4f}), RMS "
-          f"{_rms(resid):.4f} ns, predicted {np.sqrt(var.mean()):.4f} ns; chi2/n {chi2 / n:.3f} in "
-          f"[{lo / n:.3f}, {hi / n:.3f}]")
-    return resid, bound, chi2, lo, hi
+    return (resid, *statistics(resid, b["var_ns2"].to_numpy(), f"ALL {name} {signals} {mode}"))
 
 
 @pytest.mark.slow
