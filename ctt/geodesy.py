@@ -601,6 +601,16 @@ def pole_tide_displacement_enu(lat_rad, lon_rad, xp_arcsec, yp_arcsec, decimal_y
     return np.stack([s_l, -s_t, s_r], axis=-1) * 1e-3
 
 
+#: Days outside an ERP file's epochs for which its nearest epoch's pole is used (see pole_tide_ecef).
+POLE_HOLD_DAYS = 1.0
+
+
+def pole_hold_epochs(erp, t_gps_ns) -> int:
+    """How many of the GPS instants lie outside ``erp``'s epochs (pole held, :func:`pole_tide_ecef`)."""
+    mjd = np.asarray(ts.to_mjd_float(ts.convert(np.asarray(t_gps_ns, dtype=np.int64), "GPS", "UTC")), dtype=float)
+    return int(np.count_nonzero((mjd < erp.mjd[0]) | (mjd > erp.mjd[-1])))
+
+
 def pole_tide_ecef(erp, station_ecef_m, t_gps_ns):
     """Solid Earth pole tide displacement of a station at GPS instants, ECEF metres ``(N, 3)``.
 
@@ -609,13 +619,21 @@ def pole_tide_ecef(erp, station_ecef_m, t_gps_ns):
     interpolated linearly at each instant's UTC MJD; latitude and longitude geodetic (the
     geocentric colatitude of eq. 7.26 differs by 0.2° at most: below 0.02 mm here).
     Returns (ecef (N, 3), enu (N, 3), xp_arcsec (N,), yp_arcsec (N,)).
-    Raises :class:`MissingInputError` naming the file and the day when an instant lies outside
-    the ERP file's epochs (the reader never extrapolates; ctt.ppp's module docstring says why).
+    Instants up to ``POLE_HOLD_DAYS`` outside the file's epochs take the pole of its nearest
+    epoch: a weekly final file has one epoch at each noon, so the hours after the week's last
+    noon need the next week's file, which a daily run does not have yet; the pole moves a few
+    mas a day (common practice), below 0.2 mm of displacement in a day, far under what a
+    day's clock can show. Farther out: :class:`MissingInputError` naming the file and the
+    day (ERP values are never extrapolated). ``pole_hold_epochs(erp, t)`` counts the held ones.
     """
     t = np.asarray(t_gps_ns, dtype=np.int64)
     utc = ts.convert(t, "GPS", "UTC")
     mjd = np.asarray(ts.to_mjd_float(utc), dtype=float)
     xp, yp = erp.pole_arcsec(mjd)
+    near = (mjd >= erp.mjd[0] - POLE_HOLD_DAYS) & (mjd <= erp.mjd[-1] + POLE_HOLD_DAYS)
+    held = near & ~(np.isfinite(xp) & np.isfinite(yp))
+    xp = np.where(held, np.interp(mjd, erp.mjd, erp.xp_arcsec), xp)   # np.interp holds the end values
+    yp = np.where(held, np.interp(mjd, erp.mjd, erp.yp_arcsec), yp)
     out = ~(np.isfinite(xp) & np.isfinite(yp))
     if out.any():
         first, last = ts.to_iso(int(utc[0])), ts.to_iso(int(utc[-1]))
@@ -623,8 +641,8 @@ def pole_tide_ecef(erp, station_ecef_m, t_gps_ns):
             f"{erp.path}: ERP epochs MJD {erp.mjd[0]:.2f}-{erp.mjd[-1]:.2f} do not cover the day "
             f"{first[:10]} ({int(out.sum())} of {len(t)} epochs outside, {first} to {last} UTC is MJD "
             f"{mjd[0]:.4f}-{mjd[-1]:.4f}); the pole tide needs the pole at every epoch and ERP values are "
-            "never extrapolated: give the neighbouring ERP file too (e.g. the previous week's for the "
-            "hours before a weekly file's first noon epoch)")
+            f"never extrapolated beyond {POLE_HOLD_DAYS:g} day of a file's epochs: give the ERP file of "
+            "that week")
     lat, lon, _ = ecef_to_geodetic(np.asarray(station_ecef_m, dtype=float))
     # Julian years from J2000.0, only for the mean pole (7.6 mas/yr): an error of 1e-3 in these
     # constants moves it by < 0.1 mas, the displacement by < 0.003 mm (below any resolvable effect)

@@ -464,9 +464,11 @@ def _antenna_terms(antex, station, sats, el, az, sat_pos, rx, t_ns):
     return rx_m, sat_m, notes
 
 
-def _pole_tide_summary(erp, enu, xp, yp) -> dict:
+def _pole_tide_summary(erp, enu, xp, yp, t_ns) -> dict:
     name = " + ".join(pathlib.Path(p).name for p in str(erp.path).split("+"))
+    held = geodesy.pole_hold_epochs(erp, t_ns)
     return {"model": f"IERS 2010 §7.1.4 with {name}", "erp": str(erp.path),
+            "epochs_with_pole_held": held,     # outside the file's epochs, nearest epoch's pole
             "xp_arcsec": float(np.mean(xp)), "yp_arcsec": float(np.mean(yp)),
             "mean_enu_mm": [float(v) * 1e3 for v in np.mean(enu, axis=0)],
             "max_abs_up_mm": float(np.max(np.abs(enu[:, 2])) * 1e3),
@@ -542,7 +544,7 @@ def run_ppp(obs, orbits, station, options: PPPOptions = PPPOptions(), *, met=Non
             pole_ecef, pole_enu, xp, yp = geodesy.pole_tide_ecef(erp, rx0, t_tag)
             pole_m = -np.einsum("ij,ij->i", geo.los, pole_ecef[ie])
             disp_ep = disp_ep + pole_ecef
-            pole_note = _pole_tide_summary(erp, pole_enu, xp, yp)
+            pole_note = _pole_tide_summary(erp, pole_enu, xp, yp, t_tag)
         tide_m = -np.einsum("ij,ij->i", geo.los, disp_ep[ie])   # solid tide + pole tide
     else:
         tide_m = np.zeros(len(ie))

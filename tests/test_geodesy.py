@@ -107,8 +107,10 @@ def test_tide_vectorised_and_magnitude():
 
 def test_pole_tide_needs_erp_epochs_around_every_epoch(shared_set, tmp_path):
     # igs16577.erp (real-2011-283) has one epoch at 12:00 UTC of each day, MJD 55843.5-55849.5
-    # (the file's lines): 2011-10-09 before noon is outside; the reader never extrapolates, so
-    # the day is refused (exit 3, naming the file and the day) rather than skip the term
+    # (the file's lines): 2011-10-09 before noon is outside by up to half a day, so the first
+    # epoch's pole is held there (ctt.geodesy.POLE_HOLD_DAYS: a weekly file's edge hours);
+    # 2011-10-07 is more than a day outside: the day is refused (exit 3, naming the file and
+    # the day) rather than skip the term
     from ctt import timescales as ts
     from ctt.errors import MissingInputError, exit_code_for
     from ctt.formats.erp import merge_erp, read_erp
@@ -118,10 +120,16 @@ def test_pole_tide_needs_erp_epochs_around_every_epoch(shared_set, tmp_path):
     erp = read_erp(path)
     brus = np.array([4027893.658, 307045.945, 4919475.187])      # IGS weekly SINEX igs11P1657, rounded
     day = ts.parse_iso("2011-10-09T00:00:00") + 30 * ts.NS_PER_S * np.arange(2880)
-    with pytest.raises(MissingInputError, match=r"igs16577\.erp.*2011-10-09") as e:
-        pole_tide_ecef(erp, brus, day)
+    _, _, xp9, yp9 = pole_tide_ecef(erp, brus, day)
+    # GPS - UTC = 15 s in 2011: the epochs up to 12:00:00 GPS (11:59:45 UTC) are before noon UTC
+    before_noon = np.arange(2880) <= 1440
+    # held at the file's first epoch (line 'MJD 55843.50 ...' of igs16577.erp), then interpolated
+    assert np.all(xp9[before_noon] == erp.xp_arcsec[0]) and np.all(yp9[before_noon] == erp.yp_arcsec[0])
+    assert g.pole_hold_epochs(erp, day) == 1441
+    with pytest.raises(MissingInputError, match=r"igs16577\.erp.*2011-10-07") as e:
+        pole_tide_ecef(erp, brus, day - 2 * 86_400 * ts.NS_PER_S)
     assert exit_code_for(e.value) == 3
-    assert "1440 of 2880 epochs" in str(e.value) or "1441 of 2880 epochs" in str(e.value)
+    assert "2880 of 2880 epochs" in str(e.value)
     ecef, enu, xp, yp = pole_tide_ecef(erp, brus, day + 86_400 * ts.NS_PER_S)    # 2011-10-10: covered
     assert ecef.shape == (2880, 3) and np.isfinite(ecef).all()
     # the rotation to ECEF keeps the length (a rotation, ctt.geodesy.enu_to_ecef)
