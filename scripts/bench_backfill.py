@@ -25,6 +25,10 @@ CPU time beside wall time. What is timed, and how:
    and that read alone against the window's read (warm median of ``--runs``).
 
     python scripts/bench_backfill.py [--days 30] [--jobs 2] [--runs 3] [--work DIR] [--full-load]
+                                     [--mode tracks|epochs]
+
+``--mode`` sets the pair's processing mode (default: the demo pair's, CGGTTS tracks, about 90
+points a day per system; ``epochs`` gives 2880, so the archive holds 30 times more offsets).
 
 ``--work DIR`` keeps the simulated files and archives there (the simulation is reused when
 the folder already holds one of the same length).
@@ -142,6 +146,7 @@ def main(argv=None) -> None:
     ap.add_argument("--jobs", type=int, default=2, help="local worker processes (default 2)")
     ap.add_argument("--runs", type=int, default=3, help="repeats of the warm timings (default 3)")
     ap.add_argument("--work", help="folder kept for the simulated files and archives (default: a temporary one)")
+    ap.add_argument("--mode", choices=("tracks", "epochs"), help="the pair's processing mode (default: as the demo)")
     ap.add_argument("--full-load", action="store_true",
                     help="also time the refresh reading the whole archive (as before the windowed read)")
     a = ap.parse_args(argv)
@@ -159,7 +164,12 @@ def _bench(work: pathlib.Path, a) -> None:
           "against the DESIGN.md target only")
     _simulate(work, n)
     pair = work / "data" / "aldr-brkw.toml"
+    if a.mode:
+        text = pair.read_text().replace("[processing]", f'[processing]\nmode = "{a.mode}"', 1)
+        pair = pair.with_name(f"aldr-brkw-{a.mode}.toml")
+        pair.write_text(text)
     pc = load_pair(pair)
+    print(f"pair {pc.name}, mode {pc.processing.mode}")
     for p in pathlib.Path(pc.archive_path).parent.glob(pathlib.Path(pc.archive_path).name + "*"):
         p.unlink()                                   # a fresh archive: the backfill stores every day
 
