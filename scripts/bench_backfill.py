@@ -181,7 +181,7 @@ def _bench(work: pathlib.Path, a) -> None:
 
     def timed_store(archive, pair_name, outcome):
         days.append(outcome)
-        stores.append(_run(lambda: store(archive, pair_name, outcome))[0])
+        stores.append(_run(lambda: store(archive, pair_name, outcome))[:2])
 
     def timed_refresh(*args, **kw):
         w, c, out = _run(lambda: refresh_report(*args, **kw))
@@ -205,7 +205,8 @@ def _bench(work: pathlib.Path, a) -> None:
           f"{c_bf:.1f} s CPU (workers + parent); {load0} -> {_load()}; archive {size_mb:.1f} MB")
     print(f"   per day, computed in its worker: wall {_mp([o.wall_s for o in ok])}; "
           f"CPU {_mp([o.cpu_s for o in ok])}")
-    print(f"   per day, stored into the archive (parent): {_mp(stores)}")
+    print(f"   per day, stored into the archive (parent): wall {_mp([w for w, _ in stores])}; "
+          f"CPU {_mp([c for _, c in stores])}")
     per_day = (t_bf - t_rep) / n
     cpu_day = (c_bf - c_rep) / n
     print(f"2. the report refresh at the backfill's end: {t_rep:.2f} s wall, {c_rep:.2f} s CPU (timed inside it)")
@@ -247,7 +248,8 @@ def _bench(work: pathlib.Path, a) -> None:
                                                   {"messages": []}))[:2])
     w_s, c_s = np.median(np.array(st), axis=0)
     print(f"   store one more day (offsets + satellites), median of {len(st)}: {w_s:.2f} s wall, {c_s:.2f} s CPU "
-          f"(month's per-day store during the backfill: median {np.median(stores):.2f} s wall)")
+          f"(month's per-day store during the backfill: median {np.median([w for w, _ in stores]):.2f} s wall, "
+          f"{np.median([c for _, c in stores]):.2f} s CPU)")
     t_load, c_load, allo = _run(lambda: year_arc.load_offsets(pc.name))
     t_done, _, dd = _run(lambda: year_arc.days_done(pc.name))
     print(f"   load the whole year's offsets ({len(allo)} rows) {t_load:.2f} s wall, {c_load:.2f} s CPU; "
