@@ -575,3 +575,13 @@ def test_unmatched_rows_are_counted_per_station():
     b = tracks.bin_epochs(station(lambda ts: 0 * ts, GPS10[2:7], n_ep=10, phase=0.4))
     attrs = cv.common_view(a, b).offset_df.attrs
     assert (attrs["n_unmatched_a"], attrs["n_unmatched_b"]) == (20, 30)
+
+
+def test_no_uncertainty_without_sigma_or_pooled_scatter():
+    # Module docstring: without a-priori σ, u_ref = √(c_day/Σw) with c_day pooled over the bins
+    # with n ≥ 3; when no bin has 3 values there is nothing to pool: u is unknown (NaN), never 0
+    a = tracks.bin_epochs(station(lambda ts: 5.0 + 0 * ts, GPS10[:2], n_ep=20))
+    b = tracks.bin_epochs(station(lambda ts: 0 * ts, GPS10[:2], n_ep=20, phase=0.4))
+    o = cv.common_view(a, b).offset_df
+    assert (o["n_sat"] == 2).all() and np.allclose(o["offset_ns"], 5.0, rtol=0, atol=1e-12)
+    assert o["u_ns"].isna().all() and not (o["flag"] == "high_scatter").any()

@@ -11,6 +11,7 @@ against them below).
 import dataclasses
 
 import numpy as np
+import pandas as pd
 import pytest
 
 from ctt import timescales as ts
@@ -333,6 +334,19 @@ def test_epoch_of_ten_satellites_uses_the_large_sample_mad_factor():
     v = np.array([base + [5.70], base + [5.20]])
     _, _, n_used, rej = robust_epoch_mean(v, np.ones_like(v), 3.5)
     assert list(n_used) == [9, 10] and rej[0, 9] and not rej[1].any()
+
+
+def test_inter_system_bias_uses_inverse_variance_epoch_means():
+    # inter_system_biases: each system's clock per epoch is the weighted (1/σ²) mean of its rows
+    # (error propagation, GUM): GPS rows 10 ns (σ 1) and 20 ns (σ 2) give (10 + 20/4)/(1 + 1/4) = 12;
+    # Galileo 30 ns; bias E − G = 18 ns at both epochs
+    from ctt.measure import inter_system_biases
+
+    t = np.repeat(np.array([0, 30], dtype=np.int64) * 10**9, 3)
+    table = pd.DataFrame({"time": t, "system": ["G", "G", "E"] * 2, "sat": ["G01", "G02", "E11"] * 2,
+                          "clock_ns": [10.0, 20.0, 30.0] * 2, "sigma_ns": [1.0, 2.0, 1.0] * 2, "flag": "ok"})
+    b = inter_system_biases(table, "G")["E"]
+    assert b["mean_ns"] == pytest.approx(18.0, rel=1e-14, abs=0) and b["n_epochs"] == 2
 
 
 def test_met_gap_longer_than_four_intervals_falls_back_to_the_standard_atmosphere():

@@ -394,15 +394,18 @@ def test_robust_sigma_ignores_steps():
 
 # ------------------------------------------------------------------ periods
 
-def test_compare_periods_finds_step_and_not_noise():
-    rng = np.random.default_rng(7)
+def _two_days_white(seed):
+    """Two days of 30-s white phase noise, σ = 1 ns (invented); the periods are the two days."""
     n = 2880 * 2
     t = (np.arange(n) * 30 * NS).astype(np.int64)
-    x = rng.normal(scale=1.0, size=n)
-    same = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
+    return t, np.random.default_rng(seed).normal(scale=1.0, size=n), (t[0], t[2879]), (t[2880], t[-1])
+
+def test_compare_periods_finds_step_and_not_noise():
+    t, x, day1, day2 = _two_days_white(7)
+    same = stability.compare_periods(t, x, day1, day2)
     assert not same.significant
     x[2880:] += 1.0
-    moved = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
+    moved = stability.compare_periods(t, x, day1, day2)
     assert moved.significant and abs(moved.delta_mean_ns - 1.0) < 3 * moved.u_delta_mean_ns
     assert moved.step_significant and abs(moved.step_at_boundary_ns - 1.0) < 3 * moved.u_step_at_boundary_ns
     assert not same.step_significant
@@ -412,15 +415,12 @@ def test_compare_periods_finds_step_and_not_noise():
 def test_compare_periods_uses_the_two_sided_critical_value():
     # level 0.05, two-sided: |z| > 1.95996 (standard normal table; any statistics text). The after
     # period is shifted so that z = 1.6 and then 2.2 (a constant shift leaves each period's u alone).
-    rng = np.random.default_rng(7)
-    n = 2880 * 2
-    t = (np.arange(n) * 30 * NS).astype(np.int64)
-    x = rng.normal(scale=1.0, size=n)
-    base = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
+    t, x, day1, day2 = _two_days_white(7)
+    base = stability.compare_periods(t, x, day1, day2)
     for z_want, sig in ((1.6, False), (2.2, True)):
         y = x.copy()
         y[2880:] += z_want * base.u_delta_mean_ns - base.delta_mean_ns
-        c = stability.compare_periods(t, y, (t[0], t[2879]), (t[2880], t[-1]))
+        c = stability.compare_periods(t, y, day1, day2)
         assert c.z == pytest.approx(z_want, rel=1e-9, abs=0) and c.significant is sig
 
 
@@ -437,12 +437,9 @@ def test_compare_periods_step_at_boundary_ignores_frequency_offset():
 
 
 def test_compare_periods_flags_noisier_after():
-    rng = np.random.default_rng(8)
-    n = 2880 * 2
-    t = (np.arange(n) * 30 * NS).astype(np.int64)
-    x = rng.normal(scale=1.0, size=n)
+    t, x, day1, day2 = _two_days_white(8)
     x[2880:] *= 2.0
-    c = stability.compare_periods(t, x, (t[0], t[2879]), (t[2880], t[-1]))
+    c = stability.compare_periods(t, x, day1, day2)
     assert c.adev_ratio[0]["significant"] and c.adev_ratio[0]["ratio"] == pytest.approx(2.0, rel=0.1)
 
 

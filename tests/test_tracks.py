@@ -134,6 +134,10 @@ def test_track_fit_recovers_linear_clock_exactly():
     start_gps = convert(full["track_start_utc_ns"].to_numpy(), "UTC", "GPS")
     assert np.all(full["mid_time"].to_numpy() - start_gps == 390 * NS_PER_S)
     assert set(full["track_start_utc_ns"]) <= set(tracks.schedule_for_times(df["time"]).tolist())
+    # and every scheduled track that the day's data cover whole is there, the day's first included
+    sched = convert(tracks.schedule_for_times(df["time"]), "UTC", "GPS")
+    inside = sched[(sched >= df["time"].min()) & (sched + 780 * NS_PER_S <= df["time"].max())]
+    assert set(start_gps.tolist()) == set(inside.tolist())
     # linear elevation and troposphere: the fit at the midpoint is exact
     k = full["sat"].map({"G01": 0, "G02": 1, "G03": 2}).to_numpy()
     np.testing.assert_allclose(full["elevation_deg"], 20 + 30 * k + 0.001 * mid_s, atol=1e-9)
