@@ -81,9 +81,10 @@ def _epoch_terms(st, signals):
     return var, mp
 
 
-def _per_satellite(st, signals, time_ns, sat, mode):
-    """White variance (ns²), multipath (ns) and the line's miss of the true clock (ns) of each
-    satellite's value at each point (the last is 0 for single epochs)."""
+def satellite_terms(st, signals, time_ns, sat, mode):
+    """White variance (ns²), multipath (ns) and the line's miss of the true clock (ns) of one
+    station's value for satellite ``sat[i]`` at point ``time_ns[i]`` (the last is 0 for single
+    epochs; ``mode`` 'epochs' or 'tracks')."""
     var_e, mp_e = _epoch_terms(st, signals)
     col = {s: j for j, s in enumerate(st.sats)}
     j = np.array([col[s] for s in sat], dtype=np.int64)
@@ -130,7 +131,7 @@ def point_budget(res, satellites: pd.DataFrame, ids, signals: str, mode: str) ->
     tcol = "time" if "time" in ok else "time_gps_ns"
     t = ok[tcol].to_numpy(np.int64)
     sat = ok["sat"].to_numpy(str)
-    (va, ma, ca), (vb, mb, cb) = (_per_satellite(res.stations[sid], signals, t, sat, mode) for sid in ids)
+    (va, ma, ca), (vb, mb, cb) = (satellite_terms(res.stations[sid], signals, t, sat, mode) for sid in ids)
     w = ok["weight"].to_numpy(float)
     d = pd.DataFrame({"t": t, "w": w, "w2v": w * w * (va + vb), "wm": w * (ma - mb), "wc": w * (ca - cb)})
     g = d.groupby("t").sum()
