@@ -585,3 +585,24 @@ def test_no_uncertainty_without_sigma_or_pooled_scatter():
     o = cv.common_view(a, b).offset_df
     assert (o["n_sat"] == 2).all() and np.allclose(o["offset_ns"], 5.0, rtol=0, atol=1e-12)
     assert o["u_ns"].isna().all() and not (o["flag"] == "high_scatter").any()
+
+
+def test_two_satellite_bins_take_the_pooled_scatter_factor():
+    # Module docstring, without a-priori σ: c_bin = Σwᵢrᵢ²/(n−1) on the bins with n ≥ 3, pooled
+    # c_day = Σ(n−1)c_bin/Σ(n−1), and a bin with n < 3 gets u = √(c_day/Σwᵢ) (the variance of a
+    # weighted mean whose weights are inverse variances up to the factor c_day). Equal weights:
+    # Σwᵢ = n and c_bin = scatter²·n/(n−1). Noise 1 ns per station (invented), σ not given.
+    rng = np.random.default_rng(4)
+    a = station(lambda ts: 5.0 + 0 * ts, GPS10[:4], n_ep=40, noise0=1.0, rng=rng)
+    b = station(lambda ts: 0 * ts, GPS10[:4], n_ep=40, phase=0.4, noise0=1.0, rng=rng)
+    for df in (a, b):
+        df["sigma_ns"] = np.nan
+    two = (a["time"] // (30 * NS_PER_S)) % 2 == 1            # odd epochs: A sees G01, G02 only
+    a = a[~(two & a["sat"].isin(GPS10[2:4]))].reset_index(drop=True)
+    o = cv.common_view(tracks.bin_epochs(a), tracks.bin_epochs(b), weights="equal").offset_df
+    # n_sat counts the values kept after rejection (a 4-value bin may lose one or two)
+    big, pair = o[o["n_sat"] >= 3], o[(o["n_sat"] == 2) & (o["n_rejected"] == 0)]
+    assert len(big) >= 15 and len(pair) >= 20
+    n = big["n_sat"].to_numpy()
+    c_day = np.sum(big["scatter_ns"].to_numpy() ** 2 * n) / np.sum(n - 1)
+    np.testing.assert_allclose(pair["u_ns"], np.sqrt(c_day / 2.0), rtol=1e-12, atol=0)

@@ -174,6 +174,11 @@ def test_bias_sinex_reader(tmp_path):
     # outside the window: nothing
     _, found = sig.code_bias_s(b, ["G01"], "C1W", ts.civil_to_ns(2021, 1, 3))
     assert not found[0]
+    # the window [start, end) includes its start and excludes its end (2021:002:00000), so that
+    # consecutive daily files tile time without overlap (common practice)
+    ends = [sig.code_bias_s(b, ["G01"], "C1W", ts.civil_to_ns(*d))[1][0]
+            for d in ((2020, 12, 31), (2021, 1, 2), (2021, 1, 1, 23, 59, 59))]
+    assert ends == [True, False, True]
 
 
 def test_bias_sinex_errors(tmp_path):
