@@ -321,19 +321,27 @@ def test_epoch_of_exactly_three_satellites_rejects_its_spike():
     assert mean[1] == pytest.approx(15.0, abs=1e-12) and n_used[1] == 2 and not rej[1].any()
 
 
-def test_epoch_of_ten_satellites_uses_the_large_sample_mad_factor():
-    # Croux & Rousseeuw (1992) small-sample factor of the MAD for n > 9: b_n = n/(n − 0.8)
-    # (from memory, as in the module docstring): b₁₀ = 10/9.2. Nine values with median 0 and
-    # MAD 1 whatever the tenth: limit = 3.5 · 1.4826 · 10/9.2 = 5.640 (floor 0.1 ns, σ not given).
-    # A tenth value at 5.70 is rejected, one at 5.20 kept; the tabulated b₉ = 1.107 (limit 5.744)
-    # or n/(n + 0.8) (limit 4.805) would decide the other way for one of them.
+# Croux & Rousseeuw (1992) small-sample consistency factors of the MAD (from memory, as in the
+# module docstring): b_n tabulated for n = 3..9, b_n = n/(n − 0.8) above
+B_N = {3: 1.495, 4: 1.363, 5: 1.206, 6: 1.200, 7: 1.140, 8: 1.129, 9: 1.107, 10: 10 / 9.2}
+# n − 1 values with median 0 and MAD 1 whatever the n-th (largest) value is
+CORE = {3: [-1.0, 0.0], 4: [-2.0, 0.0, 0.0], 5: [-1.5, -1.0, 0.0, 1.0], 6: [-1.5, -1.0, 0.0, 0.0, 1.0],
+        7: [-1.5, -1.0, -1.0, 0.0, 1.0, 1.0], 8: [-1.5, -1.0, -1.0, 0.0, 0.0, 1.0, 1.0],
+        9: [-1.5, -1.0, -1.0, -1.0, 0.0, 1.0, 1.0, 1.0],
+        10: [-1.2, -1.0, -1.0, -0.5, 0.0, 0.0, 0.5, 1.0, 1.0]}
+
+
+@pytest.mark.parametrize("n", sorted(B_N))
+def test_epoch_rejection_limit_uses_the_small_sample_mad_factor(n):
+    # With median 0 and MAD 1 the limit is k·1.4826·b_n (floor 0.1 ns, σ not given): a last value
+    # 2e-4 above it is rejected, 2e-4 below it kept, which pins b_n to better than its printed digits
     from ctt.measure import robust_epoch_mean
 
-    base = [-1.2, -1.0, -1.0, -0.5, 0.0, 0.0, 0.5, 1.0, 1.0]
-    assert 3.5 * 1.4826 * 10 / 9.2 == pytest.approx(5.6404, abs=1e-4)
-    v = np.array([base + [5.70], base + [5.20]])
+    limit = 3.5 * 1.4826 * B_N[n]
+    v = np.array([CORE[n] + [limit * (1 + 2e-4)], CORE[n] + [limit * (1 - 2e-4)]])
+    assert np.median(v[0]) == np.median(v[1]) == 0.0 and np.median(np.abs(v[0])) == 1.0
     _, _, n_used, rej = robust_epoch_mean(v, np.ones_like(v), 3.5)
-    assert list(n_used) == [9, 10] and rej[0, 9] and not rej[1].any()
+    assert list(n_used) == [n - 1, n] and rej[0, -1] and not rej[1].any()
 
 
 def test_inter_system_bias_uses_inverse_variance_epoch_means():
