@@ -68,6 +68,10 @@ def test_receiver_correction_at_reference_directions(atx):
         - 0.5 * (7.89e-3 + 7.73e-3),
     ]
     np.testing.assert_allclose(got, want, rtol=0, atol=1e-9)
+    # the last azimuth sector wraps onto the 360.0 row: az 357.5, zen 87.5 is the mean of zenith
+    # 85/90 of rows 355.0 (line 8240: 8.65, 13.64) and 360.0 (line 8241: 8.68, 13.67)
+    pcv = signals.antenna_pcv_m(b, "G01", 87.5, 357.5)
+    assert pcv == pytest.approx(0.25 * (8.65 + 13.64 + 8.68 + 13.67) * 1e-3, rel=0, abs=1e-9)
 
 
 def test_iono_free_receiver_correction(atx):

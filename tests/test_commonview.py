@@ -606,3 +606,13 @@ def test_two_satellite_bins_take_the_pooled_scatter_factor():
     n = big["n_sat"].to_numpy()
     c_day = np.sum(big["scatter_ns"].to_numpy() ** 2 * n) / np.sum(n - 1)
     np.testing.assert_allclose(pair["u_ns"], np.sqrt(c_day / 2.0), rtol=1e-12, atol=0)
+
+
+def test_step_without_window_attribute_is_the_median_spacing():
+    # A table without attrs['window_s'] (not made by ctt.tracks) is matched at its median spacing,
+    # which the result reports: 30-s epochs -> 30 s
+    a = tracks.bin_epochs(station(lambda ts: 5.0 + 0 * ts, GPS10[:3], n_ep=20))
+    b = tracks.bin_epochs(station(lambda ts: 0 * ts, GPS10[:3], n_ep=20, phase=0.4))
+    for df in (a, b):
+        del df.attrs["window_s"]
+    assert cv.common_view(a, b).offset_df.attrs["window_s"] == 30.0

@@ -256,6 +256,35 @@ def test_bin_epochs_single_and_300s():
 
 
 
+def test_bin_uncertainty_follows_the_chi_square_test_with_n_minus_1_dof():
+    # A bin of n points (σ = 1 ns each) keeps its a-priori u = √Σσ²/n while χ² = Σr²/σ² stays within
+    # the 99 % quantile of χ²(n − 1), else it takes the scatter s/√n (s with n − 1 dof). n = 10:
+    # χ²₀.₉₉(9) = 21.67 (scipy; statistics tables), so χ² = 23 takes the scatter, χ² = 20 does not
+    # (with 11 dof the quantile would be 24.72 and both would keep the a-priori u).
+    from scipy import stats
+
+    assert stats.chi2.ppf(0.99, 9) == pytest.approx(21.666, abs=1e-3)
+    df = station_table(lambda ts: 0 * ts, n_ep=600, sats=("G01",))
+    t = df["time"].to_numpy()
+    k = t // (300 * NS_PER_S)
+    sign = np.where((t // (30 * NS_PER_S)) % 2 == 0, 1.0, -1.0)
+    df["clock_ns"] = sign * np.where(k % 2 == 0, np.sqrt(2.3), np.sqrt(2.0))  # 10 values: Σr² = 23 or 20
+    df["sigma_ns"] = 1.0
+    b = tracks.bin_epochs(df, 300)
+    full = b[b["n_points"] == 10]
+    even = (full["mid_time"].to_numpy() // (300 * NS_PER_S)) % 2 == 0
+    assert even.sum() > 10 and (~even).sum() > 10
+    np.testing.assert_allclose(full["u_ns"][even], np.sqrt(23.0 / 9.0 / 10.0), rtol=1e-12, atol=0)
+    np.testing.assert_allclose(full["u_ns"][~even], np.sqrt(10.0) / 10.0, rtol=1e-12, atol=0)
+
+
+def test_sampling_interval_is_the_median_step_in_seconds():
+    # 30-s data with one 5-min gap and a repeated epoch: the median positive step is 30 s exactly
+    t = np.concatenate([np.arange(0, 50), np.arange(60, 100), [99]]) * 30 * NS_PER_S
+    assert tracks.sampling_interval_s(t) == 30.0
+    assert np.isnan(tracks.sampling_interval_s(t[:1]))
+
+
 def test_bin_few_points_threshold_and_bad_bin_length():
     # bin_epochs docstring: a bin is few_points below 2/3 of the nominal count (at least 1); 300-s
     # bins of 30-s data hold 10 points, so 7 points pass and 6 do not
