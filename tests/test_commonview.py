@@ -616,3 +616,14 @@ def test_step_without_window_attribute_is_the_median_spacing():
     for df in (a, b):
         del df.attrs["window_s"]
     assert cv.common_view(a, b).offset_df.attrs["window_s"] == 30.0
+
+
+def test_main_series_of_an_ambiguous_day_is_its_first_system():
+    # main_series docstring: a day with several systems and no combined series keeps its first
+    # system in alphabetical order (ValueError when strict); a day with 'ALL' keeps 'ALL'
+    df = pd.DataFrame({"date": ["2021-01-01"] * 2 + ["2021-01-02"] * 3,
+                       "system": ["G", "E", "G", "E", "ALL"], "offset_ns": [1.0, 2.0, 3.0, 4.0, 5.0]})
+    kept = cv.main_series(df)
+    assert list(kept["system"]) == ["E", "ALL"] and list(kept["offset_ns"]) == [2.0, 5.0]
+    with pytest.raises(ValueError, match="no combined"):
+        cv.main_series(df, strict=True)

@@ -276,6 +276,11 @@ def test_bin_uncertainty_follows_the_chi_square_test_with_n_minus_1_dof():
     assert even.sum() > 10 and (~even).sum() > 10
     np.testing.assert_allclose(full["u_ns"][even], np.sqrt(23.0 / 9.0 / 10.0), rtol=1e-12, atol=0)
     np.testing.assert_allclose(full["u_ns"][~even], np.sqrt(10.0) / 10.0, rtol=1e-12, atol=0)
+    # two points (1 dof): ±2 ns with σ = 1 give χ² = 8 > χ²₀.₉₉(1) = 6.63, so u = s/√2 = √8/√2 = 2 ns
+    pair = df[k == k[100]].iloc[:2].copy()
+    pair["clock_ns"] = [2.0, -2.0]
+    row = tracks.bin_epochs(pair, 300).iloc[0]
+    assert row["n_points"] == 2 and row["u_ns"] == pytest.approx(2.0, rel=1e-12, abs=0)
 
 
 def test_sampling_interval_is_the_median_step_in_seconds():
