@@ -2,13 +2,16 @@
 
 For one station and one observation file, each epoch and each satellite::
 
-    clock = (P − ρ − sagnac − T − I − tide)/c + Δt_sv + Δt_rel + Δt_gd − hardware
+    clock = (P − ρ − sagnac − shapiro − T − I − tide)/c + Δt_sv + Δt_rel + Δt_gd − hardware
 
 where ``P`` is the pseudorange of the chosen signal (or the iono-free
 combination), ``ρ`` the geometric range from the satellite position at the
 transmission instant to the station's antenna reference point at the receive
 instant, ``sagnac`` the extra range from the Earth's rotation during the
-signal flight, ``T`` / ``I`` the modelled slant troposphere and ionosphere,
+signal flight, ``shapiro`` the relativistic range delay in the Earth's
+gravity (IERS 2010 eq. 11.17, 13-19 mm for GPS: it does not cancel for a
+station clock against system time; switched with ``relativity``), ``T`` /
+``I`` the modelled slant troposphere and ionosphere,
 ``tide`` the range change from the solid Earth tide displacement of the
 station, ``Δt_sv`` the satellite clock (broadcast polynomial or precise
 product), ``Δt_rel`` the periodic relativistic correction, ``Δt_gd`` the
@@ -68,7 +71,7 @@ LIGHT_TIME_TOL_S = 1e-12
 COLUMNS = [
     "time", "sat", "system", "signal", "elevation_deg", "azimuth_deg", "clock_ns", "sigma_ns",
     "pseudorange_m", "geometry_m", "sat_clock_ns", "relativity_ns", "group_delay_ns", "sagnac_m",
-    "troposphere_m", "ionosphere_m", "tide_m", "hardware_ns", "residual_ns", "flag",
+    "shapiro_m", "troposphere_m", "ionosphere_m", "tide_m", "hardware_ns", "residual_ns", "flag",
 ]
 
 
@@ -126,7 +129,7 @@ class StationDay:
             r = t.loc[ok, "residual_ns"]
             lines.append(f"  residual RMS against the epoch mean: {np.sqrt(np.mean(r**2)):.2f} ns "
                          f"({np.sqrt(np.mean(r**2)) * C_MPS * 1e-9:.2f} m)")
-            for col, unit in (("troposphere_m", "m"), ("ionosphere_m", "m"), ("sagnac_m", "m"),
+            for col, unit in (("troposphere_m", "m"), ("ionosphere_m", "m"), ("sagnac_m", "m"), ("shapiro_m", "m"),
                               ("tide_m", "m"), ("relativity_ns", "ns"), ("group_delay_ns", "ns"),
                               ("hardware_ns", "ns")):
                 v = t.loc[ok, col].to_numpy()
@@ -696,7 +699,8 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     hw_ep, u_hw = _hardware_ns(station, t_utc, sel, ie, js)
 
     # --- the clock estimate
-    range_total = geometry_m + sagnac_m + tropo_m + iono_m + tide_m
+    shapiro_m = shapiro_delay_m(sat_rot, rx) if opt.relativity else np.zeros_like(geometry_m)
+    range_total = geometry_m + sagnac_m + shapiro_m + tropo_m + iono_m + tide_m
     clock_s = (Pf - range_total) / C_MPS + sat_clock_s + relativity_s + gd_s
     clock_ns = clock_s * 1e9 - hw_ep
 
@@ -769,7 +773,7 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
         "signal": code_label[js], "elevation_deg": elev_deg, "azimuth_deg": azim_deg,
         "clock_ns": clock_ns, "sigma_ns": sigma_ns, "pseudorange_m": Pf,
         "geometry_m": geometry_m, "sat_clock_ns": sat_clock_s * 1e9, "relativity_ns": relativity_s * 1e9,
-        "group_delay_ns": gd_s * 1e9, "sagnac_m": sagnac_m, "troposphere_m": tropo_m,
+        "group_delay_ns": gd_s * 1e9, "sagnac_m": sagnac_m, "shapiro_m": shapiro_m, "troposphere_m": tropo_m,
         "ionosphere_m": iono_m, "tide_m": tide_m, "hardware_ns": hw_ep, "residual_ns": residual,
         "flag": flag.astype(str),
     })
@@ -791,7 +795,7 @@ def measure_station(obs, orbits, station, options: MeasureOptions = MeasureOptio
     info = {"codes": {str(s): str(code_label[k]) for k, s in enumerate(sats_all) if use_sys[k]},
             "signals": opt.signals, "troposphere": met_source if opt.troposphere else "off",
             "ionosphere": iono_info, "tide": "IERS 2010 §7.1.1" if opt.tide else "off",
-            "sagnac": opt.sagnac, "relativity": opt.relativity,
+            "sagnac": opt.sagnac, "relativity": opt.relativity, "shapiro": "IERS 2010 eq. 11.17" if opt.relativity else "off",
             "group_delay": ("broadcast TGD/BGD of the signals used" if reference == "broadcast" else
                             "none: precise clocks refer to the iono-free combination"
                             + (" (single-frequency users carry the satellites' code biases; "

@@ -564,8 +564,7 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
     carry the met truth, so only noise is left (σ0 = 0.3 m): the mean over all satellite-epochs
     must agree within 3.29 standard errors of the mean (two-sided 99.9 %, normal; from the
     configured noise: 0.21 ns iono-free, 0.054 ns single) plus 3 ps (met rounding to 0.1 hPa /
-    0.1 °C / 0.1 % moves the slant delay by < 1 mm at 10° elevation). The Shapiro delay ctt.measure
-    leaves out (below: +0.049 ns) is inside that noise.
+    0.1 °C / 0.1 % moves the slant delay by < 1 mm at 10° elevation).
     """
     from simulated_budget import Z999
 
@@ -574,12 +573,11 @@ def test_measurement_model_recovers_the_truth(tmp_path, systems, signals):
 
 
 @pytest.mark.parametrize("systems, signals, shapiro", [
-    (("G",), "iono-free", False), (("E",), "iono-free", False), (("G", "E"), "single", False),
-    pytest.param(("G",), "iono-free", True, marks=pytest.mark.xfail(strict=True, reason=(
-        "ctt.measure does not apply the Shapiro delay to code (ctt.measure docstring: shapiro_delay_m "
-        "is for the PPP estimator); the simulator puts it on every observation (IERS 2010 eq. 11.17, "
-        "12-19 mm for GPS): measured mean +0.049 ns against a bound of 0.026 ns (GPS iono-free; +0.050 "
-        "single). In common view over 600 km it cancels to < 1 ps (test_against_simulation.py)"))),
+    # the simulator puts the Shapiro delay on every observation (IERS 2010 eq. 11.17, 12-19 mm
+    # for GPS); ctt.measure applies it too (column shapiro_m). Before it did, the mean was
+    # +0.049 ns against a bound of 0.026 ns (GPS iono-free), which these cases caught; with the
+    # simulator's Shapiro delay switched off, ctt's now shows as -0.051 ns the other way
+    (("G",), "iono-free", True), (("E",), "iono-free", True), (("G", "E"), "single", True),
 ])
 def test_measurement_model_recovers_the_truth_nearly_noiseless(tmp_path, systems, signals, shapiro):
     """As above with σ0 = 0.01 m, so the bound on the mean is the noise's own standard error.

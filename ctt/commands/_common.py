@@ -53,7 +53,9 @@ def add_model_arguments(p) -> None:
     g.add_argument("--iono-model", choices=("klobuchar", "ionex"), default=None,
                    help="ionosphere for single-frequency processing (default klobuchar; ionex needs --ionex)")
     for name in SWITCHES:
-        g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {name} correction off (diagnostics)")
+        what = {"relativity": "relativity corrections (satellite clock term and Shapiro delay)"}.get(
+            name, f"{name} correction")
+        g.add_argument(f"--no-{name}", action="store_true", help=f"switch the {what} off (diagnostics)")
 
 
 def seconds_arg(text: str) -> float:
