@@ -824,8 +824,8 @@ def estimate_step(t_s, x, epoch_s, step_s, *, x_others_removed=None, lo_s=-math.
         x(t) = a + b·(t − t_e) + s·H(t − t_e) + f·(t − t_e)·H(t − t_e)
 
     i.e. offset and slope on each side, so ``s`` is the phase step *at* t_e and
-    ``f`` (ns/s) the change of slope. Samples closer than half a sampling
-    interval ``step_s`` to t_e are left out (their averaging window, e.g. a
+    ``f`` (ns/s) the change of slope. Samples within half a sampling
+    interval ``step_s`` of t_e, bounds included, are left out (their averaging window, e.g. a
     13-minute track, may straddle the change), and so are samples beyond
     ``lo_s``/``hi_s`` (neighbouring changes). When the search put the change at
     ``found_s`` rather than at the logged ``epoch_s``, the samples between the

@@ -165,6 +165,32 @@ def candidate_mutations(src: str):
     return out
 
 
+def explained_survivors(path=None):
+    """Rows of ``scripts/mutation_survivors.md``: (module, code on the line, mutations, class).
+
+    A survivor is *explained* when its module and mutation text match a row and the row's
+    code fragment is on the mutated line (so a row keeps matching when lines move)."""
+    path = path or ROOT / "scripts" / "mutation_survivors.md"
+    rows = []
+    if not path.exists():
+        return rows
+    for line in path.read_text().splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) >= 5 and cells[0] in TESTS:
+            code = cells[1].strip("`")
+            muts = [m for m in cells[2].split("`")[1::2]]
+            rows.append((cells[0], code, muts, cells[3]))
+    return rows
+
+
+def explain(rows, module, line_text, desc):
+    """The class of the first matching row of :func:`explained_survivors`, or None."""
+    for m, code, muts, klass in rows:
+        if m == module and desc in muts and code in line_text:
+            return klass
+    return None
+
+
 def make_copy() -> pathlib.Path:
     """Copy the tree beside the repository (so ``../shared/data`` still resolves)."""
     tmp = pathlib.Path(tempfile.mkdtemp(prefix=".ctt-mutation-", dir=ROOT.parent))
@@ -289,6 +315,8 @@ def main(argv=None):
                   for m in modules if k < len(per_mod.get(m, [])) for r in [per_mod[m][k]]]
         t0 = time.perf_counter()
         line_starts = {m: _offsets((copy / "ctt" / f"{m}.py").read_text()) for m in modules}
+        line_text = {m: (copy / "ctt" / f"{m}.py").read_text().splitlines() for m in modules}
+        known = explained_survivors(copy / "scripts" / "mutation_survivors.md")
         for m, desc, start, end, repl, line in sample:
             res, dt, by = mutate_and_run(copy, m, start, end, repl, a.timeout, extra)
             rows.append((m, line, desc, res, dt, by, start - line_starts[m][line]))
@@ -300,21 +328,30 @@ def main(argv=None):
         print(f"\n{len(valid)} decided mutants ({len(rows) - len(valid) - n_to} invalid, {n_to} timed out), "
               f"{len(surv)} survived: survival rate {100.0 * len(surv) / max(1, len(valid)):.1f} %  "
               f"({wall:.0f} s wall)")
+        klass = {id(r): explain(known, r[0], line_text[r[0]][r[1] - 1], r[2]) for r in surv}
+        unexplained = [r for r in surv if klass[id(r)] is None]
         per_module = {}
         for m in modules:
             dec = [r for r in valid if r[0] == m]
-            per_module[m] = {"decided": len(dec), "survived": sum(r[3] == "survived" for r in dec)}
-            print(f"  {m:12s} {per_module[m]['survived']:3d} of {len(dec):3d} survived")
-        for m, line, desc, *_ in surv:
-            print(f"  SURVIVOR ctt/{m}.py:{line}: {desc}")
+            per_module[m] = {"decided": len(dec), "survived": sum(r[3] == "survived" for r in dec),
+                             "unexplained": sum(r[0] == m for r in unexplained)}
+            print(f"  {m:12s} {per_module[m]['survived']:3d} of {len(dec):3d} survived, "
+                  f"{per_module[m]['unexplained']} not explained")
+        for r in surv:
+            print(f"  SURVIVOR ctt/{r[0]}.py:{r[1]}: {r[2]}  [{klass[id(r)] or 'NOT EXPLAINED'}]")
+        print(f"{len(surv) - len(unexplained)} of the {len(surv)} survivors are explained in "
+              f"scripts/mutation_survivors.md; unexplained: {len(unexplained)} of {len(valid)} decided "
+              f"({100.0 * len(unexplained) / max(1, len(valid)):.1f} %)")
         if a.json:
             pathlib.Path(a.json).write_text(json.dumps({
                 "seed": a.seed, "max": a.max, "fast": a.fast, "modules": modules, "wall_s": round(wall, 1),
                 "decided": len(valid), "survived": len(surv), "timed_out": n_to,
+                "unexplained": len(unexplained),
                 "survival_rate": len(surv) / max(1, len(valid)), "per_module": per_module,
-                "mutants": [{"module": m, "line": line, "column": col, "mutation": desc, "result": res,
-                             "seconds": round(dt, 1), "killed_by": by if isinstance(by, str) else " ".join(by)}
-                            for m, line, desc, res, dt, by, col in rows]}, indent=1, ensure_ascii=False) + "\n")
+                "mutants": [{"module": r[0], "line": r[1], "column": r[6], "mutation": r[2], "result": r[3],
+                             "seconds": round(r[4], 1), "killed_by": r[5] if isinstance(r[5], str) else " ".join(r[5]),
+                             "code": line_text[r[0]][r[1] - 1].strip(), "explained_as": klass.get(id(r))}
+                            for r in rows]}, indent=1, ensure_ascii=False) + "\n")
         return 0
     finally:
         shutil.rmtree(copy, ignore_errors=True)

@@ -390,7 +390,7 @@ def test_glonass_without_channel_numbers_does_not_stop_a_gps_day(tmp_path):
 
 def test_estimate_position_recovers_an_invented_truth():
     """Invented geometry (simulation truth): 8 satellites at GPS orbit radius, 200 epochs,
-    a receiver clock per epoch of up to 1 ms, 0.5 m code noise and a 30 m outlier; the start
+    a receiver clock per epoch of up to 1 ms, 0.5 m code noise and outliers of 30 m and 4 m; the start
     is 50 m off. The estimate must land within 5 formal sigmas of the truth, and the
     formal sigma must be the one of the design (a few cm for 1,600 rows)."""
     from ctt.measure import estimate_position, position_check
@@ -406,13 +406,16 @@ def test_estimate_position_recovers_an_invented_truth():
     clock_m = rng.uniform(-3e5, 3e5, size=n_ep)
     pc = np.linalg.norm(sat - truth, axis=2) + clock_m[:, None] + rng.normal(0, 0.5, size=(n_ep, n_sat))
     pc[17, 3] += 30.0
+    # and an 8σ one: above reject_k × scale = 5 × 1.4826·MAD ≈ 2.4 m (0.5 m noise, one clock per epoch
+    # removed), so it goes too; a 30 m outlier alone does not pin the threshold
+    pc[50, 5] += 4.0
     group = np.repeat(np.arange(n_ep), n_sat)
     est = estimate_position(sat.reshape(-1, 3), pc.ravel(), group, np.ones(n_ep * n_sat), truth + [30.0, -20.0, 34.6])
     assert est is not None
     err = est["position_m"] - truth
     assert np.all(np.abs(err) < 5 * est["sigma_m"]), (err, est["sigma_m"])
     assert np.all(est["sigma_m"] < 0.2) and est["rms_m"] == pytest.approx(0.5, rel=0.15)
-    assert est["n_used"] == n_ep * n_sat - 1  # the outlier left out
+    assert est["n_used"] == n_ep * n_sat - 2  # the two outliers left out
     chk = position_check(est, truth + [0.0, 0.0, 12.0])
     assert chk["status"] == "flagged" and chk["distance_m"] == pytest.approx(12.0, abs=0.3)
 

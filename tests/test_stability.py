@@ -345,6 +345,32 @@ def test_step_window_reaches_max_window_on_white_noise():
     assert abs(est["size_ns"] - 5.0) < 4 * est["u_ns"]
 
 
+def test_step_window_reaches_a_quarter_of_the_series():
+    # ... and up to a quarter of the series (docstring): 256 samples allow k = 64, never more. On
+    # white noise the largest k usually has the smallest spread (above); over five draws it is chosen
+    wins = []
+    for seed in range(5):
+        t_s = np.arange(256) * 30.0
+        x = np.random.default_rng(seed).normal(size=256)
+        x[128:] += 5.0
+        wins.append(stability.estimate_step(t_s, x, 0.5 * (t_s[127] + t_s[128]), 30.0)["window"])
+    assert max(wins) == 64
+
+
+def test_step_estimated_with_three_samples_on_a_side():
+    # estimate_step returns None only with fewer than 3 samples on a side (docstring): with exactly
+    # 3 before the epoch the step is estimated from them (offset and slope fit on 3 points)
+    rng = np.random.default_rng(5)
+    t_s = np.arange(200) * 30.0
+    x = rng.normal(scale=0.1, size=200)
+    x[4:] += 5.0
+    # epoch midway between samples 3 and 4: those two lie half an interval away and are left out,
+    # samples 0-2 remain before it
+    est = stability.estimate_step(t_s, x, 0.5 * (t_s[3] + t_s[4]), 30.0)
+    assert est is not None and est["n_before"] == 3 and abs(est["size_ns"] - 5.0) < 4 * est["u_ns"]
+    assert stability.estimate_step(t_s, x, 0.5 * (t_s[2] + t_s[3]), 30.0) is None
+
+
 def test_no_changes_in_pure_white_noise():
     # False alarms: the BIC-like penalty plus the 5σ local test keep white PM clean.
     for draw in range(5):
