@@ -371,6 +371,19 @@ def test_step_estimated_with_three_samples_on_a_side():
     assert stability.estimate_step(t_s, x, 0.5 * (t_s[2] + t_s[3]), 30.0) is None
 
 
+def test_step_found_in_a_year_of_data():
+    # A year of 30-min points (invented: white PM 0.5 ns, +4 ns at a third): the search's time
+    # covariate is scaled to [0, 1]; unscaled (seconds, up to 3e7) the least-squares segments are
+    # too ill-conditioned for numpy's lstsq and the step is lost
+    n = 365 * 48
+    t = (np.arange(n) * 1800 * NS).astype(np.int64)
+    x = np.random.default_rng(1).normal(scale=0.5, size=n)
+    x[n // 3:] += 4.0
+    (ch,) = stability.detect_changes(t, x).changes
+    assert ch.kind == "phase step" and abs(ch.size - 4.0) < 4 * ch.u_size
+    assert abs(ch.time_ns - t[n // 3]) <= 1800 * NS
+
+
 def test_no_changes_in_pure_white_noise():
     # False alarms: the BIC-like penalty plus the 5σ local test keep white PM clean.
     for draw in range(5):

@@ -229,6 +229,8 @@ def test_bin_epochs_single_and_300s():
     assert e["mid_time"].is_monotonic_increasing
     assert e.loc[e["flag"] != "ok", "n_points"].sum() == 0
     assert (e["flag"] == "cycle_slip").sum() == 1
+    # without a system column the system is the satellite id's letter (RINEX 3 ids)
+    assert set(tracks.bin_epochs(df.drop(columns=["system"]))["system"]) == {"G"}
     # 300-s bins: mean of 10 points, u = σ/√10 (error propagation of a mean)
     b = tracks.bin_epochs(df, 300)
     full = b[b["n_points"] == 10]
