@@ -452,6 +452,12 @@ def test_code_bias_estimates_recover_simulated_biases():
     # clock of its epoch, ~6 in view, is taken out of its residuals), never the 2-7 of correlated
     # multipath; ~290 block means give it to about +-0.1
     assert 0.65 < est.attrs["block_variance_factor"] < 1.1
+    # residual RMS per satellite: its white noise, less the share it has in its epochs' clocks
+    # (about 1/6 of the variance with ~6 in view, between 1/12 and 1/3 with these weights), to
+    # the 2 % sampling error of an RMS over ~1,440 points
+    sig_rms = table.groupby("sat")["sigma_ns"].apply(lambda s: np.sqrt(np.mean(s ** 2)))
+    ratio = est["rms_ns"] / sig_rms.loc[est.index]
+    assert np.all((ratio > 0.78) & (ratio < 1.0)), ratio
 
 
 def test_smoothing_sigma_ratio_is_the_residual_rms_ratio_per_band():

@@ -303,6 +303,9 @@ def test_bin_few_points_threshold_and_bad_bin_length():
     mids = [kk * 300 * NS_PER_S + 150 * NS_PER_S for kk in full[1:3]]
     assert list(b.loc[mids, "n_points"]) == [7, 6]
     assert list(b.loc[mids, "flag"]) == ["ok", "few_points"]
+    # bins as long as the sampling interval hold one point: 2/3 of 1 rounds up to 1, and "at least 1"
+    one = tracks.bin_epochs(df, 30)
+    assert (one["n_points"] == 1).all() and (one["flag"] == "ok").all()
     for bad in (0.0, -300.0):
         with pytest.raises(ProcessingError, match="bin length must be positive"):
             tracks.bin_epochs(df, bad)
