@@ -163,6 +163,29 @@ def test_recovers_the_clock_to_a_picosecond(tmp_path):
     assert np.max(np.abs(err)) < 2e-3  # ns
 
 
+def test_summary_lines_report_the_table(tmp_path):
+    # the printed summary states the table's own figures: values used, residual RMS (ns and m at
+    # c = 299 792 458 m/s), median and max |value| of each non-zero correction column
+    import re
+
+    rx = _geodetic_xyz(46.0, 7.0, 500.0)
+    obs = _simulate(rx, lambda t: 3e-4 + 1e-9 * t, 115e-9)
+    day = measure_station(obs, InertialOrbits(), _station(tmp_path, rx), MeasureOptions(tide=True, troposphere=True,
+                                                                                         ionosphere=False))
+    t = day.table
+    ok = t["flag"] == "ok"
+    text = "\n".join(day.summary_lines())
+    assert f"{int(ok.sum())} of {len(t)} values used" in text
+    rms = np.sqrt(np.mean(t.loc[ok, "residual_ns"] ** 2))
+    assert f"residual RMS against the epoch mean: {rms:.2f} ns ({rms * 0.299792458:.2f} m)" in text
+    for col, unit in (("troposphere_m", "m"), ("tide_m", "m"), ("hardware_ns", "ns")):
+        v = np.abs(t.loc[ok, col].to_numpy())
+        assert v.max() > 0
+        assert f"median |{np.median(v):.3f}| {unit}, max |{v.max():.3f}| {unit}" in text, col
+    assert "ionosphere_m" not in text          # all zero: no line
+    assert not re.search(r"system [A-Z]:", text)  # one system: no per-system lines
+
+
 def test_sagnac_matches_closed_form_and_matters_east_west(tmp_path):
     # IS-GPS-200 (Earth rotation correction): Δρ ≈ ω_e/c·(x_s·y_r − y_s·x_r), first order.
     orb = InertialOrbits()

@@ -181,6 +181,14 @@ def test_track_uncertainty_matches_ols_and_simulation():
     # residual-based u: s²·lever, s² with 24 dof, unbiased for σ²
     ratio_fit = np.mean(full["u_fit_ns"] ** 2) / (sigma ** 2 * lever)
     assert abs(ratio_fit - 1) < 4 * np.sqrt(2 / (24 * n))
+    # and track by track it is numpy's least-squares covariance (np.polyfit, cov=True: scaled by
+    # the residual variance with n − 2 dof) of the intercept at the midpoint
+    for _, row in full.iloc[:5].iterrows():
+        dt = df["time"] - row["mid_time"]
+        pts = df[(df["sat"] == row["sat"]) & (dt >= -390 * NS_PER_S) & (dt < 390 * NS_PER_S)]
+        assert len(pts) == 26
+        _, cov = np.polyfit((pts["time"].to_numpy() - row["mid_time"]) / 1e9, pts["clock_ns"].to_numpy(), 1, cov=True)
+        assert row["u_fit_ns"] == pytest.approx(np.sqrt(cov[1, 1]), rel=1e-9, abs=0)
     # slope variance σ²/Sxx, Sxx = Σ(x−x̄)²
     sl = full["slope_ps_s"].to_numpy() / 1e3
     ratio_sl = np.mean(sl ** 2) / (sigma ** 2 / np.sum((x - x.mean()) ** 2))
