@@ -95,6 +95,11 @@ def test_precise_status_of_a_missing_satellite_and_an_instant_outside(sp3):
     assert [P.PRECISE_STATUS_NAMES[s] for s in st.status] == ["NO_DATA", "OK", "OUT_OF_SPAN"]
     # codes 0-2 keep the broadcast codes' values (ctt.orbits' status comment)
     assert (P.STATUS_OK, P.STATUS_NO_DATA) == (P.OK, P.NO_EPHEMERIS)
+    # the product's first and last epochs are inside its span: the clock there is the tabulated one
+    i = sp3.sat_index("G05")
+    ends = po.states(np.array(["G05", "G05"]), np.array([sp3.time_ns[0], sp3.time_ns[-1]]))
+    assert (ends.status == P.STATUS_OK).all()
+    np.testing.assert_allclose(ends.clock_s, [sp3.clock_s[0, i], sp3.clock_s[-1, i]], rtol=0, atol=1e-18)
 
 
 def test_leave_one_out_interpolation_error_on_igs_final(sp3):
@@ -193,3 +198,16 @@ def test_compare_products_cli_json(shared_data, capsys, comparison):
                  "--sp3", str(shared_data / "igs21385.sp3")])
     text = capsys.readouterr().out
     assert code == 0 and "G11" in text and "centre of mass" in text
+
+
+def test_satellite_offset_is_the_iono_free_combination(shared_set):
+    # igs08_1648.atx lines 390-402: G05 (BLOCK IIR-M) G01 and G02 offsets both (0, 0, 822.60) mm;
+    # the iono-free combination of equal offsets is that offset
+    atx = ATX.read_antex(shared_set("real-2011-283") / "igs08_1648.atx.gz")
+    blk = atx.offset("G05", civil_to_ns(2011, 10, 10))
+    assert P._if_offset("G", blk["pco_m"]) == pytest.approx((0.0, 0.0, 0.8226), abs=1e-12)
+    # different offsets: (f1² p1 − f2² p2)/(f1² − f2²) with IS-GPS-200 L1/L2 (2.546 p1 − 1.546 p2)
+    f1, f2 = 1575.42**2, 1227.60**2
+    want = [(f1 * a - f2 * b) / (f1 - f2) for a, b in ((0.1, 0.0), (0.0, 0.3), (1.0, 2.0))]
+    got = P._if_offset("G", {"G01": (0.1, 0.0, 1.0), "G02": (0.0, 0.3, 2.0)})
+    np.testing.assert_allclose(got, want, rtol=1e-14, atol=0)

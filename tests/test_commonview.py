@@ -433,6 +433,27 @@ def test_budget_type_a_white_and_correlated():
     assert cv.uncertainty_budget(white, tdev_ns_at_day=0.123)["type_a_ns"] == 0.123
 
 
+
+def test_budget_scatter_error_and_tdev_threshold():
+    # Weighted mean and its scatter-based standard error √(Σw r²/((N−1)Σw)) (error propagation of a
+    # weighted mean with weights known up to a factor, GUM), evaluated here on 32 invented bins;
+    # TDEV at span is considered from min_tdev_points (32) bins on, not below
+    rng = np.random.default_rng(8)
+    n = 32
+    t = 10**18 + np.arange(n, dtype=np.int64) * 300 * NS_PER_S
+    x = rng.normal(0.0, 1.0, n)
+    u = rng.uniform(0.5, 2.0, n)
+    df = pd.DataFrame({"time": t, "system": "G", "offset_ns": x, "u_ns": u, "flag": "ok"})
+    b = cv.uncertainty_budget(df)
+    w = 1 / u ** 2
+    m = np.sum(w * x) / np.sum(w)
+    assert b["mean_offset_ns"] == pytest.approx(m, rel=1e-12, abs=0)
+    se = np.sqrt(np.sum(w * (x - m) ** 2) / ((n - 1) * np.sum(w)))
+    assert b["type_a_detail"]["se_scatter_ns"] == pytest.approx(se, rel=1e-12, abs=0)
+    assert "tdev_span_ns" in b["type_a_detail"]
+    assert "tdev_span_ns" not in cv.uncertainty_budget(df.iloc[:31])["type_a_detail"]
+
+
 # ---------------------------------------------------------------- flags and refusals
 
 def test_bin_flags_no_data_high_scatter_and_refusals():

@@ -382,6 +382,22 @@ def test_inter_system_bias_uses_inverse_variance_epoch_means():
     assert b["mean_ns"] == pytest.approx(18.0, rel=1e-14, abs=0) and b["n_epochs"] == 2
 
 
+def test_code_bias_uncertainty_needs_two_blocks():
+    # estimate_code_biases: u = SD(block means)/√n_blocks, NaN with fewer than 2 blocks (docstring);
+    # 4 satellites over exactly two hour-blocks, then over one (invented white noise)
+    from ctt.measure import BIAS_BLOCK_S, estimate_code_biases
+
+    rng = np.random.default_rng(3)
+    n_ep = int(2 * BIAS_BLOCK_S // 30)
+    t = np.arange(n_ep, dtype=np.int64) * 30 * 10**9
+    table = pd.DataFrame({"time": np.repeat(t, 4), "sat": ["G01", "G02", "G03", "G04"] * n_ep, "system": "G",
+                          "flag": "ok", "sigma_ns": 1.0, "clock_ns": rng.normal(0, 1.0, 4 * n_ep)})
+    two = estimate_code_biases(table)
+    assert (two["n_blocks"] == 2).all() and np.isfinite(two["u_ns"]).all()
+    one = estimate_code_biases(table[table["time"] < BIAS_BLOCK_S * 10**9])
+    assert (one["n_blocks"] == 1).all() and np.isnan(one["u_ns"]).all()
+
+
 def test_met_gap_longer_than_four_intervals_falls_back_to_the_standard_atmosphere():
     # _met_at_epochs: inside a gap longer than four sampling intervals the file is not used
     # (standard atmosphere instead). 10-min records with a 4-interval and a 5-interval gap.
