@@ -294,14 +294,18 @@ def main(argv=None):
         print(f"{n_pool} candidate mutations in {', '.join(modules)}; sampling {len(sample)}, "
               f"stratified by module (seed {a.seed})")
         if a.replay:
-            wanted = [(r["module"], r["line"], r["mutation"], r.get("column"))
+            # a row is found by its code line when the file gives it (lines may have moved since),
+            # else by its line number; the mutation text and column must match too
+            wanted = [(r["module"], r["line"], r["mutation"], r.get("column"), r.get("code"))
                       for r in json.loads(pathlib.Path(a.replay).read_text())["mutants"] if r["result"] == "survived"]
             sample = []
-            for m, line, desc, col in wanted:
+            for m, line, desc, col, code in wanted:
                 src = (copy / "ctt" / f"{m}.py").read_text()
-                starts = _offsets(src)
-                hits = [(m, *c) for c in candidate_mutations(src) if c[4] == line and c[0] == desc
-                        and (col is None or c[1] - starts[line] == col)]
+                starts, lines = _offsets(src), src.splitlines()
+                hits = [(m, *c) for c in candidate_mutations(src) if c[0] == desc
+                        and (col is None or c[1] - starts[c[4]] == col)
+                        and (lines[c[4] - 1].strip() == code if code else c[4] == line)]
+                hits.sort(key=lambda h: abs(h[5] - line))
                 if hits:
                     sample.append(hits[0])
                 else:
