@@ -469,3 +469,45 @@ def test_days_with_and_without_extra_columns_load_together(tmp_path):
         got = a.load_offsets(PAIR)
     assert len(got) == 20
     assert (got["u_type_a_ns"][:10] == 0.25).all() and got["u_type_a_ns"][10:].isna().all()
+
+
+def test_satellite_rows_are_one_compressed_block_per_day_and_old_rows_still_read(tmp_path):
+    """Per-satellite rows are stored as one zlib block per day and read back exactly (floats by their
+    shortest round-trip text, as before); an archive written with the previous row-per-satellite
+    layout is still read, and the block is several times smaller than the rows it replaces."""
+    import json
+    import sqlite3
+
+    from ctt.archive import Archive
+
+    rng = np.random.default_rng(1)
+    n = 3000
+    sats = pd.DataFrame({"time_utc_ns": T0 + np.arange(n, dtype=np.int64) * 30_000_000_000,
+                         "sat": [f"G{k % 32 + 1:02d}" for k in range(n)],
+                         "diff_ns": rng.normal(0, 3, n), "elevation_a_deg": rng.uniform(5, 90, n),
+                         "flag": np.where(rng.random(n) < 0.05, "outlier", "ok")})
+    sats.loc[7, "diff_ns"] = np.nan
+    off, _ = make_day(0, n=10)
+    db = tmp_path / "a.sqlite"
+    with Archive(db) as a:
+        a.store_day("p", "2021-01-01", off, sats)
+        back = a.load_satellites("p", "2021-01-01")
+        assert a.verify_day("p", "2021-01-01")
+    pd.testing.assert_frame_equal(back, sats, check_dtype=False)
+    assert np.array_equal(back["diff_ns"].to_numpy(), sats["diff_ns"].to_numpy(), equal_nan=True)  # exact
+    con = sqlite3.connect(db)
+    size = con.execute("SELECT length(data) FROM satellite_days").fetchone()[0]
+    raw = sum(len(json.dumps(r)) for r in back.to_dict(orient="records"))
+    assert con.execute("SELECT COUNT(*) FROM satellites").fetchone()[0] == 0
+    # the previous layout: the same rows one per line of table satellites
+    con.execute("DELETE FROM satellite_days")
+    con.executemany("INSERT INTO satellites VALUES (?,?,?,?,?,?)",
+                    [("p", "2021-01-01", i, int(r["time_utc_ns"]), r["sat"], json.dumps(r))
+                     for i, r in enumerate(sats.to_dict(orient="records"))])
+    con.commit()
+    con.close()
+    with Archive(db) as a:
+        pd.testing.assert_frame_equal(a.load_satellites("p", "2021-01-01"), sats, check_dtype=False)
+        assert a.verify_day("p", "2021-01-01")
+    print(f"\n{n} satellite rows: {raw} bytes as JSON rows, {size} bytes as one block ({raw / size:.1f}x)")
+    assert size * 3 < raw

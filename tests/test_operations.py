@@ -31,7 +31,10 @@ def demo(tmp_path):
 def _counts(db):
     con = sqlite3.connect(db)
     try:
-        return {t: con.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in ("offsets", "satellites", "runs")}
+        out = {t: con.execute(f"SELECT COUNT(*) FROM {t}").fetchone()[0] for t in ("offsets", "runs")}
+        # per-satellite rows: one compressed block per day (ctt.archive, table satellite_days)
+        out["satellites"] = con.execute("SELECT COALESCE(SUM(n_rows), 0) FROM satellite_days").fetchone()[0]
+        return out
     finally:
         con.close()
 
