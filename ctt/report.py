@@ -137,11 +137,14 @@ def series_from_frame(frame: pd.DataFrame, column: str = "offset_ns", system: st
     if column not in cols:
         raise FileFormatError(path, 1, f"a value column {column!r} (choose one with --column)", ",".join(cols))
     if "system" in cols:
-        systems = sorted(set(frame["system"].astype(str)))
-        if system is None and len(systems) > 1:
-            system = "ALL" if "ALL" in systems else systems[0]
         if system is not None:
             frame = frame[frame["system"].astype(str) == system]
+        elif frame["system"].nunique() > 1:
+            # the main series of each day ('ALL' where a day has it, else its one system), so a
+            # day processed with GPS only is kept beside days with a combined series
+            from .commonview import main_series
+
+            frame = main_series(frame)
     if len(frame) == 0:
         raise NoDataError(f"{path}: no data rows")
     if tcol == "time_utc_ns":

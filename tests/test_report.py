@@ -253,3 +253,24 @@ def test_too_short_duplicate_and_off_grid_series(tmp_path, capsys):
     assert main(["stability", str(p), "--column", "value", "--json"]) == 0
     g = json.loads(capsys.readouterr().out)["grid"]
     assert g["n_snapped"] == 1 and g["max_shift_s"] == pytest.approx(0.03 * 86400, abs=1)
+
+
+def test_series_from_frame_keeps_each_days_main_series():
+    """A table of several days where one day was processed with GPS only and the others with
+    G+E (series G, E and ALL): each day contributes its main series (ctt.commonview.main_series:
+    'ALL' where a day has it, else its one system), so the GPS-only day is not dropped (it was,
+    when 'ALL' was picked for the whole table). Invented rows."""
+    from ctt.report import series_from_frame
+
+    from ctt.timescales import parse_iso
+
+    t0, day = parse_iso("2021-01-01T00:00:00Z"), 86_400 * 10**9
+    rows = []
+    for d, systems in ((0, ("G", "E", "ALL")), (1, ("G",)), (2, ("G", "E", "ALL"))):
+        for k in range(3):
+            for s in systems:
+                rows.append({"time_utc_ns": t0 + d * day + k * 960 * 10**9, "system": s,
+                             "offset_ns": {"G": 1.0, "E": 2.0, "ALL": 1.5}[s] + d, "u_ns": 0.5, "flag": "ok"})
+    s = series_from_frame(pd.DataFrame(rows))
+    assert len(s.value) == 9                                   # 3 points on each of the 3 days
+    np.testing.assert_allclose(s.value, [1.5] * 3 + [2.0] * 3 + [3.5] * 3)   # ALL, G (day 1), ALL
