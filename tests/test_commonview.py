@@ -346,8 +346,15 @@ def test_coordinate_propagation_is_the_pipeline_linear_map():
             assert shift == pytest.approx(sign * ubar[k] / C * 1e9, rel=1e-9, abs=1e-9)
     # geometry sanity: the up component of a mean line of sight over a sky above
     # 10° is positive and dominant (horizontal parts partly cancel)
-    ubar, _ = cv.effective_line_of_sight(r0, "A")
+    ubar, per_bin = cv.effective_line_of_sight(r0, "A")
     assert ubar[2] > 0.3 and ubar[2] > np.hypot(ubar[0], ubar[1])
+    # independent E, N, U errors combine in quadrature through the line of sight (GUM): the day's
+    # figure with the mean line of sight, the per-bin one averaged over the bins' own
+    sig = np.array([0.3, 0.2, 0.5])  # m, invented
+    day, one_bin = cv.coordinate_uncertainty_ns(r0, "A", sig)
+    assert day == pytest.approx(np.sqrt(np.sum((sig * ubar) ** 2)) / C * 1e9, rel=1e-12, abs=0)
+    assert one_bin == pytest.approx(np.sqrt(np.mean(np.sum((sig * per_bin) ** 2, axis=1))) / C * 1e9,
+                                    rel=1e-12, abs=0)
 
 
 @pytest.mark.slow

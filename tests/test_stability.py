@@ -384,6 +384,26 @@ def test_step_found_in_a_year_of_data():
     assert abs(ch.time_ns - t[n // 3]) <= 1800 * NS
 
 
+def test_step_logged_after_the_search_found_it():
+    # estimate_step: when the search put the change at found_s before the logged epoch, the samples
+    # from found_s (half an interval before it, bounds included) to the epoch are ambiguous and
+    # left out; the first sample of the new segment must not count as a "before" sample
+    rng = np.random.default_rng(1)
+    t_s = np.arange(400) * 30.0
+    x = rng.normal(scale=0.2, size=400)
+    x[200:] += 20.0                                  # invented: +20 ns from sample 200 on
+    est = stability.estimate_step(t_s, x, t_s[203], 30.0, found_s=t_s[200])
+    assert abs(est["size_ns"] - 20.0) < 4 * est["u_ns"]
+
+
+def test_short_series_noise_type_defaults_to_white_fm():
+    # _noise_ids: with fewer than 30 samples not even m = 1 can be identified; white FM (α = 0)
+    # is assumed (module docstring), and its EDF used
+    x = np.cumsum(np.random.default_rng(2).normal(size=20)) * 1e-9
+    d = stability.deviation("oadev", x, 1.0, taus=[1, 2])
+    assert list(d.alpha_int) == [0, 0] and np.all(np.isnan(d.alpha))
+
+
 def test_no_changes_in_pure_white_noise():
     # False alarms: the BIC-like penalty plus the 5σ local test keep white PM clean.
     for draw in range(5):

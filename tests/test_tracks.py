@@ -293,6 +293,14 @@ def test_bin_uncertainty_follows_the_chi_square_test_with_n_minus_1_dof():
     assert row["n_points"] == 2 and row["u_ns"] == pytest.approx(2.0, rel=1e-12, abs=0)
 
 
+def test_one_track_schedule():
+    # a schedule given as one track start (UTC) gives that track for each satellite
+    df = station_table(lambda ts: 40.0 + 2e-3 * ts, n_ep=120)
+    start = tracks.schedule_for_times(df["time"])[:1]
+    tr = tracks.fit_tracks(df, schedule=start)
+    assert len(tr) == 3 and (tr["track_start_utc_ns"] == start[0]).all()
+
+
 def test_sampling_interval_is_the_median_step_in_seconds():
     # 30-s data with one 5-min gap and a repeated epoch: the median positive step is 30 s exactly
     t = np.concatenate([np.arange(0, 50), np.arange(60, 100), [99]]) * 30 * NS_PER_S
