@@ -322,6 +322,9 @@ def test_bin_few_points_threshold_and_bad_bin_length():
     # bins as long as the sampling interval hold one point: 2/3 of 1 rounds up to 1, and "at least 1"
     one = tracks.bin_epochs(df, 30)
     assert (one["n_points"] == 1).all() and (one["flag"] == "ok").all()
+    # a table of a single row still gives its bin (its sampling unknown: nominal count 1)
+    lone = tracks.bin_epochs(df.iloc[:1], 300)
+    assert len(lone) == 1 and lone["n_points"].iloc[0] == 1
     for bad in (0.0, -300.0):
         with pytest.raises(ProcessingError, match="bin length must be positive"):
             tracks.bin_epochs(df, bad)
