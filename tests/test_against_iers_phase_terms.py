@@ -53,6 +53,33 @@ def test_windup_follows_the_satellite_yaw_rotation():
     assert abs(w[-1] - w[0]) == pytest.approx(11.0 / 12.0, abs=1e-3)
 
 
+def test_windup_at_a_low_satellite_by_the_formula():
+    """Wu et al. (1993) as written in Kouba (2009, §2.3; from memory), evaluated here step by step
+    for satellites far from the zenith (where the line of sight has all three components): unit k
+    from satellite to receiver, D' = x_s − k(k·x_s) − k × y_s, D = x_r − k(k·x_r) + k × y_r with
+    the receiver's north and west axes, Δφ = sign(k·(D' × D))·arccos(D'·D/|D'||D|)/2π; satellite
+    axes of the nominal yaw-steering frame (z to the Earth's centre, y = z × Sun direction)."""
+    lat, lon = math.radians(46.9), math.radians(7.5)
+    rx = geodesy.geodetic_to_ecef(lat, lon, 950.0)
+    north = np.array([-math.sin(lat) * math.cos(lon), -math.sin(lat) * math.sin(lon), math.cos(lat)])
+    east = np.array([-math.sin(lon), math.cos(lon), 0.0])
+    sats = np.array([[15_000e3, 20_000e3, 5_000e3], [5_000e3, -10_000e3, 23_000e3], [24_000e3, 3_000e3, -9_000e3]])
+    sun = np.array([1.2e11, -8.0e10, 3.0e10])
+    want = []
+    for s in sats:
+        z = -s / np.linalg.norm(s)
+        e = (sun - s) / np.linalg.norm(sun - s)
+        y = np.cross(z, e) / np.linalg.norm(np.cross(z, e))
+        x = np.cross(y, z)
+        k = (rx - s) / np.linalg.norm(rx - s)
+        d_sat = x - k * (k @ x) - np.cross(k, y)
+        d_rx = north - k * (k @ north) + np.cross(k, -east)
+        c = d_sat @ d_rx / (np.linalg.norm(d_sat) * np.linalg.norm(d_rx))
+        want.append(np.sign(k @ np.cross(d_sat, d_rx)) * math.acos(c) / (2 * math.pi))
+    got = signals.phase_windup_cycles(sats, rx, np.broadcast_to(sun, sats.shape))
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-12)
+
+
 def test_eclipse_duration_of_a_circular_gps_orbit():
     """A circular orbit of radius r in the Sun's plane (β = 0) spends 2·asin(R_E/r)/2π of its period
     in a cylindrical shadow: 55.4 min for GPS (geometry; "up to about 55 min", common practice)."""

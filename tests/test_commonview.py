@@ -457,8 +457,19 @@ def test_budget_scatter_error_and_tdev_threshold():
     assert b["mean_offset_ns"] == pytest.approx(m, rel=1e-12, abs=0)
     se = np.sqrt(np.sum(w * (x - m) ** 2) / ((n - 1) * np.sum(w)))
     assert b["type_a_detail"]["se_scatter_ns"] == pytest.approx(se, rel=1e-12, abs=0)
-    assert "tdev_span_ns" in b["type_a_detail"]
     assert "tdev_span_ns" not in cv.uncertainty_budget(df.iloc[:31])["type_a_detail"]
+    # TDEV at span: allantools' TDEV (reference library) at octave τ, the log-log slope of its last
+    # two points (bounded to [−0.5, 1]) carried to τ = span = 32 × 300 s; with a gap the grid is
+    # filled by linear interpolation first (bin 7 left out here)
+    import allantools
+
+    for keep in (np.arange(n), np.delete(np.arange(n), 7)):
+        det = cv.uncertainty_budget(df.iloc[keep])["type_a_detail"]
+        xg = np.interp(np.arange(n), keep, x[keep])
+        taus, dev = allantools.tdev(xg * 1e-9, rate=1 / 300.0, data_type="phase", taus="octave")[:2]
+        slope = np.clip(np.log(dev[-1] / dev[-2]) / np.log(taus[-1] / taus[-2]), -0.5, 1.0)
+        assert det["tdev_slope"] == pytest.approx(slope, rel=1e-9, abs=0)
+        assert det["tdev_span_ns"] == pytest.approx(dev[-1] * 1e9 * (n * 300.0 / taus[-1]) ** slope, rel=1e-9, abs=0)
 
 
 # ---------------------------------------------------------------- flags and refusals

@@ -344,6 +344,8 @@ def test_epoch_of_exactly_three_satellites_rejects_its_spike():
     mean, _, n_used, rej = robust_epoch_mean(v, np.ones_like(v), 3.5, sigma=np.ones_like(v))
     assert mean[0] == pytest.approx(0.15, abs=1e-12) and n_used[0] == 2 and list(rej[0]) == [False, False, True]
     assert mean[1] == pytest.approx(15.0, abs=1e-12) and n_used[1] == 2 and not rej[1].any()
+    # one value: its own mean (min_sats defaults to 1)
+    assert robust_epoch_mean(np.array([[4.0, np.nan, np.nan]]), np.ones((1, 3)))[0][0] == 4.0
 
 
 # Croux & Rousseeuw (1992) small-sample consistency factors of the MAD (from memory, as in the
