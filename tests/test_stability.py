@@ -342,6 +342,8 @@ def test_step_window_reaches_max_window_on_white_noise():
     x[1000:] += 5.0
     est = stability.estimate_step(t_s, x, 0.5 * (t_s[999] + t_s[1000]), 30.0, max_window=16)
     assert est["window"] == 16 and est["n_before"] == est["n_after"] == 16
+    # ~2000 scan positions (≥ 20): u is the scan spread itself, even where the formal u is larger
+    assert est["u_ns"] == est["u_scan_ns"] and est["u_formal_ns"] > est["u_scan_ns"]
     assert abs(est["size_ns"] - 5.0) < 4 * est["u_ns"]
 
 
