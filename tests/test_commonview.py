@@ -666,3 +666,14 @@ def test_main_series_of_an_ambiguous_day_is_its_first_system():
     assert list(kept["system"]) == ["E", "ALL"] and list(kept["offset_ns"]) == [2.0, 5.0]
     with pytest.raises(ValueError, match="no combined"):
         cv.main_series(df, strict=True)
+
+
+def test_suspect_satellite_from_half_of_its_bins_on():
+    # Module docstring: a satellite with at least 3 usable bins of which half or more are outliers
+    # is suspect. 4 bins with 2 outliers: suspect; with 1: not; 2 bins both outliers: too few
+    sat_df = pd.DataFrame({"sat": ["G01"] * 4 + ["G02"] * 4 + ["G03"] * 2,
+                           "flag": ["ok", "outlier", "ok", "outlier", "ok", "ok", "outlier", "ok", "outlier", "outlier"],
+                           "residual_ns": 0.0})
+    summ = cv._sat_summary(sat_df).set_index("sat")
+    assert list(summ["suspect"]) == [True, False, False]
+    assert list(summ["n_outlier"]) == [2, 1, 2]
