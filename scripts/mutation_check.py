@@ -183,11 +183,17 @@ def explained_survivors(path=None):
     return rows
 
 
-def explain(rows, module, line_text, desc):
-    """The class of the first matching row of :func:`explained_survivors`, or None."""
+def explain(rows, module, line_text, desc, column=None):
+    """The class of the first matching row of :func:`explained_survivors`, or None. A mutation
+    written ``1 -> 2@94`` in the table matches only the token at that column of the line (for a
+    line where the same mutation text hits several tokens that are not all equivalent)."""
     for m, code, muts, klass in rows:
-        if m == module and desc in muts and code in line_text:
-            return klass
+        if m != module or code not in line_text:
+            continue
+        for spec in muts:
+            text, _, col = spec.partition("@")
+            if text == desc and (not col or (column is not None and int(col) == column)):
+                return klass
     return None
 
 
@@ -332,7 +338,7 @@ def main(argv=None):
         print(f"\n{len(valid)} decided mutants ({len(rows) - len(valid) - n_to} invalid, {n_to} timed out), "
               f"{len(surv)} survived: survival rate {100.0 * len(surv) / max(1, len(valid)):.1f} %  "
               f"({wall:.0f} s wall)")
-        klass = {id(r): explain(known, r[0], line_text[r[0]][r[1] - 1], r[2]) for r in surv}
+        klass = {id(r): explain(known, r[0], line_text[r[0]][r[1] - 1], r[2], r[6]) for r in surv}
         unexplained = [r for r in surv if klass[id(r)] is None]
         per_module = {}
         for m in modules:

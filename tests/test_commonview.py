@@ -458,6 +458,13 @@ def test_budget_scatter_error_and_tdev_threshold():
     se = np.sqrt(np.sum(w * (x - m) ** 2) / ((n - 1) * np.sum(w)))
     assert b["type_a_detail"]["se_scatter_ns"] == pytest.approx(se, rel=1e-12, abs=0)
     assert "tdev_span_ns" not in cv.uncertainty_budget(df.iloc[:31])["type_a_detail"]
+    # the lag-1 autocorrelation of the residuals is used from 4 bins on (numpy's corrcoef, kept in
+    # [0, 0.99]); a drifting series of 4 bins is strongly correlated
+    four = df.iloc[:4].assign(offset_ns=[0.0, 1.0, 2.2, 2.9], u_ns=1.0)
+    r4 = four["offset_ns"].to_numpy() - four["offset_ns"].mean()
+    rho = min(max(np.corrcoef(r4[:-1], r4[1:])[0, 1], 0.0), 0.99)
+    assert rho > 0.5
+    assert cv.uncertainty_budget(four)["type_a_detail"]["lag1_autocorrelation"] == pytest.approx(rho, rel=1e-12)
     # TDEV at span: allantools' TDEV (reference library) at octave τ, the log-log slope of its last
     # two points (bounded to [−0.5, 1]) carried to τ = span = 32 × 300 s; with a gap the grid is
     # filled by linear interpolation first (bin 7 left out here)
