@@ -370,6 +370,9 @@ def test_step_estimated_with_three_samples_on_a_side():
     # samples 0-2 remain before it
     est = stability.estimate_step(t_s, x, 0.5 * (t_s[3] + t_s[4]), 30.0)
     assert est is not None and est["n_before"] == 3 and abs(est["size_ns"] - 5.0) < 4 * est["u_ns"]
+    # window_s: the farthest sample used, here on the longer (after) side: samples 5, 6, ... lie
+    # 45, 75, ... s after the epoch, the last at 15 + 30·n_after
+    assert est["window_s"] == 15.0 + 30.0 * est["n_after"] and est["n_after"] > 3
     assert stability.estimate_step(t_s, x, 0.5 * (t_s[2] + t_s[3]), 30.0) is None
 
 
