@@ -458,6 +458,11 @@ def test_budget_scatter_error_and_tdev_threshold():
     se = np.sqrt(np.sum(w * (x - m) ** 2) / ((n - 1) * np.sum(w)))
     assert b["type_a_detail"]["se_scatter_ns"] == pytest.approx(se, rel=1e-12, abs=0)
     assert "tdev_span_ns" not in cv.uncertainty_budget(df.iloc[:31])["type_a_detail"]
+    # two bins are enough for the scatter-based error (N − 1 = 1)
+    w2, x2 = w[:2], x[:2]
+    m2 = np.sum(w2 * x2) / np.sum(w2)
+    se2 = np.sqrt(np.sum(w2 * (x2 - m2) ** 2) / np.sum(w2))
+    assert cv.uncertainty_budget(df.iloc[:2])["type_a_detail"]["se_scatter_ns"] == pytest.approx(se2, rel=1e-12)
     # the lag-1 autocorrelation of the residuals is used from 4 bins on (numpy's corrcoef, kept in
     # [0, 0.99]); a drifting series of 4 bins is strongly correlated
     four = df.iloc[:4].assign(offset_ns=[0.0, 1.0, 2.2, 2.9], u_ns=1.0)

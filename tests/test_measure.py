@@ -408,7 +408,7 @@ def test_met_gap_longer_than_four_intervals_falls_back_to_the_standard_atmospher
     from ctt.measure import _met_at_epochs
 
     step = 600 * 10**9
-    k = np.concatenate([np.arange(0, 6), np.arange(9, 15), np.arange(20, 26)])  # gaps of 4 and 5 intervals
+    k = np.concatenate([np.arange(0, 6), np.arange(9, 15), np.arange(19, 25)])  # gaps of 4 and 5 intervals
     tt = k.astype(np.int64) * step
     met = MetData(path="invented.21m", version=3.05, marker="TEST", obs_types=("PR", "TD", "HR"), time_ns=tt,
                   values={"PR": np.full(k.size, 950.0), "TD": np.full(k.size, 10.0), "HR": np.full(k.size, 50.0)})
