@@ -592,6 +592,24 @@ def test_two_value_points_are_tested_against_their_apriori_sigma():
     assert flags.tolist() == ["ok", "high_scatter", "ok", "high_scatter"]
 
 
+def test_three_value_points_are_flagged_by_their_chi_square():
+    # A point of three values that disagree evenly (no single outlier: the MAD test keeps all
+    # three) is flagged when χ² = Σ r²/σ² exceeds χ²(2 dof) at 99 % = 9.210 (chi-square table,
+    # NIST/SEMATECH e-Handbook 1.3.6.7.4); equal σ and weights, so the mean is the plain mean.
+    # Values 0, 3σ, 6σ: χ² = 18, flagged; 0, 1σ, 2σ: χ² = 2, ok; 0, 2.1σ, 4.2σ: χ² = 8.82 just
+    # below the limit, ok; 0, 2.2σ, 4.4σ: 9.68 just above, flagged.
+    s = 0.7
+    g = np.repeat(np.arange(4), 3)
+    d = np.concatenate([np.array([0.0, 3.0, 6.0]), np.array([0.0, 1.0, 2.0]), np.array([0.0, 2.1, 4.2]),
+                        np.array([0.0, 2.2, 4.4])]) * s + 5.0
+    sig = np.full(d.size, s)
+    per, acc, _ = cv.robust_weighted_mean(g, 4, d, np.ones(d.size), sig)
+    assert acc.all()                                   # nothing rejected: the values disagree evenly
+    np.testing.assert_allclose(per["chi2"], [18.0, 2.0, 8.82, 9.68], rtol=1e-9)
+    assert per["high_scatter"].tolist() == [True, False, False, True]
+    assert cv._bin_flags(per, min_common=2).tolist() == ["high_scatter", "ok", "ok", "high_scatter"]
+
+
 # ---------------------------------------------------------------- resampling, match counts
 
 def test_finer_table_resampled_by_the_documented_rules():

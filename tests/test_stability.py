@@ -638,3 +638,26 @@ def test_daily_value_of_a_day_with_one_or_two_points():
     assert dv["offset_ns"] == 5.0 and dv["u_a_ns"] == pytest.approx(0.4, abs=1e-3)
     dv2, _ = stability.daily_value(t, [5.0, 6.0], [0.4, 0.4])
     assert dv2["offset_ns"] == 5.5 and dv2["u_a_ns"] == pytest.approx(0.4 / np.sqrt(2), abs=1e-3)
+
+
+def test_one_change_found_at_neighbouring_breaks_is_kept_once():
+    # ctt.stability.detect_changes: "one change may be found at neighbouring breaks: keep the
+    # most significant" -- within the matching tolerance and of the same kind only; a phase
+    # step and a frequency change at one epoch are two changes, and two steps farther apart
+    # than the tolerance are two steps. (A rule of the change report, checked on invented
+    # Change records.)
+    from ctt.stability import Change, _dedupe
+
+    h = 3_600_000_000_000
+    a = Change(time_ns=10 * h, kind="phase step", size=5.0, u_size=0.5, expected=False, significance=6.0)
+    b = Change(time_ns=10 * h + 1_800_000_000_000, kind="phase step", size=4.8, u_size=0.4, expected=False,
+               significance=9.0)
+    f = Change(time_ns=10 * h, kind="frequency change", size=1e-13, u_size=2e-14, expected=False, significance=5.0)
+    c = Change(time_ns=14 * h, kind="phase step", size=-3.0, u_size=0.5, expected=False, significance=4.0)
+    out = _dedupe([a, f, b, c], tol=3600.0)
+    assert sorted((o.kind, o.time_ns) for o in out) == sorted([("phase step", b.time_ns),
+                                                               ("frequency change", f.time_ns),
+                                                               ("phase step", c.time_ns)])
+    assert [o for o in out if o.kind == "phase step"][0].significance == 9.0   # the more significant kept
+    # farther apart than the tolerance: both steps stay
+    assert len(_dedupe([a, b], tol=1700.0)) == 2
