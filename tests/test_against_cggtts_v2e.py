@@ -247,16 +247,19 @@ def test_written_header_follows_the_documented_lines(tmp_path):
         assert unit in lines[18]
 
 
-def test_dsg_is_the_rms_of_the_fit_residuals():
+@pytest.mark.parametrize("slope_ns_s", [0.0, 0.01])
+def test_dsg_is_the_rms_of_the_fit_residuals(slope_ns_s):
     """[V01] DSG is 'the root mean square of the residuals of the linear fit' (sqrt(RSS/n)), REFSYS
-    the fit at mid-track; checked on an invented station table whose residuals are known."""
+    the fit at mid-track and SRSYS its slope (0.1 ps/s in the file, ps/s here); checked on an
+    invented station table whose residuals are known, without and with a clock rate (10 ps/s),
+    which the fit must take out of the residuals."""
     from ctt.exports import station_tracks_to_cggtts
     from ctt.timescales import NS_PER_S, convert, from_mjd
 
     t0 = int(convert(from_mjd(59215), "UTC", "GPS"))
     t = t0 + np.arange(2880, dtype=np.int64) * 30 * NS_PER_S
     wiggle = np.where(np.arange(2880) % 2 == 0, 1.0, -1.0)          # +-1 ns alternating
-    tab = pd.DataFrame({"time": t, "sat": "G07", "system": "G", "signal": "C1W+C2W", "clock_ns": 5.0 + wiggle,
+    tab = pd.DataFrame({"time": t, "sat": "G07", "system": "G", "signal": "C1W+C2W", "clock_ns": 5.0 + wiggle + slope_ns_s * 30.0 * np.arange(2880),
                         "sigma_ns": 1.0, "elevation_deg": 45.0, "azimuth_deg": 100.0, "troposphere_m": 2.4,
                         "ionosphere_m": 0.0, "flag": "ok", "sat_clock_ns": 0.0, "relativity_ns": 0.0,
                         "group_delay_ns": 0.0})
@@ -268,11 +271,22 @@ def test_dsg_is_the_rms_of_the_fit_residuals():
     x = np.arange(26) * 30.0                                           # the track's 26 samples
     assert full["trkl_s"] == 780
     ts = (convert(from_mjd(59215, 840.0), "UTC", "GPS") - t0) // (30 * NS_PER_S)
-    yy = wiggle[int(ts):int(ts) + 26]
+    yy = wiggle[int(ts):int(ts) + 26] + slope_ns_s * 30.0 * np.arange(int(ts), int(ts) + 26)
     coef = np.polyfit(x, yy, 1)
     rms = np.sqrt(np.mean((yy - np.polyval(coef, x)) ** 2))
     assert full["dsg_ns"] == pytest.approx(rms, rel=1e-9)
     assert full["refsys_ns"] == pytest.approx(5.0 + np.polyval(coef, 390.0), abs=1e-9)
+    assert full["srsys_ps_s"] == pytest.approx(coef[0] * 1e3, abs=1e-6)
+    # the track's u: the residuals (rate taken out) are compatible with the stated sigma of 1 ns
+    # (chi-square of 24 dof at 99 % is 42.98 against ~26 here), so u is the a-priori propagation,
+    # the OLS variance of the fitted value at mid-track sigma^2 (1/n + (x0 - xbar)^2 / Sxx)
+    # (textbook least squares), not the fit's own scatter
+    from ctt.tracks import fit_tracks
+
+    trk = fit_tracks(tab)
+    row = trk[trk["mid_time"] == trk["mid_time"].sort_values().iloc[1]].iloc[0]
+    sxx = np.sum((x - x.mean()) ** 2)
+    assert row["u_ns"] == pytest.approx(np.sqrt(1 / 26 + (390.0 - x.mean()) ** 2 / sxx), rel=1e-9)
 
 
 def test_reads_headers_in_the_published_forms(tmp_path):

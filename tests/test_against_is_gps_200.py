@@ -129,3 +129,30 @@ def test_iono_free_dcb_factor_l1l2():
     rho, i1 = 2.2e7, 7.5
     p1, p2 = rho + i1, rho + i1 * (F_L1 / F_L2) ** 2
     assert sig.iono_free(p1, p2, F_L1, F_L2) == pytest.approx(rho, abs=1e-7)
+
+
+def test_broadcast_clock_drift_is_the_derivative_of_the_clock_polynomial(shared_data):
+    # IS-GPS-200 §20.3.3.3.3.1 (and the Galileo OS SIS ICD §5.1.4, same form): Δt_sv = a_f0 +
+    # a_f1 (t − t_oc) + a_f2 (t − t_oc)², so its rate is a_f1 + 2 a_f2 (t − t_oc). Checked on a
+    # real record with a non-zero a_f2 (E11 in the mixed navigation file AMEL00NLD of
+    # real-2021-001: 3.47e-18 s/s²) by the central difference of the clock itself, exact for a
+    # quadratic up to float rounding (~1e-19 s / 60 s).
+    from ctt import timescales as ts
+    from ctt.formats.rinex_nav import read_nav
+    from ctt.orbits import BroadcastOrbits
+
+    nav = read_nav(shared_data / "AMEL00NLD_R_20210010000_01D_MN.rnx")
+    orb = BroadcastOrbits(nav)
+    sat = np.array(["E11"])
+    h = 30.0
+    found = 0
+    for hour in range(1, 23):
+        t = np.array([ts.parse_iso(f"2021-01-01T{hour:02d}:10:00")], dtype=np.int64)
+        st = orb.states(sat, t, np.zeros(1))
+        lo, hi = orb.states(sat, t, np.full(1, -h)), orb.states(sat, t, np.full(1, h))
+        if not np.isfinite(st.clock_drift_sps[0]) or not (np.isfinite(lo.clock_s[0]) and np.isfinite(hi.clock_s[0])):
+            continue
+        deriv = (hi.clock_s[0] - lo.clock_s[0]) / (2 * h)
+        assert st.clock_drift_sps[0] == pytest.approx(deriv, rel=0, abs=1e-17)
+        found += 1
+    assert found >= 10
