@@ -121,6 +121,22 @@ def test_pole_tide_coefficients_from_iers_love_numbers():
     assert enu == pytest.approx([0.0, 0.0, -0.033], abs=1e-9)
 
 
+def test_pole_tide_at_an_east_longitude_by_hand():
+    """IERS 2010 eq. 7.26 evaluated by hand where both pole coordinates and both longitude terms
+    matter: θ = 40° colatitude (50° N), λ = 60° E, m1 = 0.2", m2 = −0.3" (xp, yp of the day minus the
+    Table 7.7 mean pole of 2011.0): S_r = −33 sin2θ (m1 cosλ + m2 sinλ), S_θ = −9 cos2θ (m1 cosλ +
+    m2 sinλ), S_λ = 9 cosθ (m1 sinλ − m2 cosλ), in mm; east = S_λ, north = −S_θ, up = S_r."""
+    xbar, ybar = geodesy.iers2010_mean_pole_arcsec(2011.0)
+    m1, m2 = 0.2, -0.3
+    th, lam = math.radians(40.0), math.radians(60.0)
+    a = m1 * math.cos(lam) + m2 * math.sin(lam)
+    expected = [9.0 * math.cos(th) * (m1 * math.sin(lam) - m2 * math.cos(lam)),
+                9.0 * math.cos(2 * th) * a, -33.0 * math.sin(2 * th) * a]
+    enu = geodesy.pole_tide_displacement_enu(math.radians(50.0), lam, xbar + m1, ybar - m2, 2011.0)
+    assert np.asarray(enu) * 1e3 == pytest.approx(expected, rel=0, abs=1e-9)
+    assert abs(expected[2]) > 5.0          # every term matters here (mm)
+
+
 def test_mean_pole_pieces_meet_at_2010():
     """IERS 2010 Table 7.7: the cubic (before 2010.0) and linear (after) mean-pole models are
     continuous at 2010.0 (99.654 mas, 352.605 / 352.604 mas: the rounded published coefficients

@@ -521,3 +521,19 @@ def test_smoothing_sigma_ratio_is_the_residual_rms_ratio_per_band():
     # never above 1: a band where smoothing made things worse keeps the raw σ
     f2, r2 = smoothing_sigma_ratio(raw * 2.0, raw, el, use)
     assert np.all(f2 <= 1.0) and r2["30-45"] == 1.0
+
+
+def test_measured_ionosphere_from_the_two_codes(tmp_path):
+    # First-order ionosphere on the first code from the code difference (common practice; the
+    # frequencies of IS-GPS-200: f1 = 1575.42, f2 = 1227.60 MHz): I1 = (P2 - P1) f2^2/(f1^2 - f2^2)
+    # = (P2 - P1)/(gamma - 1), gamma = (f1/f2)^2. A P2 3 m longer than P1 reads 4.637 m on P1.
+    rx = _geodetic_xyz(46.0, 7.0, 500.0)
+    st = _station(tmp_path, rx)
+    obs = _simulate(rx, lambda t: 3e-4 + 0.0 * t, 0.0)
+    obs = dataclasses.replace(obs, obs={**obs.obs, "C2W": obs.obs["C2W"] + 3.0})
+    day = measure_station(obs, InertialOrbits(), st, MeasureOptions(**OFF))
+    v = day.table["iono_measured_m"].to_numpy(float)
+    v = v[np.isfinite(v)]
+    gamma = (1575.42 / 1227.60) ** 2
+    assert v.size > 200
+    np.testing.assert_allclose(v, 3.0 / (gamma - 1.0), rtol=1e-12)
