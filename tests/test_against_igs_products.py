@@ -23,7 +23,7 @@ import numpy as np
 import pytest
 
 from ctt import orbits as P
-from ctt.formats import antex as ATX, rinex_clock as CLK, sp3 as SP3
+from ctt.formats import antex as ATX, sp3 as SP3
 from ctt.timescales import NS_PER_S, civil_to_ns
 
 GM = 3.986005e14           # IS-GPS-200
